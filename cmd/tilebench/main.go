@@ -1,0 +1,130 @@
+// Command tilebench chooses patch sizes for, stresses, and exports the
+// inputs of patch-based vision policies. Run "tilebench help" for the
+// commands. This package only parses flags and wires the library together.
+package main
+
+import (
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"os"
+	"sort"
+	"strings"
+)
+
+// command is one subcommand. Each lives in a file of its own and registers
+// itself from init.
+type command struct {
+	name    string
+	summary string
+	// run parses args (the words after the command name) and does the
+	// work. It returns a usageError for bad flags or arguments.
+	run func(ctx *runContext, args []string) error
+}
+
+// runContext carries the process's streams so that commands can be tested.
+type runContext struct {
+	stdin          io.Reader
+	stdout, stderr io.Writer
+}
+
+var commands = map[string]*command{}
+
+func register(c *command) {
+	if _, dup := commands[c.name]; dup {
+		panic("duplicate command " + c.name)
+	}
+	commands[c.name] = c
+}
+
+// usageError marks an error in how the command was called (exit status 2).
+type usageError struct{ err error }
+
+func (u usageError) Error() string { return u.err.Error() }
+func (u usageError) Unwrap() error { return u.err }
+
+// usagef returns a usageError with a formatted message.
+func usagef(format string, a ...any) error { return usageError{fmt.Errorf(format, a...)} }
+
+// newFlags returns a flag set that reports errors instead of exiting, and
+// whose -help output goes to ctx.stdout.
+func newFlags(ctx *runContext, name, usage string) *flag.FlagSet {
+	fs := flag.NewFlagSet("tilebench "+name, flag.ContinueOnError)
+	fs.SetOutput(io.Discard)
+	fs.Usage = func() {
+		fmt.Fprintf(ctx.stdout, "usage: tilebench %s\n\n", usage)
+		fs.SetOutput(ctx.stdout)
+		fs.PrintDefaults()
+		fs.SetOutput(io.Discard)
+	}
+	return fs
+}
+
+// parseFlags parses args into fs, turning flag errors into usage errors.
+// It returns errHelp when -h or -help was given (after printing usage).
+func parseFlags(fs *flag.FlagSet, args []string) error {
+	if err := fs.Parse(args); err != nil {
+		if errors.Is(err, flag.ErrHelp) {
+			fs.Usage()
+			return errHelp
+		}
+		return usageError{err}
+	}
+	return nil
+}
+
+// errHelp ends a command successfully after its help was printed.
+var errHelp = errors.New("help printed")
+
+func main() {
+	ctx := &runContext{stdin: os.Stdin, stdout: os.Stdout, stderr: os.Stderr}
+	os.Exit(run(ctx, os.Args[1:]))
+}
+
+// run executes one command line and returns the exit status: 0 success,
+// 1 runtime failure, 2 usage error.
+func run(ctx *runContext, args []string) int {
+	if len(args) == 0 || args[0] == "help" || args[0] == "-h" || args[0] == "--help" || args[0] == "-help" {
+		if len(args) > 1 {
+			if c, ok := commands[args[1]]; ok {
+				return finish(ctx, c.run(ctx, []string{"-help"}))
+			}
+		}
+		printHelp(ctx.stdout)
+		return 0
+	}
+	c, ok := commands[args[0]]
+	if !ok {
+		fmt.Fprintf(ctx.stderr, "tilebench: unknown command %q (run \"tilebench help\")\n", args[0])
+		return 2
+	}
+	return finish(ctx, c.run(ctx, args[1:]))
+}
+
+func finish(ctx *runContext, err error) int {
+	if err == nil || errors.Is(err, errHelp) {
+		return 0
+	}
+	msg := strings.ReplaceAll(err.Error(), "\n", " ")
+	fmt.Fprintf(ctx.stderr, "tilebench: %s\n", msg)
+	var u usageError
+	if errors.As(err, &u) {
+		return 2
+	}
+	return 1
+}
+
+func printHelp(w io.Writer) {
+	fmt.Fprintln(w, "tilebench: choose patch sizes for, stress, and export the inputs of patch-based vision policies.")
+	fmt.Fprintln(w, "\nusage: tilebench COMMAND [options]   (tilebench COMMAND -help for its options)")
+	fmt.Fprintln(w, "\ncommands:")
+	var names []string
+	for n := range commands {
+		names = append(names, n)
+	}
+	sort.Strings(names)
+	for _, n := range names {
+		fmt.Fprintf(w, "  %-8s %s\n", n, commands[n].summary)
+	}
+}

@@ -1,0 +1,2 @@
+// Package drive is the top-down driving game.
+package drive

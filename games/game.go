@@ -1,0 +1,240 @@
+// Package games defines the seeded, deterministic game interface that
+// tilebench runs policies in, and registers the built-in games.
+//
+// Nothing in this package knows about patches or policies: a game takes an
+// action, advances its state, and draws its observation into a
+// caller-owned *image.RGBA.
+package games
+
+import (
+	"errors"
+	"fmt"
+	"image"
+	"math"
+	"sort"
+)
+
+// ActionKind says whether a game takes continuous or discrete actions.
+type ActionKind int
+
+const (
+	// Continuous actions are vectors of Dim() numbers within [Low, High].
+	Continuous ActionKind = iota
+	// Discrete actions pick one of len(Names) named choices.
+	Discrete
+)
+
+// String returns "continuous" or "discrete".
+func (k ActionKind) String() string {
+	if k == Discrete {
+		return "discrete"
+	}
+	return "continuous"
+}
+
+// ActionSpace describes the actions a game accepts.
+//
+// An action is always passed as a []float64: for a continuous space it
+// holds Dim() values; for a discrete space it holds one value, the index of
+// the choice (0, 1, ...).
+type ActionSpace struct {
+	Kind ActionKind
+	// Names names each continuous dimension ("steer", "throttle", ...) or
+	// each discrete choice ("left", "stay", "right").
+	Names []string
+	// Low and High bound each continuous dimension; unused for Discrete.
+	Low, High []float64
+}
+
+// Dim is the length of an action vector: the number of continuous
+// dimensions, or 1 for a discrete space.
+func (a ActionSpace) Dim() int {
+	if a.Kind == Discrete {
+		return 1
+	}
+	return len(a.Names)
+}
+
+// Choices is the number of discrete choices (0 for a continuous space).
+func (a ActionSpace) Choices() int {
+	if a.Kind == Discrete {
+		return len(a.Names)
+	}
+	return 0
+}
+
+// ErrBadAction is wrapped by every error a game returns for an action it
+// cannot take (wrong length, NaN, infinite, out of range choice).
+var ErrBadAction = errors.New("bad action")
+
+// Check returns an error wrapping ErrBadAction if action does not fit a.
+// Continuous values outside [Low, High] are allowed (games clamp them);
+// non-finite values are not.
+func (a ActionSpace) Check(action []float64) error {
+	if len(action) != a.Dim() {
+		return fmt.Errorf("%w: %d values, want %d", ErrBadAction, len(action), a.Dim())
+	}
+	for i, v := range action {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return fmt.Errorf("%w: value %d is %v", ErrBadAction, i, v)
+		}
+	}
+	if a.Kind == Discrete {
+		c := action[0]
+		if c != math.Trunc(c) || c < 0 || int(c) >= len(a.Names) {
+			return fmt.Errorf("%w: choice %v, want 0..%d", ErrBadAction, c, len(a.Names)-1)
+		}
+	}
+	return nil
+}
+
+// EndReason says why an episode ended.
+type EndReason int
+
+const (
+	// NotEnded: the episode goes on.
+	NotEnded EndReason = iota
+	// Completed: the goal was reached (a lap driven).
+	Completed
+	// Failed: the game's failure rule ended it (off the road too long,
+	// too many misses).
+	Failed
+	// TimeUp: the step limit was reached.
+	TimeUp
+)
+
+// String returns the word used in every output: "running", "completed",
+// "failed" or "time-up".
+func (r EndReason) String() string {
+	switch r {
+	case NotEnded:
+		return "running"
+	case Completed:
+		return "completed"
+	case Failed:
+		return "failed"
+	case TimeUp:
+		return "time-up"
+	}
+	return fmt.Sprintf("reason(%d)", int(r))
+}
+
+// Spec is what a game declares about itself.
+type Spec struct {
+	// Name is the registered game name ("drive", "paddle").
+	Name string
+	// Variation is the variation name in use ("" means the default).
+	Variation string
+	// Width and Height are the observation frame size in pixels.
+	Width, Height int
+	// Action is the action space.
+	Action ActionSpace
+	// MaxSteps is the step limit of one episode.
+	MaxSteps int
+}
+
+// Step is the outcome of one game step.
+type Step struct {
+	Reward float64
+	Done   bool
+	Reason EndReason
+}
+
+// Game is a seeded, deterministic game. The same seed and the same actions
+// give the same frames and rewards, byte for byte.
+type Game interface {
+	// Spec describes the game.
+	Spec() Spec
+	// Reset starts a new episode from seed.
+	Reset(seed uint64)
+	// Step advances one fixed time step. It returns an error wrapping
+	// ErrBadAction, and changes nothing, if the action does not fit the
+	// action space.
+	Step(action []float64) (Step, error)
+	// Render draws the current observation into dst, which must be
+	// Spec().Width × Spec().Height. It does not allocate.
+	Render(dst *image.RGBA)
+}
+
+// Expert is a scripted controller that reads the true game state (not
+// pixels). Act writes the action for the current state into dst
+// (len = Spec().Action.Dim()).
+type Expert interface {
+	Act(dst []float64)
+}
+
+// WithExpert is implemented by games that ship a scripted expert.
+type WithExpert interface {
+	Game
+	// Expert returns the expert bound to this game instance; it follows
+	// the game's state across Reset and Step.
+	Expert() Expert
+}
+
+// Options configure a game at construction. The zero value gives the
+// default game.
+type Options struct {
+	// Variation names a variation (palette set, sizes, distractors); ""
+	// means the default. Each game documents its variations.
+	Variation string
+	// Width and Height override the frame size; 0 keeps the game's default.
+	Width, Height int
+}
+
+// Constructor builds a game from options.
+type Constructor func(Options) (Game, error)
+
+var registry = map[string]registered{}
+
+type registered struct {
+	make       Constructor
+	variations []string
+}
+
+// Register makes a game available by name. It is called from the init
+// function of each game's package and panics on a duplicate name
+// (a programming error, never user input).
+func Register(name string, variations []string, make Constructor) {
+	if _, dup := registry[name]; dup {
+		panic("games: duplicate game " + name)
+	}
+	registry[name] = registered{make: make, variations: variations}
+}
+
+// New builds the named game.
+func New(name string, opt Options) (Game, error) {
+	r, ok := registry[name]
+	if !ok {
+		return nil, fmt.Errorf("unknown game %q (have %v)", name, Names())
+	}
+	return r.make(opt)
+}
+
+// Names lists the registered games, sorted.
+func Names() []string {
+	var out []string
+	for n := range registry {
+		out = append(out, n)
+	}
+	sort.Strings(out)
+	return out
+}
+
+// Variations lists the named variations of a registered game.
+func Variations(name string) []string { return registry[name].variations }
+
+// Seed ranges. Training (and anything tuned) uses seeds in
+// [TrainSeedStart, TrainSeedStart+SeedRangeLen); evaluation defaults to the
+// held-out range [HeldOutSeedStart, HeldOutSeedStart+SeedRangeLen). The two
+// never overlap; every command uses them.
+const (
+	TrainSeedStart   uint64 = 0
+	HeldOutSeedStart uint64 = 1_000_000
+	SeedRangeLen     uint64 = 1_000_000
+)
+
+// HeldOut returns the i-th held-out seed.
+func HeldOut(i int) uint64 { return HeldOutSeedStart + uint64(i) }
+
+// Train returns the i-th training seed.
+func Train(i int) uint64 { return TrainSeedStart + uint64(i) }

@@ -1,0 +1,2 @@
+// Package paddle is the paddle game.
+package paddle
