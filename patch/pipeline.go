@@ -1,7 +1,6 @@
 package patch
 
 import (
-	"errors"
 	"image"
 )
 
@@ -14,6 +13,13 @@ import (
 // one Tokenizer serves one goroutine.
 type Tokenizer struct {
 	g *Grid
+	// sum and cnt accumulate overlapping tokens in Assemble; generic is
+	// the scratch frame of the generic Tokenize path. All are allocated on
+	// first use and reused.
+	sum     []float32
+	cnt     []uint32
+	generic *image.RGBA
+	pal     *[256][3]uint8
 }
 
 // NewTokenizer returns a tokenizer for g.
@@ -26,14 +32,14 @@ func (t *Tokenizer) Grid() *Grid { return t.g }
 // Width×Height (its bounds may start anywhere). dst must have room for
 // Grid().N() tokens of Grid().D() values; it is not reallocated.
 func (t *Tokenizer) Tokenize(img image.Image, dst *TokenSet) error {
-	return errors.New("patch: Tokenize not implemented")
+	return t.tokenize(img, dst)
 }
 
 // Assemble draws ts back into dst (OutW×OutH): each token at its Pos;
 // overlapping tokens are averaged; cells with no token are filled black;
 // tokens with Pos NoCell are skipped.
 func (t *Tokenizer) Assemble(ts *TokenSet, dst *image.RGBA) error {
-	return errors.New("patch: Assemble not implemented")
+	return t.assemble(ts, dst)
 }
 
 // Spec names the transforms of a pipeline in the spelling of the CLI
@@ -75,20 +81,20 @@ type Pipeline struct {
 
 // NewPipeline checks spec against g and builds the pipeline.
 func NewPipeline(g *Grid, spec Spec) (*Pipeline, error) {
-	return nil, errors.New("patch: NewPipeline not implemented")
+	return newPipeline(g, spec)
 }
 
 // Capacity is the largest number of tokens Apply can produce.
 func (p *Pipeline) Capacity() int { return p.g.N() + p.spec.NoiseTokens + p.spec.Duplicates }
 
 // Reset starts a new sequence (episode) drawing from seed.
-func (p *Pipeline) Reset(seed uint64) {}
+func (p *Pipeline) Reset(seed uint64) { p.reset(seed) }
 
 // Apply transforms src (a full token set in grid order, for step t of the
 // sequence) into dst, which must have room for Capacity() tokens. If rec
 // is not nil it is filled with what was done (reusing its slices).
 func (p *Pipeline) Apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
-	return errors.New("patch: Apply not implemented")
+	return p.apply(t, src, dst, rec)
 }
 
 // FrameRecord is what the pipeline did to one frame: enough to invert the

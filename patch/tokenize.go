@@ -1,0 +1,336 @@
+package patch
+
+import (
+	"fmt"
+	"image"
+	"image/color"
+	"image/draw"
+)
+
+// Pixel values and the luma rule.
+//
+// A byte b becomes the float32 value float32(b)/255 (correctly rounded
+// float32 division, the same as NumPy's arr.astype(np.float32)/255).
+//
+// Which bytes a frame holds depends on its type:
+//   - *image.RGBA: the stored (alpha-premultiplied) R, G, B bytes, i.e. the
+//     colour composited over black; alpha is ignored.
+//   - *image.NRGBA: the stored, un-premultiplied R, G, B bytes; alpha is
+//     ignored.
+//   - *image.Gray: the grey byte.
+//   - *image.YCbCr: R, G, B from the stdlib's color.YCbCrToRGB (JFIF
+//     full-range conversion).
+//   - *image.Paletted: the palette colour's premultiplied R, G, B bytes.
+//   - anything else: Color.RGBA() >> 8 of every pixel (premultiplied, as
+//     image/draw computes it).
+//
+// A grey source tokenized with Channels 3 gives three equal values. An RGB
+// source tokenized with Channels 1 gives the ITU-R BT.601 luma
+// Y' = 0.299 R + 0.587 G + 0.114 B (Recommendation ITU-R BT.601, the
+// weights of the luma equation), computed exactly in integers and divided
+// once:  float32(299·R + 587·G + 114·B) / 255000.
+
+// unit[b] is float32(b)/255.
+var unit = func() (u [256]float32) {
+	for i := range u {
+		u[i] = float32(i) / 255
+	}
+	return u
+}()
+
+// luma returns the BT.601 luma of an 8-bit RGB triple in [0,1].
+func luma(r, g, b uint8) float32 {
+	return float32(299*int32(r)+587*int32(g)+114*int32(b)) / 255000
+}
+
+type pixKind int
+
+const (
+	kindRGBA pixKind = iota // 4 bytes a pixel, R G B first (RGBA and NRGBA)
+	kindGray
+	kindYCbCr
+	kindPaletted
+)
+
+// pixSource reads rows of pixels of one frame; x and y are relative to the
+// frame's bounds.
+type pixSource struct {
+	kind   pixKind
+	pix    []byte
+	stride int
+	ycc    *image.YCbCr
+	minX   int
+	minY   int
+	pal    *[256][3]uint8
+}
+
+func (t *Tokenizer) source(img image.Image) (pixSource, error) {
+	g := t.g
+	b := img.Bounds()
+	if b.Dx() != g.Width || b.Dy() != g.Height {
+		return pixSource{}, fmt.Errorf("tokenize: frame is %dx%d, grid wants %dx%d", b.Dx(), b.Dy(), g.Width, g.Height)
+	}
+	packed := func(pix []byte, stride, off, bpp int) (pixSource, error) {
+		need := off + (g.Height-1)*stride + g.Width*bpp
+		if off < 0 || stride < g.Width*bpp || len(pix) < need {
+			return pixSource{}, fmt.Errorf("tokenize: %T pixel buffer holds %d bytes, %dx%d frame needs %d", img, len(pix), g.Width, g.Height, need)
+		}
+		k := kindRGBA
+		if bpp == 1 {
+			k = kindGray
+		}
+		return pixSource{kind: k, pix: pix[off:need], stride: stride}, nil
+	}
+	switch im := img.(type) {
+	case *image.RGBA:
+		return packed(im.Pix, im.Stride, im.PixOffset(b.Min.X, b.Min.Y), 4)
+	case *image.NRGBA:
+		return packed(im.Pix, im.Stride, im.PixOffset(b.Min.X, b.Min.Y), 4)
+	case *image.Gray:
+		return packed(im.Pix, im.Stride, im.PixOffset(b.Min.X, b.Min.Y), 1)
+	case *image.YCbCr:
+		if len(im.Y) < im.YOffset(b.Max.X-1, b.Max.Y-1)+1 || len(im.Cb) < im.COffset(b.Max.X-1, b.Max.Y-1)+1 || len(im.Cr) < len(im.Cb) {
+			return pixSource{}, fmt.Errorf("tokenize: YCbCr planes too short for a %dx%d frame", g.Width, g.Height)
+		}
+		return pixSource{kind: kindYCbCr, ycc: im, minX: b.Min.X, minY: b.Min.Y}, nil
+	case *image.Paletted:
+		s, err := packed(im.Pix, im.Stride, im.PixOffset(b.Min.X, b.Min.Y), 1)
+		if err != nil {
+			return s, err
+		}
+		if t.pal == nil {
+			t.pal = new([256][3]uint8)
+		}
+		// Indexes beyond the palette read as black, as image.Paletted.At
+		// makes them transparent.
+		*t.pal = [256][3]uint8{}
+		for i, c := range im.Palette {
+			if i >= 256 {
+				break
+			}
+			r, gg, bb, _ := c.RGBA()
+			t.pal[i] = [3]uint8{uint8(r >> 8), uint8(gg >> 8), uint8(bb >> 8)}
+		}
+		s.kind, s.pal = kindPaletted, t.pal
+		return s, nil
+	}
+	if t.generic == nil {
+		t.generic = image.NewRGBA(image.Rect(0, 0, g.Width, g.Height))
+	}
+	draw.Draw(t.generic, t.generic.Rect, img, b.Min, draw.Src)
+	return pixSource{kind: kindRGBA, pix: t.generic.Pix, stride: t.generic.Stride}, nil
+}
+
+func (t *Tokenizer) tokenize(img image.Image, dst *TokenSet) error {
+	g := t.g
+	n, d := g.N(), g.D()
+	if len(dst.Pos) < n || len(dst.Data) < n*d {
+		return fmt.Errorf("tokenize: token set has room for %d tokens of %d values, grid needs %d of %d", len(dst.Pos), min(dst.D, len(dst.Data)), n, d)
+	}
+	src, err := t.source(img)
+	if err != nil {
+		return err
+	}
+	dst.N, dst.D = n, d
+	C, pw, ph := g.Channels, g.PatchW, g.PatchH
+	rowLen := pw * C
+	for r := 0; r < g.Rows; r++ {
+		y0 := r * g.StrideY
+		for c := 0; c < g.Cols; c++ {
+			x0 := c * g.StrideX
+			i := r*g.Cols + c
+			dst.Pos[i] = Pos{Row: int16(r), Col: int16(c)}
+			tok := dst.Data[i*d : (i+1)*d]
+			nx := min(pw, g.Width-x0) // ≥ 1: every cell starts inside the frame
+			for py := 0; py < ph; py++ {
+				row := tok[py*rowLen : (py+1)*rowLen]
+				y := y0 + py
+				if y >= g.Height {
+					fillValues(row, g.Fill)
+					continue
+				}
+				src.row(row[:nx*C], x0, y, nx, C)
+				if nx < pw {
+					fillValues(row[nx*C:], g.Fill)
+				}
+			}
+		}
+	}
+	return nil
+}
+
+func fillValues(v []float32, f float32) {
+	for i := range v {
+		v[i] = f
+	}
+}
+
+// row fills dst with the n pixels of frame row y starting at column x.
+func (s *pixSource) row(dst []float32, x, y, n, C int) {
+	switch s.kind {
+	case kindRGBA:
+		off := y*s.stride + 4*x
+		p := s.pix[off : off+4*n]
+		if C == 3 {
+			rgbaRow3(dst, p)
+		} else {
+			rgbaRow1(dst, p)
+		}
+	case kindGray:
+		off := y*s.stride + x
+		p := s.pix[off : off+n]
+		if C == 3 {
+			grayRow3(dst, p)
+		} else {
+			grayRow1(dst, p)
+		}
+	case kindPaletted:
+		off := y*s.stride + x
+		p := s.pix[off : off+n]
+		for i, ix := range p {
+			c := &s.pal[ix]
+			if C == 3 {
+				d := dst[3*i : 3*i+3 : 3*i+3]
+				d[0], d[1], d[2] = unit[c[0]], unit[c[1]], unit[c[2]]
+			} else {
+				dst[i] = luma(c[0], c[1], c[2])
+			}
+		}
+	case kindYCbCr:
+		im := s.ycc
+		for i := 0; i < n; i++ {
+			px, py := s.minX+x+i, s.minY+y
+			yi, ci := im.YOffset(px, py), im.COffset(px, py)
+			r, g, b := color.YCbCrToRGB(im.Y[yi], im.Cb[ci], im.Cr[ci])
+			if C == 3 {
+				d := dst[3*i : 3*i+3 : 3*i+3]
+				d[0], d[1], d[2] = unit[r], unit[g], unit[b]
+			} else {
+				dst[i] = luma(r, g, b)
+			}
+		}
+	}
+}
+
+func rgbaRow3(dst []float32, p []byte) {
+	n := len(p) / 4
+	dst = dst[:3*n]
+	for i := 0; i < n; i++ {
+		s := p[4*i : 4*i+3 : 4*i+3]
+		d := dst[3*i : 3*i+3 : 3*i+3]
+		d[0] = unit[s[0]]
+		d[1] = unit[s[1]]
+		d[2] = unit[s[2]]
+	}
+}
+
+func rgbaRow1(dst []float32, p []byte) {
+	n := len(p) / 4
+	dst = dst[:n]
+	for i := range dst {
+		s := p[4*i : 4*i+3 : 4*i+3]
+		dst[i] = luma(s[0], s[1], s[2])
+	}
+}
+
+func grayRow1(dst []float32, p []byte) {
+	dst = dst[:len(p)]
+	for i, v := range p {
+		dst[i] = unit[v]
+	}
+}
+
+func grayRow3(dst []float32, p []byte) {
+	dst = dst[:3*len(p)]
+	for i, v := range p {
+		f := unit[v]
+		d := dst[3*i : 3*i+3 : 3*i+3]
+		d[0], d[1], d[2] = f, f, f
+	}
+}
+
+// to8 turns a value in [0,1] into a byte, rounding to nearest; values
+// outside [0,1] (and NaN) are clamped.
+func to8(v float32) uint8 {
+	if !(v > 0) {
+		return 0
+	}
+	if v >= 1 {
+		return 255
+	}
+	return uint8(v*255 + 0.5)
+}
+
+func (t *Tokenizer) assemble(ts *TokenSet, dst *image.RGBA) error {
+	g := t.g
+	b := dst.Bounds()
+	if b.Dx() != g.OutW || b.Dy() != g.OutH {
+		return fmt.Errorf("assemble: frame is %dx%d, grid covers %dx%d", b.Dx(), b.Dy(), g.OutW, g.OutH)
+	}
+	if ts.D != g.D() {
+		return fmt.Errorf("assemble: tokens hold %d values, grid wants %d", ts.D, g.D())
+	}
+	if ts.N < 0 || ts.N > len(ts.Pos) || ts.N*ts.D > len(ts.Data) {
+		return fmt.Errorf("assemble: token set claims %d tokens but has room for %d", ts.N, min(len(ts.Pos), len(ts.Data)/max(ts.D, 1)))
+	}
+	C, pw, ph, W := g.Channels, g.PatchW, g.PatchH, g.OutW
+	npx := g.OutW * g.OutH
+	if len(t.sum) != npx*C {
+		t.sum = make([]float32, npx*C)
+		t.cnt = make([]uint32, npx)
+	}
+	sum, cnt := t.sum, t.cnt
+	clear(sum)
+	clear(cnt)
+	for i := 0; i < ts.N; i++ {
+		p := ts.Pos[i]
+		if p.Row < 0 || p.Col < 0 || int(p.Row) >= g.Rows || int(p.Col) >= g.Cols {
+			continue
+		}
+		tok := ts.Data[i*ts.D : (i+1)*ts.D]
+		x0, y0 := int(p.Col)*g.StrideX, int(p.Row)*g.StrideY
+		for py := 0; py < ph; py++ {
+			o := (y0+py)*W + x0
+			src := tok[py*pw*C : (py+1)*pw*C]
+			acc := sum[o*C : (o+pw)*C]
+			for k, v := range src {
+				acc[k] += v
+			}
+			cs := cnt[o : o+pw]
+			for k := range cs {
+				cs[k]++
+			}
+		}
+	}
+	for y := 0; y < g.OutH; y++ {
+		row := dst.Pix[dst.PixOffset(b.Min.X, b.Min.Y+y):]
+		row = row[: 4*W : 4*W]
+		for x := 0; x < W; x++ {
+			o := y*W + x
+			px := row[4*x : 4*x+4 : 4*x+4]
+			px[3] = 255
+			n := cnt[o]
+			if n == 0 {
+				px[0], px[1], px[2] = 0, 0, 0
+				continue
+			}
+			if C == 1 {
+				v := sum[o]
+				if n > 1 {
+					v /= float32(n)
+				}
+				c := to8(v)
+				px[0], px[1], px[2] = c, c, c
+				continue
+			}
+			s := sum[3*o : 3*o+3 : 3*o+3]
+			if n == 1 {
+				px[0], px[1], px[2] = to8(s[0]), to8(s[1]), to8(s[2])
+			} else {
+				f := float32(n)
+				px[0], px[1], px[2] = to8(s[0]/f), to8(s[1]/f), to8(s[2]/f)
+			}
+		}
+	}
+	return nil
+}
