@@ -1,0 +1,46 @@
+package stats_test
+
+import (
+	"fmt"
+
+	"tilebench/vision/stats"
+)
+
+func ExampleIQM() {
+	fmt.Println(stats.IQM([]float64{1, 2, 3, 4, 5, 6, 7, 8}))
+	// Output: 4.5
+}
+
+func ExampleBootstrap_Summarize() {
+	// Two strata (say two seed blocks) of episode returns.
+	s := stats.Strata{{10, 12, 11, 13, 9, 12}, {20, 22, 19, 21, 23, 20}}
+	sum, err := stats.Bootstrap{Seed: 1}.Summarize(s)
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	fmt.Printf("n=%d IQM=%.3g resamples=%d lo<iqm<hi: %v\n", sum.N, sum.IQM.Value, sum.IQM.Resamples,
+		sum.IQM.Lo < sum.IQM.Value && sum.IQM.Value < sum.IQM.Hi)
+	// Output: n=12 IQM=16 resamples=2000 lo<iqm<hi: true
+}
+
+func ExampleParetoFront() {
+	pts := []stats.Point{{Cost: 1, Score: 5}, {Cost: 2, Score: 4}, {Cost: 3, Score: 7}, {Cost: 4, Score: 7}, {Cost: 5, Score: 9}}
+	fmt.Println(stats.ParetoFront(pts))
+	// Output: [0 2 4]
+}
+
+func ExampleRecommender() {
+	cands := []stats.Candidate{
+		{Name: "patch 16", Cost: 0.4, Scores: stats.Strata{{3, 4, 3, 5, 4, 3, 4, 2}}},
+		{Name: "patch 8", Cost: 1.5, Scores: stats.Strata{{9, 10, 8, 11, 10, 9, 10, 9}}},
+		{Name: "patch 4", Cost: 6.0, Scores: stats.Strata{{10, 9, 11, 10, 9, 10, 11, 8}}},
+	}
+	ch, err := stats.Recommender{Bootstrap: stats.Bootstrap{Seed: 7}}.Recommend(cands)
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	fmt.Println("best:", cands[ch.Best].Name, "pick:", cands[ch.Pick].Name)
+	// Output: best: patch 4 pick: patch 8
+}
