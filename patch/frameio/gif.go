@@ -1,0 +1,178 @@
+package frameio
+
+import (
+	"errors"
+	"fmt"
+	"image"
+	"image/color"
+	"image/color/palette"
+	"image/draw"
+	"image/gif"
+	"io"
+	"os"
+)
+
+// gifReader composites the frames of an animated GIF onto a canvas of
+// the logical screen size, honouring each frame's disposal method.
+type gifReader struct {
+	info   Info
+	g      *gif.GIF
+	i      int
+	canvas *image.RGBA
+	saved  *image.RGBA
+	bg     color.RGBA
+}
+
+func openGIF(path string) (Reader, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("input %s: %w", path, unwrapPath(err))
+	}
+	defer f.Close()
+	// image/gif decodes the whole file; refuse absurd screens first.
+	cfg, err := gif.DecodeConfig(f)
+	if err != nil {
+		return nil, fmt.Errorf("input %s: %w", path, err)
+	}
+	if err := checkSize(cfg.Width, cfg.Height); err != nil {
+		return nil, fmt.Errorf("input %s: %w", path, err)
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		return nil, fmt.Errorf("input %s: %w", path, err)
+	}
+	g, err := gif.DecodeAll(f)
+	if err != nil {
+		return nil, fmt.Errorf("input %s: %w", path, err)
+	}
+	return newGIFReader(path, g)
+}
+
+// NewGIFReader returns a reader of the composited frames of g.
+func NewGIFReader(name string, g *gif.GIF) (Reader, error) { return newGIFReader(name, g) }
+
+func newGIFReader(name string, g *gif.GIF) (*gifReader, error) {
+	if len(g.Image) == 0 {
+		return nil, fmt.Errorf("input %s: GIF holds no frames", name)
+	}
+	w, h := g.Config.Width, g.Config.Height
+	if w == 0 && h == 0 {
+		b := g.Image[0].Bounds()
+		w, h = b.Max.X, b.Max.Y
+	}
+	if err := checkSize(w, h); err != nil {
+		return nil, fmt.Errorf("input %s: %w", name, err)
+	}
+	r := &gifReader{info: Info{Name: name, Width: w, Height: h, Channels: 3, Frames: len(g.Image)}, g: g,
+		bg: color.RGBA{A: 0xff}}
+	// The background colour, where the file names an opaque one.
+	if p, ok := g.Config.ColorModel.(color.Palette); ok && int(g.BackgroundIndex) < len(p) {
+		if c := color.RGBAModel.Convert(p[g.BackgroundIndex]).(color.RGBA); c.A == 0xff {
+			r.bg = c
+		}
+	}
+	return r, nil
+}
+
+func (r *gifReader) Info() Info { return r.info }
+
+func (r *gifReader) Next() (*image.RGBA, error) {
+	if r.i >= len(r.g.Image) {
+		return nil, io.EOF
+	}
+	if r.canvas == nil {
+		r.canvas = image.NewRGBA(image.Rect(0, 0, r.info.Width, r.info.Height))
+		draw.Draw(r.canvas, r.canvas.Bounds(), image.NewUniform(r.bg), image.Point{}, draw.Src)
+	} else {
+		// Dispose of the previous frame, as its disposal method says.
+		prev := r.g.Image[r.i-1].Bounds()
+		switch r.disposal(r.i - 1) {
+		case gif.DisposalBackground:
+			draw.Draw(r.canvas, prev, image.NewUniform(r.bg), image.Point{}, draw.Src)
+		case gif.DisposalPrevious:
+			copy(r.canvas.Pix, r.saved.Pix)
+		}
+	}
+	if r.disposal(r.i) == gif.DisposalPrevious {
+		if r.saved == nil {
+			r.saved = image.NewRGBA(r.canvas.Bounds())
+		}
+		copy(r.saved.Pix, r.canvas.Pix)
+	}
+	fr := r.g.Image[r.i]
+	draw.Draw(r.canvas, fr.Bounds(), fr, fr.Bounds().Min, draw.Over)
+	r.i++
+	return r.canvas, nil
+}
+
+func (r *gifReader) disposal(i int) byte {
+	if i < len(r.g.Disposal) {
+		return r.g.Disposal[i]
+	}
+	return gif.DisposalNone
+}
+
+func (r *gifReader) Close() error { return nil }
+
+// Palette is the fixed palette of exported GIFs: the 6×6×6 colour cube
+// (levels 0, 51, ..., 255; image/color/palette.WebSafe) followed by 40
+// greys between the cube's grey levels, 256 colours in all.
+var Palette = func() color.Palette {
+	p := make(color.Palette, 0, 256)
+	p = append(p, palette.WebSafe...)
+	for i := 1; len(p) < 256; i++ {
+		v := uint8((i*255 + 20) / 41)
+		if v%51 == 0 {
+			continue
+		}
+		p = append(p, color.RGBA{v, v, v, 0xff})
+	}
+	return p
+}()
+
+// GIFWriter collects frames for an animated GIF in the fixed Palette.
+type GIFWriter struct {
+	// Delay is the time each frame is shown, in hundredths of a second.
+	Delay int
+	// NoDither maps every pixel to its nearest palette colour instead of
+	// Floyd–Steinberg error diffusion (image/draw.FloydSteinberg).
+	NoDither bool
+	g        gif.GIF
+}
+
+// Add converts img to the palette and appends it. All frames must have
+// img's size.
+func (w *GIFWriter) Add(img image.Image) error {
+	b := img.Bounds()
+	if n := len(w.g.Image); n > 0 && w.g.Image[0].Bounds().Size() != b.Size() {
+		return fmt.Errorf("gif: frame %d is %dx%d, the first is %dx%d", n, b.Dx(), b.Dy(), w.g.Image[0].Bounds().Dx(), w.g.Image[0].Bounds().Dy())
+	}
+	p := image.NewPaletted(image.Rect(0, 0, b.Dx(), b.Dy()), Palette)
+	QuantizeInto(p, img, !w.NoDither)
+	w.g.Image = append(w.g.Image, p)
+	w.g.Delay = append(w.g.Delay, w.Delay)
+	w.g.Disposal = append(w.g.Disposal, gif.DisposalNone)
+	return nil
+}
+
+// Len is the number of frames added.
+func (w *GIFWriter) Len() int { return len(w.g.Image) }
+
+// Encode writes the animation (looping forever) to out.
+func (w *GIFWriter) Encode(out io.Writer) error {
+	if len(w.g.Image) == 0 {
+		return errors.New("gif: no frames")
+	}
+	w.g.LoopCount = 0
+	return gif.EncodeAll(out, &w.g)
+}
+
+// QuantizeInto draws img into the paletted dst (same size), with
+// Floyd–Steinberg dithering when dither is set (image/draw). Colours that
+// are in dst's palette come through unchanged either way.
+func QuantizeInto(dst *image.Paletted, img image.Image, dither bool) {
+	if dither {
+		draw.FloydSteinberg.Draw(dst, dst.Bounds(), img, img.Bounds().Min)
+		return
+	}
+	draw.Draw(dst, dst.Bounds(), img, img.Bounds().Min, draw.Src)
+}

@@ -1,0 +1,306 @@
+package frameio
+
+import (
+	"errors"
+	"fmt"
+	"image"
+	"image/draw"
+	_ "image/jpeg" // register the JPEG decoder for frame folders
+	_ "image/png"  // register the PNG decoder for frame folders
+	"io"
+	"os"
+	"path/filepath"
+	"strings"
+)
+
+// Info describes a frame sequence.
+type Info struct {
+	// Name is the input as the user named it, for messages.
+	Name string
+	// Width and Height are the frame size in pixels.
+	Width, Height int
+	// Channels is 1 for grey input (a .npy array with one channel or
+	// none), 3 otherwise.
+	Channels int
+	// Frames is the number of frames, or -1 when it is not known before
+	// the end (a raw stream).
+	Frames int
+}
+
+// Reader hands out the frames of a sequence one at a time.
+type Reader interface {
+	// Info describes the sequence; it is known as soon as the reader is
+	// open.
+	Info() Info
+	// Next returns the next frame, opaque, Width×Height with bounds at
+	// the origin, or io.EOF after the last frame. The image belongs to
+	// the reader: it is valid until the next call and must not be
+	// changed. Any other error names the input (and the file).
+	Next() (*image.RGBA, error)
+	// Close releases the input.
+	Close() error
+}
+
+// Options are the settings of Open that the input itself cannot tell.
+// The zero value is useful.
+type Options struct {
+	// Width and Height are the frame size of raw RGB24 input (required
+	// there) and of built-in scenes (default 96×96).
+	Width, Height int
+	// Frames is the length of a built-in scene (default 60).
+	Frames int
+	// Stdin is what "-" reads raw RGB24 frames from (default os.Stdin).
+	Stdin io.Reader
+}
+
+// Open opens the frame sequence in:
+//
+//	DIR              a folder of .png/.jpg/.jpeg frames in natural order
+//	FILE.png|.jpg    a single frame
+//	FILE.gif         an animated GIF, frames composited
+//	FILE.npy         a uint8 array T×H×W×C, H×W×C or T×H×W (see ShapeOf)
+//	FILE.rgb|.raw    raw RGB24 frames of opt.Width×opt.Height
+//	-                raw RGB24 frames on opt.Stdin
+//	builtin:NAME     a built-in synthetic scene (see BuiltinNames)
+func Open(in string, opt Options) (Reader, error) {
+	switch {
+	case in == "":
+		return nil, errors.New("no input given")
+	case strings.HasPrefix(in, "builtin:"):
+		w, h, n := opt.Width, opt.Height, opt.Frames
+		if w == 0 && h == 0 {
+			w, h = 96, 96
+		}
+		if n == 0 {
+			n = 60
+		}
+		return Builtin(strings.TrimPrefix(in, "builtin:"), n, w, h)
+	case in == "-":
+		src := opt.Stdin
+		if src == nil {
+			src = os.Stdin
+		}
+		return NewRawReader(io.NopCloser(src), "stdin", opt.Width, opt.Height)
+	}
+	st, err := os.Stat(in)
+	if err != nil {
+		return nil, fmt.Errorf("input %s: %w", in, unwrapPath(err))
+	}
+	if st.IsDir() {
+		return openDir(in)
+	}
+	switch strings.ToLower(filepath.Ext(in)) {
+	case ".png", ".jpg", ".jpeg":
+		return newFileList(in, []string{in})
+	case ".gif":
+		return openGIF(in)
+	case ".npy":
+		f, err := os.Open(in)
+		if err != nil {
+			return nil, fmt.Errorf("input %s: %w", in, unwrapPath(err))
+		}
+		r, err := NewNPYReader(f, in)
+		if err != nil {
+			f.Close()
+			return nil, err
+		}
+		r.c = f
+		return r, nil
+	case ".rgb", ".raw":
+		f, err := os.Open(in)
+		if err != nil {
+			return nil, fmt.Errorf("input %s: %w", in, unwrapPath(err))
+		}
+		r, err := NewRawReader(f, in, opt.Width, opt.Height)
+		if err != nil {
+			f.Close()
+		}
+		return r, err
+	}
+	return nil, fmt.Errorf("input %s: not a folder, .png, .jpg, .gif, .npy, .rgb/.raw, - or builtin:NAME", in)
+}
+
+// unwrapPath drops the *PathError wrapper whose message repeats the path.
+func unwrapPath(err error) error {
+	var pe *os.PathError
+	if errors.As(err, &pe) {
+		return pe.Err
+	}
+	return err
+}
+
+// ReadAll reads every remaining frame of r into new images.
+func ReadAll(r Reader) ([]*image.RGBA, error) {
+	var out []*image.RGBA
+	for {
+		f, err := r.Next()
+		if err == io.EOF {
+			return out, nil
+		}
+		if err != nil {
+			return out, err
+		}
+		c := image.NewRGBA(f.Bounds())
+		copy(c.Pix, f.Pix)
+		out = append(out, c)
+	}
+}
+
+// frameExt reports whether name is a frame file a folder reader takes.
+func frameExt(name string) bool {
+	switch strings.ToLower(filepath.Ext(name)) {
+	case ".png", ".jpg", ".jpeg":
+		return true
+	}
+	return false
+}
+
+// openDir lists the frame files of dir (hidden files and other
+// extensions are ignored) in natural order.
+func openDir(dir string) (Reader, error) {
+	ents, err := os.ReadDir(dir)
+	if err != nil {
+		return nil, fmt.Errorf("input %s: %w", dir, unwrapPath(err))
+	}
+	var names []string
+	for _, e := range ents {
+		if e.IsDir() || strings.HasPrefix(e.Name(), ".") || !frameExt(e.Name()) {
+			continue
+		}
+		names = append(names, e.Name())
+	}
+	if len(names) == 0 {
+		return nil, fmt.Errorf("input %s: folder holds no .png or .jpg frames", dir)
+	}
+	SortNatural(names)
+	paths := make([]string, len(names))
+	for i, n := range names {
+		paths[i] = filepath.Join(dir, n)
+	}
+	return newFileList(dir, paths)
+}
+
+// fileList reads image files one after another.
+type fileList struct {
+	info  Info
+	paths []string
+	i     int
+	frame *image.RGBA
+}
+
+func newFileList(name string, paths []string) (*fileList, error) {
+	f, err := os.Open(paths[0])
+	if err != nil {
+		return nil, fmt.Errorf("frame %s: %w", paths[0], unwrapPath(err))
+	}
+	defer f.Close()
+	cfg, _, err := image.DecodeConfig(f)
+	if err != nil {
+		return nil, fmt.Errorf("frame %s: %w", paths[0], err)
+	}
+	if err := checkSize(cfg.Width, cfg.Height); err != nil {
+		return nil, fmt.Errorf("frame %s: %w", paths[0], err)
+	}
+	return &fileList{
+		info:  Info{Name: name, Width: cfg.Width, Height: cfg.Height, Channels: 3, Frames: len(paths)},
+		paths: paths,
+	}, nil
+}
+
+// checkSize applies MaxSide and MaxFramePixels.
+func checkSize(w, h int) error {
+	if w <= 0 || h <= 0 {
+		return fmt.Errorf("frame size %dx%d holds no pixels", w, h)
+	}
+	if w > MaxSide || h > MaxSide || w*h > MaxFramePixels {
+		return fmt.Errorf("frame size %dx%d is over the %d-pixel side / %d-pixel area limit", w, h, MaxSide, MaxFramePixels)
+	}
+	return nil
+}
+
+func (l *fileList) Info() Info { return l.info }
+
+func (l *fileList) Next() (*image.RGBA, error) {
+	if l.i >= len(l.paths) {
+		return nil, io.EOF
+	}
+	path := l.paths[l.i]
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("frame %s: %w", path, unwrapPath(err))
+	}
+	img, _, err := image.Decode(f)
+	f.Close()
+	if err != nil {
+		return nil, fmt.Errorf("frame %s: %w", path, err)
+	}
+	b := img.Bounds()
+	if b.Dx() != l.info.Width || b.Dy() != l.info.Height {
+		return nil, fmt.Errorf("frame %s is %dx%d, but %s is %dx%d: all frames must have one size",
+			path, b.Dx(), b.Dy(), l.paths[0], l.info.Width, l.info.Height)
+	}
+	if l.frame == nil {
+		l.frame = image.NewRGBA(image.Rect(0, 0, l.info.Width, l.info.Height))
+	}
+	// Composite over opaque black, the way the tokenizer reads RGBA.
+	draw.Draw(l.frame, l.frame.Bounds(), image.Black, image.Point{}, draw.Src)
+	draw.Draw(l.frame, l.frame.Bounds(), img, b.Min, draw.Over)
+	l.i++
+	return l.frame, nil
+}
+
+func (l *fileList) Close() error { return nil }
+
+// RawReader reads raw RGB24 frames (3 bytes a pixel, row-major, no
+// header), as a video decoder writes them with a rawvideo/rgb24 output.
+type RawReader struct {
+	name  string
+	r     io.ReadCloser
+	info  Info
+	buf   []byte
+	frame *image.RGBA
+	n     int
+}
+
+// NewRawReader reads width×height RGB24 frames from r until its end; a
+// trailing partial frame is an error, and so is an empty stream.
+func NewRawReader(r io.ReadCloser, name string, width, height int) (*RawReader, error) {
+	if width == 0 && height == 0 {
+		return nil, fmt.Errorf("%s: raw RGB24 input needs the frame size (--size WxH)", name)
+	}
+	if err := checkSize(width, height); err != nil {
+		return nil, fmt.Errorf("%s: %w", name, err)
+	}
+	return &RawReader{name: name, r: r, info: Info{Name: name, Width: width, Height: height, Channels: 3, Frames: -1}}, nil
+}
+
+// Info describes the stream; Frames is -1 (not known in advance).
+func (r *RawReader) Info() Info { return r.info }
+
+// Next reads the next frame.
+func (r *RawReader) Next() (*image.RGBA, error) {
+	w, h := r.info.Width, r.info.Height
+	if r.buf == nil {
+		r.buf = make([]byte, w*h*3)
+		r.frame = image.NewRGBA(image.Rect(0, 0, w, h))
+	}
+	n, err := io.ReadFull(r.r, r.buf)
+	switch {
+	case err == io.EOF && r.n == 0:
+		return nil, fmt.Errorf("%s: no frames (empty input)", r.name)
+	case err == io.EOF:
+		return nil, io.EOF
+	case err == io.ErrUnexpectedEOF:
+		return nil, fmt.Errorf("%s: trailing partial frame: %d of %d bytes after %d whole frames of %dx%d", r.name, n, len(r.buf), r.n, w, h)
+	case err != nil:
+		return nil, fmt.Errorf("%s: frame %d: %w", r.name, r.n, err)
+	}
+	for i, o := 0, 0; i < len(r.buf); i, o = i+3, o+4 {
+		r.frame.Pix[o], r.frame.Pix[o+1], r.frame.Pix[o+2], r.frame.Pix[o+3] = r.buf[i], r.buf[i+1], r.buf[i+2], 0xff
+	}
+	r.n++
+	return r.frame, nil
+}
+
+// Close closes the stream.
+func (r *RawReader) Close() error { return r.r.Close() }
