@@ -2,11 +2,12 @@ package patch
 
 import (
 	"image"
+	"math/rand/v2"
 )
 
 // This file fixes the public API of the tokenizer and the transform
 // pipeline that the rest of tilebench builds on. The implementation lives
-// beside it.
+// beside it (tokenize.go, spec.go, apply.go, manifest.go).
 
 // Tokenizer cuts frames into token sets on one Grid and puts token sets
 // back together. It holds no per-frame state beyond scratch buffers, so
@@ -14,8 +15,9 @@ import (
 type Tokenizer struct {
 	g *Grid
 	// sum and cnt accumulate overlapping tokens in Assemble; generic is
-	// the scratch frame of the generic Tokenize path. All are allocated on
-	// first use and reused.
+	// the scratch frame of the generic Tokenize path; pal the palette
+	// table of the paletted path. All are allocated on first use and
+	// reused.
 	sum     []float32
 	cnt     []uint32
 	generic *image.RGBA
@@ -30,56 +32,93 @@ func (t *Tokenizer) Grid() *Grid { return t.g }
 
 // Tokenize fills dst with the tokens of img, in grid order. img must be
 // Width×Height (its bounds may start anywhere). dst must have room for
-// Grid().N() tokens of Grid().D() values; it is not reallocated.
+// Grid().N() tokens of Grid().D() values; it is not reallocated. See
+// tokenize.go for the value of each pixel type and the luma rule.
 func (t *Tokenizer) Tokenize(img image.Image, dst *TokenSet) error {
 	return t.tokenize(img, dst)
 }
 
 // Assemble draws ts back into dst (OutW×OutH): each token at its Pos;
 // overlapping tokens are averaged; cells with no token are filled black;
-// tokens with Pos NoCell are skipped.
+// tokens with Pos NoCell are skipped. Values are rounded to the nearest
+// byte, so Assemble(Tokenize(f)) = f for a frame the grid divides.
 func (t *Tokenizer) Assemble(ts *TokenSet, dst *image.RGBA) error {
 	return t.assemble(ts, dst)
 }
 
 // Spec names the transforms of a pipeline in the spelling of the CLI
-// flags. The zero value is the identity pipeline.
+// flags. The zero value is the identity pipeline. Spec.Check validates a
+// spec; Spec.String and ParseSpec turn it into one line and back.
 type Spec struct {
 	// Scramble is "none" (or ""), "full", "partial:F" or "local:K".
-	Scramble string
+	//   - full: a uniformly random permutation of all tokens.
+	//   - partial:F: round-half-even(F·N) tokens, chosen uniformly, are
+	//     moved among themselves along one random cycle (Sattolo's
+	//     algorithm), so each of them leaves its cell when there are at
+	//     least two; the others stay.
+	//   - local:K: every token moves at most K cells along each axis
+	//     (a jittered sort of each row, then of each column).
+	Scramble string `json:"scramble,omitempty"`
 	// Every is the scramble schedule: 0 draws one permutation per
-	// sequence (episode), T > 0 draws a new one every T steps.
-	Every int
-	// Rotate and Flip turn or mirror each scrambled patch by a random
-	// multiple of 90° / a random flip.
-	Rotate, Flip bool
-	// Occlude is "none" (or ""), "random:R", "block:R", "bands:R",
-	// "sweep:R" or "mask:FILE.png".
-	Occlude string
-	// Fill is what an occluded token becomes: "black" (default), "mean",
-	// "noise" or "drop".
-	Fill string
-	// NoiseTokens adds this many tokens of uniform noise.
-	NoiseTokens int
-	// Duplicates adds this many copies of randomly chosen tokens.
-	Duplicates int
-	// Brightness adds to every value; Contrast scales values about 0.5
-	// (0 means 1, unchanged); Shift adds per channel; PixelNoise is the
-	// standard deviation of Gaussian noise added to every value. Values
-	// are clamped to [0,1] afterwards.
-	Brightness, Contrast float64
-	Shift                [3]float64
-	PixelNoise           float64
+	// sequence (episode), T > 0 draws a new one every T steps (1 = every
+	// step).
+	Every int `json:"every,omitempty"`
+	// Rotate turns each token by a random multiple of 90° and Flip
+	// mirrors it left-right with probability 1/2 (flip first, then turn).
+	// Drawn with the scramble, so they follow its schedule. Rotate needs
+	// square patches.
+	Rotate bool `json:"rotate,omitempty"`
+	Flip   bool `json:"flip,omitempty"`
+	// Occlude is "none" (or ""), "random:R", "block:R", "bands:R"
+	// (also "bands:R:h" or "bands:R:v"), "sweep:R" (also "sweep:R:P") or
+	// "mask:FILE.png". R in [0,1] is the fraction of the N cells hidden:
+	// exactly round-half-even(R·N) of them for every kind. See apply.go
+	// for each shape.
+	Occlude string `json:"occlude,omitempty"`
+	// Fill is what an occluded token becomes: "black" (default, all
+	// values 0), "mean" (the frame's per-channel mean), "noise" (uniform
+	// values in [0,1)) or "drop" (the token is removed from the set).
+	Fill string `json:"fill,omitempty"`
+	// NoiseTokens adds this many tokens of uniform noise (Pos NoCell).
+	NoiseTokens int `json:"noise_tokens,omitempty"`
+	// Duplicates adds this many copies of randomly chosen tokens (each
+	// keeps the Pos of its original).
+	Duplicates int `json:"duplicates,omitempty"`
+	// Brightness adds to every value (in [-1,1]); Contrast scales values
+	// about 0.5 (0 means 1, unchanged; in [0,10]); Shift adds per channel
+	// (R, G, B; grey uses Shift[0]; each in [-1,1]); PixelNoise is the
+	// standard deviation of Gaussian noise added to every value (in
+	// [0,1]). Values are clamped to [0,1] afterwards.
+	Brightness float64    `json:"brightness,omitempty"`
+	Contrast   float64    `json:"contrast,omitempty"`
+	Shift      [3]float64 `json:"shift,omitzero"`
+	PixelNoise float64    `json:"pixel_noise,omitempty"`
 }
 
 // Pipeline applies a Spec to token sets, step after step, drawing all its
-// randomness from one seed.
+// randomness from one seed. The transforms run in this order:
+//
+//  1. photometric: brightness, contrast, shift, pixel noise, clamp;
+//  2. occlude: the occluded source cells of step t get the fill value;
+//  3. scramble (with rotations and flips): output token i sits in cell
+//     Cell(i) and carries the data of source token Perm[i];
+//  4. drop: with fill "drop", tokens whose source cell is occluded are
+//     removed (the rest keep their order);
+//  5. noise tokens are appended, then duplicates of the remaining real
+//     tokens.
+//
+// A Pipeline allocates nothing per step; one Pipeline serves one
+// goroutine.
 type Pipeline struct {
 	g    *Grid
 	spec Spec
+	x    pipeState
+	pcg  *rand.PCG
+	rng  *rand.Rand
 }
 
-// NewPipeline checks spec against g and builds the pipeline.
+// NewPipeline checks spec against g and builds the pipeline. A mask file
+// named by spec.Occlude is read here.
 func NewPipeline(g *Grid, spec Spec) (*Pipeline, error) {
 	return newPipeline(g, spec)
 }
@@ -92,17 +131,48 @@ func (p *Pipeline) Reset(seed uint64) { p.reset(seed) }
 
 // Apply transforms src (a full token set in grid order, for step t of the
 // sequence) into dst, which must have room for Capacity() tokens. If rec
-// is not nil it is filled with what was done (reusing its slices).
+// is not nil it is filled with what was done (reusing its slices). The
+// result depends only on the seed given to Reset, t and src, not on the
+// order of calls.
 func (p *Pipeline) Apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 	return p.apply(t, src, dst, rec)
 }
 
 // FrameRecord is what the pipeline did to one frame: enough to invert the
-// scramble exactly and to check a replay.
+// scramble exactly and to check a replay. Output tokens come in three
+// runs: Real scrambled source tokens, then Noise noise tokens, then Dups
+// duplicates.
 type FrameRecord struct {
 	// Frame is the step index t.
 	Frame int `json:"frame"`
 	// Perm[i] is the grid-order index of the source token that output
-	// token i came from (-1 for an added token).
+	// token i came from (-1 for a noise token; a duplicate names the
+	// source token it copies).
 	Perm []int `json:"perm"`
+	// Orient[i] is how output token i was turned: bit 2 set means
+	// mirrored left-right, bits 0–1 the number of clockwise quarter turns
+	// after the mirror. Empty when the spec neither rotates nor flips.
+	Orient []int `json:"orient,omitempty"`
+	// Mask lists the occluded source cells (grid-order indices,
+	// ascending).
+	Mask []int `json:"mask"`
+	// Real, Noise and Dups count the three runs of output tokens.
+	Real  int `json:"real"`
+	Noise int `json:"noise"`
+	Dups  int `json:"dups"`
+	// Epoch is the scramble draw in force: 0 with Every 0, else t/Every.
+	Epoch int `json:"epoch"`
+	// Params are the settings applied to this frame.
+	Params FrameParams `json:"params"`
+}
+
+// FrameParams are the numeric settings a pipeline applied to one frame.
+type FrameParams struct {
+	Brightness float64    `json:"brightness"`
+	Contrast   float64    `json:"contrast"`
+	Shift      [3]float64 `json:"shift"`
+	PixelNoise float64    `json:"pixel_noise"`
+	// Mean is the per-channel fill value used by fill "mean" (zero
+	// otherwise).
+	Mean [3]float32 `json:"mean"`
 }
