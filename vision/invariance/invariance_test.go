@@ -1,0 +1,236 @@
+package invariance
+
+import (
+	"errors"
+	"fmt"
+	"image"
+	"image/color"
+	"math"
+	"strings"
+	"testing"
+
+	"tilebench/games"
+	"tilebench/patch"
+	"tilebench/vision"
+)
+
+// blobs is a small deterministic game for the tests: coloured squares that
+// drift with the step count; continuous (2 values) or discrete (3 choices).
+type blobs struct {
+	discrete bool
+	seed     uint64
+	t        int
+}
+
+func (b *blobs) Spec() games.Spec {
+	sp := games.Spec{Name: "blobs", Width: 32, Height: 32, MaxSteps: 100}
+	if b.discrete {
+		sp.Action = games.ActionSpace{Kind: games.Discrete, Names: []string{"a", "b", "c"}}
+	} else {
+		sp.Action = games.ActionSpace{Kind: games.Continuous, Names: []string{"x", "y"}, Low: []float64{-1, -1}, High: []float64{1, 1}}
+	}
+	return sp
+}
+func (b *blobs) Reset(seed uint64) { b.seed, b.t = seed, 0 }
+func (b *blobs) Step(a []float64) (games.Step, error) {
+	if err := b.Spec().Action.Check(a); err != nil {
+		return games.Step{}, err
+	}
+	b.t++
+	return games.Step{Reward: 1, Done: b.t >= 100, Reason: games.TimeUp}, nil
+}
+func (b *blobs) Render(dst *image.RGBA) {
+	r := patch.NewRand(patch.DeriveSeed(b.seed, uint64(b.t)))
+	for y := 0; y < 32; y++ {
+		for x := 0; x < 32; x++ {
+			dst.SetRGBA(x, y, color.RGBA{uint8(r.IntN(256)), uint8((x + b.t) * 7), uint8(y * 8), 255})
+		}
+	}
+}
+
+// sumPolicy is permutation invariant: the mean and the largest value over
+// all tokens (accumulated in float64, so order changes only rounding).
+type sumPolicy struct{ invariant bool }
+
+func (p *sumPolicy) Info() vision.Info { return vision.Info{Family: "sum", Invariant: true} }
+func (p *sumPolicy) Reset(uint64)      {}
+func (p *sumPolicy) Act(obs *vision.Observation, a []float64) error {
+	var s, m float64
+	ts := obs.Tokens
+	for _, v := range ts.Data[:ts.N*ts.D] {
+		s += float64(v)
+		m = max(m, float64(v))
+	}
+	a[0] = s / float64(ts.N*ts.D)
+	if len(a) > 1 {
+		a[1] = m
+	} else {
+		a[0] = math.Floor(a[0] * 2.999)
+	}
+	return nil
+}
+
+// orderPolicy weighs tokens by their index in the set: not invariant.
+type orderPolicy struct{ claim bool }
+
+func (p *orderPolicy) Info() vision.Info { return vision.Info{Family: "order", Invariant: p.claim} }
+func (p *orderPolicy) Reset(uint64)      {}
+func (p *orderPolicy) Act(obs *vision.Observation, a []float64) error {
+	var s float64
+	ts := obs.Tokens
+	for i := 0; i < ts.N; i++ {
+		s += float64(ts.Token(i)[0]) * float64(i+1) / float64(ts.N)
+	}
+	a[0] = s / float64(ts.N)
+	if len(a) > 1 {
+		a[1] = 0
+	}
+	return nil
+}
+
+// posPolicy weighs each token by its grid cell: invariant to the order of
+// the set (each token keeps its Pos) but not to scrambled contents.
+type posPolicy struct{}
+
+func (p *posPolicy) Info() vision.Info { return vision.Info{Family: "pos", Invariant: true} }
+func (p *posPolicy) Reset(uint64)      {}
+func (p *posPolicy) Act(obs *vision.Observation, a []float64) error {
+	var s float64
+	ts := obs.Tokens
+	for i := 0; i < ts.N; i++ {
+		w := float64(int(ts.Pos[i].Row)*7 + int(ts.Pos[i].Col) + 2)
+		s += float64(ts.Token(i)[1]) * w
+	}
+	a[0], a[1] = s/1000, 0
+	return nil
+}
+
+// fixedPolicy refuses any set that is not the full grid.
+type fixedPolicy struct{ sumPolicy }
+
+func (p *fixedPolicy) Info() vision.Info { return vision.Info{Family: "fixed"} }
+func (p *fixedPolicy) Act(obs *vision.Observation, a []float64) error {
+	if obs.Tokens.N != obs.Grid.N() {
+		return fmt.Errorf("needs %d tokens, got %d", obs.Grid.N(), obs.Tokens.N)
+	}
+	return p.sumPolicy.Act(obs, a)
+}
+
+func setup(t *testing.T, discrete bool) (games.Game, *patch.Tokenizer) {
+	t.Helper()
+	gr, err := patch.NewGrid(patch.GridConfig{Width: 32, Height: 32, PatchW: 8})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return &blobs{discrete: discrete}, patch.NewTokenizer(gr)
+}
+
+var small = Config{Perms: 20, Seeds: []uint64{1, 2}, Frames: 3}
+
+func TestInvariantPolicyPasses(t *testing.T) {
+	g, tok := setup(t, false)
+	r, err := Run(g, tok, &sumPolicy{}, small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !r.Pass || r.Err() != nil || r.Permute.Max > 1e-12 || r.Scramble.Max > 1e-12 {
+		t.Fatalf("invariant policy: %+v", r)
+	}
+	if r.Permute.Count != 2*3*20 || r.Frames != 6 || r.Tokens != 16 || r.Format != 1 {
+		t.Fatalf("counts: %+v", r)
+	}
+	// Noise and drop do change a mean.
+	if r.Noised.Max <= 0 || r.Dropped.Max <= 0 || r.Noised.Mean <= 0 || r.Noised.Mean > r.Noised.Max {
+		t.Fatalf("noise/drop sensitivity not measured: %+v %+v", r.Noised, r.Dropped)
+	}
+}
+
+func TestOrderSensitivePolicyIsMeasured(t *testing.T) {
+	g, tok := setup(t, false)
+	r, err := Run(g, tok, &orderPolicy{}, small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !r.Pass || r.Permute.Max < 1e-4 || r.Permute.Mean <= 0 {
+		t.Fatalf("non-invariant family should be measured, not failed: %+v", r.Permute)
+	}
+	// The same policy claiming invariance fails with the figure.
+	r2, err := Run(g, tok, &orderPolicy{claim: true}, small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	err = r2.Err()
+	if r2.Pass || !errors.Is(err, ErrNotInvariant) || !strings.Contains(err.Error(), fmt.Sprintf("%.3g", r2.Permute.Max)) {
+		t.Fatalf("claimed invariance: pass %v, err %v", r2.Pass, err)
+	}
+	if r2.Permute.Max != r.Permute.Max {
+		t.Fatalf("same seeds gave %v and %v", r2.Permute.Max, r.Permute.Max)
+	}
+}
+
+// Permutation keeps each token's Pos; scrambling moves contents to other
+// cells. A position-weighted policy separates the two.
+func TestPermuteKeepsPositionsScrambleDoesNot(t *testing.T) {
+	g, tok := setup(t, false)
+	r, err := Run(g, tok, &posPolicy{}, small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Permute.Max > 1e-12 || !r.Pass {
+		t.Fatalf("permute changed a position-weighted sum: %+v", r.Permute)
+	}
+	if r.Scramble.Max < 1e-3 {
+		t.Fatalf("scramble did not move contents: %+v", r.Scramble)
+	}
+}
+
+func TestFixedSizeRefusalsAreCounted(t *testing.T) {
+	g, tok := setup(t, false)
+	r, err := Run(g, tok, &fixedPolicy{}, small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Noised.Refused != 120 || r.Dropped.Refused != 120 || r.Noised.Count != 0 || !strings.Contains(r.Noised.Reason, "needs 16") {
+		t.Fatalf("refusals: %+v %+v", r.Noised, r.Dropped)
+	}
+}
+
+func TestDiscreteChangeIsChoiceFlip(t *testing.T) {
+	g, tok := setup(t, true)
+	r, err := Run(g, tok, &sumPolicy{}, small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, s := range []Stat{r.Permute, r.Scramble, r.Noised, r.Dropped} {
+		if s.Max != 0 && s.Max != 1 {
+			t.Fatalf("discrete change %v, want 0 or 1", s.Max)
+		}
+	}
+}
+
+type nanPolicy struct{ sumPolicy }
+
+func (p *nanPolicy) Act(obs *vision.Observation, a []float64) error {
+	a[0], a[1] = math.NaN(), 0
+	return nil
+}
+
+func TestNonFiniteActionIsAnError(t *testing.T) {
+	g, tok := setup(t, false)
+	_, err := Run(g, tok, &nanPolicy{}, small)
+	if err == nil || !strings.Contains(err.Error(), "NaN") {
+		t.Fatalf("NaN action: %v", err)
+	}
+}
+
+func TestDefaultsAndProgress(t *testing.T) {
+	g, tok := setup(t, false)
+	calls := 0
+	r, err := Run(g, tok, &sumPolicy{}, Config{Perms: 2, Progress: func(done, total int) { calls++ }})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if calls != 12 || r.Frames != 12 || r.Noise != 1 || r.Drop != 1 || r.Tol != DefaultTol {
+		t.Fatalf("defaults: calls %d, %+v", calls, r)
+	}
+}
