@@ -50,7 +50,7 @@ func (b *blobs) Render(dst *image.RGBA) {
 
 // sumPolicy is permutation invariant: the mean and the largest value over
 // all tokens (accumulated in float64, so order changes only rounding).
-type sumPolicy struct{ invariant bool }
+type sumPolicy struct{}
 
 func (p *sumPolicy) Info() vision.Info { return vision.Info{Family: "sum", Invariant: true} }
 func (p *sumPolicy) Reset(uint64)      {}
