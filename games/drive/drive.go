@@ -1,0 +1,501 @@
+package drive
+
+import (
+	"encoding/binary"
+	"fmt"
+	"image"
+	"math"
+	"sort"
+	"strings"
+	"unsafe"
+
+	"tilebench/games"
+)
+
+// Name is the registered name of the driving game.
+const Name = "drive"
+
+// Game constants.
+const (
+	// DT is the fixed time step in seconds.
+	DT = 0.05
+	// MaxSteps is the step limit of one episode.
+	MaxSteps = 1000
+	// LapReward is the reward for one full lap of centreline progress.
+	LapReward = 1000.0
+	// StepCost is subtracted from the reward at every step.
+	StepCost = 0.1
+	// OffRoadLimit is how many consecutive steps the car's centre may be
+	// off the road before the episode fails (2 s).
+	OffRoadLimit = 40
+	// ViewMetres is the width of ground the frame shows.
+	ViewMetres = 48.0
+	// CarRow is where the car's centre sits in the frame, as a fraction
+	// of the height from the top (below the centre: more road ahead).
+	CarRow = 0.68
+	// DefaultSize is the default frame width and height in pixels.
+	DefaultSize = 96
+)
+
+// Config is a fully resolved game setup. Variations are named edits of
+// the default Config.
+type Config struct {
+	// Palette is the look.
+	Palette Palette
+	// Track shapes the circuit (its Width is the road width).
+	Track TrackConfig
+	// Car holds the car's constants.
+	Car CarParams
+	// Shapes is the number of distractor shapes scattered on the terrain
+	// (default 0).
+	Shapes int
+	// Noise is the strength of the terrain texture in [0,1] (default 0).
+	Noise float64
+	// EdgeWidth is the width of the edge bands in metres (default 0.8).
+	EdgeWidth float64
+	// Width and Height are the frame size (default 96×96).
+	Width, Height int
+}
+
+// variation is a named edit of the config.
+type variation struct {
+	name string
+	doc  string
+	edit func(*Config)
+}
+
+var variationList = []variation{
+	{"glacier", "held-out palette: slate ground, lavender road, coral edges", func(c *Config) { c.Palette = Palettes[1] }},
+	{"saffron", "held-out palette: ochre ground, deep teal road, cream edges", func(c *Config) { c.Palette = Palettes[2] }},
+	{"nocturne", "held-out palette: indigo ground, rust road, gold edges", func(c *Config) { c.Palette = Palettes[3] }},
+	{"narrow", "road 6.5 m wide instead of 9 m", func(c *Config) { c.Track.Width = 6.5 }},
+	{"broad", "road 12 m wide instead of 9 m", func(c *Config) { c.Track.Width = 12 }},
+	{"clutter", "60 distractor shapes scattered on the terrain", func(c *Config) { c.Shapes = 60 }},
+	{"grain", "textured terrain (value noise)", func(c *Config) { c.Noise = 1 }},
+	{"small", "64×64 frames", func(c *Config) { c.Width, c.Height = 64, 64 }},
+	{"large", "128×128 frames", func(c *Config) { c.Width, c.Height = 128, 128 }},
+}
+
+// VariationNames lists the driving game's variations. A variation string
+// joins any of them with "+" ("glacier+clutter").
+func VariationNames() []string {
+	out := make([]string, len(variationList))
+	for i, v := range variationList {
+		out[i] = v.name
+	}
+	return out
+}
+
+// VariationDoc describes a variation name ("" for an unknown one).
+func VariationDoc(name string) string {
+	for _, v := range variationList {
+		if v.name == name {
+			return v.doc
+		}
+	}
+	return ""
+}
+
+// DefaultConfig is the training setup.
+func DefaultConfig() Config {
+	return Config{Palette: Palettes[0], EdgeWidth: 0.8, Width: DefaultSize, Height: DefaultSize}
+}
+
+// ParseVariation applies a variation string to the default config and
+// returns it with the canonical spelling (names sorted, duplicates
+// dropped).
+func ParseVariation(s string) (Config, string, error) {
+	c := DefaultConfig()
+	if s == "" || s == "default" {
+		return c, "", nil
+	}
+	seen := map[string]bool{}
+	var names []string
+	for _, part := range strings.Split(s, "+") {
+		part = strings.TrimSpace(part)
+		found := false
+		for _, v := range variationList {
+			if v.name == part {
+				found = true
+				if !seen[part] {
+					seen[part] = true
+					names = append(names, part)
+				}
+			}
+		}
+		if !found {
+			return c, "", fmt.Errorf("drive: unknown variation %q (have %s, joined with +)", part, strings.Join(VariationNames(), ", "))
+		}
+	}
+	sort.Strings(names)
+	palettes := 0
+	for _, n := range names {
+		for _, v := range variationList {
+			if v.name == n {
+				v.edit(&c)
+			}
+		}
+		if n == "glacier" || n == "saffron" || n == "nocturne" {
+			palettes++
+		}
+	}
+	if palettes > 1 || (seen["narrow"] && seen["broad"]) || (seen["small"] && seen["large"]) {
+		return c, "", fmt.Errorf("drive: variation %q combines exclusive choices", s)
+	}
+	return c, strings.Join(names, "+"), nil
+}
+
+// Game is the driving game. Build it with New or games.New("drive", ...).
+type Game struct {
+	cfg       Config
+	variation string
+	spec      games.Spec
+	track     *Track
+	world     *world
+	car       Car
+	idx       int     // centreline sample nearest the car
+	s         float64 // arc length of the car's centre
+	lateral   float64 // signed offset of the car's centre from the centreline
+	progress  float64 // metres of progress this episode
+	steps     int
+	offSteps  int
+	done      bool
+	reason    games.EndReason
+	seed      uint64
+	sprite    []spritePx
+	expert    *Expert
+	frameView viewGeom
+	trackErr  error
+}
+
+type spritePx struct {
+	off   int // byte offset in a frame with stride 4·Width
+	c     uint32
+	alpha uint32 // 0..256
+}
+
+type viewGeom struct {
+	ppm    float64 // frame pixels per metre
+	ax, ay float64 // car centre in frame pixels
+}
+
+func init() {
+	games.Register(Name, VariationNames(), func(o games.Options) (games.Game, error) { return New(o) })
+}
+
+// New builds the driving game for o (variation, frame size).
+func New(o games.Options) (*Game, error) {
+	cfg, canon, err := ParseVariation(o.Variation)
+	if err != nil {
+		return nil, err
+	}
+	if o.Width != 0 {
+		cfg.Width = o.Width
+	}
+	if o.Height != 0 {
+		cfg.Height = o.Height
+	}
+	return NewConfig(cfg, canon)
+}
+
+// NewConfig builds the game from a resolved config; variation is only
+// reported in Spec.
+func NewConfig(cfg Config, variation string) (*Game, error) {
+	if cfg.Width < 16 || cfg.Height < 16 || cfg.Width > 1024 || cfg.Height > 1024 {
+		return nil, fmt.Errorf("drive: frame %dx%d: want 16..1024 pixels a side", cfg.Width, cfg.Height)
+	}
+	if cfg.Noise < 0 || cfg.Noise > 1 || cfg.Shapes < 0 || cfg.EdgeWidth < 0 {
+		return nil, fmt.Errorf("drive: noise %v, shapes %d, edge %v out of range", cfg.Noise, cfg.Shapes, cfg.EdgeWidth)
+	}
+	cfg.Track = cfg.Track.withDefaults()
+	cfg.Car = cfg.Car.withDefaults()
+	g := &Game{cfg: cfg, variation: variation}
+	g.spec = games.Spec{
+		Name: Name, Variation: variation, Width: cfg.Width, Height: cfg.Height,
+		Action: games.ActionSpace{
+			Kind:  games.Continuous,
+			Names: []string{"steer", "throttle", "brake"},
+			Low:   []float64{-1, 0, 0},
+			High:  []float64{1, 1, 1},
+		},
+		MaxSteps: MaxSteps,
+	}
+	g.frameView = viewGeom{ppm: float64(cfg.Width) / ViewMetres, ax: float64(cfg.Width) / 2, ay: float64(cfg.Height) * CarRow}
+	g.buildSprite()
+	g.expert = &Expert{g: g}
+	g.Reset(games.HeldOut(0))
+	if g.trackErr != nil {
+		return nil, g.trackErr
+	}
+	return g, nil
+}
+
+// Spec describes the game.
+func (g *Game) Spec() games.Spec { return g.spec }
+
+// Config returns the resolved configuration.
+func (g *Game) Config() Config { return g.cfg }
+
+// Track returns the current episode's circuit.
+func (g *Game) Track() *Track { return g.track }
+
+// Car returns the car's current state.
+func (g *Game) Car() Car { return g.car }
+
+// Progress is the centreline distance driven this episode, in metres.
+func (g *Game) Progress() float64 { return g.progress }
+
+// Lateral is the signed offset of the car's centre from the centreline
+// (positive left), in metres.
+func (g *Game) Lateral() float64 { return g.lateral }
+
+// OnRoad reports whether the car's centre is on the road.
+func (g *Game) OnRoad() bool { return math.Abs(g.lateral) <= g.track.Width/2 }
+
+// Reset starts the episode for seed: generates the circuit, rasterises the
+// world image once and puts the car at rest on the start band, facing
+// along the road.
+func (g *Game) Reset(seed uint64) {
+	g.seed = seed
+	tr, err := NewTrack(seed, g.cfg.Track)
+	if err != nil {
+		// Only reachable with extreme configs; NewConfig reports it.
+		g.trackErr = err
+		tr = fallbackTrack(g.cfg.Track)
+	}
+	g.track = tr
+	look := worldLook{pal: g.cfg.Palette, shapes: g.cfg.Shapes, noise: g.cfg.Noise, edgeWidth: g.cfg.EdgeWidth}
+	g.world = rasterise(tr, look, g.frameView.ppm, seed)
+	g.car = NewCar(g.cfg.Car)
+	g.car.Heading = tr.Heading()
+	h := g.car.P.Wheelbase / 2
+	g.car.Pos = Vec{tr.Pts[0].X - h*math.Cos(g.car.Heading), tr.Pts[0].Y - h*math.Sin(g.car.Heading)}
+	g.idx, g.s, g.lateral = tr.Project(g.car.Centre(), 0, 0)
+	g.progress = 0
+	g.steps, g.offSteps = 0, 0
+	g.done, g.reason = false, games.NotEnded
+}
+
+// fallbackTrack is a plain circle, used only if generation failed.
+func fallbackTrack(cfg TrackConfig) *Track {
+	ctrl := make([]Vec, cfg.Points)
+	for k := range ctrl {
+		a := 2 * math.Pi * float64(k) / float64(cfg.Points)
+		ctrl[k] = Vec{cfg.Radius * math.Cos(a), cfg.Radius * math.Sin(a)}
+	}
+	return buildTrack(ctrl, cfg.Width, cfg.SamplesPerSegment)
+}
+
+func clamp(v, lo, hi float64) float64 {
+	if v < lo {
+		return lo
+	}
+	if v > hi {
+		return hi
+	}
+	return v
+}
+
+// Step applies steer, throttle, brake (clamped to their bounds) for one
+// time step of DT seconds.
+func (g *Game) Step(action []float64) (games.Step, error) {
+	if err := g.spec.Action.Check(action); err != nil {
+		return games.Step{}, fmt.Errorf("drive: %w", err)
+	}
+	if g.done {
+		return games.Step{Done: true, Reason: g.reason}, nil
+	}
+	steer := clamp(action[0], -1, 1)
+	throttle := clamp(action[1], 0, 1)
+	brake := clamp(action[2], 0, 1)
+	g.car.Advance(steer, throttle, brake, DT)
+	idx, s, lat := g.track.Project(g.car.Centre(), g.idx, 24)
+	ds := s - g.s
+	L := g.track.Length
+	if ds > L/2 {
+		ds -= L
+	} else if ds < -L/2 {
+		ds += L
+	}
+	g.idx, g.s, g.lateral = idx, s, lat
+	g.progress += ds
+	g.steps++
+	reward := ds*LapReward/L - StepCost
+	if math.Abs(lat) > g.track.Width/2 {
+		g.offSteps++
+	} else {
+		g.offSteps = 0
+	}
+	switch {
+	case g.progress >= L:
+		g.done, g.reason = true, games.Completed
+	case g.offSteps > OffRoadLimit:
+		g.done, g.reason = true, games.Failed
+	case g.steps >= MaxSteps:
+		g.done, g.reason = true, games.TimeUp
+	}
+	return games.Step{Reward: reward, Done: g.done, Reason: g.reason}, nil
+}
+
+// Render draws the heading-up view around the car into dst by sampling the
+// world image (nearest neighbour, one fixed-point rotation per frame), then
+// the car sprite. It does not allocate.
+func (g *Game) Render(dst *image.RGBA) {
+	W, H := g.cfg.Width, g.cfg.Height
+	if dst.Rect.Dx() != W || dst.Rect.Dy() != H {
+		return
+	}
+	wd := g.world
+	v := g.frameView
+	c := g.car.Centre()
+	cs, sn := math.Cos(g.car.Heading), math.Sin(g.car.Heading)
+	// Frame pixel (col, row) centre → car frame: forward = (ay−row−½)/ppm,
+	// left = (ax−col−½)/ppm → world = c + forward·(cs,sn) + left·(−sn,cs)
+	// → world pixel u = (X−minX)·wppm, v = (maxY−Y)·wppm.
+	k := wd.ppm / v.ppm
+	// d/dcol: left decreases by 1/ppm → world moves by −(−sn,cs)/ppm.
+	duc, dvc := sn*k, cs*k
+	// d/drow: forward decreases by 1/ppm → world moves by −(cs,sn)/ppm.
+	dur, dvr := -cs*k, sn*k
+	f0, l0 := (v.ay-0.5)/v.ppm, (v.ax-0.5)/v.ppm
+	x0 := c.X + f0*cs - l0*sn
+	y0 := c.Y + f0*sn + l0*cs
+	u0 := (x0 - wd.minX) * wd.ppm
+	v0 := (wd.maxY - y0) * wd.ppm
+	const one = 1 << 16
+	// Keep fixed-point values in range; a car this far out sees only
+	// border anyway.
+	if math.Abs(u0) > 20000 || math.Abs(v0) > 20000 {
+		fillFrame(dst, wd.border)
+		g.drawSprite(dst)
+		return
+	}
+	fix := func(x float64) int32 { return int32(math.Floor(x * one)) }
+	// Sample at pixel centres: the +0.5 world pixel offset is implicit in
+	// flooring the continuous coordinate.
+	ur, vr := fix(u0), fix(v0)
+	iduc, idvc, idur, idvr := fix(duc), fix(dvc), fix(dur), fix(dvr)
+	ww, wh := uint(wd.w), uint(wd.h)
+	pix := wd.pix
+	border := wd.border
+	// Fast path: the frame maps to a parallelogram in the world image; if
+	// its four corners (and so all of it) fall inside, no pixel needs the
+	// bounds test.
+	inside := func(cu, cv int32) bool {
+		x, y := cu>>16, cv>>16
+		return x >= 1 && y >= 1 && int(x) < wd.w-1 && int(y) < wd.h-1
+	}
+	w1, h1 := int32(W-1), int32(H-1)
+	if inside(ur, vr) && inside(ur+w1*iduc, vr+w1*idvc) &&
+		inside(ur+h1*idur, vr+h1*idvr) && inside(ur+w1*iduc+h1*idur, vr+w1*idvc+h1*idvr) &&
+		len(dst.Pix) >= (H-1)*dst.Stride+4*W {
+		base := unsafe.Pointer(unsafe.SliceData(pix))
+		out := unsafe.Pointer(unsafe.SliceData(dst.Pix))
+		stride := uintptr(ww) * 4
+		for row := 0; row < H; row++ {
+			o := unsafe.Add(out, row*dst.Stride)
+			u, vv := ur, vr
+			for col := 0; col < W; col++ {
+				// In range by the corner test above.
+				src := unsafe.Add(base, uintptr(vv>>16)*stride+uintptr(u>>16)*4)
+				*(*uint32)(unsafe.Add(o, 4*col)) = *(*uint32)(src)
+				u += iduc
+				vv += idvc
+			}
+			ur += idur
+			vr += idvr
+		}
+		g.drawSprite(dst)
+		return
+	}
+	for row := 0; row < H; row++ {
+		line := dst.Pix[row*dst.Stride : row*dst.Stride+4*W]
+		u, vv := ur, vr
+		for col := 0; col < W; col++ {
+			x, y := uint(u>>16), uint(vv>>16)
+			px := border
+			if x < ww && y < wh {
+				px = pix[y*ww+x]
+			}
+			binary.LittleEndian.PutUint32(line[4*col:], px)
+			u += iduc
+			vv += idvc
+		}
+		ur += idur
+		vr += idvr
+	}
+	g.drawSprite(dst)
+}
+
+func fillFrame(dst *image.RGBA, c uint32) {
+	W, H := dst.Rect.Dx(), dst.Rect.Dy()
+	for row := 0; row < H; row++ {
+		line := dst.Pix[row*dst.Stride : row*dst.Stride+4*W]
+		for o := 0; o < len(line); o += 4 {
+			line[o], line[o+1], line[o+2], line[o+3] = uint8(c), uint8(c>>8), uint8(c>>16), 0xff
+		}
+	}
+}
+
+// buildSprite precomputes the car's pixels: the car is always at the same
+// place in the frame, pointing up, so its shape never needs redrawing.
+// Coverage comes from 4×4 supersampling of a rounded body with a cabin.
+func (g *Game) buildSprite() {
+	v := g.frameView
+	p := g.cfg.Car
+	hl, hw := p.Length/2, p.Width/2
+	body, cabin := g.cfg.Palette.Body, g.cfg.Palette.Cabin
+	r := int(math.Ceil(hl*v.ppm)) + 2
+	g.sprite = g.sprite[:0]
+	for row := int(v.ay) - r; row <= int(v.ay)+r; row++ {
+		for col := int(v.ax) - r; col <= int(v.ax)+r; col++ {
+			if row < 0 || col < 0 || row >= g.cfg.Height || col >= g.cfg.Width {
+				continue
+			}
+			var nb, nc int
+			for sy := 0; sy < 4; sy++ {
+				for sx := 0; sx < 4; sx++ {
+					fwd := (v.ay - (float64(row) + (float64(sy)+0.5)/4)) / v.ppm
+					lft := (v.ax - (float64(col) + (float64(sx)+0.5)/4)) / v.ppm
+					// Body: a rounded rectangle narrowing towards the nose.
+					taper := hw
+					if fwd > hl*0.4 {
+						taper = hw * (1 - 0.35*(fwd-hl*0.4)/(hl*0.6))
+					}
+					if math.Abs(fwd) > hl || math.Abs(lft) > taper {
+						continue
+					}
+					if fwd > -hl*0.15 && fwd < hl*0.35 && math.Abs(lft) < hw*0.7 {
+						nc++
+					} else {
+						nb++
+					}
+				}
+			}
+			if nb+nc == 0 {
+				continue
+			}
+			col0 := body
+			if nc > nb {
+				col0 = cabin
+			}
+			g.sprite = append(g.sprite, spritePx{off: row*4*g.cfg.Width + 4*col, c: pack(col0), alpha: uint32((nb + nc) * 16)})
+		}
+	}
+}
+
+func (g *Game) drawSprite(dst *image.RGBA) {
+	W := g.cfg.Width
+	for _, s := range g.sprite {
+		row, col := s.off/(4*W), (s.off%(4*W))/4
+		o := row*dst.Stride + 4*col
+		px := dst.Pix[o : o+3 : o+3]
+		a := s.alpha
+		px[0] = uint8((uint32(px[0])*(256-a) + (s.c&0xff)*a) >> 8)
+		px[1] = uint8((uint32(px[1])*(256-a) + (s.c>>8&0xff)*a) >> 8)
+		px[2] = uint8((uint32(px[2])*(256-a) + (s.c>>16&0xff)*a) >> 8)
+	}
+}
+
+// Expert returns the pure-pursuit expert bound to this game.
+func (g *Game) Expert() games.Expert { return g.expert }
