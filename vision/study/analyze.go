@@ -1,0 +1,759 @@
+package study
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"image"
+	"image/draw"
+	"image/png"
+	"math"
+	"os"
+	"path/filepath"
+	"runtime"
+	"sort"
+	"strconv"
+	"strings"
+
+	"tilebench/internal/atomicfile"
+	"tilebench/patch"
+	"tilebench/vision/report"
+	"tilebench/vision/stats"
+)
+
+// CostsFile holds the cost table of a sizes study.
+const CostsFile = "costs.json"
+
+// Cost is the compute cost of the policy at one patch size, as the cost
+// model of vision/nets counts it and as measured on the machine that ran
+// the study.
+type Cost struct {
+	Patch     int     `json:"patch"`
+	Tokens    int     `json:"tokens"`
+	MFLOP     float64 `json:"mflop"`
+	Params    int     `json:"params"`
+	LatencyUS float64 `json:"latency_us"`
+}
+
+// CostTable is the content of costs.json.
+type CostTable struct {
+	Format int    `json:"format"`
+	Costs  []Cost `json:"costs"`
+}
+
+// WriteCosts records the cost table of a sizes study in dir.
+func WriteCosts(dir string, costs []Cost) error {
+	b, err := json.MarshalIndent(CostTable{Format: 1, Costs: costs}, "", "  ")
+	if err != nil {
+		return err
+	}
+	return atomicfile.WriteBytes(filepath.Join(dir, CostsFile), append(b, '\n'))
+}
+
+func readCosts(dir string) ([]Cost, error) {
+	data, err := os.ReadFile(filepath.Join(dir, CostsFile))
+	if errors.Is(err, os.ErrNotExist) {
+		return nil, nil
+	}
+	if err != nil {
+		return nil, err
+	}
+	var t CostTable
+	if err := json.Unmarshal(data, &t); err != nil || t.Format != 1 {
+		return nil, fmt.Errorf("read %s: not a format 1 cost table", CostsFile)
+	}
+	return t.Costs, nil
+}
+
+// CellStats are the statistics of one cell.
+type CellStats struct {
+	Cell    Cell
+	Index   int
+	Returns []float64
+	// Episodes counts finished episodes, Failures the failed ones among
+	// them (left out of Returns).
+	Episodes, Failures int
+	// FailNote is the most common failure reason.
+	FailNote string
+	Summary  *stats.Summary
+	// Retention is against the cell's clean reference; nil when undefined.
+	Retention *stats.Estimate
+	// Note explains a missing statistic.
+	Note string
+}
+
+// Analysis is what the report shows, computed from recorded results only.
+type Analysis struct {
+	Info  *StudyInfo
+	Plan  *Plan
+	Cells []CellStats
+	// Curves group cells along one stress axis with all else fixed.
+	Curves []AxisCurve
+	// Costs and Choice are set for sizes studies with a cost table.
+	Costs  []Cost
+	Choice *stats.Choice
+	// Cands names the candidates of Choice (one per patch size).
+	Cands []int
+	// Timing is the median steps per second over the recorded episodes.
+	StepsPerSecond float64
+}
+
+// AxisCurve is one stress axis in one context.
+type AxisCurve struct {
+	// Axis is e.g. "random occlusion ratio"; Context what else is applied.
+	Axis, Kind, Context string
+	Patch               int
+	// Cells are indices into Analysis.Cells, sorted by severity.
+	Cells      []int
+	Severities []float64
+	Break      *stats.Break
+}
+
+func (a *Analysis) boot(c int, stream string) stats.Bootstrap {
+	d := a.Plan.Def
+	return stats.Bootstrap{Resamples: d.Stats.Resamples, Level: d.Stats.Confidence,
+		Seed: patch.DeriveSeed(d.Seed, patch.StreamKey(stream), patch.StreamKey(a.Plan.Cells[c].Key()))}
+}
+
+// Analyze reads a study folder and computes every statistic. Its result
+// depends only on study.json, results.jsonl and costs.json.
+func Analyze(dir string) (*Analysis, error) {
+	si, err := ReadStudy(dir)
+	if err != nil {
+		return nil, err
+	}
+	p, err := si.Plan()
+	if err != nil {
+		return nil, err
+	}
+	recs, _, err := ReadResults(dir)
+	if err != nil {
+		return nil, err
+	}
+	a := &Analysis{Info: si, Plan: p}
+	a.Cells = make([]CellStats, len(p.Cells))
+	fails := make([]map[string]int, len(p.Cells))
+	for i, c := range p.Cells {
+		a.Cells[i] = CellStats{Cell: c, Index: i}
+	}
+	for _, r := range Latest(recs) {
+		if r.Study != p.Fingerprint || r.Cell < 0 || r.Cell >= len(p.Cells) {
+			return nil, fmt.Errorf("%s: a record of another study (%s)", filepath.Join(dir, ResultsFile), r.Study)
+		}
+		cs := &a.Cells[r.Cell]
+		cs.Episodes++
+		if r.Failed() {
+			cs.Failures++
+			if fails[r.Cell] == nil {
+				fails[r.Cell] = map[string]int{}
+			}
+			fails[r.Cell][r.Failure]++
+			continue
+		}
+		cs.Returns = append(cs.Returns, r.Return)
+	}
+	for i := range a.Cells {
+		cs := &a.Cells[i]
+		best := 0
+		for why, n := range fails[i] {
+			if n > best || n == best && why < cs.FailNote {
+				best, cs.FailNote = n, why
+			}
+		}
+		if len(cs.Returns) == 0 {
+			cs.Note = "no finished episodes"
+			continue
+		}
+		s, err := a.boot(i, "summary").Summarize(stats.Strata{cs.Returns})
+		if err != nil {
+			cs.Note = err.Error()
+			continue
+		}
+		cs.Summary = &s
+	}
+	for i := range a.Cells {
+		cs := &a.Cells[i]
+		ref := p.Reference(i)
+		if cs.Summary == nil || ref < 0 || a.Cells[ref].Summary == nil {
+			continue
+		}
+		e, err := a.boot(i, "retention").Retention(stats.Strata{cs.Returns}, stats.Strata{a.Cells[ref].Returns}, stats.StatIQM)
+		if err != nil {
+			cs.Note = err.Error()
+			continue
+		}
+		if i == ref {
+			e.Value = 1
+		}
+		cs.Retention = &e
+	}
+	a.curves()
+	for _, t := range ReadTimings(dir) {
+		_ = t
+	}
+	a.StepsPerSecond = medianSPS(ReadTimings(dir))
+	if p.Def.Kind == "sizes" {
+		costs, err := readCosts(dir)
+		if err != nil {
+			return nil, err
+		}
+		a.Costs = costs
+		if err := a.recommend(); err != nil {
+			return nil, err
+		}
+	}
+	return a, nil
+}
+
+func medianSPS(ts []Timing) float64 {
+	var v []float64
+	for _, t := range ts {
+		if t.StepsPerSecond > 0 {
+			v = append(v, t.StepsPerSecond)
+		}
+	}
+	if len(v) == 0 {
+		return 0
+	}
+	return stats.Median(v)
+}
+
+// axis describes one stress axis: how to read a cell's severity on it and
+// how to put the cell back to the axis's identity.
+type axis struct {
+	name string
+	sev  func(c Cell) (kind string, s float64, identity bool, ok bool)
+	zero func(c Cell) Cell
+}
+
+func ratioOf(s string) (string, float64, bool) {
+	k, v, ok := strings.Cut(s, ":")
+	if !ok {
+		return k, 0, false
+	}
+	f, err := strconv.ParseFloat(v, 64)
+	return k, f, err == nil
+}
+
+var axes = []axis{
+	{name: "occlusion ratio", sev: func(c Cell) (string, float64, bool, bool) {
+		if c.Occlude == "none" {
+			return "", 0, true, true
+		}
+		k, f, ok := ratioOf(c.Occlude)
+		return k, f, false, ok
+	}, zero: func(c Cell) Cell { c.Occlude = "none"; return c }},
+	{name: "scramble", sev: func(c Cell) (string, float64, bool, bool) {
+		if c.Scramble == "none" {
+			return "", 0, true, true
+		}
+		if c.Scramble == "full" {
+			return "partial", 1, false, true
+		}
+		k, f, ok := ratioOf(c.Scramble)
+		return k, f, false, ok
+	}, zero: func(c Cell) Cell { c.Scramble = "none"; c.Every = 0; return c }},
+	{name: "noise tokens", sev: func(c Cell) (string, float64, bool, bool) {
+		return "count", float64(c.NoiseTokens), c.NoiseTokens == 0, true
+	}, zero: func(c Cell) Cell { c.NoiseTokens = 0; return c }},
+	{name: "pixel noise σ", sev: func(c Cell) (string, float64, bool, bool) {
+		return "sigma", c.PixelNoise, c.PixelNoise == 0, true
+	}, zero: func(c Cell) Cell { c.PixelNoise = 0; return c }},
+	{name: "brightness shift", sev: func(c Cell) (string, float64, bool, bool) {
+		return "abs", math.Abs(c.Brightness), c.Brightness == 0, true
+	}, zero: func(c Cell) Cell { c.Brightness = 0; return c }},
+	{name: "contrast change", sev: func(c Cell) (string, float64, bool, bool) {
+		return "abs", math.Abs(c.Contrast - 1), c.Contrast == 1, true
+	}, zero: func(c Cell) Cell { c.Contrast = 1; return c }},
+}
+
+func axisName(a axis, kind string) string {
+	switch {
+	case a.name == "occlusion ratio":
+		return kind + " occlusion ratio"
+	case a.name == "scramble" && kind == "partial":
+		return "scrambled fraction"
+	case a.name == "scramble" && kind == "local":
+		return "local scramble radius"
+	}
+	return a.name
+}
+
+// curves groups the cells along each axis with everything else fixed.
+func (a *Analysis) curves() {
+	byKey := map[string]int{}
+	for i, c := range a.Plan.Cells {
+		byKey[c.Key()] = i
+	}
+	thr := a.Plan.Def.Stats.Threshold
+	for _, ax := range axes {
+		type group struct {
+			ctx   int
+			kind  string
+			cells []int
+		}
+		var order []string
+		groups := map[string]*group{}
+		for i, c := range a.Plan.Cells {
+			kind, _, ident, ok := ax.sev(c)
+			if ident || !ok {
+				continue
+			}
+			ctxCell := ax.zero(c)
+			ctx, ok := byKey[ctxCell.Key()]
+			if !ok {
+				ctx = -1
+			}
+			gk := ctxCell.Key() + "|" + kind
+			g := groups[gk]
+			if g == nil {
+				g = &group{ctx: ctx, kind: kind}
+				groups[gk] = g
+				order = append(order, gk)
+				if ctx >= 0 {
+					g.cells = append(g.cells, ctx)
+				}
+			}
+			g.cells = append(g.cells, i)
+		}
+		for _, gk := range order {
+			g := groups[gk]
+			sort.SliceStable(g.cells, func(x, y int) bool {
+				_, sx, _, _ := ax.sev(a.Plan.Cells[g.cells[x]])
+				_, sy, _, _ := ax.sev(a.Plan.Cells[g.cells[y]])
+				return sx < sy
+			})
+			ctxCell := ax.zero(a.Plan.Cells[g.cells[len(g.cells)-1]])
+			ctxLabel := fmt.Sprintf("patch %d", ctxCell.Patch)
+			if l := ctxCell.Label(); l != "clean" {
+				ctxLabel += ", " + l
+			}
+			if ctxCell.Variation != a.Plan.Def.Variation {
+				ctxLabel += ", variation " + variationName(ctxCell.Variation)
+			}
+			cv := AxisCurve{Axis: axisName(ax, g.kind), Kind: g.kind, Context: ctxLabel, Patch: ctxCell.Patch, Cells: g.cells}
+			var levels []stats.Level
+			for _, ci := range g.cells {
+				_, s, _, _ := ax.sev(a.Plan.Cells[ci])
+				cv.Severities = append(cv.Severities, s)
+				if r := a.Cells[ci].Retention; r != nil {
+					levels = append(levels, stats.Level{Severity: s, Retention: *r})
+				}
+			}
+			if len(levels) > 0 {
+				if br, err := stats.BreakingPoint(levels, thr); err == nil {
+					cv.Break = &br
+				}
+			}
+			a.Curves = append(a.Curves, cv)
+		}
+	}
+}
+
+func variationName(v string) string {
+	if v == "" {
+		return "default"
+	}
+	return v
+}
+
+// sizeStrata is the candidate data of a sizes study: for every patch
+// size, one stratum per condition (the clean cell and each stress cell),
+// the conditions matched across patch sizes.
+func (a *Analysis) recommend() error {
+	patches := map[int]bool{}
+	var ps []int
+	for _, c := range a.Plan.Cells {
+		if !patches[c.Patch] {
+			patches[c.Patch] = true
+			ps = append(ps, c.Patch)
+		}
+	}
+	cost := map[int]Cost{}
+	for _, c := range a.Costs {
+		cost[c.Patch] = c
+	}
+	// Conditions: the cells of the first patch size, matched by their key
+	// without the patch size.
+	cond := func(c Cell) string { c.Patch = 0; return c.Key() }
+	var conds []string
+	seen := map[string]bool{}
+	for _, c := range a.Plan.Cells {
+		if k := cond(c); !seen[k] {
+			seen[k] = true
+			conds = append(conds, k)
+		}
+	}
+	idx := map[[2]string]int{}
+	for i, c := range a.Plan.Cells {
+		idx[[2]string{strconv.Itoa(c.Patch), cond(c)}] = i
+	}
+	d := a.Plan.Def
+	var cands []stats.Candidate
+	for _, p := range ps {
+		c := stats.Candidate{Name: fmt.Sprintf("patch %d", p)}
+		co, ok := cost[p]
+		switch {
+		case !ok:
+			c.Cost = math.NaN()
+		case d.Budget.Microseconds > 0:
+			c.Cost = co.LatencyUS
+		default:
+			c.Cost = co.MFLOP
+		}
+		for _, k := range conds {
+			i, ok := idx[[2]string{strconv.Itoa(p), k}]
+			if !ok || len(a.Cells[i].Returns) == 0 {
+				return nil
+			}
+			c.Scores = append(c.Scores, a.Cells[i].Returns)
+		}
+		if math.IsNaN(c.Cost) {
+			return nil
+		}
+		cands = append(cands, c)
+	}
+	r := stats.Recommender{Bootstrap: stats.Bootstrap{Resamples: d.Stats.Resamples, Level: d.Stats.Confidence,
+		Seed: patch.DeriveSeed(d.Seed, patch.StreamKey("recommend"))}}
+	if d.Budget.Microseconds > 0 {
+		r.Budget = d.Budget.Microseconds
+	} else {
+		r.Budget = d.Budget.MFLOP
+	}
+	ch, err := r.Recommend(cands)
+	if err != nil {
+		return fmt.Errorf("recommendation: %w", err)
+	}
+	a.Choice = &ch
+	a.Cands = ps
+	return nil
+}
+
+// WriteReport analyses the study in dir and writes report.html,
+// summary.md and cells.csv there.
+func WriteReport(dir string) error {
+	a, err := Analyze(dir)
+	if err != nil {
+		return err
+	}
+	return report.Write(dir, a.ReportData(dir))
+}
+
+// ReportData turns the analysis into the report's data model. dir is
+// where the strips were recorded.
+func (a *Analysis) ReportData(dir string) *report.Data {
+	d := a.Plan.Def
+	rd := &report.Data{Title: fmt.Sprintf("%s: %s / %s", d.Name, d.Game, policyLabel(d.Policy)), Kind: d.Kind + " study"}
+	if d.Kind == "sizes" {
+		rd.Kind = "patch-size study"
+	}
+	rd.Run = report.Run{Command: a.Info.Command, Seed: d.Seed, Versions: []report.KV{{Key: "go", Value: runtime.Version()}}}
+	if rd.Run.Command == "" {
+		rd.Run.Command = "tilebench report " + dir
+	}
+	rd.Run.Params = []report.KV{
+		{Key: "study", Value: a.Plan.Fingerprint},
+		{Key: "game", Value: d.Game},
+		{Key: "variation", Value: variationName(d.Variation)},
+		{Key: "policy", Value: policyLabel(d.Policy)},
+		{Key: "cells", Value: strconv.Itoa(len(a.Plan.Cells))},
+		{Key: "episodes per cell", Value: strconv.Itoa(d.Episodes)},
+		{Key: "game seeds", Value: d.Seeds},
+		{Key: "bootstrap", Value: fmt.Sprintf("%d resamples, %.0f%% percentile intervals", d.Stats.Resamples, 100*d.Stats.Confidence)},
+		{Key: "breaking threshold", Value: fmtG(d.Stats.Threshold) + " retention"},
+	}
+	if a.StepsPerSecond > 0 {
+		rd.Run.Params = append(rd.Run.Params, report.KV{Key: "speed", Value: fmt.Sprintf("%.0f steps/s per worker (median, timing.jsonl)", a.StepsPerSecond)})
+	}
+	if d.Policy.Source == "expert" {
+		rd.Notes = append(rd.Notes, "The scripted expert reads the game state, not pixels: transforms of the input do not reach it, so its cells show the game's spread, not robustness.")
+	}
+	if d.Policy.Source == "fresh" {
+		rd.Notes = append(rd.Notes, "The policy is an untrained network (fresh weights): its scores show the pipeline at work, not a trained policy's robustness.")
+	}
+	for _, cs := range a.Cells {
+		rd.Run.Episodes += cs.Episodes - cs.Failures
+		rd.Run.Failures += cs.Failures
+	}
+	for i := range a.Plan.Cells {
+		if ref := a.Plan.Reference(i); ref == i && a.Cells[i].Summary != nil {
+			rd.Findings = append(rd.Findings, report.KV{Key: fmt.Sprintf("clean IQM, patch %d", a.Plan.Cells[i].Patch), Value: a.Cells[i].Summary.IQM.String()})
+		}
+	}
+	for _, cv := range a.Curves {
+		if cv.Break != nil {
+			rd.Breaks = append(rd.Breaks, report.Break{Axis: cv.Axis + " (" + cv.Context + ")", Break: *cv.Break})
+		}
+	}
+	a.costSection(rd)
+	a.curveSections(rd)
+	a.stripSections(rd, dir)
+	for i, cs := range a.Cells {
+		rc := report.Cell{ID: fmt.Sprintf("c%d", i), Patch: cs.Cell.Patch, Episodes: cs.Episodes, Failures: cs.Failures,
+			Retention: cs.Retention, Note: cs.Note}
+		rc.Axis, rc.Kind, rc.Severity = primaryAxis(cs.Cell)
+		rc.Params = cellParams(cs.Cell)
+		if cs.Summary != nil {
+			rc.Summary = *cs.Summary
+		}
+		if cs.FailNote != "" {
+			rc.Note = strings.TrimSpace(rc.Note + " failed: " + cs.FailNote)
+		}
+		if i == a.Plan.Reference(i) {
+			rc.Retention = nil
+		}
+		rd.Cells = append(rd.Cells, rc)
+	}
+	return rd
+}
+
+func fmtG(v float64) string { return strconv.FormatFloat(v, 'g', 4, 64) }
+
+func policyLabel(p PolicyDef) string {
+	switch p.Source {
+	case "expert":
+		return "scripted expert"
+	case "fresh":
+		return "untrained " + p.Family
+	}
+	return p.Source
+}
+
+func primaryAxis(c Cell) (string, string, float64) {
+	var found []string
+	var kind string
+	var sev float64
+	for _, ax := range axes {
+		k, s, ident, ok := ax.sev(c)
+		if !ident && ok {
+			if len(found) == 0 {
+				kind, sev = k, s
+			}
+			found = append(found, axisName(ax, k))
+		}
+	}
+	switch len(found) {
+	case 0:
+		return "clean", "", 0
+	case 1:
+		return found[0], kind, sev
+	}
+	return "mixed: " + strings.Join(found, " + "), kind, sev
+}
+
+func cellParams(c Cell) []report.KV {
+	return []report.KV{
+		{Key: "patch", Value: strconv.Itoa(c.Patch)},
+		{Key: "variation", Value: variationName(c.Variation)},
+		{Key: "occlude", Value: c.Occlude},
+		{Key: "fill", Value: c.Fill},
+		{Key: "scramble", Value: c.Scramble},
+		{Key: "every", Value: strconv.Itoa(c.Every)},
+		{Key: "noise_tokens", Value: strconv.Itoa(c.NoiseTokens)},
+		{Key: "brightness", Value: fnum(c.Brightness)},
+		{Key: "contrast", Value: fnum(c.Contrast)},
+		{Key: "pixel_noise", Value: fnum(c.PixelNoise)},
+	}
+}
+
+func (a *Analysis) costSection(rd *report.Data) {
+	if len(a.Costs) == 0 {
+		return
+	}
+	d := a.Plan.Def
+	unit := "MFLOP per step"
+	budget := d.Budget.MFLOP
+	if d.Budget.Microseconds > 0 {
+		unit, budget = "µs per step (measured)", d.Budget.Microseconds
+	}
+	pick, best := -1, -1
+	if a.Choice != nil {
+		pick, best = a.Choice.Pick, a.Choice.Best
+	}
+	pos := map[int]int{}
+	for i, p := range a.Cands {
+		pos[p] = i
+	}
+	par := &report.Pareto{XLabel: unit, YLabel: "IQM return (clean + stress set)", LogX: true, Budget: budget}
+	for _, c := range a.Costs {
+		rc := report.Cost{Name: fmt.Sprintf("patch %d", c.Patch), Patch: c.Patch, Tokens: c.Tokens, MFLOP: c.MFLOP,
+			Params: c.Params, LatencyUS: c.LatencyUS, Score: stats.Estimate{Value: math.NaN()}}
+		x := c.MFLOP
+		if d.Budget.Microseconds > 0 {
+			x = c.LatencyUS
+		}
+		if i, ok := pos[c.Patch]; ok && a.Choice != nil {
+			rc.Score = a.Choice.Score[i]
+			rc.Pick = i == pick
+			rc.OverBudget = !a.Choice.Affordable[i]
+			if x > 0 {
+				par.Points = append(par.Points, report.ParetoPoint{Label: strconv.Itoa(c.Patch), Cost: x, Score: rc.Score, Pick: rc.Pick})
+			}
+		}
+		rd.Costs = append(rd.Costs, rc)
+	}
+	if len(par.Points) > 0 {
+		rd.Pareto = par
+	}
+	if a.Choice != nil {
+		rec := &report.Recommendation{Rule: stats.Rule}
+		switch {
+		case pick < 0:
+			rec.Detail = "No patch size fits the budget."
+		default:
+			rec.Choice = fmt.Sprintf("patch %d", a.Cands[pick])
+			sb, sp := a.Choice.Score[best].Value, a.Choice.Score[pick].Value
+			detail := fmt.Sprintf("Best score: patch %d (IQM %s).", a.Cands[best], fmtG(sb))
+			if pick != best {
+				detail += fmt.Sprintf(" Patch %d scores IQM %s with P(best > it) %s, not significantly below the best, at lower cost.", a.Cands[pick], fmtG(sp), a.Choice.PBest[pick].String())
+			}
+			if budget > 0 {
+				detail += fmt.Sprintf(" Budget: %s %s.", fmtG(budget), unit)
+			}
+			rec.Detail = detail
+		}
+		rd.Recommendation = rec
+	}
+}
+
+func (a *Analysis) curveSections(rd *report.Data) {
+	// One chart per axis name: a series per context.
+	var names []string
+	byName := map[string][]AxisCurve{}
+	for _, cv := range a.Curves {
+		if _, ok := byName[cv.Axis]; !ok {
+			names = append(names, cv.Axis)
+		}
+		byName[cv.Axis] = append(byName[cv.Axis], cv)
+	}
+	for _, n := range names {
+		ch := report.Curves{Title: "Retention against " + n, XLabel: n, YLabel: "retention (IQM stressed / IQM clean)", Threshold: a.Plan.Def.Stats.Threshold}
+		hm := report.Heatmap{Title: "IQM return: " + n, XLabel: n, YLabel: "condition"}
+		cols := map[float64]bool{}
+		for _, cv := range byName[n] {
+			for _, s := range cv.Severities {
+				cols[s] = true
+			}
+		}
+		var xs []float64
+		for s := range cols {
+			xs = append(xs, s)
+		}
+		sort.Float64s(xs)
+		for _, s := range xs {
+			hm.X = append(hm.X, fmtG(s))
+		}
+		for _, cv := range byName[n] {
+			se := report.Series{Name: cv.Context}
+			row := make([]float64, len(xs))
+			for i := range row {
+				row[i] = math.NaN()
+			}
+			for k, ci := range cv.Cells {
+				cs := a.Cells[ci]
+				if r := cs.Retention; r != nil {
+					se.Points = append(se.Points, report.CurvePoint{X: cv.Severities[k], Y: r.Value, Lo: r.Lo, Hi: r.Hi})
+				}
+				if cs.Summary != nil {
+					row[sort.SearchFloat64s(xs, cv.Severities[k])] = cs.Summary.IQM.Value
+				}
+			}
+			if len(se.Points) > 0 {
+				ch.Series = append(ch.Series, se)
+			}
+			hm.Y = append(hm.Y, cv.Context)
+			hm.Z = append(hm.Z, row)
+		}
+		if len(ch.Series) > 0 {
+			rd.Curves = append(rd.Curves, ch)
+		}
+		if len(hm.Y) > 0 && len(hm.X) > 1 {
+			rd.Heatmaps = append(rd.Heatmaps, hm)
+		}
+	}
+}
+
+// StripMeta describes a strip PNG: the steps kept and the frame sizes.
+type StripMeta struct {
+	Format int   `json:"format"`
+	Steps  []int `json:"steps"`
+	// Width and Height are the size of one column; Gap the border.
+	Width, Height, Gap int
+}
+
+func loadStrip(dir string, cell int) (image.Image, *StripMeta) {
+	base := filepath.Join(dir, StripsDir, fmt.Sprintf("cell-%04d", cell))
+	data, err := os.ReadFile(base + ".json")
+	if err != nil {
+		return nil, nil
+	}
+	var m StripMeta
+	if json.Unmarshal(data, &m) != nil || m.Format != 1 || m.Width <= 0 || m.Height <= 0 {
+		return nil, nil
+	}
+	f, err := os.Open(base + ".png")
+	if err != nil {
+		return nil, nil
+	}
+	defer f.Close()
+	img, err := png.Decode(f)
+	if err != nil {
+		return nil, nil
+	}
+	return img, &m
+}
+
+// stripFrame cuts column k of row (0 raw, 1 seen) out of a strip.
+func stripFrame(img image.Image, m *StripMeta, k, row int) image.Image {
+	if k < 0 || k >= len(m.Steps) {
+		return nil
+	}
+	x := m.Gap + k*(m.Width+m.Gap)
+	y := m.Gap + row*(m.Height+m.Gap)
+	r := image.Rect(x, y, x+m.Width, y+m.Height)
+	if !r.In(img.Bounds()) {
+		return nil
+	}
+	out := image.NewRGBA(image.Rect(0, 0, m.Width, m.Height))
+	draw.Draw(out, out.Bounds(), img, r.Min, draw.Src)
+	return out
+}
+
+func (a *Analysis) stripSections(rd *report.Data, dir string) {
+	// The clean reference of the first patch size over time, raw and seen.
+	for i := range a.Plan.Cells {
+		if a.Plan.Reference(i) != i {
+			continue
+		}
+		img, m := loadStrip(dir, i)
+		if img == nil {
+			continue
+		}
+		st := report.Strip{Title: fmt.Sprintf("Clean, patch %d: the game's frames over episode 0", a.Plan.Cells[i].Patch)}
+		for k, s := range m.Steps {
+			st.Frames = append(st.Frames, report.Frame{Label: fmt.Sprintf("step %d", s), Image: stripFrame(img, m, k, 0)})
+		}
+		rd.Strips = append(rd.Strips, st)
+		break
+	}
+	shown := 0
+	for _, cv := range a.Curves {
+		if shown >= 8 {
+			break
+		}
+		st := report.Strip{Title: fmt.Sprintf("What the policy saw: %s (%s)", cv.Axis, cv.Context),
+			Caption: "Episode 0 of each cell, the same game seed in every cell."}
+		for k, ci := range cv.Cells {
+			img, m := loadStrip(dir, ci)
+			if img == nil {
+				continue
+			}
+			col := min(2, len(m.Steps)-1)
+			st.Frames = append(st.Frames, report.Frame{Label: fmt.Sprintf("%s, step %d", fmtG(cv.Severities[k]), m.Steps[col]), Image: stripFrame(img, m, col, 1)})
+		}
+		if len(st.Frames) > 0 {
+			rd.Strips = append(rd.Strips, st)
+			shown++
+		}
+	}
+}

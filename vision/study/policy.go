@@ -1,0 +1,101 @@
+package study
+
+import (
+	"errors"
+	"fmt"
+	"strconv"
+	"strings"
+	"sync"
+
+	"tilebench/games"
+	_ "tilebench/games/all" // the built-in games
+	"tilebench/patch"
+	"tilebench/vision"
+	"tilebench/vision/nets"
+)
+
+// ErrNoExternal is returned for exec: and tcp:// policies while this build
+// has no external-policy adapter.
+var ErrNoExternal = errors.New("external policies (exec:, tcp://) are not available in this build")
+
+// ExternalFunc makes an external policy for a source ("exec:..." or
+// "tcp://..."); set by the package that implements the protocol. logDir is
+// where the policy's stderr should be kept.
+var ExternalFunc func(source string, g games.Game, grid *patch.Grid, logDir string) (vision.Policy, error)
+
+// PolicyPath is the weights file for patch size ps: source with every
+// "{patch}" replaced by ps.
+func PolicyPath(source string, ps int) string {
+	return strings.ReplaceAll(source, "{patch}", strconv.Itoa(ps))
+}
+
+// Policies resolves the study's policy into a PolicyFunc safe to call
+// from many workers: weights files are read once per patch size and
+// cloned for each worker. logDir receives external policies' stderr.
+func Policies(p *Plan, logDir string) PolicyFunc {
+	def := p.Def.Policy
+	var mu sync.Mutex
+	loaded := map[string]nets.Net{}
+	return func(ps int, g games.Game, grid *patch.Grid) (vision.Policy, error) {
+		src := def.Source
+		switch {
+		case src == "expert":
+			pol, ok := vision.NewExpertPolicy(g)
+			if !ok {
+				return nil, fmt.Errorf("game %s ships no scripted expert", g.Spec().Name)
+			}
+			return pol, nil
+		case src == "fresh":
+			return nets.New(nets.Config{Family: def.Family}, grid, g.Spec().Action, p.PolicySeed(ps))
+		case strings.HasPrefix(src, "exec:") || strings.HasPrefix(src, "tcp://"):
+			if ExternalFunc == nil {
+				return nil, ErrNoExternal
+			}
+			return ExternalFunc(src, g, grid, logDir)
+		}
+		path := PolicyPath(src, ps)
+		mu.Lock()
+		n, ok := loaded[path]
+		mu.Unlock()
+		if !ok {
+			var err error
+			n, err = nets.Load(path)
+			if err != nil {
+				return nil, err
+			}
+			if err := CheckGeometry(path, n, g.Spec(), grid); err != nil {
+				return nil, err
+			}
+			mu.Lock()
+			loaded[path] = n
+			mu.Unlock()
+		}
+		return n.Clone(), nil
+	}
+}
+
+// CheckGeometry refuses a net whose patch grid or action space does not
+// fit the game's frame and the study's patch size.
+func CheckGeometry(path string, n nets.Net, sp games.Spec, grid *patch.Grid) error {
+	ng := n.Grid()
+	if ng.Width != sp.Width || ng.Height != sp.Height {
+		return fmt.Errorf("%s: weights are for %dx%d frames, game %s renders %dx%d", path, ng.Width, ng.Height, sp.Name, sp.Width, sp.Height)
+	}
+	if ng.PatchW != grid.PatchW || ng.PatchH != grid.PatchH || ng.Channels != grid.Channels ||
+		ng.StrideX != grid.StrideX || ng.StrideY != grid.StrideY || ng.Edge != grid.Edge {
+		return fmt.Errorf("%s: weights are for patch %dx%d stride %dx%d (%s), the study cell uses patch %dx%d stride %dx%d (%s)",
+			path, ng.PatchW, ng.PatchH, ng.StrideX, ng.StrideY, ng.Edge, grid.PatchW, grid.PatchH, grid.StrideX, grid.StrideY, grid.Edge)
+	}
+	a, b := n.Space(), sp.Action
+	if a.Kind != b.Kind || a.Dim() != b.Dim() || a.Choices() != b.Choices() {
+		return fmt.Errorf("%s: weights are for a %s action space of %d values, game %s takes %s actions of %d", path, a.Kind, a.Dim(), sp.Name, b.Kind, b.Dim())
+	}
+	return nil
+}
+
+// DefaultEnv is the EnvFactory of a study on the built-in games, with
+// the study's policy; logDir receives external policies' stderr.
+func DefaultEnv(p *Plan, logDir string) EnvFactory {
+	pol := Policies(p, logDir)
+	return func(int) (Env, error) { return NewGameEnv(p.Def.Game, pol), nil }
+}

@@ -1,0 +1,594 @@
+package study
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"image"
+	"image/color"
+	"image/draw"
+	"image/png"
+	"io"
+	"os"
+	"path/filepath"
+	"runtime"
+	"strconv"
+	"strings"
+	"sync"
+	"time"
+
+	"tilebench/internal/atomicfile"
+	"tilebench/patch"
+	"tilebench/vision"
+)
+
+// Shard is one part of a study split for a cluster: the episodes whose
+// index u = cell·episodes + episode satisfies u mod Count = Index.
+// The zero value (and Count 1) is the whole study.
+type Shard struct {
+	// Index runs from 0 to Count-1.
+	Index int `json:"index"`
+	// Count is the number of shards; 0 or 1 means no split.
+	Count int `json:"count"`
+}
+
+// Whole reports whether s is the whole study.
+func (s Shard) Whole() bool { return s.Count <= 1 }
+
+// Owns reports whether unit u belongs to the shard.
+func (s Shard) Owns(u int) bool { return s.Whole() || u%s.Count == s.Index }
+
+// String is "i/n", or "all" for the whole study.
+func (s Shard) String() string {
+	if s.Whole() {
+		return "all"
+	}
+	return fmt.Sprintf("%d/%d", s.Index, s.Count)
+}
+
+// ParseShard reads "i/n" with 0 ≤ i < n.
+func ParseShard(s string) (Shard, error) {
+	a, b, ok := strings.Cut(strings.TrimSpace(s), "/")
+	i, e1 := strconv.Atoi(a)
+	n, e2 := strconv.Atoi(b)
+	if !ok || e1 != nil || e2 != nil || n < 1 || n > 1_000_000 || i < 0 || i >= n {
+		return Shard{}, fmt.Errorf("shard %q: want i/n with 0 ≤ i < n (shards count from 0)", s)
+	}
+	return Shard{Index: i, Count: n}, nil
+}
+
+// ShardFromEnv takes the shard from a cluster's environment: a Slurm job
+// array (SLURM_ARRAY_TASK_ID, minus SLURM_ARRAY_TASK_MIN when set, out of
+// SLURM_ARRAY_TASK_COUNT) or a Kubernetes indexed Job (JOB_COMPLETION_INDEX
+// out of count, which the Job's completions must give, as
+// Kubernetes sets no count variable). ok is false when neither is set.
+func ShardFromEnv(getenv func(string) string, count int) (s Shard, ok bool, err error) {
+	if id := getenv("SLURM_ARRAY_TASK_ID"); id != "" {
+		n := getenv("SLURM_ARRAY_TASK_COUNT")
+		i, e1 := strconv.Atoi(id)
+		c, e2 := strconv.Atoi(n)
+		if e1 != nil || e2 != nil {
+			return Shard{}, false, fmt.Errorf("slurm array: SLURM_ARRAY_TASK_ID=%q SLURM_ARRAY_TASK_COUNT=%q: want whole numbers", id, n)
+		}
+		if m := getenv("SLURM_ARRAY_TASK_MIN"); m != "" {
+			lo, err := strconv.Atoi(m)
+			if err != nil {
+				return Shard{}, false, fmt.Errorf("slurm array: SLURM_ARRAY_TASK_MIN=%q: want a whole number", m)
+			}
+			i -= lo
+		}
+		s, err := ParseShard(fmt.Sprintf("%d/%d", i, c))
+		if err != nil {
+			return Shard{}, false, fmt.Errorf("slurm array: %w (arrays must be contiguous, e.g. --array=0-7)", err)
+		}
+		return s, true, nil
+	}
+	if id := getenv("JOB_COMPLETION_INDEX"); id != "" {
+		if count <= 0 {
+			return Shard{}, false, errors.New("JOB_COMPLETION_INDEX is set: give the number of shards (--shards N, the Job's completions)")
+		}
+		i, err := strconv.Atoi(id)
+		if err != nil {
+			return Shard{}, false, fmt.Errorf("JOB_COMPLETION_INDEX=%q: want a whole number", id)
+		}
+		s, err := ParseShard(fmt.Sprintf("%d/%d", i, count))
+		if err != nil {
+			return Shard{}, false, fmt.Errorf("indexed job: %w", err)
+		}
+		return s, true, nil
+	}
+	return Shard{}, false, nil
+}
+
+// Options control Run. Env is required; the zero value of the rest runs
+// the whole study on every core into Dir.
+type Options struct {
+	// Dir is the study folder. It must not exist, be empty, or (with
+	// Resume) hold the same study.
+	Dir string
+	// Workers is the number of parallel workers; 0 means runtime.NumCPU().
+	Workers int
+	// Resume continues the study already in Dir: finished episodes are
+	// kept, failed ones are retried. Resume on a folder that does not
+	// exist starts the study.
+	Resume bool
+	// Shard restricts the run to one part of the study.
+	Shard Shard
+	// Env makes each worker's games and policies.
+	Env EnvFactory
+	// Progress, if set, is called after every finished episode with the
+	// number done (including those found on resume) and the total for
+	// this shard. Calls come from one goroutine.
+	Progress func(done, total int)
+	// Command is the command line recorded in study.json for reports.
+	Command string
+	// NoReport skips writing the report at the end.
+	NoReport bool
+}
+
+// Outcome summarises a run.
+type Outcome struct {
+	// Total is the number of episodes in this shard; Kept those found
+	// finished in Dir; Ran those played now; Failed those recorded as
+	// failed (now or before) that are still failed.
+	Total, Kept, Ran, Failed int
+	// Steps is the number of game steps played now; Elapsed the wall time.
+	Steps   int
+	Elapsed time.Duration
+}
+
+// ErrInterrupted is returned (wrapped) when the context ends a run early.
+var ErrInterrupted = errors.New("study interrupted")
+
+type unit struct{ cell, ep int }
+
+type finished struct {
+	rec    Record
+	timing Timing
+}
+
+// Run plays the study's episodes (those of opt.Shard not already finished
+// in opt.Dir), appending one record per episode to results.jsonl, synced
+// to disk, so that a run stopped at any point loses at most the episodes
+// in flight. At the end it rewrites results.jsonl in canonical order and,
+// unless opt.NoReport, writes the report. A cancelled ctx stops the run
+// after the episodes in flight; the error wraps ErrInterrupted.
+func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
+	start := time.Now()
+	if opt.Env == nil {
+		return nil, errors.New("study: no Env")
+	}
+	if opt.Dir == "" {
+		return nil, errors.New("study: no output folder given")
+	}
+	workers := opt.Workers
+	if workers <= 0 {
+		workers = runtime.NumCPU()
+	}
+	if err := prepareDir(p, opt); err != nil {
+		return nil, err
+	}
+	// Check every cell builds (pipeline specs, policy files, geometry)
+	// before anything is written.
+	if err := preflight(p, opt.Env); err != nil {
+		return nil, err
+	}
+	if err := os.MkdirAll(opt.Dir, 0o755); err != nil {
+		return nil, fmt.Errorf("study folder: %w", err)
+	}
+	if _, err := os.Stat(filepath.Join(opt.Dir, StudyFile)); errors.Is(err, os.ErrNotExist) {
+		si := &StudyInfo{Format: 1, Fingerprint: p.Fingerprint, Definition: p.Def, Cells: p.Cells,
+			Episodes: p.Def.Episodes, Command: opt.Command}
+		if !opt.Shard.Whole() {
+			sh := opt.Shard
+			si.Shard = &sh
+		}
+		if err := writeStudy(opt.Dir, si); err != nil {
+			return nil, err
+		}
+	}
+	old, validEnd, err := ReadResults(opt.Dir)
+	if err != nil {
+		return nil, err
+	}
+	for _, r := range old {
+		if r.Study != p.Fingerprint || r.Cell < 0 || r.Cell >= len(p.Cells) || r.Episode < 0 || r.Episode >= p.Def.Episodes {
+			return nil, fmt.Errorf("%s: record for cell %d episode %d does not belong to study %s", filepath.Join(opt.Dir, ResultsFile), r.Cell, r.Episode, p.Fingerprint)
+		}
+	}
+	done := map[unit]bool{}
+	for _, r := range Latest(old) {
+		if !r.Failed() {
+			done[unit{r.Cell, r.Episode}] = true
+		}
+	}
+	var todo []unit
+	total := 0
+	for c := range p.Cells {
+		for e := 0; e < p.Def.Episodes; e++ {
+			if !opt.Shard.Owns(c*p.Def.Episodes + e) {
+				continue
+			}
+			total++
+			if !done[unit{c, e}] {
+				todo = append(todo, unit{c, e})
+			}
+		}
+	}
+	out := &Outcome{Total: total, Kept: total - len(todo)}
+
+	// Drop a line cut short by a kill, then append.
+	rpath := filepath.Join(opt.Dir, ResultsFile)
+	rf, err := os.OpenFile(rpath, os.O_WRONLY|os.O_CREATE, 0o644)
+	if err != nil {
+		return nil, fmt.Errorf("open results: %w", err)
+	}
+	defer rf.Close()
+	if err := rf.Truncate(validEnd); err != nil {
+		return nil, fmt.Errorf("results: %w", err)
+	}
+	if _, err := rf.Seek(validEnd, io.SeekStart); err != nil {
+		return nil, fmt.Errorf("results: %w", err)
+	}
+	tf, err := os.OpenFile(filepath.Join(opt.Dir, TimingFile), os.O_WRONLY|os.O_CREATE|os.O_APPEND, 0o644)
+	if err != nil {
+		return nil, fmt.Errorf("open timing: %w", err)
+	}
+	defer tf.Close()
+
+	if opt.Progress != nil {
+		opt.Progress(out.Kept, total)
+	}
+	jobs := make(chan unit)
+	results := make(chan finished, workers)
+	var wg sync.WaitGroup
+	for w := range workers {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			worker(ctx, p, opt, w, jobs, results)
+		}()
+	}
+	go func() {
+		defer close(jobs)
+		for _, u := range todo {
+			select {
+			case jobs <- u:
+			case <-ctx.Done():
+				return
+			}
+		}
+	}()
+	go func() { wg.Wait(); close(results) }()
+
+	var writeErr error
+	n := out.Kept
+	for f := range results {
+		if writeErr != nil {
+			continue
+		}
+		b, err := EncodeRecord(&f.rec)
+		if err == nil {
+			_, err = rf.Write(b)
+		}
+		if err == nil {
+			err = rf.Sync()
+		}
+		if err != nil {
+			writeErr = fmt.Errorf("write results: %w", err)
+			continue
+		}
+		if tb, err := jsonLine(f.timing); err == nil {
+			tf.Write(tb)
+		}
+		out.Ran++
+		out.Steps += f.rec.Steps
+		n++
+		if opt.Progress != nil {
+			opt.Progress(n, total)
+		}
+	}
+	out.Elapsed = time.Since(start)
+	if writeErr != nil {
+		return out, writeErr
+	}
+	all, _, err := ReadResults(opt.Dir)
+	if err != nil {
+		return out, err
+	}
+	latest := Latest(all)
+	for _, r := range latest {
+		if r.Failed() {
+			out.Failed++
+		}
+	}
+	if ctx.Err() != nil && out.Kept+out.Ran < total {
+		return out, fmt.Errorf("%w: %d of %d episodes recorded in %s; continue with --resume", ErrInterrupted, out.Kept+out.Ran, total, opt.Dir)
+	}
+	rf.Close()
+	if err := WriteResults(opt.Dir, latest); err != nil {
+		return out, err
+	}
+	if !opt.NoReport {
+		if err := WriteReport(opt.Dir); err != nil {
+			return out, err
+		}
+	}
+	return out, nil
+}
+
+// prepareDir refuses a folder that holds something else than this study.
+func prepareDir(p *Plan, opt Options) error {
+	entries, err := os.ReadDir(opt.Dir)
+	if errors.Is(err, os.ErrNotExist) {
+		return nil
+	}
+	if err != nil {
+		return fmt.Errorf("study folder: %w", err)
+	}
+	if len(entries) == 0 {
+		return nil
+	}
+	si, err := ReadStudy(opt.Dir)
+	if err != nil {
+		return fmt.Errorf("%s is not empty and holds no study; choose another --out", opt.Dir)
+	}
+	if !opt.Resume {
+		return fmt.Errorf("%s already holds study %s; continue it with --resume or choose another --out", opt.Dir, si.Fingerprint)
+	}
+	if si.Fingerprint != p.Fingerprint {
+		return fmt.Errorf("%s holds a different study (%s, %q) than the one given (%s, %q); nothing changed", opt.Dir, si.Fingerprint, si.Definition.Name, p.Fingerprint, p.Def.Name)
+	}
+	var stored Shard
+	if si.Shard != nil {
+		stored = *si.Shard
+	}
+	if stored.String() != opt.Shard.String() {
+		return fmt.Errorf("%s holds shard %s of the study, not shard %s", opt.Dir, stored, opt.Shard)
+	}
+	return nil
+}
+
+// preflight builds a player for every cell once.
+func preflight(p *Plan, f EnvFactory) (err error) {
+	env, err := f(0)
+	if err != nil {
+		return err
+	}
+	defer func() {
+		if cerr := env.Close(); cerr != nil && err == nil {
+			err = cerr
+		}
+	}()
+	for _, c := range p.Cells {
+		if _, err := env.Player(c); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+func worker(ctx context.Context, p *Plan, opt Options, w int, jobs <-chan unit, results chan<- finished) {
+	var env Env
+	var envErr error
+	lastCell := -1
+	var player Player
+	defer func() {
+		if env != nil {
+			env.Close()
+		}
+	}()
+	for u := range jobs {
+		if ctx.Err() != nil {
+			continue
+		}
+		rec := Record{Format: 1, Study: p.Fingerprint, Cell: u.cell, Episode: u.ep, Params: p.Cells[u.cell],
+			GameSeed: p.GameSeed(u.ep), PipeSeed: p.PipeSeed(u.cell, u.ep)}
+		if env == nil {
+			env, envErr = opt.Env(w)
+			lastCell = -1
+		}
+		var res vision.Result
+		err := envErr
+		if err == nil && lastCell != u.cell {
+			player, err = safePlayer(env, p.Cells[u.cell])
+			if err == nil {
+				lastCell = u.cell
+			}
+		}
+		if err == nil {
+			var strip *stripRecorder
+			if u.ep == 0 {
+				strip = newStripRecorder(p.Def.Strips)
+			}
+			res, err = safePlay(player, rec.GameSeed, rec.PipeSeed, strip.hook())
+			if err == nil && strip != nil {
+				// A strip that cannot be written costs the report a
+				// picture, not the study an episode.
+				_ = strip.write(filepath.Join(opt.Dir, StripsDir, fmt.Sprintf("cell-%04d.png", u.cell)))
+			}
+		}
+		if err != nil {
+			rec.Failure = oneLine(err.Error())
+			rec.End = "error"
+			// Start the next episode from fresh games and policies: a
+			// crashed policy process is not reused.
+			if env != nil {
+				env.Close()
+			}
+			env, envErr, lastCell = nil, nil, -1
+		} else {
+			rec.Return, rec.Steps, rec.End = res.Return, res.Steps, res.Reason.String()
+		}
+		secs := res.Duration.Seconds()
+		t := Timing{Format: 1, Cell: u.cell, Episode: u.ep, Steps: res.Steps, Seconds: secs}
+		if secs > 0 {
+			t.StepsPerSecond = float64(res.Steps) / secs
+		}
+		results <- finished{rec: rec, timing: t}
+	}
+}
+
+func safePlayer(env Env, c Cell) (pl Player, err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			err = fmt.Errorf("building cell %s: panic: %v", c.Label(), r)
+		}
+	}()
+	return env.Player(c)
+}
+
+func safePlay(pl Player, gs, ps uint64, hook vision.StepHook) (res vision.Result, err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			err = fmt.Errorf("panic: %v", r)
+		}
+	}()
+	return pl.Play(gs, ps, hook)
+}
+
+func oneLine(s string) string {
+	s = strings.ReplaceAll(s, "\r", " ")
+	s = strings.ReplaceAll(s, "\n", " ")
+	if len(s) > 500 {
+		s = s[:500] + "…"
+	}
+	return s
+}
+
+// stripRecorder keeps the raw and the seen frame at chosen steps.
+type stripRecorder struct {
+	steps []int
+	kept  []int
+	raw   []*image.RGBA
+	seen  []*image.RGBA
+}
+
+func newStripRecorder(steps []int) *stripRecorder {
+	return &stripRecorder{steps: steps}
+}
+
+func (s *stripRecorder) hook() vision.StepHook {
+	if s == nil || len(s.steps) == 0 {
+		return nil
+	}
+	return func(t int, raw *image.RGBA, obs *vision.Observation, _ *patch.FrameRecord, _ []float64) {
+		for _, st := range s.steps {
+			if st == t {
+				s.kept = append(s.kept, t)
+				s.raw = append(s.raw, cloneRGBA(raw))
+				if obs.Frame != nil {
+					s.seen = append(s.seen, cloneRGBA(obs.Frame))
+				} else {
+					s.seen = append(s.seen, nil)
+				}
+				return
+			}
+		}
+	}
+}
+
+func cloneRGBA(m *image.RGBA) *image.RGBA {
+	c := image.NewRGBA(image.Rect(0, 0, m.Bounds().Dx(), m.Bounds().Dy()))
+	draw.Draw(c, c.Bounds(), m, m.Bounds().Min, draw.Src)
+	return c
+}
+
+// write saves the strip as a PNG: the raw frames on the top row, what the
+// policy saw below, one column per kept step, on a dark background.
+func (s *stripRecorder) write(path string) error {
+	if len(s.raw) == 0 {
+		return nil
+	}
+	const gap = 2
+	cw, ch := 0, 0
+	for i := range s.raw {
+		cw = max(cw, s.raw[i].Bounds().Dx())
+		ch = max(ch, s.raw[i].Bounds().Dy())
+		if s.seen[i] != nil {
+			cw = max(cw, s.seen[i].Bounds().Dx())
+			ch = max(ch, s.seen[i].Bounds().Dy())
+		}
+	}
+	n := len(s.raw)
+	img := image.NewRGBA(image.Rect(0, 0, n*cw+(n+1)*gap, 2*ch+3*gap))
+	draw.Draw(img, img.Bounds(), image.NewUniform(stripBackground), image.Point{}, draw.Src)
+	for i := range s.raw {
+		x := gap + i*(cw+gap)
+		draw.Draw(img, image.Rect(x, gap, x+cw, gap+ch), s.raw[i], image.Point{}, draw.Src)
+		if s.seen[i] != nil {
+			draw.Draw(img, image.Rect(x, 2*gap+ch, x+cw, 2*gap+2*ch), s.seen[i], image.Point{}, draw.Src)
+		}
+	}
+	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+		return err
+	}
+	meta, err := jsonLine(StripMeta{Format: 1, Steps: s.kept, Width: cw, Height: ch, Gap: gap})
+	if err != nil {
+		return err
+	}
+	if err := atomicfile.Write(path, func(w io.Writer) error { return png.Encode(w, img) }); err != nil {
+		return err
+	}
+	return atomicfile.WriteBytes(strings.TrimSuffix(path, ".png")+".json", meta)
+}
+
+var stripBackground = color.RGBA{R: 24, G: 26, B: 32, A: 255}
+
+func jsonLine(v any) ([]byte, error) {
+	b, err := json.Marshal(v)
+	if err != nil {
+		return nil, err
+	}
+	return append(b, '\n'), nil
+}
+
+// Replay plays episode ep of cell c of the study in dir again, alone, and
+// returns the fresh record and the recorded one (nil if none is
+// recorded). Seeds come from the plan, so the fresh record equals the
+// recorded one for a reproducible policy.
+func Replay(dir string, c, ep int, f EnvFactory) (fresh Record, recorded *Record, err error) {
+	si, err := ReadStudy(dir)
+	if err != nil {
+		return Record{}, nil, err
+	}
+	p, err := si.Plan()
+	if err != nil {
+		return Record{}, nil, err
+	}
+	if c < 0 || c >= len(p.Cells) {
+		return Record{}, nil, fmt.Errorf("cell %d: the study has cells 0..%d", c, len(p.Cells)-1)
+	}
+	if ep < 0 || ep >= p.Def.Episodes {
+		return Record{}, nil, fmt.Errorf("episode %d: the study has episodes 0..%d", ep, p.Def.Episodes-1)
+	}
+	recs, _, err := ReadResults(dir)
+	if err != nil {
+		return Record{}, nil, err
+	}
+	for _, r := range Latest(recs) {
+		if r.Cell == c && r.Episode == ep {
+			r := r
+			recorded = &r
+		}
+	}
+	env, err := f(0)
+	if err != nil {
+		return Record{}, recorded, err
+	}
+	defer env.Close()
+	pl, err := env.Player(p.Cells[c])
+	if err != nil {
+		return Record{}, recorded, err
+	}
+	fresh = Record{Format: 1, Study: p.Fingerprint, Cell: c, Episode: ep, Params: p.Cells[c],
+		GameSeed: p.GameSeed(ep), PipeSeed: p.PipeSeed(c, ep)}
+	res, err := safePlay(pl, fresh.GameSeed, fresh.PipeSeed, nil)
+	if err != nil {
+		fresh.Failure, fresh.End = oneLine(err.Error()), "error"
+		return fresh, recorded, nil
+	}
+	fresh.Return, fresh.Steps, fresh.End = res.Return, res.Steps, res.Reason.String()
+	return fresh, recorded, nil
+}
