@@ -1,6 +1,7 @@
 package nets
 
 import (
+	"math/rand/v2"
 	"testing"
 
 	"tilebench/games"
@@ -51,3 +52,5 @@ func mustNew(t testing.TB, cfg Config, g *patch.Grid, s games.ActionSpace, seed 
 	}
 	return n
 }
+
+func testRand(seed uint64) *rand.Rand { return patch.NewRand(seed) }

@@ -1,0 +1,50 @@
+package nets
+
+import (
+	"testing"
+)
+
+// BenchmarkAttentionActDefault times one step of the default set-attention
+// policy: 96×96×3 frames at patch 8 (144 tokens of 192 values), key 16,
+// 16 queries, hidden 32, three continuous actions, batch 1, one goroutine.
+// testdata/ref/nets_speed.py runs it beside the same network in PyTorch.
+func BenchmarkAttentionActDefault(b *testing.B) {
+	g := testGrid(b, 96, 96, 8)
+	n := mustNew(b, Config{}, g, contSpace, 1)
+	obs := RandomObservation(g, contSpace, 2)
+	a := make([]float64, 3)
+	b.ReportAllocs()
+	for b.Loop() {
+		if err := n.Act(obs, a); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
+
+// BenchmarkAttentionActPlain is the same step on the plain reference
+// kernels.
+func BenchmarkAttentionActPlain(b *testing.B) {
+	saved := kern
+	kern = plainKernels
+	defer func() { kern = saved }()
+	BenchmarkAttentionActDefault(b)
+}
+
+// BenchmarkForwardBackward times one training step (forward and backward)
+// of each family at the default sizes.
+func BenchmarkForwardBackward(b *testing.B) {
+	g := testGrid(b, 96, 96, 8)
+	for _, fam := range Families {
+		b.Run(fam, func(b *testing.B) {
+			n := mustNew(b, Config{Family: fam}, g, contSpace, 1)
+			obs := RandomObservation(g, contSpace, 2)
+			out := make([]float32, 3)
+			d := []float32{0.1, -0.2, 0.3}
+			b.ReportAllocs()
+			for b.Loop() {
+				n.Forward(obs, out)
+				n.Backward(d)
+			}
+		})
+	}
+}
