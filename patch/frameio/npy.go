@@ -511,7 +511,8 @@ func (n *NPYWriter) WriteFrame(img *image.RGBA) error {
 	}
 	buf := n.buf[:0]
 	for y := 0; y < n.height; y++ {
-		row := img.Pix[y*img.Stride : y*img.Stride+4*n.width]
+		o := img.PixOffset(b.Min.X, b.Min.Y+y)
+		row := img.Pix[o : o+4*n.width]
 		if n.ch == 3 {
 			for x := 0; x < len(row); x += 4 {
 				buf = append(buf, row[x], row[x+1], row[x+2])

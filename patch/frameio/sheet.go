@@ -50,9 +50,8 @@ type sheetPair struct {
 
 // Colours of the sheet (our own choice).
 var (
-	sheetBack  = color.RGBA{30, 33, 38, 0xff}
-	sheetText  = color.RGBA{214, 218, 224, 0xff}
-	sheetLines = color.RGBA{255, 214, 90, 0xff}
+	sheetBack = color.RGBA{30, 33, 38, 0xff}
+	sheetText = color.RGBA{214, 218, 224, 0xff}
 )
 
 // NewSheet starts a contact sheet.
@@ -148,16 +147,25 @@ func (s *Sheet) Image() (*image.RGBA, error) {
 }
 
 // gridLines draws the boundaries of g's cells (every stride) inside r,
-// which shows a frame enlarged k times.
+// which shows a frame enlarged k times, as a half-strength lightening so
+// that the pixels stay readable under the line.
 func gridLines(img *image.RGBA, r image.Rectangle, g *patch.Grid, k int) {
+	light := func(x, y int) {
+		o := img.PixOffset(x, y)
+		for c := 0; c < 3; c++ {
+			img.Pix[o+c] = uint8((int(img.Pix[o+c]) + 255) / 2)
+		}
+	}
 	for x := g.StrideX; x < r.Dx()/k; x += g.StrideX {
 		for y := r.Min.Y; y < r.Max.Y; y++ {
-			img.SetRGBA(r.Min.X+x*k, y, sheetLines)
+			light(r.Min.X+x*k, y)
 		}
 	}
 	for y := g.StrideY; y < r.Dy()/k; y += g.StrideY {
 		for x := r.Min.X; x < r.Max.X; x++ {
-			img.SetRGBA(x, r.Min.Y+y*k, sheetLines)
+			if (x-r.Min.X)%(g.StrideX*k) != 0 {
+				light(x, r.Min.Y+y*k)
+			}
 		}
 	}
 }
