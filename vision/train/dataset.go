@@ -1,0 +1,73 @@
+package train
+
+import "tilebench/patch"
+
+// dataset holds the aggregated behaviour-cloning samples: each clean
+// token set quantised back to the bytes it came from (lossless, since the
+// tokenizer maps byte b to float32(b)/255), the previous action and the
+// expert's label.
+type dataset struct {
+	size   int // token values per sample (N·D)
+	adim   int // previous-action values per sample
+	ldim   int // label values per sample
+	n      int
+	pix    []uint8
+	prev   []float32
+	label  []float32
+	pos    []patch.Pos
+	tokenN int
+}
+
+var unit = func() (u [256]float32) {
+	for i := range u {
+		u[i] = float32(i) / 255
+	}
+	return
+}()
+
+func newDataset(grid *patch.Grid, adim, ldim int) *dataset {
+	ds := &dataset{size: grid.N() * grid.D(), adim: adim, ldim: ldim, tokenN: grid.N()}
+	ds.pos = make([]patch.Pos, grid.N())
+	for i := range ds.pos {
+		ds.pos[i] = grid.Cell(i)
+	}
+	return ds
+}
+
+func (ds *dataset) add(tokens []float32, prev, label []float64) {
+	for _, v := range tokens {
+		ds.pix = append(ds.pix, uint8(v*255+0.5))
+	}
+	for _, v := range prev {
+		ds.prev = append(ds.prev, float32(v))
+	}
+	for _, v := range label {
+		ds.label = append(ds.label, float32(v))
+	}
+	ds.n++
+}
+
+// truncate drops samples beyond n (used when an interrupted round is
+// discarded).
+func (ds *dataset) truncate(n int) {
+	ds.n = n
+	ds.pix = ds.pix[:n*ds.size]
+	ds.prev = ds.prev[:n*ds.adim]
+	ds.label = ds.label[:n*ds.ldim]
+}
+
+// load writes sample i into ts (a full grid-order token set) and prev.
+func (ds *dataset) load(i int, ts *patch.TokenSet, prev []float64) {
+	src := ds.pix[i*ds.size : (i+1)*ds.size]
+	dst := ts.Data[:ds.size]
+	for j, b := range src {
+		dst[j] = unit[b]
+	}
+	ts.N = ds.tokenN
+	copy(ts.Pos, ds.pos)
+	for j := range prev {
+		prev[j] = float64(ds.prev[i*ds.adim+j])
+	}
+}
+
+func (ds *dataset) labels(i int) []float32 { return ds.label[i*ds.ldim : (i+1)*ds.ldim] }
