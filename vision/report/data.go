@@ -219,7 +219,7 @@ type Cell struct {
 	// Axis names the stress axis of the cell ("clean" for the baseline),
 	// Kind its variant (e.g. "random", "block"), Severity its value.
 	Axis, Kind string
-	Severity float64
+	Severity   float64
 	// Params are all cell parameters in a stable order; cells.csv joins
 	// them as "key=value; key=value".
 	Params []KV

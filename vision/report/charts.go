@@ -1,0 +1,359 @@
+package report
+
+import (
+	"bytes"
+	"fmt"
+	"html/template"
+	"image/color"
+	"math"
+	"regexp"
+	"slices"
+	"strings"
+
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+	"gonum.org/v1/plot/vg/vgsvg"
+
+	"tilebench/vision/stats"
+)
+
+// The chart palette: our own, chosen for contrast on the page's paper
+// background and to stay apart for common colour-vision deficiencies
+// (roughly following the blue/orange split of common practice).
+var seriesColors = []color.RGBA{
+	{0x0b, 0x6e, 0x8a, 0xff}, // deep lagoon
+	{0xd0, 0x6a, 0x1f, 0xff}, // ember
+	{0x6b, 0x4c, 0xc2, 0xff}, // iris
+	{0x3f, 0x8f, 0x3a, 0xff}, // moss
+	{0xb8, 0x3a, 0x6b, 0xff}, // plum
+	{0x8a, 0x6d, 0x1c, 0xff}, // ochre
+	{0x2f, 0x4b, 0xa0, 0xff}, // ink blue
+	{0x5e, 0x6b, 0x73, 0xff}, // slate
+}
+
+var (
+	inkColor   = color.RGBA{0x1f, 0x26, 0x30, 0xff}
+	mutedColor = color.RGBA{0x6b, 0x72, 0x7c, 0xff}
+	gridColor  = color.RGBA{0xe4, 0xe0, 0xd6, 0xff}
+	pickColor  = color.RGBA{0xd0, 0x6a, 0x1f, 0xff}
+	alertColor = color.RGBA{0xb4, 0x2a, 0x3a, 0xff}
+)
+
+func seriesColor(i int) color.RGBA { return seriesColors[i%len(seriesColors)] }
+
+func withAlpha(c color.RGBA, a uint8) color.NRGBA {
+	return color.NRGBA{c.R, c.G, c.B, a}
+}
+
+const (
+	chartW = 7.2 * vg.Inch
+	chartH = 3.9 * vg.Inch
+)
+
+// newPlot returns a plot in the report's style: sans type, quiet axes,
+// a light grid, transparent background (the card shows through).
+func newPlot(xlabel, ylabel string) *plot.Plot {
+	p := plot.New()
+	p.BackgroundColor = color.Transparent
+	for _, ax := range []*plot.Axis{&p.X, &p.Y} {
+		ax.Label.TextStyle.Font.Variant = "Sans"
+		ax.Label.TextStyle.Font.Size = vg.Points(11)
+		ax.Label.TextStyle.Color = mutedColor
+		ax.Tick.Label.Font.Variant = "Sans"
+		ax.Tick.Label.Font.Size = vg.Points(9.5)
+		ax.Tick.Label.Color = mutedColor
+		ax.Color = gridColor
+		ax.Tick.Color = gridColor
+		ax.Padding = vg.Points(4)
+	}
+	p.X.Label.Text = xlabel
+	p.Y.Label.Text = ylabel
+	p.Legend.TextStyle.Font.Variant = "Sans"
+	p.Legend.TextStyle.Font.Size = vg.Points(10)
+	p.Legend.TextStyle.Color = inkColor
+	p.Legend.Top = true
+	p.Legend.Padding = vg.Points(3)
+	g := plotter.NewGrid()
+	g.Vertical.Color = gridColor
+	g.Horizontal.Color = gridColor
+	g.Vertical.Width = vg.Points(0.6)
+	g.Horizontal.Width = vg.Points(0.6)
+	p.Add(g)
+	return p
+}
+
+var (
+	svgPrefix = regexp.MustCompile(`(?s)^.*?<svg `)
+	svgXMLNS  = regexp.MustCompile(`\s+xmlns(:xlink)?="[^"]*"`)
+	svgSize   = regexp.MustCompile(`width="[0-9.]+pt" height="[0-9.]+pt"`)
+)
+
+// renderSVG draws p and returns inline SVG markup for an HTML page: the
+// XML prolog and namespace declarations (implied in HTML) are dropped and
+// the fixed size gives way to the viewBox, so the chart scales with the
+// page. gonum/plot's SVG canvas escapes all text it draws.
+func renderSVG(p *plot.Plot, label string) (out template.HTML, err error) {
+	defer func() {
+		// gonum/plot panics on some degenerate inputs; the data were
+		// checked, but a report must fail with an error, not a crash.
+		if r := recover(); r != nil {
+			err = fmt.Errorf("draw chart %q: %v", label, r)
+		}
+	}()
+	c := vgsvg.New(chartW, chartH)
+	p.Draw(draw.New(c))
+	var buf bytes.Buffer
+	if _, err := c.WriteTo(&buf); err != nil {
+		return "", fmt.Errorf("draw chart %q: %w", label, err)
+	}
+	s := buf.String()
+	s = svgPrefix.ReplaceAllString(s, "<svg ")
+	s = svgXMLNS.ReplaceAllString(s, "")
+	s = svgSize.ReplaceAllString(s, `class="chart" role="img" aria-label="`+template.HTMLEscapeString(label)+`"`)
+	return template.HTML(s), nil
+}
+
+func finite(v ...float64) bool {
+	for _, x := range v {
+		if math.IsNaN(x) || math.IsInf(x, 0) {
+			return false
+		}
+	}
+	return true
+}
+
+// curvesSVG draws a severity chart: per series a band from Lo to Hi, the
+// line through Y and the measured points.
+func curvesSVG(c Curves) (template.HTML, error) {
+	p := newPlot(c.XLabel, c.YLabel)
+	xmin, xmax := math.Inf(1), math.Inf(-1)
+	any := false
+	for i, s := range c.Series {
+		pts := slices.Clone(s.Points)
+		slices.SortStableFunc(pts, func(a, b CurvePoint) int {
+			switch {
+			case a.X < b.X:
+				return -1
+			case a.X > b.X:
+				return 1
+			}
+			return 0
+		})
+		var line plotter.XYs
+		var upper, lower plotter.XYs
+		for _, q := range pts {
+			if !finite(q.X, q.Y) {
+				continue
+			}
+			line = append(line, plotter.XY{X: q.X, Y: q.Y})
+			xmin, xmax = math.Min(xmin, q.X), math.Max(xmax, q.X)
+			if finite(q.Lo, q.Hi) {
+				upper = append(upper, plotter.XY{X: q.X, Y: q.Hi})
+				lower = append(lower, plotter.XY{X: q.X, Y: q.Lo})
+			}
+		}
+		if len(line) == 0 {
+			continue
+		}
+		any = true
+		col := seriesColor(i)
+		if len(upper) >= 2 {
+			ring := slices.Clone(upper)
+			for j := len(lower) - 1; j >= 0; j-- {
+				ring = append(ring, lower[j])
+			}
+			band, err := plotter.NewPolygon(ring)
+			if err != nil {
+				return "", fmt.Errorf("chart %q: %w", c.Title, err)
+			}
+			band.Color = withAlpha(col, 0x38)
+			band.LineStyle.Width = 0
+			p.Add(band)
+		}
+		l, sc, err := plotter.NewLinePoints(line)
+		if err != nil {
+			return "", fmt.Errorf("chart %q: %w", c.Title, err)
+		}
+		l.Color, l.Width = col, vg.Points(1.8)
+		sc.Color, sc.Shape, sc.Radius = col, draw.CircleGlyph{}, vg.Points(2.6)
+		p.Add(l, sc)
+		p.Legend.Add(s.Name, l, sc)
+	}
+	if !any {
+		return "", fmt.Errorf("chart %q: no finite points", c.Title)
+	}
+	if c.Threshold != 0 && finite(c.Threshold) {
+		if xmin == xmax {
+			xmin, xmax = xmin-0.5, xmax+0.5
+		}
+		th, err := plotter.NewLine(plotter.XYs{{X: xmin, Y: c.Threshold}, {X: xmax, Y: c.Threshold}})
+		if err != nil {
+			return "", err
+		}
+		th.Color, th.Width = alertColor, vg.Points(1.1)
+		th.Dashes = []vg.Length{vg.Points(5), vg.Points(4)}
+		p.Add(th)
+		p.Legend.Add(fmt.Sprintf("threshold %s", num(c.Threshold)), th)
+	}
+	if len(c.Series) < 2 && c.Threshold == 0 {
+		p.Legend = plot.NewLegend()
+	}
+	return renderSVG(p, c.Title)
+}
+
+// errPoints adapts Pareto points to plotter's XYer and YErrorer.
+type errPoints []ParetoPoint
+
+func (e errPoints) Len() int                    { return len(e) }
+func (e errPoints) XY(i int) (float64, float64) { return e[i].Cost, e[i].Score.Value }
+func (e errPoints) YError(i int) (float64, float64) {
+	s := e[i].Score
+	lo, hi := s.Value-s.Lo, s.Hi-s.Value
+	if !finite(lo, hi) || lo < 0 || hi < 0 {
+		return 0, 0
+	}
+	return lo, hi
+}
+
+// paretoSVG draws the candidates with their intervals, the front as a
+// dashed line, the pick ringed and the budget as a vertical line.
+func paretoSVG(pa *Pareto, front []int, title string) (template.HTML, error) {
+	p := newPlot(pa.XLabel, pa.YLabel)
+	if pa.LogX {
+		p.X.Scale = plot.LogScale{}
+		p.X.Tick.Marker = plot.LogTicks{Prec: -1}
+	}
+	pts := errPoints(pa.Points)
+	var fr plotter.XYs
+	for _, i := range front {
+		fr = append(fr, plotter.XY{X: pts[i].Cost, Y: pts[i].Score.Value})
+	}
+	if len(fr) >= 2 {
+		l, err := plotter.NewLine(fr)
+		if err != nil {
+			return "", err
+		}
+		l.Color, l.Width = mutedColor, vg.Points(1.1)
+		l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
+		p.Add(l)
+		p.Legend.Add("Pareto front", l)
+	}
+	eb, err := plotter.NewYErrorBars(pts)
+	if err != nil {
+		return "", fmt.Errorf("chart %q: %w", title, err)
+	}
+	eb.Color, eb.Width, eb.CapWidth = seriesColor(0), vg.Points(1.2), vg.Points(6)
+	p.Add(eb)
+	sc, err := plotter.NewScatter(pts)
+	if err != nil {
+		return "", fmt.Errorf("chart %q: %w", title, err)
+	}
+	sc.Color, sc.Shape, sc.Radius = seriesColor(0), draw.CircleGlyph{}, vg.Points(3.5)
+	p.Add(sc)
+	p.Legend.Add("candidate (95% interval)", sc)
+	for i, q := range pts {
+		if !q.Pick {
+			continue
+		}
+		pk, err := plotter.NewScatter(plotter.XYs{{X: q.Cost, Y: q.Score.Value}})
+		if err != nil {
+			return "", err
+		}
+		pk.Color, pk.Shape, pk.Radius = pickColor, draw.RingGlyph{}, vg.Points(8)
+		pk.Shape = draw.RingGlyph{}
+		p.Add(pk)
+		p.Legend.Add("recommended", pk)
+		_ = i
+	}
+	labels := make([]string, len(pts))
+	for i, q := range pts {
+		labels[i] = q.Label
+	}
+	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: xysOf(pts), Labels: labels})
+	if err != nil {
+		return "", err
+	}
+	for i := range lb.TextStyle {
+		lb.TextStyle[i].Font.Variant = "Sans"
+		lb.TextStyle[i].Font.Size = vg.Points(10)
+		lb.TextStyle[i].Color = inkColor
+	}
+	lb.Offset = vg.Point{X: vg.Points(7), Y: vg.Points(3)}
+	p.Add(lb)
+	if pa.Budget > 0 {
+		ymin, ymax := math.Inf(1), math.Inf(-1)
+		for _, q := range pts {
+			lo, hi := q.Score.Value, q.Score.Value
+			if finite(q.Score.Lo, q.Score.Hi) {
+				lo, hi = math.Min(lo, q.Score.Lo), math.Max(hi, q.Score.Hi)
+			}
+			ymin, ymax = math.Min(ymin, lo), math.Max(ymax, hi)
+		}
+		bl, err := plotter.NewLine(plotter.XYs{{X: pa.Budget, Y: ymin}, {X: pa.Budget, Y: ymax}})
+		if err != nil {
+			return "", err
+		}
+		bl.Color, bl.Width = alertColor, vg.Points(1.1)
+		bl.Dashes = []vg.Length{vg.Points(5), vg.Points(4)}
+		p.Add(bl)
+		p.Legend.Add("budget "+num(pa.Budget), bl)
+	}
+	// Room on the right for the labels.
+	p.X.Max += (p.X.Max - p.X.Min) * 0.06
+	if pa.LogX {
+		p.X.Max = p.X.Max * 1.15
+	}
+	return renderSVG(p, title)
+}
+
+func xysOf(pts errPoints) plotter.XYs {
+	out := make(plotter.XYs, len(pts))
+	for i := range pts {
+		out[i].X, out[i].Y = pts.XY(i)
+	}
+	return out
+}
+
+// paretoFront returns the front of the chart's points.
+func paretoFront(pa *Pareto) []int {
+	pts := make([]stats.Point, len(pa.Points))
+	for i, q := range pa.Points {
+		pts[i] = stats.Point{Cost: q.Cost, Score: q.Score.Value}
+	}
+	return stats.ParetoFront(pts)
+}
+
+// num formats a value for people: three significant digits without an
+// exponent for ordinary magnitudes, "—" for NaN, "∞" for infinities.
+func num(v float64) string {
+	switch {
+	case math.IsNaN(v):
+		return "—"
+	case math.IsInf(v, 1):
+		return "∞"
+	case math.IsInf(v, -1):
+		return "−∞"
+	}
+	a := math.Abs(v)
+	var s string
+	switch {
+	case a == 0:
+		return "0"
+	case a >= 1e7 || a < 1e-3:
+		s = fmt.Sprintf("%.2e", v)
+	case a >= 100:
+		s = fmt.Sprintf("%.0f", v)
+	case a >= 10:
+		s = fmt.Sprintf("%.1f", v)
+	case a >= 1:
+		s = fmt.Sprintf("%.2f", v)
+	default:
+		s = fmt.Sprintf("%.3f", v)
+	}
+	if strings.HasPrefix(s, "-") {
+		s = "−" + s[1:]
+	}
+	return s
+}
