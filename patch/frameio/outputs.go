@@ -83,6 +83,7 @@ type Outputs struct {
 	sheet   *Sheet
 	written []string
 	closed  bool
+	made    bool // Dir did not exist before
 }
 
 func (o *Outputs) has(f string) bool {
@@ -109,6 +110,9 @@ func NewOutputs(cfg OutputConfig, width, height int) (*Outputs, error) {
 		cfg.Frames = -1
 	}
 	o := &Outputs{cfg: cfg, w: width, h: height}
+	if _, err := os.Stat(cfg.Dir); errors.Is(err, os.ErrNotExist) {
+		o.made = true
+	}
 	if err := os.MkdirAll(cfg.Dir, 0o755); err != nil {
 		return nil, fmt.Errorf("output folder %s: %w", cfg.Dir, unwrapPath(err))
 	}
@@ -272,6 +276,9 @@ func (o *Outputs) Abort() {
 	if o.stage != "" {
 		os.RemoveAll(o.stage)
 		o.stage = ""
+	}
+	if o.made && !o.closed {
+		os.Remove(o.cfg.Dir) // only if still empty
 	}
 	o.gif, o.sheet = nil, nil
 	o.closed = true
