@@ -1,0 +1,211 @@
+package remote
+
+import (
+	"encoding/binary"
+	"fmt"
+	"image"
+	"math"
+	"strconv"
+
+	"tilebench/games"
+	"tilebench/patch"
+)
+
+// Version is the protocol version this package speaks.
+const Version = 1
+
+// Limits of the protocol (docs/policy-protocol.md, "Limits").
+const (
+	// MaxLine is the longest header line, in bytes with its newline, in
+	// either direction.
+	MaxLine = 64 << 10
+	// MaxPayload is the largest payload tilebench sends; the hello
+	// message states the largest of the session, which is usually far
+	// smaller.
+	MaxPayload = 256 << 20
+	// MaxActionDim is the largest action vector.
+	MaxActionDim = 1024
+)
+
+// Observation kinds and dtypes as the protocol spells them.
+const (
+	ObsFrame  = "frame"
+	ObsTokens = "tokens"
+	Uint8     = "uint8"
+	Float32   = "float32"
+)
+
+// Hello is the first message tilebench sends: what the session will look
+// like. The policy answers with ready or refuse.
+type Hello struct {
+	Msg      string `json:"msg"` // "hello"
+	Protocol int    `json:"protocol"`
+	Game     string `json:"game"`
+	// Obs is "frame" (the reassembled frame, H×W×C, channels last) or
+	// "tokens" (the token set and each token's grid cell).
+	Obs string `json:"obs"`
+	// Dtype of observation values: "uint8" (0..255) or "float32" (0..1).
+	Dtype string `json:"dtype"`
+	// Frame is [height, width, channels] of the frame payload.
+	Frame [3]int `json:"frame"`
+	// Tokens describes the token payload (also sent with obs "frame", for
+	// information).
+	Tokens TokenLayout `json:"tokens"`
+	Action ActionSpec  `json:"action"`
+	Limits Limits      `json:"limits"`
+}
+
+// TokenLayout describes the grid tokens are cut on.
+type TokenLayout struct {
+	// Max is the largest number of tokens in one step; Dim the values
+	// per token (PatchH·PatchW·Channels, channels last).
+	Max int `json:"max"`
+	Dim int `json:"dim"`
+	// Rows and Cols are the grid's cells; Patch [h, w] and Stride [y, x]
+	// in pixels; Channels 1 or 3; Edge and Fill as the CLI spells them.
+	Rows     int     `json:"rows"`
+	Cols     int     `json:"cols"`
+	Patch    [2]int  `json:"patch"`
+	Stride   [2]int  `json:"stride"`
+	Channels int     `json:"channels"`
+	Width    int     `json:"width"`
+	Height   int     `json:"height"`
+	Edge     string  `json:"edge"`
+	Fill     float32 `json:"fill"`
+}
+
+// ActionSpec is the game's action space.
+type ActionSpec struct {
+	// Kind is "continuous" or "discrete".
+	Kind string `json:"kind"`
+	// Names of the dimensions (continuous) or of the choices (discrete).
+	Names []string `json:"names"`
+	// Low and High bound each continuous dimension (absent for discrete).
+	Low  []float64 `json:"low,omitempty"`
+	High []float64 `json:"high,omitempty"`
+	// Dim is the length of the action array a reply carries.
+	Dim int `json:"dim"`
+}
+
+// Limits are the session's limits.
+type Limits struct {
+	MaxLine            int   `json:"max_line"`
+	MaxPayload         int   `json:"max_payload"`
+	StepTimeoutMS      int64 `json:"step_timeout_ms"`
+	HandshakeTimeoutMS int64 `json:"handshake_timeout_ms"`
+}
+
+// layoutOf describes grid g for capacity tokens.
+func layoutOf(g *patch.Grid, capacity int) TokenLayout {
+	return TokenLayout{
+		Max: capacity, Dim: g.D(), Rows: g.Rows, Cols: g.Cols,
+		Patch: [2]int{g.PatchH, g.PatchW}, Stride: [2]int{g.StrideY, g.StrideX},
+		Channels: g.Channels, Width: g.Width, Height: g.Height, Edge: g.Edge.String(), Fill: g.Fill,
+	}
+}
+
+// Grid rebuilds the patch grid a token layout describes.
+func (l TokenLayout) Grid() (*patch.Grid, error) {
+	edge, err := patch.ParseEdge(l.Edge)
+	if err != nil {
+		return nil, err
+	}
+	g, err := patch.NewGrid(patch.GridConfig{
+		Width: l.Width, Height: l.Height, Channels: l.Channels,
+		PatchW: l.Patch[1], PatchH: l.Patch[0], StrideX: l.Stride[1], StrideY: l.Stride[0],
+		Edge: edge, Fill: l.Fill,
+	})
+	if err != nil {
+		return nil, err
+	}
+	if g.Rows != l.Rows || g.Cols != l.Cols || g.D() != l.Dim {
+		return nil, fmt.Errorf("token layout %dx%d cells of %d values does not match its geometry", l.Rows, l.Cols, l.Dim)
+	}
+	return g, nil
+}
+
+func specOf(a games.ActionSpace) ActionSpec {
+	return ActionSpec{Kind: a.Kind.String(), Names: a.Names, Low: a.Low, High: a.High, Dim: a.Dim()}
+}
+
+// Space rebuilds the action space.
+func (a ActionSpec) Space() (games.ActionSpace, error) {
+	s := games.ActionSpace{Names: a.Names, Low: a.Low, High: a.High}
+	switch a.Kind {
+	case "continuous":
+		s.Kind = games.Continuous
+		if len(a.Low) != len(a.Names) || len(a.High) != len(a.Names) {
+			return s, fmt.Errorf("action space: %d names, %d lows, %d highs", len(a.Names), len(a.Low), len(a.High))
+		}
+	case "discrete":
+		s.Kind = games.Discrete
+	default:
+		return s, fmt.Errorf("action kind %q: want continuous or discrete", a.Kind)
+	}
+	if len(a.Names) == 0 || s.Dim() != a.Dim {
+		return s, fmt.Errorf("action space of dim %d with %d names", a.Dim, len(a.Names))
+	}
+	return s, nil
+}
+
+// payloadSize is the payload length of one step.
+func payloadSize(obs string, dtype string, frame [3]int, n, dim int) int {
+	size := 1
+	if dtype == Float32 {
+		size = 4
+	}
+	if obs == ObsFrame {
+		return frame[0] * frame[1] * frame[2] * size
+	}
+	return n*dim*size + 4*n
+}
+
+// appendFloat appends v in the shortest form that reads back exactly.
+func appendFloat(b []byte, v float64) []byte {
+	return strconv.AppendFloat(b, v, 'g', -1, 64)
+}
+
+// appendFrame appends the H×W×C bytes (or float32s) of img.
+func appendFrame(b []byte, img *image.RGBA, channels int, dtype string) []byte {
+	w, h := img.Rect.Dx(), img.Rect.Dy()
+	for y := 0; y < h; y++ {
+		row := img.Pix[y*img.Stride : y*img.Stride+4*w]
+		switch {
+		case dtype == Uint8 && channels == 3:
+			for x := 0; x+3 < len(row); x += 4 {
+				b = append(b, row[x], row[x+1], row[x+2])
+			}
+		case dtype == Uint8:
+			for x := 0; x < len(row); x += 4 {
+				b = append(b, row[x])
+			}
+		default:
+			for x := 0; x < len(row); x += 4 {
+				for c := 0; c < channels; c++ {
+					b = binary.LittleEndian.AppendUint32(b, math.Float32bits(float32(row[x+c])/255))
+				}
+			}
+		}
+	}
+	return b
+}
+
+// appendTokens appends the N×D values then N (row, col) int16 pairs.
+func appendTokens(b []byte, ts *patch.TokenSet, dtype string) []byte {
+	vals := ts.Data[:ts.N*ts.D]
+	if dtype == Uint8 {
+		for _, v := range vals {
+			q := math.Round(float64(v) * 255)
+			b = append(b, uint8(min(255, max(0, q))))
+		}
+	} else {
+		for _, v := range vals {
+			b = binary.LittleEndian.AppendUint32(b, math.Float32bits(v))
+		}
+	}
+	for _, p := range ts.Pos[:ts.N] {
+		b = binary.LittleEndian.AppendUint16(b, uint16(p.Row))
+		b = binary.LittleEndian.AppendUint16(b, uint16(p.Col))
+	}
+	return b
+}

@@ -1,0 +1,243 @@
+package remote
+
+import (
+	"bufio"
+	"encoding/binary"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"image"
+	"io"
+	"math"
+	"strconv"
+
+	"tilebench/games"
+	"tilebench/patch"
+	"tilebench/vision"
+)
+
+// ServeOptions configure Serve. The zero value is useful.
+type ServeOptions struct {
+	// Name is sent in the ready message. Default: the policy's Info label.
+	Name string
+	// Accept, if set, sees the hello message; a non-nil error refuses the
+	// session with the error's text as the reason.
+	Accept func(*Hello) error
+}
+
+// Serve is the policy side of the protocol, for policies written in Go:
+// it answers one session read from r and written to w with pol, until
+// bye or the end of r. It is what the tests' helper processes and
+// benchmark child run, and a reference for implementers in other
+// languages. Serve builds each observation in buffers allocated once.
+func Serve(r io.Reader, w io.Writer, pol vision.Policy, opt ServeOptions) error {
+	br := bufio.NewReaderSize(r, MaxLine)
+	bw := bufio.NewWriterSize(w, 4096)
+	line, err := br.ReadSlice('\n')
+	if err != nil {
+		return fmt.Errorf("serve: read hello: %w", err)
+	}
+	var h Hello
+	if err := json.Unmarshal(line, &h); err != nil || h.Msg != "hello" {
+		return fmt.Errorf("serve: first message is not a hello")
+	}
+	refuse := func(reason string) error {
+		b, _ := json.Marshal(map[string]string{"msg": "refuse", "reason": reason})
+		bw.Write(append(b, '\n'))
+		bw.Flush()
+		return fmt.Errorf("serve: refused: %s", reason)
+	}
+	if h.Protocol != Version {
+		return refuse(fmt.Sprintf("protocol %d not spoken (this side speaks %d)", h.Protocol, Version))
+	}
+	grid, err := h.Tokens.Grid()
+	if err != nil {
+		return refuse(err.Error())
+	}
+	space, err := h.Action.Space()
+	if err != nil {
+		return refuse(err.Error())
+	}
+	if h.Obs != ObsFrame && h.Obs != ObsTokens || h.Dtype != Uint8 && h.Dtype != Float32 {
+		return refuse(fmt.Sprintf("observation %s/%s not understood", h.Obs, h.Dtype))
+	}
+	if h.Limits.MaxPayload < 0 || h.Limits.MaxPayload > MaxPayload {
+		return refuse("payload limit out of range")
+	}
+	if opt.Accept != nil {
+		if err := opt.Accept(&h); err != nil {
+			return refuse(err.Error())
+		}
+	}
+	info := pol.Info()
+	name := opt.Name
+	if name == "" {
+		name = info.Label
+	}
+	ready, _ := json.Marshal(map[string]any{"msg": "ready", "protocol": Version, "name": name, "invariant": info.Invariant})
+	bw.Write(append(ready, '\n'))
+	if err := bw.Flush(); err != nil {
+		return fmt.Errorf("serve: %w", err)
+	}
+
+	s := &server{h: &h, grid: grid, space: space, pol: pol}
+	s.tokens = patch.NewTokenSet(h.Tokens.Max, grid.D())
+	s.frame = image.NewRGBA(image.Rect(0, 0, h.Frame[1], h.Frame[0]))
+	if h.Obs == ObsTokens && info.WantsFrame {
+		s.tok = patch.NewTokenizer(grid)
+	}
+	s.payload = make([]byte, h.Limits.MaxPayload)
+	s.prev = make([]float64, space.Dim())
+	s.action = make([]float64, space.Dim())
+	s.obs = vision.Observation{Tokens: s.tokens, Grid: grid, PrevAction: s.prev}
+	for {
+		line, err := br.ReadSlice('\n')
+		if err != nil {
+			if errors.Is(err, io.EOF) && len(line) == 0 {
+				return nil
+			}
+			return fmt.Errorf("serve: read: %w", err)
+		}
+		if err := s.hdr.parse(line[:len(line)-1]); err != nil {
+			return fmt.Errorf("serve: %w", err)
+		}
+		switch {
+		case s.hdr.isMsg("step"):
+			if err := s.step(br, bw); err != nil {
+				return err
+			}
+		case s.hdr.isMsg("start"):
+			seed, _, err := s.hdr.unsigned("seed")
+			if err != nil {
+				return fmt.Errorf("serve: start: %w", err)
+			}
+			pol.Reset(seed)
+		case s.hdr.isMsg("end"):
+		case s.hdr.isMsg("bye"):
+			return nil
+		default:
+			return fmt.Errorf("serve: unknown message %q", s.hdr.msg())
+		}
+	}
+}
+
+type server struct {
+	h       *Hello
+	grid    *patch.Grid
+	space   games.ActionSpace
+	pol     vision.Policy
+	tok     *patch.Tokenizer
+	hdr     header
+	tokens  *patch.TokenSet
+	frame   *image.RGBA
+	payload []byte
+	prev    []float64
+	action  []float64
+	obs     vision.Observation
+	out     []byte
+}
+
+func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
+	t, _, err := s.hdr.integer("t", 0, math.MaxInt32)
+	if err != nil {
+		return fmt.Errorf("serve: step: %w", err)
+	}
+	n, ok, err := s.hdr.integer("len", 0, int64(len(s.payload)))
+	if err != nil || !ok {
+		return fmt.Errorf("serve: step %d: bad payload length", t)
+	}
+	buf := s.payload[:n]
+	if _, err := io.ReadFull(br, buf); err != nil {
+		return fmt.Errorf("serve: step %d: payload: %w", t, err)
+	}
+	if prev, ok, _ := s.hdr.floats("prev"); ok && len(prev) == len(s.prev) {
+		copy(s.prev, prev)
+	}
+	size := 1
+	if s.h.Dtype == Float32 {
+		size = 4
+	}
+	s.obs.Step = int(t)
+	s.obs.Frame = nil
+	if s.h.Obs == ObsTokens {
+		count, _, err := s.hdr.integer("n", 0, int64(s.tokens.Cap()))
+		if err != nil || int(n) != int(count)*(s.grid.D()*size+4) {
+			return fmt.Errorf("serve: step %d: token count and payload disagree", t)
+		}
+		ts := s.tokens
+		ts.N = int(count)
+		vals := ts.Data[:ts.N*ts.D]
+		for i := range vals {
+			if size == 1 {
+				vals[i] = float32(buf[i]) / 255
+			} else {
+				vals[i] = math.Float32frombits(binary.LittleEndian.Uint32(buf[4*i:]))
+			}
+		}
+		pos := buf[len(vals)*size:]
+		for i := 0; i < ts.N; i++ {
+			ts.Pos[i] = patch.Pos{Row: int16(binary.LittleEndian.Uint16(pos[4*i:])), Col: int16(binary.LittleEndian.Uint16(pos[4*i+2:]))}
+		}
+		if s.tok != nil {
+			if err := s.tok.Assemble(ts, s.frame); err != nil {
+				return fmt.Errorf("serve: step %d: %w", t, err)
+			}
+			s.obs.Frame = s.frame
+		}
+	} else {
+		hh, ww, cc := s.h.Frame[0], s.h.Frame[1], s.h.Frame[2]
+		if int(n) != hh*ww*cc*size {
+			return fmt.Errorf("serve: step %d: frame payload of %d bytes", t, n)
+		}
+		pix := s.frame.Pix
+		for i := 0; i < hh*ww; i++ {
+			for c := 0; c < 3; c++ {
+				cs := min(c, cc-1)
+				var v uint8
+				if size == 1 {
+					v = buf[i*cc+cs]
+				} else {
+					f := math.Float32frombits(binary.LittleEndian.Uint32(buf[4*(i*cc+cs):]))
+					v = uint8(math.Round(float64(min(1, max(0, f))) * 255))
+				}
+				pix[4*i+c] = v
+			}
+			pix[4*i+3] = 255
+		}
+		s.obs.Frame = s.frame
+	}
+	clear(s.action)
+	if err := s.pol.Act(&s.obs, s.action); err != nil {
+		b, _ := json.Marshal(map[string]string{"msg": "error", "reason": err.Error()})
+		bw.Write(append(b, '\n'))
+		bw.Flush()
+		return fmt.Errorf("serve: step %d: %w", t, err)
+	}
+	b := append(s.out[:0], `{"msg":"action","t":`...)
+	b = strconv.AppendInt(b, t, 10)
+	b = append(b, `,"action":[`...)
+	for i, v := range s.action {
+		if i > 0 {
+			b = append(b, ',')
+		}
+		b = appendJSONFloat(b, v)
+	}
+	b = append(b, "]}\n"...)
+	s.out = b
+	bw.Write(b)
+	return bw.Flush()
+}
+
+// appendJSONFloat writes v exactly, and NaN/±Inf as the literals Python
+// writes (which the reader reports as non-finite actions).
+func appendJSONFloat(b []byte, v float64) []byte {
+	switch {
+	case math.IsNaN(v):
+		return append(b, "NaN"...)
+	case math.IsInf(v, 1):
+		return append(b, "Infinity"...)
+	case math.IsInf(v, -1):
+		return append(b, "-Infinity"...)
+	}
+	return appendFloat(b, v)
+}
