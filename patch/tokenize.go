@@ -132,6 +132,13 @@ func (t *Tokenizer) tokenize(img image.Image, dst *TokenSet) error {
 		return err
 	}
 	dst.N, dst.D = n, d
+	for i := 0; i < n; i++ {
+		dst.Pos[i] = g.Cell(i)
+	}
+	if src.kind == kindRGBA && g.Channels == 3 {
+		tokenizeRGBA3(g, &src, dst.Data)
+		return nil
+	}
 	C, pw, ph := g.Channels, g.PatchW, g.PatchH
 	rowLen := pw * C
 	for r := 0; r < g.Rows; r++ {
@@ -139,7 +146,6 @@ func (t *Tokenizer) tokenize(img image.Image, dst *TokenSet) error {
 		for c := 0; c < g.Cols; c++ {
 			x0 := c * g.StrideX
 			i := r*g.Cols + c
-			dst.Pos[i] = Pos{Row: int16(r), Col: int16(c)}
 			tok := dst.Data[i*d : (i+1)*d]
 			nx := min(pw, g.Width-x0) // ≥ 1: every cell starts inside the frame
 			for py := 0; py < ph; py++ {
@@ -213,14 +219,11 @@ func (s *pixSource) row(dst []float32, x, y, n, C int) {
 }
 
 func rgbaRow3(dst []float32, p []byte) {
-	n := len(p) / 4
-	dst = dst[:3*n]
-	for i := 0; i < n; i++ {
-		s := p[4*i : 4*i+3 : 4*i+3]
-		d := dst[3*i : 3*i+3 : 3*i+3]
-		d[0] = unit[s[0]]
-		d[1] = unit[s[1]]
-		d[2] = unit[s[2]]
+	for len(p) >= 4 && len(dst) >= 3 {
+		dst[0] = unit[p[0]]
+		dst[1] = unit[p[1]]
+		dst[2] = unit[p[2]]
+		p, dst = p[4:], dst[3:]
 	}
 }
 
