@@ -61,7 +61,7 @@ func TestEstimateDefaultByHand(t *testing.T) {
 		t.Fatal(err)
 	}
 	macs := int64(144*192*16 + 144*192*16 + 16*16*16 + 16*16*144 + 16*144*16 + 256*32 + 32*3)
-	params := (192*16 + 16) * 2 /* key, value */ + 16*16 /* query.proj */ + 256*32 + 32 + 32*3 + 3
+	params := (192*16+16)*2 /* key, value */ + 16*16 /* query.proj */ + 256*32 + 32 + 32*3 + 3
 	if c.FLOPs != 2*macs || c.Params != params || c.Tokens != 144 || c.TokenDim != 192 {
 		t.Errorf("default cost %+v: want %d FLOPs, %d params, 144 tokens of 192", c, 2*macs, params)
 	}

@@ -1,3 +1,8 @@
+//go:build !amd64 || purego
+
 package nets
 
 func fastKernels() kernels { return kernels{nn: nnBlocked, nt: ntBlocked, tn: tnBlocked} }
+
+// expSubRow sets row[i] = e^(row[i]−m) and returns the sum.
+func expSubRow(row []float32, m float32) float32 { return expSubRowGo(row, m) }

@@ -115,6 +115,7 @@ type attention struct {
 	ldk, ldv int
 	n        int
 	p, o     []float32 // m×n probabilities, m×dv output
+	kt       []float32 // d×n transposed keys
 	dp       []float32
 	dq, dk   []float32
 	dvb      []float32
@@ -130,13 +131,18 @@ func (a *attention) forward(q, k []float32, ldk int, v []float32, ldv, n int) []
 	if n == 0 {
 		return a.o
 	}
-	kern.nt(a.m, a.d, n, q, a.d, k, ldk, a.p, n)
-	for i := 0; i < a.m; i++ {
-		row := a.p[i*n : (i+1)*n]
-		for j := range row {
-			row[j] *= a.scale
+	// Q·Kᵀ/√d as Q times the transposed, scaled keys, so that the product
+	// runs in the nn kernel (the fastest one) with n columns.
+	a.kt = grow(a.kt, a.d*n)
+	for j := 0; j < n; j++ {
+		krow := k[j*ldk : j*ldk+a.d]
+		for p, v := range krow {
+			a.kt[p*n+j] = v * a.scale
 		}
-		softmaxRow(row)
+	}
+	kern.nn(a.m, a.d, n, q, a.d, a.kt, n, a.p, n)
+	for i := 0; i < a.m; i++ {
+		softmaxRow(a.p[i*n : (i+1)*n])
 	}
 	kern.nn(a.m, n, a.dv, a.p, n, v, ldv, a.o, a.dv)
 	return a.o

@@ -85,12 +85,7 @@ func softmaxRow(row []float32) {
 			mx = v
 		}
 	}
-	var sum float32
-	for i, v := range row {
-		e := expf(v - mx)
-		row[i] = e
-		sum += e
-	}
+	sum := expSubRow(row, mx)
 	inv := 1 / sum // sum ≥ 1: the largest entry contributes e^0
 	for i := range row {
 		row[i] *= inv
@@ -98,3 +93,14 @@ func softmaxRow(row []float32) {
 }
 
 func sqrtf(x float32) float32 { return float32(math.Sqrt(float64(x))) }
+
+// expSubRowGo sets row[i] = e^(row[i]−m) with expf and returns the sum.
+func expSubRowGo(row []float32, m float32) float32 {
+	var sum float32
+	for i, v := range row {
+		e := expf(v - m)
+		row[i] = e
+		sum += e
+	}
+	return sum
+}

@@ -1,0 +1,134 @@
+//go:build amd64 && !purego
+
+package nets
+
+import "golang.org/x/sys/cpu"
+
+// Assembly micro-kernels (kernels_amd64.s, written by asm_gen.py):
+// gemmRxW computes C (R×W) += A (R×k) · B (k×W) with AVX and FMA, leading
+// dimensions in elements.
+
+//go:noescape
+func gemm1x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm2x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm3x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm4x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm5x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm6x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm1x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm2x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm3x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm4x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm5x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+//go:noescape
+func gemm6x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+
+// expSub4 replaces each of the n values at x (n a multiple of 4) by
+// e^(x−m), as expf does, and returns their sum.
+//
+//go:noescape
+func expSub4(x *float32, n int, m float32) float32
+
+// haveAVX reports whether the assembly kernels can run here.
+var haveAVX = cpu.X86.HasAVX && cpu.X86.HasFMA && cpu.X86.HasSSE41
+
+func fastKernels() kernels {
+	if !haveAVX {
+		return kernels{nn: nnBlocked, nt: ntBlocked, tn: tnBlocked}
+	}
+	return kernels{nn: nnAVX, nt: ntBlocked, tn: tnBlocked}
+}
+
+// nnAVX is C += A·B through the micro-kernels: column blocks of 16, then
+// 8, each in row blocks of up to 6; the last n mod 8 columns in Go.
+func nnAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
+	if m <= 0 || n <= 0 || k <= 0 {
+		return
+	}
+	// One bounds check for everything the kernels will touch.
+	_ = a[(m-1)*lda+k-1]
+	_ = b[(k-1)*ldb+n-1]
+	_ = c[(m-1)*ldc+n-1]
+	j := 0
+	for ; j+16 <= n; j += 16 {
+		for i := 0; i < m; i += 6 {
+			ap, bp, cp := &a[i*lda], &b[j], &c[i*ldc+j]
+			switch min(6, m-i) {
+			case 6:
+				gemm6x16(k, ap, lda, bp, ldb, cp, ldc)
+			case 5:
+				gemm5x16(k, ap, lda, bp, ldb, cp, ldc)
+			case 4:
+				gemm4x16(k, ap, lda, bp, ldb, cp, ldc)
+			case 3:
+				gemm3x16(k, ap, lda, bp, ldb, cp, ldc)
+			case 2:
+				gemm2x16(k, ap, lda, bp, ldb, cp, ldc)
+			case 1:
+				gemm1x16(k, ap, lda, bp, ldb, cp, ldc)
+			}
+		}
+	}
+	for ; j+8 <= n; j += 8 {
+		for i := 0; i < m; i += 6 {
+			ap, bp, cp := &a[i*lda], &b[j], &c[i*ldc+j]
+			switch min(6, m-i) {
+			case 6:
+				gemm6x8(k, ap, lda, bp, ldb, cp, ldc)
+			case 5:
+				gemm5x8(k, ap, lda, bp, ldb, cp, ldc)
+			case 4:
+				gemm4x8(k, ap, lda, bp, ldb, cp, ldc)
+			case 3:
+				gemm3x8(k, ap, lda, bp, ldb, cp, ldc)
+			case 2:
+				gemm2x8(k, ap, lda, bp, ldb, cp, ldc)
+			case 1:
+				gemm1x8(k, ap, lda, bp, ldb, cp, ldc)
+			}
+		}
+	}
+	if j < n {
+		for i := 0; i < m; i++ {
+			crow := c[i*ldc+j : i*ldc+n]
+			for p := 0; p < k; p++ {
+				av := a[i*lda+p]
+				brow := b[p*ldb+j : p*ldb+n]
+				for q, bv := range brow {
+					crow[q] += av * bv
+				}
+			}
+		}
+	}
+}
+
+// expSubRow sets row[i] = e^(row[i]−m) and returns the sum.
+func expSubRow(row []float32, m float32) float32 {
+	if !haveAVX || len(row) < 4 {
+		return expSubRowGo(row, m)
+	}
+	n4 := len(row) &^ 3
+	s := expSub4(&row[0], n4, m)
+	return s + expSubRowGo(row[n4:], m)
+}
