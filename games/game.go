@@ -12,6 +12,7 @@ import (
 	"image"
 	"math"
 	"sort"
+	"strings"
 )
 
 // ActionKind says whether a game takes continuous or discrete actions.
@@ -238,3 +239,80 @@ func HeldOut(i int) uint64 { return HeldOutSeedStart + uint64(i) }
 
 // Train returns the i-th training seed.
 func Train(i int) uint64 { return TrainSeedStart + uint64(i) }
+
+// Variation is one named edit of a game's configuration C.
+type Variation[C any] struct {
+	// Name is the variation's name in variation strings.
+	Name string
+	// Doc says in a few words what it changes.
+	Doc string
+	// Group names what it sets ("palette", "road width"); two variations
+	// of one group exclude each other.
+	Group string
+	// Edit applies the variation.
+	Edit func(*C)
+}
+
+// VariationSet is the list of a game's variations.
+type VariationSet[C any] []Variation[C]
+
+// Names lists the variation names in their declared order.
+func (vs VariationSet[C]) Names() []string {
+	out := make([]string, len(vs))
+	for i, v := range vs {
+		out[i] = v.Name
+	}
+	return out
+}
+
+// Doc describes the named variation ("" for an unknown one).
+func (vs VariationSet[C]) Doc(name string) string {
+	for _, v := range vs {
+		if v.Name == name {
+			return v.Doc
+		}
+	}
+	return ""
+}
+
+// Apply reads a variation string — names joined with "+"
+// ("glacier+clutter"; "" and "default" name none) — and applies each
+// named edit to c in sorted order. It returns the canonical spelling:
+// names sorted, duplicates dropped. Unknown names and two names of one
+// group are errors naming the game.
+func (vs VariationSet[C]) Apply(game, s string, c *C) (string, error) {
+	if s == "" || s == "default" {
+		return "", nil
+	}
+	taken := map[string]string{}
+	var names []string
+	for _, part := range strings.Split(s, "+") {
+		part = strings.TrimSpace(part)
+		v := vs.find(part)
+		if v == nil {
+			return "", fmt.Errorf("%s: unknown variation %q (have %s, joined with +)", game, part, strings.Join(vs.Names(), ", "))
+		}
+		if prev, ok := taken[v.Group]; ok {
+			if prev == part {
+				continue
+			}
+			return "", fmt.Errorf("%s: variations %q and %q both set the %s", game, prev, part, v.Group)
+		}
+		taken[v.Group] = part
+		names = append(names, part)
+	}
+	sort.Strings(names)
+	for _, n := range names {
+		vs.find(n).Edit(c)
+	}
+	return strings.Join(names, "+"), nil
+}
+
+func (vs VariationSet[C]) find(name string) *Variation[C] {
+	for i := range vs {
+		if vs[i].Name == name {
+			return &vs[i]
+		}
+	}
+	return nil
+}

@@ -5,8 +5,6 @@ import (
 	"fmt"
 	"image"
 	"math"
-	"sort"
-	"strings"
 	"unsafe"
 
 	"tilebench/games"
@@ -57,43 +55,21 @@ type Config struct {
 	Width, Height int
 }
 
-// variation is a named edit of the config.
-type variation struct {
-	name string
-	doc  string
-	edit func(*Config)
+func vary(name, doc, group string, edit func(*Config)) games.Variation[Config] {
+	return games.Variation[Config]{Name: name, Doc: doc, Group: group, Edit: edit}
 }
 
-var variationList = []variation{
-	{"glacier", "held-out palette: slate ground, lavender road, coral edges", func(c *Config) { c.Palette = Palettes[1] }},
-	{"saffron", "held-out palette: ochre ground, deep teal road, cream edges", func(c *Config) { c.Palette = Palettes[2] }},
-	{"nocturne", "held-out palette: indigo ground, rust road, gold edges", func(c *Config) { c.Palette = Palettes[3] }},
-	{"narrow", "road 6.5 m wide instead of 9 m", func(c *Config) { c.Track.Width = 6.5 }},
-	{"broad", "road 12 m wide instead of 9 m", func(c *Config) { c.Track.Width = 12 }},
-	{"clutter", "60 distractor shapes scattered on the terrain", func(c *Config) { c.Shapes = 60 }},
-	{"grain", "textured terrain (value noise)", func(c *Config) { c.Noise = 1 }},
-	{"small", "64×64 frames", func(c *Config) { c.Width, c.Height = 64, 64 }},
-	{"large", "128×128 frames", func(c *Config) { c.Width, c.Height = 128, 128 }},
-}
-
-// VariationNames lists the driving game's variations. A variation string
-// joins any of them with "+" ("glacier+clutter").
-func VariationNames() []string {
-	out := make([]string, len(variationList))
-	for i, v := range variationList {
-		out[i] = v.name
-	}
-	return out
-}
-
-// VariationDoc describes a variation name ("" for an unknown one).
-func VariationDoc(name string) string {
-	for _, v := range variationList {
-		if v.name == name {
-			return v.doc
-		}
-	}
-	return ""
+// Variations are the named edits of DefaultConfig.
+var Variations = games.VariationSet[Config]{
+	vary("glacier", "held-out palette: slate ground, lavender road, coral edges", "palette", func(c *Config) { c.Palette = Palettes[1] }),
+	vary("saffron", "held-out palette: ochre ground, deep teal road, cream edges", "palette", func(c *Config) { c.Palette = Palettes[2] }),
+	vary("nocturne", "held-out palette: indigo ground, rust road, gold edges", "palette", func(c *Config) { c.Palette = Palettes[3] }),
+	vary("narrow", "road 6.5 m wide instead of 9 m", "road", func(c *Config) { c.Track.Width = 6.5 }),
+	vary("broad", "road 12 m wide instead of 9 m", "road", func(c *Config) { c.Track.Width = 12 }),
+	vary("clutter", "60 distractor shapes scattered on the terrain", "shapes", func(c *Config) { c.Shapes = 60 }),
+	vary("grain", "textured terrain (value noise)", "texture", func(c *Config) { c.Noise = 1 }),
+	vary("small", "64×64 frames", "frame size", func(c *Config) { c.Width, c.Height = 64, 64 }),
+	vary("large", "128×128 frames", "frame size", func(c *Config) { c.Width, c.Height = 128, 128 }),
 }
 
 // DefaultConfig is the training setup.
@@ -101,48 +77,13 @@ func DefaultConfig() Config {
 	return Config{Palette: Palettes[0], EdgeWidth: 0.8, Width: DefaultSize, Height: DefaultSize}
 }
 
-// ParseVariation applies a variation string to the default config and
-// returns it with the canonical spelling (names sorted, duplicates
-// dropped).
+// ParseVariation applies a variation string (see Variations; names
+// joined with "+") to the default config and returns it with the
+// canonical spelling.
 func ParseVariation(s string) (Config, string, error) {
 	c := DefaultConfig()
-	if s == "" || s == "default" {
-		return c, "", nil
-	}
-	seen := map[string]bool{}
-	var names []string
-	for _, part := range strings.Split(s, "+") {
-		part = strings.TrimSpace(part)
-		found := false
-		for _, v := range variationList {
-			if v.name == part {
-				found = true
-				if !seen[part] {
-					seen[part] = true
-					names = append(names, part)
-				}
-			}
-		}
-		if !found {
-			return c, "", fmt.Errorf("drive: unknown variation %q (have %s, joined with +)", part, strings.Join(VariationNames(), ", "))
-		}
-	}
-	sort.Strings(names)
-	palettes := 0
-	for _, n := range names {
-		for _, v := range variationList {
-			if v.name == n {
-				v.edit(&c)
-			}
-		}
-		if n == "glacier" || n == "saffron" || n == "nocturne" {
-			palettes++
-		}
-	}
-	if palettes > 1 || (seen["narrow"] && seen["broad"]) || (seen["small"] && seen["large"]) {
-		return c, "", fmt.Errorf("drive: variation %q combines exclusive choices", s)
-	}
-	return c, strings.Join(names, "+"), nil
+	canon, err := Variations.Apply(Name, s, &c)
+	return c, canon, err
 }
 
 // Game is the driving game. Build it with New or games.New("drive", ...).
@@ -180,7 +121,7 @@ type viewGeom struct {
 }
 
 func init() {
-	games.Register(Name, VariationNames(), func(o games.Options) (games.Game, error) { return New(o) })
+	games.Register(Name, Variations.Names(), func(o games.Options) (games.Game, error) { return New(o) })
 }
 
 // New builds the driving game for o (variation, frame size).

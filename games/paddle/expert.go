@@ -1,0 +1,71 @@
+package paddle
+
+import "math"
+
+// Expert moves the paddle under the point where the ball will cross the
+// paddle line, predicted from the true ball state by unfolding its path
+// through the side walls and the top wall (method of images). It ignores
+// the obstacle and predicts again at every step, so a deflection is
+// picked up the step after it happens.
+type Expert struct {
+	g *Game
+}
+
+// Fold maps a coordinate of a straight path into [lo, hi] as reflections
+// off walls at lo and hi would (method of images): the path's image is
+// periodic with period 2(hi−lo) and mirrored in every other cell.
+func Fold(x, lo, hi float64) float64 {
+	w := hi - lo
+	m := math.Mod(x-lo, 2*w)
+	if m < 0 {
+		m += 2 * w
+	}
+	if m > w {
+		m = 2*w - m
+	}
+	return lo + m
+}
+
+// Intercept predicts the x at which the centre of a ball with state b and
+// radius r next reaches the paddle line, bouncing off the side walls and
+// the top wall. It returns the step count until then as well.
+func Intercept(b Ball, r float64) (x, steps float64) {
+	line := PaddleY - r
+	if b.VY == 0 {
+		return b.X, math.Inf(1)
+	}
+	var dist float64
+	if b.VY > 0 {
+		dist = line - b.Y
+	} else {
+		dist = (b.Y - (Top + r)) + (line - (Top + r))
+	}
+	t := dist / math.Abs(b.VY)
+	return Fold(b.X+b.VX*t, Left+r, Right-r), t
+}
+
+// Act writes the action: for the discrete game left (0), stay (1) or
+// right (2) towards the predicted intercept; for the analog game the
+// velocity that reaches it, clamped to [−1,1].
+func (e *Expert) Act(dst []float64) {
+	g := e.g
+	b := g.ball
+	target := Size / 2.0
+	if b.Y+g.cfg.BallRadius <= PaddleY {
+		target, _ = Intercept(b, g.cfg.BallRadius)
+	}
+	dx := target - g.paddleX
+	sp := g.cfg.PaddleSpeed
+	if g.cfg.Analog {
+		dst[0] = math.Max(-1, math.Min(1, dx/sp))
+		return
+	}
+	switch {
+	case dx > sp/2:
+		dst[0] = 2
+	case dx < -sp/2:
+		dst[0] = 0
+	default:
+		dst[0] = 1
+	}
+}
