@@ -8,6 +8,7 @@ import (
 	"math"
 	"regexp"
 	"slices"
+	"strconv"
 	"strings"
 
 	"gonum.org/v1/plot"
@@ -41,6 +42,14 @@ var (
 	alertColor = color.RGBA{0xb4, 0x2a, 0x3a, 0xff}
 )
 
+// legendItem is one entry of a chart's legend, drawn in HTML under the
+// chart (so it never covers data).
+type legendItem struct {
+	Name  string
+	Kind  string // "line", "dashed", "dot" or "pick"
+	Color string // CSS colour
+}
+
 func seriesColor(i int) color.RGBA { return seriesColors[i%len(seriesColors)] }
 
 func withAlpha(c color.RGBA, a uint8) color.NRGBA {
@@ -59,22 +68,19 @@ func newPlot(xlabel, ylabel string) *plot.Plot {
 	p.BackgroundColor = color.Transparent
 	for _, ax := range []*plot.Axis{&p.X, &p.Y} {
 		ax.Label.TextStyle.Font.Variant = "Sans"
-		ax.Label.TextStyle.Font.Size = vg.Points(11)
+		ax.Label.TextStyle.Font.Size = vg.Points(10)
 		ax.Label.TextStyle.Color = mutedColor
 		ax.Tick.Label.Font.Variant = "Sans"
-		ax.Tick.Label.Font.Size = vg.Points(9.5)
+		ax.Tick.Label.Font.Size = vg.Points(9)
 		ax.Tick.Label.Color = mutedColor
 		ax.Color = gridColor
 		ax.Tick.Color = gridColor
 		ax.Padding = vg.Points(4)
 	}
+	p.X.Tick.Marker = plainTicks{}
+	p.Y.Tick.Marker = plainTicks{}
 	p.X.Label.Text = xlabel
 	p.Y.Label.Text = ylabel
-	p.Legend.TextStyle.Font.Variant = "Sans"
-	p.Legend.TextStyle.Font.Size = vg.Points(10)
-	p.Legend.TextStyle.Color = inkColor
-	p.Legend.Top = true
-	p.Legend.Padding = vg.Points(3)
 	g := plotter.NewGrid()
 	g.Vertical.Color = gridColor
 	g.Horizontal.Color = gridColor
@@ -126,7 +132,8 @@ func finite(v ...float64) bool {
 
 // curvesSVG draws a severity chart: per series a band from Lo to Hi, the
 // line through Y and the measured points.
-func curvesSVG(c Curves) (template.HTML, error) {
+func curvesSVG(c Curves) (template.HTML, []legendItem, error) {
+	var leg []legendItem
 	p := newPlot(c.XLabel, c.YLabel)
 	xmin, xmax := math.Inf(1), math.Inf(-1)
 	any := false
@@ -166,7 +173,7 @@ func curvesSVG(c Curves) (template.HTML, error) {
 			}
 			band, err := plotter.NewPolygon(ring)
 			if err != nil {
-				return "", fmt.Errorf("chart %q: %w", c.Title, err)
+				return "", nil, fmt.Errorf("chart %q: %w", c.Title, err)
 			}
 			band.Color = withAlpha(col, 0x38)
 			band.LineStyle.Width = 0
@@ -174,15 +181,15 @@ func curvesSVG(c Curves) (template.HTML, error) {
 		}
 		l, sc, err := plotter.NewLinePoints(line)
 		if err != nil {
-			return "", fmt.Errorf("chart %q: %w", c.Title, err)
+			return "", nil, fmt.Errorf("chart %q: %w", c.Title, err)
 		}
 		l.Color, l.Width = col, vg.Points(1.8)
 		sc.Color, sc.Shape, sc.Radius = col, draw.CircleGlyph{}, vg.Points(2.6)
 		p.Add(l, sc)
-		p.Legend.Add(s.Name, l, sc)
+		leg = append(leg, legendItem{Name: s.Name, Kind: "line", Color: cssColor(col)})
 	}
 	if !any {
-		return "", fmt.Errorf("chart %q: no finite points", c.Title)
+		return "", nil, fmt.Errorf("chart %q: no finite points", c.Title)
 	}
 	if c.Threshold != 0 && finite(c.Threshold) {
 		if xmin == xmax {
@@ -190,17 +197,16 @@ func curvesSVG(c Curves) (template.HTML, error) {
 		}
 		th, err := plotter.NewLine(plotter.XYs{{X: xmin, Y: c.Threshold}, {X: xmax, Y: c.Threshold}})
 		if err != nil {
-			return "", err
+			return "", nil, err
 		}
 		th.Color, th.Width = alertColor, vg.Points(1.1)
 		th.Dashes = []vg.Length{vg.Points(5), vg.Points(4)}
 		p.Add(th)
-		p.Legend.Add(fmt.Sprintf("threshold %s", num(c.Threshold)), th)
+		leg = append(leg, legendItem{Name: "threshold " + num(c.Threshold), Kind: "dashed", Color: cssColor(alertColor)})
 	}
-	if len(c.Series) < 2 && c.Threshold == 0 {
-		p.Legend = plot.NewLegend()
-	}
-	return renderSVG(p, c.Title)
+	p.X.Max += (p.X.Max - p.X.Min) * 0.03
+	svg, err := renderSVG(p, c.Title)
+	return svg, leg, err
 }
 
 // errPoints adapts Pareto points to plotter's XYer and YErrorer.
@@ -219,11 +225,12 @@ func (e errPoints) YError(i int) (float64, float64) {
 
 // paretoSVG draws the candidates with their intervals, the front as a
 // dashed line, the pick ringed and the budget as a vertical line.
-func paretoSVG(pa *Pareto, front []int, title string) (template.HTML, error) {
+func paretoSVG(pa *Pareto, front []int, title string) (template.HTML, []legendItem, error) {
+	var leg []legendItem
 	p := newPlot(pa.XLabel, pa.YLabel)
 	if pa.LogX {
 		p.X.Scale = plot.LogScale{}
-		p.X.Tick.Marker = plot.LogTicks{Prec: -1}
+		p.X.Tick.Marker = logTicks{}
 	}
 	pts := errPoints(pa.Points)
 	var fr plotter.XYs
@@ -233,39 +240,43 @@ func paretoSVG(pa *Pareto, front []int, title string) (template.HTML, error) {
 	if len(fr) >= 2 {
 		l, err := plotter.NewLine(fr)
 		if err != nil {
-			return "", err
+			return "", nil, err
 		}
 		l.Color, l.Width = mutedColor, vg.Points(1.1)
 		l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
 		p.Add(l)
-		p.Legend.Add("Pareto front", l)
+		leg = append(leg, legendItem{Name: "Pareto front", Kind: "dashed", Color: cssColor(mutedColor)})
 	}
 	eb, err := plotter.NewYErrorBars(pts)
 	if err != nil {
-		return "", fmt.Errorf("chart %q: %w", title, err)
+		return "", nil, fmt.Errorf("chart %q: %w", title, err)
 	}
 	eb.Color, eb.Width, eb.CapWidth = seriesColor(0), vg.Points(1.2), vg.Points(6)
 	p.Add(eb)
 	sc, err := plotter.NewScatter(pts)
 	if err != nil {
-		return "", fmt.Errorf("chart %q: %w", title, err)
+		return "", nil, fmt.Errorf("chart %q: %w", title, err)
 	}
 	sc.Color, sc.Shape, sc.Radius = seriesColor(0), draw.CircleGlyph{}, vg.Points(3.5)
 	p.Add(sc)
-	p.Legend.Add("candidate (95% interval)", sc)
-	for i, q := range pts {
+	leg = append(leg, legendItem{Name: "candidate, 95% interval", Kind: "dot", Color: cssColor(seriesColor(0))})
+	for _, q := range pts {
 		if !q.Pick {
 			continue
 		}
-		pk, err := plotter.NewScatter(plotter.XYs{{X: q.Cost, Y: q.Score.Value}})
+		at := plotter.XYs{{X: q.Cost, Y: q.Score.Value}}
+		halo, err := plotter.NewScatter(at)
 		if err != nil {
-			return "", err
+			return "", nil, err
 		}
-		pk.Color, pk.Shape, pk.Radius = pickColor, draw.RingGlyph{}, vg.Points(8)
-		pk.Shape = draw.RingGlyph{}
-		p.Add(pk)
-		p.Legend.Add("recommended", pk)
-		_ = i
+		halo.Color, halo.Shape, halo.Radius = withAlpha(pickColor, 0x50), draw.CircleGlyph{}, vg.Points(10)
+		pk, err := plotter.NewScatter(at)
+		if err != nil {
+			return "", nil, err
+		}
+		pk.Color, pk.Shape, pk.Radius = pickColor, draw.CircleGlyph{}, vg.Points(4.5)
+		p.Add(halo, pk)
+		leg = append(leg, legendItem{Name: "recommended", Kind: "pick", Color: cssColor(pickColor)})
 	}
 	labels := make([]string, len(pts))
 	for i, q := range pts {
@@ -273,7 +284,7 @@ func paretoSVG(pa *Pareto, front []int, title string) (template.HTML, error) {
 	}
 	lb, err := plotter.NewLabels(plotter.XYLabels{XYs: xysOf(pts), Labels: labels})
 	if err != nil {
-		return "", err
+		return "", nil, err
 	}
 	for i := range lb.TextStyle {
 		lb.TextStyle[i].Font.Variant = "Sans"
@@ -293,19 +304,20 @@ func paretoSVG(pa *Pareto, front []int, title string) (template.HTML, error) {
 		}
 		bl, err := plotter.NewLine(plotter.XYs{{X: pa.Budget, Y: ymin}, {X: pa.Budget, Y: ymax}})
 		if err != nil {
-			return "", err
+			return "", nil, err
 		}
 		bl.Color, bl.Width = alertColor, vg.Points(1.1)
 		bl.Dashes = []vg.Length{vg.Points(5), vg.Points(4)}
 		p.Add(bl)
-		p.Legend.Add("budget "+num(pa.Budget), bl)
+		leg = append(leg, legendItem{Name: "budget " + num(pa.Budget), Kind: "dashed", Color: cssColor(alertColor)})
 	}
 	// Room on the right for the labels.
 	p.X.Max += (p.X.Max - p.X.Min) * 0.06
 	if pa.LogX {
 		p.X.Max = p.X.Max * 1.15
 	}
-	return renderSVG(p, title)
+	svg, err := renderSVG(p, title)
+	return svg, leg, err
 }
 
 func xysOf(pts errPoints) plotter.XYs {
@@ -345,15 +357,58 @@ func num(v float64) string {
 		s = fmt.Sprintf("%.2e", v)
 	case a >= 100:
 		s = fmt.Sprintf("%.0f", v)
-	case a >= 10:
-		s = fmt.Sprintf("%.1f", v)
-	case a >= 1:
-		s = fmt.Sprintf("%.2f", v)
 	default:
-		s = fmt.Sprintf("%.3f", v)
+		s = strconv.FormatFloat(v, 'g', 3, 64)
 	}
 	if strings.HasPrefix(s, "-") {
 		s = "−" + s[1:]
 	}
 	return s
+}
+
+// plainTicks are gonum's default ticks with labels written by num, so
+// that 425 reads "425", not "425.00".
+type plainTicks struct{}
+
+// Ticks implements plot.Ticker.
+func (plainTicks) Ticks(min, max float64) []plot.Tick {
+	ts := plot.DefaultTicks{}.Ticks(min, max)
+	for i := range ts {
+		if ts[i].Label != "" {
+			ts[i].Label = num(ts[i].Value)
+		}
+	}
+	return ts
+}
+
+// logTicks label a log axis at 1, 2 and 5 times the powers of ten in
+// range (all powers of ten only when the range spans many decades).
+type logTicks struct{}
+
+// Ticks implements plot.Ticker.
+func (logTicks) Ticks(min, max float64) []plot.Tick {
+	if !(min > 0) || !(max > min) {
+		return nil
+	}
+	lo, hi := math.Floor(math.Log10(min)), math.Ceil(math.Log10(max))
+	steps := []float64{1, 2, 5}
+	if hi-lo > 4 {
+		steps = []float64{1}
+	}
+	var ts []plot.Tick
+	for e := lo; e <= hi; e++ {
+		for _, m := range steps {
+			v := m * math.Pow(10, e)
+			if v >= min*(1-1e-9) && v <= max*(1+1e-9) {
+				ts = append(ts, plot.Tick{Value: v, Label: num(v)})
+			}
+		}
+		for m := 2.0; m < 10; m++ {
+			v := m * math.Pow(10, e)
+			if v >= min && v <= max && !slices.Contains(steps, m) {
+				ts = append(ts, plot.Tick{Value: v})
+			}
+		}
+	}
+	return ts
 }

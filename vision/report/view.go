@@ -50,6 +50,20 @@ type costView struct {
 type chartView struct {
 	Title, Caption string
 	SVG            template.HTML
+	Legend         []legendView
+}
+
+type legendView struct {
+	Name, Kind string
+	Style      template.CSS
+}
+
+func legendViews(items []legendItem) []legendView {
+	out := make([]legendView, len(items))
+	for i, it := range items {
+		out[i] = legendView{Name: it.Name, Kind: it.Kind, Style: template.CSS("--c:" + it.Color)}
+	}
+	return out
 }
 
 type heatView struct {
@@ -83,13 +97,13 @@ type frameView struct {
 }
 
 type cellView struct {
-	ID, Axis, Kind, Severity, Patch     string
-	Episodes, Failures                  int
-	IQM, IQMText, MeanText, Median, Std string
-	RetText, Ret, RetClass              string
-	Bar, Dot                            template.CSS
-	Note, Params                        string
-	HasBar                              bool
+	ID, Axis, Kind, Severity, Patch           string
+	Episodes, Failures                        int
+	IQM, IQMText, Mean, MeanText, Median, Std string
+	RetText, Ret, RetClass                    string
+	Bar, Dot                                  template.CSS
+	Note, Params                              string
+	HasBar                                    bool
 }
 
 // heatColors maps low scores to ember and high ones to lagoon through a
@@ -211,7 +225,7 @@ func (v *view) buildCharts(d *Data) error {
 			}
 		}
 		front := paretoFront(pa)
-		svg, err := paretoSVG(pa, front, title)
+		svg, leg, err := paretoSVG(pa, front, title)
 		if err != nil {
 			return fmt.Errorf("report: %w", err)
 		}
@@ -219,15 +233,15 @@ func (v *view) buildCharts(d *Data) error {
 		for i, k := range front {
 			names[i] = pa.Points[k].Label
 		}
-		v.Pareto = &chartView{Title: title, SVG: svg,
+		v.Pareto = &chartView{Title: title, SVG: svg, Legend: legendViews(leg),
 			Caption: "On the Pareto front (no other candidate is both cheaper and better): " + strings.Join(names, ", ") + "."}
 	}
 	for i, c := range d.Curves {
-		svg, err := curvesSVG(c)
+		svg, leg, err := curvesSVG(c)
 		if err != nil {
 			return fmt.Errorf("report: curves %d: %w", i+1, err)
 		}
-		v.Curves = append(v.Curves, chartView{Title: c.Title, SVG: svg})
+		v.Curves = append(v.Curves, chartView{Title: c.Title, SVG: svg, Legend: legendViews(leg)})
 	}
 	return nil
 }
@@ -320,7 +334,7 @@ func (v *view) buildCells(d *Data) {
 		s := c.Summary
 		cv := cellView{ID: c.ID, Axis: c.Axis, Kind: c.Kind, Patch: intText(c.Patch),
 			Episodes: c.Episodes, Failures: c.Failures, Note: c.Note, Params: joinParams(c.Params),
-			IQM: "—", IQMText: "—", MeanText: "—", Median: "—", Std: "—",
+			IQM: "—", IQMText: "—", Mean: "—", MeanText: "—", Median: "—", Std: "—",
 			RetText: "—", Ret: "—"}
 		if c.Axis != "" && c.Axis != "clean" {
 			cv.Severity = num(c.Severity)
@@ -328,6 +342,7 @@ func (v *view) buildCells(d *Data) {
 		if s.N > 0 {
 			cv.IQM = num(s.IQM.Value)
 			cv.IQMText = estText(s.IQM.Value, s.IQM.Lo, s.IQM.Hi)
+			cv.Mean = num(s.Mean.Value)
 			cv.MeanText = estText(s.Mean.Value, s.Mean.Lo, s.Mean.Hi)
 			cv.Median, cv.Std = num(s.Median.Value), num(s.Std)
 			if finite(s.IQM.Lo, s.IQM.Hi) {
