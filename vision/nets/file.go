@@ -12,15 +12,6 @@ import (
 	"tilebench/vision/weights"
 )
 
-// Metadata keys that Save writes and Load reads; callers' metadata may not
-// use them. docs/families.md lists them with their meaning.
-var reservedKeys = []string{
-	"format", "family", "key_size", "key_hidden", "value", "value_size", "queries", "query_dim",
-	"hidden", "token_hidden", "prev_action", "context",
-	"frame_width", "frame_height", "channels", "patch_w", "patch_h", "stride_x", "stride_y", "edge", "fill",
-	"action_kind", "action_names", "action_low", "action_high",
-}
-
 // Metadata returns the header entries that describe net: format, family,
 // hyper-parameters, patch geometry and action space.
 func Metadata(net Net) map[string]string {

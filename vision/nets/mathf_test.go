@@ -115,3 +115,24 @@ func TestPositionalEncodingValues(t *testing.T) {
 		t.Errorf("PE(50,8) at d=16 = %.10f, want sin 0.5 = 0.4794255386", got)
 	}
 }
+
+// The vector exp of the softmax (assembly where available) against the
+// scalar expf, on rows of every length remainder.
+func TestExpSubRowMatchesScalar(t *testing.T) {
+	rng := testRand(8)
+	for n := 0; n < 40; n++ {
+		row := randSlice(rng, n, 120)
+		ref := append([]float32(nil), row...)
+		var m float32 = 3
+		s := expSubRow(row, m)
+		sr := expSubRowGo(ref, m)
+		for i := range row {
+			if d := math.Abs(float64(row[i] - ref[i])); d > 2e-7*math.Max(1e-30, float64(ref[i])) {
+				t.Fatalf("n=%d: e^(%v) = %v, scalar %v", n, ref[i], row[i], ref[i])
+			}
+		}
+		if math.Abs(float64(s-sr)) > 1e-6*math.Max(1, float64(sr)) {
+			t.Fatalf("n=%d: sum %v, scalar %v", n, s, sr)
+		}
+	}
+}
