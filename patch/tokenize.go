@@ -20,7 +20,8 @@ import (
 //   - *image.Gray: the grey byte.
 //   - *image.YCbCr: R, G, B from the stdlib's color.YCbCrToRGB (JFIF
 //     full-range conversion).
-//   - *image.Paletted: the palette colour's premultiplied R, G, B bytes.
+//   - *image.Paletted: the palette colour's premultiplied R, G, B bytes;
+//     an index past the end of the palette reads as black.
 //   - anything else: Color.RGBA() >> 8 of every pixel (premultiplied, as
 //     image/draw computes it).
 //
@@ -101,8 +102,8 @@ func (t *Tokenizer) source(img image.Image) (pixSource, error) {
 		if t.pal == nil {
 			t.pal = new([256][3]uint8)
 		}
-		// Indexes beyond the palette read as black, as image.Paletted.At
-		// makes them transparent.
+		// Indexes beyond the palette read as black (Paletted.At would
+		// panic on them).
 		*t.pal = [256][3]uint8{}
 		for i, c := range im.Palette {
 			if i >= 256 {
