@@ -188,9 +188,6 @@ func Analyze(dir string) (*Analysis, error) {
 		cs.Retention = &e
 	}
 	a.curves()
-	for _, t := range ReadTimings(dir) {
-		_ = t
-	}
 	a.StepsPerSecond = medianSPS(ReadTimings(dir))
 	if p.Def.Kind == "sizes" {
 		costs, err := readCosts(dir)
@@ -489,7 +486,7 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 	a.curveSections(rd)
 	a.stripSections(rd, dir)
 	for i, cs := range a.Cells {
-		rc := report.Cell{ID: fmt.Sprintf("c%d", i), Patch: cs.Cell.Patch, Episodes: cs.Episodes, Failures: cs.Failures,
+		rc := report.Cell{ID: cellID(i, cs.Cell, d.Variation), Patch: cs.Cell.Patch, Episodes: cs.Episodes, Failures: cs.Failures,
 			Retention: cs.Retention, Note: cs.Note}
 		rc.Axis, rc.Kind, rc.Severity = primaryAxis(cs.Cell)
 		rc.Params = cellParams(cs.Cell)
@@ -505,6 +502,43 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 		rd.Cells = append(rd.Cells, rc)
 	}
 	return rd
+}
+
+// cellID is the cell's short stable name in the report: its index and
+// what it does, e.g. "3 p8/occlude=random:0.3/scramble=full".
+func cellID(i int, c Cell, base string) string {
+	id := fmt.Sprintf("%d p%d", i, c.Patch)
+	if c.Variation != base {
+		id += "/variation=" + variationName(c.Variation)
+	}
+	if c.Occlude != "none" {
+		id += "/occlude=" + c.Occlude
+		if c.Fill != "black" {
+			id += "/fill=" + c.Fill
+		}
+	}
+	if c.Scramble != "none" {
+		id += "/scramble=" + c.Scramble
+		if c.Every > 0 {
+			id += "/every=" + strconv.Itoa(c.Every)
+		}
+	}
+	if c.NoiseTokens > 0 {
+		id += "/noise_tokens=" + strconv.Itoa(c.NoiseTokens)
+	}
+	if c.Brightness != 0 {
+		id += "/brightness=" + fnum(c.Brightness)
+	}
+	if c.Contrast != 1 {
+		id += "/contrast=" + fnum(c.Contrast)
+	}
+	if c.PixelNoise != 0 {
+		id += "/pixel_noise=" + fnum(c.PixelNoise)
+	}
+	if c.Clean() && c.Variation == base {
+		id += "/clean"
+	}
+	return id
 }
 
 func fmtG(v float64) string { return strconv.FormatFloat(v, 'g', 4, 64) }

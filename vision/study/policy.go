@@ -99,3 +99,22 @@ func DefaultEnv(p *Plan, logDir string) EnvFactory {
 	pol := Policies(p, logDir)
 	return func(int) (Env, error) { return NewGameEnv(p.Def.Game, pol), nil }
 }
+
+// PatchOfPolicy returns the patch size a single weights file (a source
+// that is not expert, fresh, external, or a {patch} template) was made
+// for, so that a study of that file needs no patch list.
+func PatchOfPolicy(source string) (int, bool) {
+	if source == "" || source == "expert" || source == "fresh" || strings.Contains(source, "{patch}") ||
+		strings.HasPrefix(source, "exec:") || strings.HasPrefix(source, "tcp://") {
+		return 0, false
+	}
+	n, err := nets.Load(source)
+	if err != nil {
+		return 0, false
+	}
+	g := n.Grid()
+	if g.PatchW != g.PatchH {
+		return 0, false
+	}
+	return g.PatchW, true
+}

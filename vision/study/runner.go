@@ -327,7 +327,14 @@ func prepareDir(p *Plan, opt Options) error {
 	if err != nil {
 		return fmt.Errorf("study folder: %w", err)
 	}
-	if len(entries) == 0 {
+	others := 0
+	for _, e := range entries {
+		// Policies trained for the study are put there before it starts.
+		if e.Name() != "policies" {
+			others++
+		}
+	}
+	if others == 0 {
 		return nil
 	}
 	si, err := ReadStudy(opt.Dir)

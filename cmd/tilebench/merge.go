@@ -1,0 +1,56 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"path/filepath"
+
+	"tilebench/vision/study"
+)
+
+func init() {
+	register(&command{name: "merge", summary: "join the folders of a sharded study into one (results byte-identical to an unsharded run)", run: runMerge})
+}
+
+const mergeUsage = `merge [options] OUT DIR...
+
+Joins the folders of one study's shards (tilebench stress/sizes --shard i/n)
+into the new folder OUT: results.jsonl in canonical order (by cell, then
+episode), byte-identical to an unsharded run's, timing, strips and the
+report. Folders of different studies are refused; OUT must be new or empty.
+
+  tilebench merge stress-all stress-0 stress-1 stress-2
+
+options:`
+
+func runMerge(ctx *runContext, args []string) error {
+	fs := newFlags(ctx, "merge", mergeUsage)
+	asJSON := fs.Bool("json", false, "print a machine-readable summary")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if fs.NArg() < 2 {
+		return usagef("merge: want OUT and at least one study folder")
+	}
+	out := fs.Arg(0)
+	mo, err := study.Merge(out, fs.Args()[1:], true)
+	if err != nil {
+		return err
+	}
+	rep := filepath.Join(out, "report.html")
+	if *asJSON {
+		b, err := json.MarshalIndent(map[string]any{"format": 1, "dir": out, "episodes": mo.Episodes,
+			"missing": mo.Missing, "failed": mo.Failed, "report": rep}, "", "  ")
+		if err != nil {
+			return err
+		}
+		fmt.Fprintln(ctx.stdout, string(b))
+		return nil
+	}
+	fmt.Fprintf(ctx.stdout, "merged %d episodes into %s (%d missing, %d failed)\n", mo.Episodes, out, mo.Missing, mo.Failed)
+	if mo.Missing > 0 {
+		fmt.Fprintf(ctx.stdout, "some shards are incomplete: finish them with --resume and merge again\n")
+	}
+	fmt.Fprintf(ctx.stdout, "report: %s\n", rep)
+	return nil
+}

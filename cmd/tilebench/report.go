@@ -1,0 +1,38 @@
+package main
+
+import (
+	"fmt"
+	"path/filepath"
+
+	"tilebench/vision/study"
+)
+
+func init() {
+	register(&command{name: "report", summary: "re-make the report (HTML, summary.md, cells.csv) of a study folder from its recorded results", run: runReport})
+}
+
+const reportUsage = `report DIR
+
+Re-makes DIR/report.html, DIR/summary.md and DIR/cells.csv from the
+recorded results (study.json, results.jsonl, costs.json, strips/); the
+same results give the same files. Every study writes them at its end.
+
+  tilebench report stress-drive
+
+options:`
+
+func runReport(ctx *runContext, args []string) error {
+	fs := newFlags(ctx, "report", reportUsage)
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if fs.NArg() != 1 {
+		return usagef("report: want one study folder DIR")
+	}
+	dir := fs.Arg(0)
+	if err := study.WriteReport(dir); err != nil {
+		return err
+	}
+	fmt.Fprintf(ctx.stdout, "report: %s\n", filepath.Join(dir, "report.html"))
+	return nil
+}

@@ -1,0 +1,69 @@
+package study
+
+import (
+	"context"
+	"fmt"
+	"path/filepath"
+	"testing"
+
+	"tilebench/games"
+)
+
+// benchPlan is the whole-pipeline benchmark study: the driving game,
+// random occlusion of a quarter of the tokens with a full scramble every
+// 10 steps, and an (untrained) set-attention policy at patch 8.
+func benchPlan(b *testing.B, episodes int) *Plan {
+	b.Helper()
+	p, err := NewPlan(Definition{Name: "bench", Game: "drive", Episodes: episodes, Policy: PolicyDef{Source: "fresh", Family: "attention"},
+		Patch: Axis{"8"}, Axes: Axes{Occlude: Axis{"random:0.25"}, Scramble: Axis{"full"}, Every: Axis{"10"}}, Strips: []int{}})
+	if err != nil {
+		b.Fatal(err)
+	}
+	return p
+}
+
+// BenchmarkStudyStep measures one worker's steps per second through the
+// whole pipeline: game step and render, tokenize, transforms, policy.
+func BenchmarkStudyStep(b *testing.B) {
+	p := benchPlan(b, 1)
+	env := NewGameEnv("drive", Policies(p, ""))
+	pl, err := env.Player(p.Cells[0])
+	if err != nil {
+		b.Fatal(err)
+	}
+	if _, err := pl.Play(games.HeldOut(0), 1, nil); err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	b.ResetTimer()
+	steps := 0
+	for i := 0; steps < b.N; i++ {
+		res, err := pl.Play(games.HeldOut(i), uint64(i), nil)
+		if err != nil {
+			b.Fatal(err)
+		}
+		steps += res.Steps
+	}
+	b.ReportMetric(float64(steps)/b.Elapsed().Seconds(), "steps/s")
+}
+
+// BenchmarkStudyWorkers runs a small study with 1 and 2 workers; compare
+// their steps/s for the scaling ratio.
+func BenchmarkStudyWorkers(b *testing.B) {
+	for _, w := range []int{1, 2} {
+		b.Run(fmt.Sprintf("workers=%d", w), func(b *testing.B) {
+			p := benchPlan(b, 8)
+			steps := 0
+			b.ReportAllocs()
+			for i := 0; i < b.N; i++ {
+				dir := filepath.Join(b.TempDir(), "s")
+				out, err := Run(context.Background(), p, Options{Dir: dir, Workers: w, Env: DefaultEnv(p, ""), NoReport: true})
+				if err != nil {
+					b.Fatal(err)
+				}
+				steps += out.Steps
+			}
+			b.ReportMetric(float64(steps)/b.Elapsed().Seconds(), "steps/s")
+		})
+	}
+}
