@@ -104,6 +104,7 @@ type cellView struct {
 	Bar, Dot                                  template.CSS
 	Note, Params                              string
 	HasBar                                    bool
+	IDParts                                   []string
 }
 
 // heatColors maps low scores to ember and high ones to lagoon through a
@@ -332,7 +333,7 @@ func (v *view) buildCells(d *Data) {
 	}
 	for _, c := range d.Cells {
 		s := c.Summary
-		cv := cellView{ID: c.ID, Axis: c.Axis, Kind: c.Kind, Patch: intText(c.Patch),
+		cv := cellView{ID: c.ID, IDParts: breakable(c.ID), Axis: c.Axis, Kind: c.Kind, Patch: intText(c.Patch),
 			Episodes: c.Episodes, Failures: c.Failures, Note: c.Note, Params: joinParams(c.Params),
 			IQM: "—", IQMText: "—", Mean: "—", MeanText: "—", Median: "—", Std: "—",
 			RetText: "—", Ret: "—"}
@@ -416,4 +417,18 @@ func numOrBlank(v float64) string {
 		return ""
 	}
 	return num(v)
+}
+
+// breakable splits s after the separators of a cell key ("/", "=", ":",
+// ";", ",") so the page can offer line breaks there.
+func breakable(s string) []string {
+	var parts []string
+	start := 0
+	for i := 0; i < len(s); i++ {
+		if strings.IndexByte("/=:;,", s[i]) >= 0 {
+			parts = append(parts, s[start:i+1])
+			start = i + 1
+		}
+	}
+	return append(parts, s[start:])
 }
