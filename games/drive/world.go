@@ -172,7 +172,7 @@ func rasterise(tr *Track, look worldLook, ppm float64, seed uint64) *world {
 	t := d.scale(1 / d.norm())
 	nrm := Vec{-t.Y, t.X}
 	hw := tr.Width/2 + look.edgeWidth*0.5
-	quad(r, toPx, p0.add(nrm.scale(hw)).sub(t.scale(0.6)), p0.add(nrm.scale(hw)).add(t.scale(0.6)),
+	quadrilateral(r, toPx, p0.add(nrm.scale(hw)).sub(t.scale(0.6)), p0.add(nrm.scale(hw)).add(t.scale(0.6)),
 		p0.sub(nrm.scale(hw)).add(t.scale(0.6)), p0.sub(nrm.scale(hw)).sub(t.scale(0.6)))
 	fill(look.pal.Edge)
 
@@ -232,7 +232,7 @@ func polygon(r *vector.Rasterizer, toPx func(Vec) (float32, float32), c Vec, rad
 	r.ClosePath()
 }
 
-func quad(r *vector.Rasterizer, toPx func(Vec) (float32, float32), a, b, c, d Vec) {
+func quadrilateral(r *vector.Rasterizer, toPx func(Vec) (float32, float32), a, b, c, d Vec) {
 	x, y := toPx(a)
 	r.MoveTo(x, y)
 	for _, p := range []Vec{b, c, d} {

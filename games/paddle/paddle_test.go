@@ -2,7 +2,6 @@ package paddle
 
 import (
 	"errors"
-	"fmt"
 	"hash/fnv"
 	"image"
 	"math"
@@ -322,32 +321,12 @@ func TestVariations(t *testing.T) {
 // of the expert, match the committed PNGs pixel for pixel. Regenerate
 // with go test ./games/paddle -run Golden -update (and look at them).
 func TestGoldenFrames(t *testing.T) {
-	cases := []struct {
-		variation string
-		seed      uint64
-		steps     int
-	}{
-		{"", games.HeldOut(0), 0},
-		{"", games.HeldOut(1), 140},
-		{"lagoon+drifter", games.HeldOut(2), 90},
-		{"orchid+bigball+long", games.HeldOut(3), 60},
-	}
-	for _, c := range cases {
-		g := newGame(t, c.variation)
-		g.Reset(c.seed)
-		act := make([]float64, g.Spec().Action.Dim())
-		for k := 0; k < c.steps; k++ {
-			g.Expert().Act(act)
-			g.Step(act)
-		}
-		img := image.NewRGBA(image.Rect(0, 0, Size, Size))
-		g.Render(img)
-		name := c.variation
-		if name == "" {
-			name = "default"
-		}
-		golden.Check(t, fmt.Sprintf("%s-%d-%d", name, c.seed, c.steps), img)
-	}
+	golden.CheckCases(t, Name, []golden.Case{
+		{Variation: "", Seed: games.HeldOut(0), Steps: 0},
+		{Variation: "", Seed: games.HeldOut(1), Steps: 140},
+		{Variation: "lagoon+drifter", Seed: games.HeldOut(2), Steps: 90},
+		{Variation: "orchid+bigball+long", Seed: games.HeldOut(3), Steps: 60},
+	})
 }
 
 // Step plus Render allocate nothing.

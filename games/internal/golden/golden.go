@@ -12,6 +12,7 @@ import (
 	"path/filepath"
 	"testing"
 
+	"tilebench/games"
 	"tilebench/internal/atomicfile"
 )
 
@@ -82,4 +83,44 @@ func Diff(a, b image.Image) (int, image.Point) {
 		}
 	}
 	return n, first
+}
+
+// Case is one golden frame: the named game and variation, reset to Seed,
+// played by its expert for Steps steps, then rendered.
+type Case struct {
+	Variation string
+	Seed      uint64
+	Steps     int
+}
+
+// CheckCases renders every case of the named game and checks it against
+// testdata/golden/VARIATION-SEED-STEPS.png ("default" for the default
+// variation).
+func CheckCases(t *testing.T, game string, cases []Case) {
+	t.Helper()
+	for _, c := range cases {
+		g, err := games.New(game, games.Options{Variation: c.Variation})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ex, ok := g.(games.WithExpert)
+		if !ok {
+			t.Fatalf("%s has no expert", game)
+		}
+		g.Reset(c.Seed)
+		act := make([]float64, g.Spec().Action.Dim())
+		for k := 0; k < c.Steps; k++ {
+			ex.Expert().Act(act)
+			if _, err := g.Step(act); err != nil {
+				t.Fatal(err)
+			}
+		}
+		img := image.NewRGBA(image.Rect(0, 0, g.Spec().Width, g.Spec().Height))
+		g.Render(img)
+		name := c.Variation
+		if name == "" {
+			name = "default"
+		}
+		Check(t, fmt.Sprintf("%s-%d-%d", name, c.Seed, c.Steps), img)
+	}
 }
