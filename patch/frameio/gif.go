@@ -10,6 +10,7 @@ import (
 	"image/gif"
 	"io"
 	"os"
+	"sort"
 )
 
 // gifReader composites the frames of an animated GIF onto a canvas of
@@ -133,10 +134,12 @@ var Palette = func() color.Palette {
 type GIFWriter struct {
 	// Delay is the time each frame is shown, in hundredths of a second.
 	Delay int
-	// NoDither maps every pixel to its nearest palette colour instead of
-	// Floyd–Steinberg error diffusion (image/draw.FloydSteinberg).
-	NoDither bool
-	g        gif.GIF
+	// Dither spreads the quantisation error with Floyd–Steinberg
+	// (image/draw.FloydSteinberg) instead of mapping every pixel to its
+	// nearest palette colour (the default: fast, exact for colours in the
+	// palette, and about 50 times faster).
+	Dither bool
+	g      gif.GIF
 }
 
 // Add converts img to the palette and appends it. All frames must have
@@ -147,7 +150,7 @@ func (w *GIFWriter) Add(img image.Image) error {
 		return fmt.Errorf("gif: frame %d is %dx%d, the first is %dx%d", n, b.Dx(), b.Dy(), w.g.Image[0].Bounds().Dx(), w.g.Image[0].Bounds().Dy())
 	}
 	p := image.NewPaletted(image.Rect(0, 0, b.Dx(), b.Dy()), Palette)
-	QuantizeInto(p, img, !w.NoDither)
+	QuantizeInto(p, img, w.Dither)
 	w.g.Image = append(w.g.Image, p)
 	w.g.Delay = append(w.g.Delay, w.Delay)
 	w.g.Disposal = append(w.g.Disposal, gif.DisposalNone)
@@ -168,11 +171,80 @@ func (w *GIFWriter) Encode(out io.Writer) error {
 
 // QuantizeInto draws img into the paletted dst (same size), with
 // Floyd–Steinberg dithering when dither is set (image/draw). Colours that
-// are in dst's palette come through unchanged either way.
+// are in dst's palette come through unchanged either way. Without
+// dithering, an *image.RGBA source on the fixed Palette takes a fast path
+// that picks the same index as color.Palette.Index.
 func QuantizeInto(dst *image.Paletted, img image.Image, dither bool) {
 	if dither {
 		draw.FloydSteinberg.Draw(dst, dst.Bounds(), img, img.Bounds().Min)
 		return
 	}
-	draw.Draw(dst, dst.Bounds(), img, img.Bounds().Min, draw.Src)
+	src, ok := img.(*image.RGBA)
+	if !ok || len(dst.Palette) != len(Palette) || &dst.Palette[0] != &Palette[0] {
+		draw.Draw(dst, dst.Bounds(), img, img.Bounds().Min, draw.Src)
+		return
+	}
+	b := src.Bounds()
+	w, h := min(b.Dx(), dst.Rect.Dx()), min(b.Dy(), dst.Rect.Dy())
+	for y := 0; y < h; y++ {
+		row := src.Pix[src.PixOffset(b.Min.X, b.Min.Y+y):][: 4*w : 4*w]
+		out := dst.Pix[dst.PixOffset(dst.Rect.Min.X, dst.Rect.Min.Y+y):][:w:w]
+		for x := range out {
+			out[x] = nearest(row[4*x], row[4*x+1], row[4*x+2])
+		}
+	}
 }
+
+// nearest is the index of the Palette colour that color.Palette.Index
+// picks for (r, g, b): the least sum over channels of
+// (257·d)² >> 2 (image/color's sqDiff on 16-bit values), the first index
+// on ties. Only two kinds of candidate can win: the cube point nearest in
+// each channel (the cube is separable and has no per-channel ties), and
+// the two greys bracketing the mean (r+g+b)/3 (the exact squared distance
+// to a grey (v, v, v) is 3v² − 2v(r+g+b) + const). The 16-bit rounding
+// only decides exact ties, which these candidates cover.
+func nearest(r, g, b uint8) uint8 {
+	qr, qg, qb := (int(r)+25)/51, (int(g)+25)/51, (int(b)+25)/51
+	best := uint8(36*qr + 6*qg + qb)
+	bd := dist16(r, g, b, uint8(51*qr), uint8(51*qg), uint8(51*qb))
+	lo := greyLo[int(r)+int(g)+int(b)]
+	for k := lo; k <= lo+1 && int(k) < len(greys); k++ {
+		v, i := greys[k][0], greys[k][1]
+		if d := dist16(r, g, b, v, v, v); d < bd || d == bd && i < best {
+			best, bd = i, d
+		}
+	}
+	return best
+}
+
+// dist16 is color.Palette.Index's distance between two opaque colours.
+func dist16(r, g, b, pr, pg, pb uint8) uint32 {
+	return sqd(r, pr) + sqd(g, pg) + sqd(b, pb)
+}
+
+func sqd(x, y uint8) uint32 {
+	d := uint32(x)*0x101 - uint32(y)*0x101
+	return (d * d) >> 2
+}
+
+// greys lists the grey entries of Palette as (level, index), by level;
+// greyLo[s] is the position in greys of the highest level v with
+// 3v ≤ s.
+var greys, greyLo = func() ([][2]uint8, [766]uint8) {
+	var gs [][2]uint8
+	for i, c := range Palette {
+		if rgba := c.(color.RGBA); rgba.R == rgba.G && rgba.G == rgba.B {
+			gs = append(gs, [2]uint8{rgba.R, uint8(i)})
+		}
+	}
+	sort.Slice(gs, func(a, b int) bool { return gs[a][0] < gs[b][0] })
+	var lo [766]uint8
+	for s := range lo {
+		for k := range gs {
+			if 3*int(gs[k][0]) <= s {
+				lo[s] = uint8(k)
+			}
+		}
+	}
+	return gs, lo
+}()

@@ -371,6 +371,7 @@ func BenchmarkNPYRead96(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
+	hdr := len(NPYHeader([]int{n, 96, 96, 3}))
 	b.SetBytes(96 * 96 * 3)
 	b.ReportAllocs()
 	k := 0
@@ -378,7 +379,7 @@ func BenchmarkNPYRead96(b *testing.B) {
 		if k == n {
 			rd.Reset(data)
 			r.r.Reset(rd)
-			r.r.Discard(len(NPYHeader([]int{n, 96, 96, 3})))
+			r.r.Discard(hdr)
 			r.next, k = 0, 0
 		}
 		if err := r.ReadFrame(dst); err != nil {

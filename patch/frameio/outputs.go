@@ -61,8 +61,9 @@ type OutputConfig struct {
 	// GIFDelay is the time a GIF frame is shown, in hundredths of a
 	// second (0 means 10, i.e. 10 frames a second).
 	GIFDelay int
-	// GIFNoDither turns off Floyd–Steinberg dithering in the GIF.
-	GIFNoDither bool
+	// GIFDither turns on Floyd–Steinberg dithering in the GIF (default:
+	// nearest colour of the fixed Palette).
+	GIFDither bool
 	// Sheet lays out the contact sheet (its Total is set from Frames).
 	Sheet SheetConfig
 }
@@ -141,7 +142,7 @@ func NewOutputs(cfg OutputConfig, width, height int) (*Outputs, error) {
 		}
 	}
 	if o.has(AsGIF) {
-		o.gif = &GIFWriter{Delay: cfg.GIFDelay, NoDither: cfg.GIFNoDither}
+		o.gif = &GIFWriter{Delay: cfg.GIFDelay, Dither: cfg.GIFDither}
 	}
 	if o.has(AsSheet) {
 		sc := cfg.Sheet

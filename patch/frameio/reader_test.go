@@ -8,6 +8,7 @@ import (
 	"image/jpeg"
 	"image/png"
 	"io"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strings"
@@ -282,10 +283,10 @@ func TestGIFReaderDisposal(t *testing.T) {
 func TestGIFWriterRoundTrip(t *testing.T) {
 	// The checker scene uses only colour-cube colours, so the GIF keeps
 	// every pixel exactly, dithered or not (decoded by image/gif).
-	for _, nodither := range []bool{false, true} {
+	for _, dither := range []bool{false, true} {
 		r, _ := Builtin("checker", 6, 40, 30)
 		frames, _ := ReadAll(r)
-		w := &GIFWriter{Delay: 4, NoDither: nodither}
+		w := &GIFWriter{Delay: 4, Dither: dither}
 		for _, f := range frames {
 			if err := w.Add(f); err != nil {
 				t.Fatal(err)
@@ -301,7 +302,7 @@ func TestGIFWriterRoundTrip(t *testing.T) {
 		}
 		for k, p := range g.Image {
 			if !bytes.Equal(cloneRGBA(p).Pix, frames[k].Pix) {
-				t.Fatalf("dither off=%v: frame %d changed in the GIF round trip", nodither, k)
+				t.Fatalf("dither %v: frame %d changed in the GIF round trip", dither, k)
 			}
 		}
 	}
@@ -351,17 +352,52 @@ func TestReadAllStopsAtEOF(t *testing.T) {
 	}
 }
 
-func BenchmarkGIFEncode96(b *testing.B) {
+func BenchmarkGIFEncode96(b *testing.B)       { benchGIF(b, false) }
+func BenchmarkGIFEncode96Dither(b *testing.B) { benchGIF(b, true) }
+
+// benchGIF quantises and encodes one 96×96 frame of the drift scene.
+func benchGIF(b *testing.B, dither bool) {
 	r, _ := Builtin("drift", 1, 96, 96)
 	frame, _ := r.Next()
 	b.ReportAllocs()
 	for b.Loop() {
-		w := &GIFWriter{}
+		w := &GIFWriter{Dither: dither}
 		if err := w.Add(frame); err != nil {
 			b.Fatal(err)
 		}
 		if err := w.Encode(io.Discard); err != nil {
 			b.Fatal(err)
 		}
+	}
+}
+
+// TestNearestMatchesPaletteIndex: the fast nearest-colour path picks the
+// index that image/color's Palette.Index (the stdlib's linear search)
+// picks, over a lattice of colours, every grey and random colours.
+func TestNearestMatchesPaletteIndex(t *testing.T) {
+	check := func(r, g, b uint8) {
+		if got, want := nearest(r, g, b), Palette.Index(color.RGBA{r, g, b, 255}); int(got) != want {
+			t.Fatalf("(%d,%d,%d): index %d (%v), Palette.Index says %d (%v)", r, g, b, got, Palette[got], want, Palette[want])
+		}
+	}
+	step := 5
+	if testing.Short() {
+		step = 17
+	}
+	for r := 0; r < 256; r += step {
+		for g := 0; g < 256; g += step {
+			for b := 0; b < 256; b += step {
+				check(uint8(r), uint8(g), uint8(b))
+			}
+		}
+	}
+	for v := 0; v < 256; v++ {
+		check(uint8(v), uint8(v), uint8(v))
+		check(uint8(v), uint8(v), uint8(255-v))
+		check(uint8(v), uint8(min(v+1, 255)), uint8(v))
+	}
+	rng := rand.New(rand.NewPCG(1, 2))
+	for range 200000 {
+		check(uint8(rng.IntN(256)), uint8(rng.IntN(256)), uint8(rng.IntN(256)))
 	}
 }
