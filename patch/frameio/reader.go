@@ -156,7 +156,8 @@ func frameExt(name string) bool {
 }
 
 // openDir lists the frame files of dir (hidden files and other
-// extensions are ignored) in natural order.
+// extensions are ignored) in natural order. When some are named
+// frame-NNNNN.png (an export's sequence), only those are read.
 func openDir(dir string) (Reader, error) {
 	ents, err := os.ReadDir(dir)
 	if err != nil {
@@ -171,6 +172,17 @@ func openDir(dir string) (Reader, error) {
 	}
 	if len(names) == 0 {
 		return nil, fmt.Errorf("input %s: folder holds no .png or .jpg frames", dir)
+	}
+	// A folder tilebench exported into also holds sheet.png: read only
+	// the exported frame-NNNNN.png sequence there.
+	var exported []string
+	for _, n := range names {
+		if frameRe.MatchString(n) {
+			exported = append(exported, n)
+		}
+	}
+	if len(exported) > 0 {
+		names = exported
 	}
 	SortNatural(names)
 	paths := make([]string, len(names))
