@@ -162,7 +162,7 @@ func TestExportInvocations(t *testing.T) {
 
 	// unscramble(scramble(f)) == f byte for byte through the files.
 	pure := filepath.Join(work, "PURE")
-	mustRun(t, "", "export", "--in", dir, "--patch", "8", "--scramble", "full", "--rotate", "--flip", "--every", "4", "--noise-tokens", "2", "--seed", "3", "--out", pure, "--as", "npy,png")
+	mustRun(t, "", "export", "--in", dir, "--patch", "8", "--scramble", "full", "--rotate", "--flip", "--every", "4", "--noise-tokens", "2", "--seed", "3", "--out", pure, "--as", "npy,png,sheet")
 	pureBack := filepath.Join(work, "PUREBACK")
 	mustRun(t, "", "export", "--in", pure, "--unscramble", filepath.Join(pure, "manifest.json"), "--crop-to-source", "--out", pureBack, "--as", "npy,png")
 	got := readNPY(t, filepath.Join(pureBack, "frames.npy"))
