@@ -93,6 +93,12 @@ func build(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
 	if cfg.Capacity == 0 {
 		cfg.Capacity = 2 * grid.N()
 	}
+	// Refuse sizes that would allocate beyond reason (a corrupt file or a
+	// typo), before allocating anything.
+	rowValues := int64(grid.D())*int64(cfg.Context) + int64(space.Dim()+len(space.Names))
+	if v := rowValues * int64(max(cfg.Capacity, grid.N())) * int64(cfg.Context); v > maxValues {
+		return nil, fmt.Errorf("new %s policy: %d tokens of %d values with context %d need %d values of input buffers, more than %d", cfg.Family, grid.N(), grid.D(), cfg.Context, v, int64(maxValues))
+	}
 	c := &core{cfg: cfg, grid: grid, space: space}
 	c.in.init(cfg, grid, space)
 	var n net
@@ -104,9 +110,16 @@ func build(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
 	case MLP:
 		n = newMLP(c)
 	}
+	if total := c.size(); total > maxValues {
+		return nil, fmt.Errorf("new %s policy: %d parameters, more than %d", cfg.Family, total, int64(maxValues))
+	}
 	c.alloc()
 	return n, nil
 }
+
+// maxValues bounds the parameters and input buffers of one net (512 MiB
+// of float32 each).
+const maxValues = 1 << 27
 
 func checkSpace(s games.ActionSpace) error {
 	switch s.Kind {
@@ -186,11 +199,16 @@ func (c *core) linear(name string, in, out int, needDX bool) *linear {
 	return l
 }
 
-func (c *core) alloc() {
-	total := 0
+// size is the number of parameters declared so far.
+func (c *core) size() int {
 	if k := len(c.specs); k > 0 {
-		total = c.specs[k-1].off + c.specs[k-1].size
+		return c.specs[k-1].off + c.specs[k-1].size
 	}
+	return 0
+}
+
+func (c *core) alloc() {
+	total := c.size()
 	c.params = make([]float32, total)
 	c.grads = make([]float32, total)
 	for _, b := range c.binds {
