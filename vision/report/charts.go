@@ -396,11 +396,13 @@ func (logTicks) Ticks(min, max float64) []plot.Tick {
 		steps = []float64{1}
 	}
 	var ts []plot.Tick
+	labelled := 0
 	for e := lo; e <= hi; e++ {
 		for _, m := range steps {
 			v := m * math.Pow(10, e)
 			if v >= min*(1-1e-9) && v <= max*(1+1e-9) {
 				ts = append(ts, plot.Tick{Value: v, Label: num(v)})
+				labelled++
 			}
 		}
 		for m := 2.0; m < 10; m++ {
@@ -409,6 +411,11 @@ func (logTicks) Ticks(min, max float64) []plot.Tick {
 				ts = append(ts, plot.Tick{Value: v})
 			}
 		}
+	}
+	if labelled < 2 {
+		// A narrow range (less than a 1-2-5 step): evenly spaced ticks
+		// read better than a lone label.
+		return plainTicks{}.Ticks(min, max)
 	}
 	return ts
 }

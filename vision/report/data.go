@@ -133,7 +133,8 @@ type Heatmap struct {
 	// Z[row][col] are the values, len(Y) rows of len(X); NaN marks a
 	// missing cell.
 	Z [][]float64
-	// Format is the fmt verb for the printed values; "" means "%.3g".
+	// Format is the fmt verb for the printed values; "" means three
+	// significant digits, as elsewhere in the report.
 	Format string
 }
 

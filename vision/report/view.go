@@ -70,7 +70,7 @@ type heatView struct {
 	Title, XLabel, YLabel string
 	X                     []string
 	Rows                  []heatRow
-	Lo, Hi                string
+	Lo, Hi, Same          string
 	Scale                 template.CSS
 }
 
@@ -262,9 +262,9 @@ func buildHeat(h Heatmap) (heatView, error) {
 			}
 		}
 	}
-	format := h.Format
-	if format == "" {
-		format = "%.3g"
+	show := num
+	if h.Format != "" {
+		show = func(z float64) string { return fmt.Sprintf(h.Format, z) }
 	}
 	hv := heatView{Title: h.Title, XLabel: h.XLabel, YLabel: h.YLabel, X: h.X}
 	cmap := heatColors()
@@ -293,14 +293,17 @@ func buildHeat(h Heatmap) (heatView, error) {
 			if darkish(c) {
 				fg = "#ffffff"
 			}
-			hr.Cells = append(hr.Cells, heatCell{Text: fmt.Sprintf(format, z),
+			hr.Cells = append(hr.Cells, heatCell{Text: show(z),
 				Tip:   strconv.FormatFloat(z, 'g', -1, 64),
 				Style: template.CSS("background:" + cssColor(c) + ";color:" + fg)})
 		}
 		hv.Rows = append(hv.Rows, hr)
 	}
-	if lo <= hi {
-		hv.Lo, hv.Hi = fmt.Sprintf(format, lo), fmt.Sprintf(format, hi)
+	switch {
+	case lo == hi:
+		hv.Same = "every measured cell holds " + show(lo)
+	case lo < hi:
+		hv.Lo, hv.Hi = show(lo), show(hi)
 		var stops []string
 		for i := 0; i <= 8; i++ {
 			stops = append(stops, cssColor(at(float64(i)/8)))
