@@ -63,3 +63,17 @@ func BenchmarkDriveRender(b *testing.B) {
 		g.Render(dst)
 	}
 }
+
+// BenchmarkDriveReset measures starting an episode: generating the
+// circuit and rasterising the world image once.
+func BenchmarkDriveReset(b *testing.B) {
+	g, err := New(games.Options{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		g.Reset(games.HeldOut(i % 50))
+	}
+}

@@ -80,7 +80,10 @@ type worldLook struct {
 	edgeWidth float64 // metres
 }
 
-const worldMargin = 44.0 // metres of terrain around the circuit's bounding box
+const (
+	worldMargin = 44.0 // metres of terrain around the circuit's bounding box
+	roadPad     = 12.0 // metres around the centreline's box that the road layers may cover
+)
 
 // rasterise draws tr into a world image at ppm pixels per metre.
 func rasterise(tr *Track, look worldLook, ppm float64, seed uint64) *world {
@@ -123,42 +126,88 @@ func rasterise(tr *Track, look worldLook, ppm float64, seed uint64) *world {
 		}
 	}
 
-	r := vector.NewRasterizer(w, h)
-	fill := func(c color.RGBA) {
-		r.Draw(img, img.Bounds(), image.NewUniform(c), image.Point{})
-		r.Reset(w, h)
+	// Each layer is rasterised into an alpha mask (the rasteriser's plain
+	// coverage path) and blended in by hand where the mask is not empty.
+	// The road layers use a rasteriser over the circuit's bounding box
+	// only; the terrain shapes one over the whole image.
+	full := image.Rect(0, 0, w, h)
+	roadR := image.Rect(int((worldMargin-roadPad)*ppm), int((worldMargin-roadPad)*ppm),
+		w-int((worldMargin-roadPad)*ppm), h-int((worldMargin-roadPad)*ppm)).Intersect(full)
+	mask := image.NewAlpha(full)
+	fillIn := func(r *vector.Rasterizer, area image.Rectangle, c color.RGBA) {
+		r.DrawOp = draw.Src
+		m := mask.SubImage(area).(*image.Alpha)
+		r.Draw(m, area, image.Opaque, image.Point{})
+		r.Reset(area.Dx(), area.Dy())
+		for y := area.Min.Y; y < area.Max.Y; y++ {
+			mrow := mask.Pix[mask.PixOffset(area.Min.X, y):mask.PixOffset(area.Max.X, y)]
+			prow := img.Pix[img.PixOffset(area.Min.X, y):]
+			for x, a := range mrow {
+				if a == 0 {
+					continue
+				}
+				px := prow[4*x : 4*x+3 : 4*x+3]
+				if a == 255 {
+					px[0], px[1], px[2] = c.R, c.G, c.B
+					continue
+				}
+				k := uint32(a)
+				px[0] = uint8((uint32(px[0])*(255-k) + uint32(c.R)*k + 127) / 255)
+				px[1] = uint8((uint32(px[1])*(255-k) + uint32(c.G)*k + 127) / 255)
+				px[2] = uint8((uint32(px[2])*(255-k) + uint32(c.B)*k + 127) / 255)
+			}
+		}
 	}
 
-	// Distractor shapes, kept clear of the road.
+	// Distractor shapes, kept clear of the road, filled one colour at a
+	// time (one rasteriser pass per colour).
 	if look.shapes > 0 {
+		r := vector.NewRasterizer(w, h)
+		type shape struct {
+			c            Vec
+			size, rot    float64
+			kind, colour int
+		}
+		var shapes []shape
 		rng := patch.NewRand(patch.DeriveSeed(seed, patch.StreamKey("shapes")))
 		clear := tr.Width/2 + look.edgeWidth + 1.5
-		placed := 0
-		for tries := 0; placed < look.shapes && tries < look.shapes*20; tries++ {
-			size := 1.2 + 2.6*rng.Float64()
-			c := Vec{minX + (maxX-minX)*rng.Float64(), minY + (maxY-minY)*rng.Float64()}
-			kind := rng.IntN(3)
-			rot := 2 * math.Pi * rng.Float64()
-			col := look.pal.Shapes[rng.IntN(3)]
-			if _, _, lat := tr.Project(c, 0, 0); math.Abs(lat) < clear+size {
-				continue
+		for tries := 0; len(shapes) < look.shapes && tries < look.shapes*20; tries++ {
+			sh := shape{size: 1.2 + 2.6*rng.Float64()}
+			sh.c = Vec{minX + (maxX-minX)*rng.Float64(), minY + (maxY-minY)*rng.Float64()}
+			sh.kind = rng.IntN(3)
+			sh.rot = 2 * math.Pi * rng.Float64()
+			sh.colour = rng.IntN(len(look.pal.Shapes))
+			if _, _, lat := tr.Project(sh.c, 0, 0); math.Abs(lat) >= clear+sh.size {
+				shapes = append(shapes, sh)
 			}
-			placed++
-			switch kind {
-			case 0: // disc
-				polygon(r, toPx, c, size, rot, 20, false)
-			case 1: // triangle
-				polygon(r, toPx, c, size, rot, 3, false)
-			default: // ring: a pentagon with a pentagonal hole
-				polygon(r, toPx, c, size, rot, 5, false)
-				polygon(r, toPx, c, size*0.5, rot, 5, true)
+		}
+		for colour, col := range look.pal.Shapes {
+			for _, sh := range shapes {
+				if sh.colour != colour {
+					continue
+				}
+				switch sh.kind {
+				case 0: // disc
+					polygon(r, toPx, sh.c, sh.size, sh.rot, 20, false)
+				case 1: // triangle
+					polygon(r, toPx, sh.c, sh.size, sh.rot, 3, false)
+				default: // ring: a pentagon with a pentagonal hole
+					polygon(r, toPx, sh.c, sh.size, sh.rot, 5, false)
+					polygon(r, toPx, sh.c, sh.size*0.5, sh.rot, 5, true)
+				}
 			}
-			fill(col)
+			fillIn(r, full, col)
 		}
 	}
 
 	// Road: a darker shoulder, edge band, surface, seam, then the start
 	// band across.
+	r := vector.NewRasterizer(roadR.Dx(), roadR.Dy())
+	ox, oy := float32(roadR.Min.X), float32(roadR.Min.Y)
+	toPx = func(p Vec) (float32, float32) {
+		return float32((p.X-minX)*ppm) - ox, float32((maxY-p.Y)*ppm) - oy
+	}
+	fill := func(c color.RGBA) { fillIn(r, roadR, c) }
 	band(r, toPx, tr, tr.Width/2+look.edgeWidth+1.4)
 	fill(shade(look.pal.Terrain, 0.72))
 	band(r, toPx, tr, tr.Width/2+look.edgeWidth)
