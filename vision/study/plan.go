@@ -293,9 +293,12 @@ func (d *Definition) Cells() ([]Cell, error) {
 	if err != nil {
 		return nil, fieldErr("axes.pixel_noise", err)
 	}
-	total := len(ps) * len(vars) * len(occ) * len(scr) * len(every) * len(noise) * len(bright) * len(contrast) * len(pnoise)
-	if total > MaxRangeValues {
-		return nil, fieldErr("axes", fmt.Errorf("%d cells: at most %d", total, MaxRangeValues))
+	total := 1
+	for _, n := range []int{len(ps), len(vars), len(occ), len(scr), len(every), len(noise), len(bright), len(contrast), len(pnoise)} {
+		total *= n
+		if total > MaxRangeValues {
+			return nil, fieldErr("axes", fmt.Errorf("more than %d cells", MaxRangeValues))
+		}
 	}
 	seen := map[string]bool{}
 	var cells []Cell
