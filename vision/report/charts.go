@@ -2,6 +2,7 @@ package report
 
 import (
 	"bytes"
+	"cmp"
 	"fmt"
 	"html/template"
 	"image/color"
@@ -139,15 +140,7 @@ func curvesSVG(c Curves) (template.HTML, []legendItem, error) {
 	any := false
 	for i, s := range c.Series {
 		pts := slices.Clone(s.Points)
-		slices.SortStableFunc(pts, func(a, b CurvePoint) int {
-			switch {
-			case a.X < b.X:
-				return -1
-			case a.X > b.X:
-				return 1
-			}
-			return 0
-		})
+		slices.SortStableFunc(pts, func(a, b CurvePoint) int { return cmp.Compare(a.X, b.X) })
 		var line plotter.XYs
 		var upper, lower plotter.XYs
 		for _, q := range pts {
@@ -195,18 +188,27 @@ func curvesSVG(c Curves) (template.HTML, []legendItem, error) {
 		if xmin == xmax {
 			xmin, xmax = xmin-0.5, xmax+0.5
 		}
-		th, err := plotter.NewLine(plotter.XYs{{X: xmin, Y: c.Threshold}, {X: xmax, Y: c.Threshold}})
+		th, err := dashedLine(plotter.XYs{{X: xmin, Y: c.Threshold}, {X: xmax, Y: c.Threshold}}, alertColor)
 		if err != nil {
 			return "", nil, err
 		}
-		th.Color, th.Width = alertColor, vg.Points(1.1)
-		th.Dashes = []vg.Length{vg.Points(5), vg.Points(4)}
 		p.Add(th)
 		leg = append(leg, legendItem{Name: "threshold " + num(c.Threshold), Kind: "dashed", Color: cssColor(alertColor)})
 	}
 	p.X.Max += (p.X.Max - p.X.Min) * 0.03
 	svg, err := renderSVG(p, c.Title)
 	return svg, leg, err
+}
+
+// dashedLine is a thin dashed line through xys (thresholds, budgets).
+func dashedLine(xys plotter.XYs, c color.Color) (*plotter.Line, error) {
+	l, err := plotter.NewLine(xys)
+	if err != nil {
+		return nil, err
+	}
+	l.Color, l.Width = c, vg.Points(1.1)
+	l.Dashes = []vg.Length{vg.Points(5), vg.Points(4)}
+	return l, nil
 }
 
 // errPoints adapts Pareto points to plotter's XYer and YErrorer.
@@ -302,12 +304,10 @@ func paretoSVG(pa *Pareto, front []int, title string) (template.HTML, []legendIt
 			}
 			ymin, ymax = math.Min(ymin, lo), math.Max(ymax, hi)
 		}
-		bl, err := plotter.NewLine(plotter.XYs{{X: pa.Budget, Y: ymin}, {X: pa.Budget, Y: ymax}})
+		bl, err := dashedLine(plotter.XYs{{X: pa.Budget, Y: ymin}, {X: pa.Budget, Y: ymax}}, alertColor)
 		if err != nil {
 			return "", nil, err
 		}
-		bl.Color, bl.Width = alertColor, vg.Points(1.1)
-		bl.Dashes = []vg.Length{vg.Points(5), vg.Points(4)}
 		p.Add(bl)
 		leg = append(leg, legendItem{Name: "budget " + num(pa.Budget), Kind: "dashed", Color: cssColor(alertColor)})
 	}

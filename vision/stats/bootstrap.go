@@ -210,34 +210,12 @@ var ErrNotPositive = errors.New("clean score is not positive")
 // (else ErrNotPositive); a resample whose clean statistic is not positive
 // gives a ratio of +Inf, so such an interval shows Hi = +Inf honestly.
 func (b Bootstrap) Retention(stressed, clean Strata, st Statistic) (Estimate, error) {
-	B, lv, err := b.params()
-	if err != nil {
-		return Estimate{}, err
-	}
-	if err := st.valid(); err != nil {
-		return Estimate{}, err
-	}
-	if err := stressed.check("retention: stressed"); err != nil {
-		return Estimate{}, err
-	}
-	if err := clean.check("retention: clean"); err != nil {
-		return Estimate{}, err
-	}
-	nb, db := stressed.Pool(), clean.Pool()
-	den := st.inPlace(db)
-	if !(den > 0) {
-		return Estimate{}, fmt.Errorf("retention: %w (%s %.4g)", ErrNotPositive, st, den)
-	}
-	e := Estimate{Value: st.inPlace(nb) / den, Level: lv, Resamples: B}
-	theta := make([]float64, B)
-	r := patch.NewRand(b.Seed)
-	for i := range theta {
-		resample(r, stressed, nb)
-		resample(r, clean, db)
-		theta[i] = ratio(st.inPlace(nb), st.inPlace(db))
-	}
-	e.Lo, e.Hi = interval(theta, lv)
-	return e, nil
+	return b.twoSample("retention", "stressed", "clean", stressed, clean, st, ratio, func(den float64) error {
+		if !(den > 0) {
+			return fmt.Errorf("retention: %w (%s %.4g)", ErrNotPositive, st, den)
+		}
+		return nil
+	})
 }
 
 func ratio(n, d float64) float64 {
@@ -250,6 +228,16 @@ func ratio(n, d float64) float64 {
 // Diff estimates stat(x) - stat(y) with a stratified percentile bootstrap
 // interval, x and y resampled independently.
 func (b Bootstrap) Diff(x, y Strata, st Statistic) (Estimate, error) {
+	return b.twoSample("difference", "x", "y", x, y, st,
+		func(a, c float64) float64 { return a - c }, nil)
+}
+
+// twoSample estimates f(stat(x), stat(y)) with its stratified percentile
+// bootstrap interval, x and y resampled independently (x first, then y,
+// from one stream) for every resample. checkY, if not nil, vets stat(y)
+// of the full data.
+func (b Bootstrap) twoSample(what, xn, yn string, x, y Strata, st Statistic,
+	f func(sx, sy float64) float64, checkY func(float64) error) (Estimate, error) {
 	B, lv, err := b.params()
 	if err != nil {
 		return Estimate{}, err
@@ -257,20 +245,26 @@ func (b Bootstrap) Diff(x, y Strata, st Statistic) (Estimate, error) {
 	if err := st.valid(); err != nil {
 		return Estimate{}, err
 	}
-	if err := x.check("difference: x"); err != nil {
+	if err := x.check(what + ": " + xn); err != nil {
 		return Estimate{}, err
 	}
-	if err := y.check("difference: y"); err != nil {
+	if err := y.check(what + ": " + yn); err != nil {
 		return Estimate{}, err
 	}
 	xb, yb := x.Pool(), y.Pool()
-	e := Estimate{Value: st.inPlace(xb) - st.inPlace(yb), Level: lv, Resamples: B}
+	sx, sy := st.inPlace(xb), st.inPlace(yb)
+	if checkY != nil {
+		if err := checkY(sy); err != nil {
+			return Estimate{}, err
+		}
+	}
+	e := Estimate{Value: f(sx, sy), Level: lv, Resamples: B}
 	theta := make([]float64, B)
 	r := patch.NewRand(b.Seed)
 	for i := range theta {
 		resample(r, x, xb)
 		resample(r, y, yb)
-		theta[i] = st.inPlace(xb) - st.inPlace(yb)
+		theta[i] = f(st.inPlace(xb), st.inPlace(yb))
 	}
 	e.Lo, e.Hi = interval(theta, lv)
 	return e, nil

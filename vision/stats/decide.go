@@ -1,6 +1,7 @@
 package stats
 
 import (
+	"cmp"
 	"fmt"
 	"math"
 	"slices"
@@ -70,15 +71,7 @@ func BreakingPoint(levels []Level, threshold float64) (Break, error) {
 			return Break{}, fmt.Errorf("breaking point: retention at severity %v is NaN", l.Severity)
 		}
 	}
-	slices.SortStableFunc(ls, func(a, b Level) int {
-		switch {
-		case a.Severity < b.Severity:
-			return -1
-		case a.Severity > b.Severity:
-			return 1
-		}
-		return 0
-	})
+	slices.SortStableFunc(ls, func(a, b Level) int { return cmp.Compare(a.Severity, b.Severity) })
 	br := Break{Severity: math.NaN(), Threshold: threshold, Max: ls[len(ls)-1].Severity}
 	for _, l := range ls {
 		if l.Retention.Value < threshold {
