@@ -48,3 +48,26 @@ func BenchmarkForwardBackward(b *testing.B) {
 		})
 	}
 }
+
+// Act and a training step allocate nothing once the buffers exist.
+func TestNoAllocationsPerStep(t *testing.T) {
+	g := testGrid(t, 96, 96, 8)
+	for _, cfg := range []Config{{}, {Family: PosAttention, PrevAction: true, Context: 2}, {Family: MeanPool}, {Family: MLP}, {KeyHidden: 8, Value: "identity"}} {
+		n := mustNew(t, cfg, g, contSpace, 1)
+		obs := RandomObservation(g, contSpace, 2)
+		a := make([]float64, 3)
+		out := make([]float32, 3)
+		d := []float32{1, 2, 3}
+		step := func() {
+			if err := n.Act(obs, a); err != nil {
+				t.Fatal(err)
+			}
+			n.Forward(obs, out)
+			n.Backward(d)
+		}
+		step()
+		if allocs := testing.AllocsPerRun(20, step); allocs != 0 {
+			t.Errorf("%+v: %v allocations per step", cfg, allocs)
+		}
+	}
+}

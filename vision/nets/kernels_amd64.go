@@ -5,44 +5,45 @@ package nets
 import "golang.org/x/sys/cpu"
 
 // Assembly micro-kernels (kernels_amd64.s, written by asm_gen.py):
-// gemmRxW computes C (R×W) += A (R×k) · B (k×W) with AVX and FMA, leading
-// dimensions in elements.
+// gemmRxW computes C (R×W) += A (R×k) · B (k×W) with AVX and FMA, where
+// A[r][p] is at a + r·lda + p·inc: inc = 1 reads A, lda = 1 reads Aᵀ.
+// Strides are in elements.
 
 //go:noescape
-func gemm1x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm1x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm2x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm2x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm3x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm3x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm4x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm4x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm5x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm5x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm6x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm6x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm1x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm1x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm2x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm2x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm3x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm3x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm4x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm4x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm5x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm5x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 //go:noescape
-func gemm6x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
+func gemm6x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
 // expSub4 replaces each of the n values at x (n a multiple of 4) by
 // e^(x−m), as expf does, and returns their sum.
@@ -57,11 +58,10 @@ func fastKernels() kernels {
 	if !haveAVX {
 		return kernels{nn: nnBlocked, nt: ntBlocked, tn: tnBlocked}
 	}
-	return kernels{nn: nnAVX, nt: ntBlocked, tn: tnBlocked}
+	return kernels{nn: nnAVX, nt: ntBlocked, tn: tnAVX}
 }
 
-// nnAVX is C += A·B through the micro-kernels: column blocks of 16, then
-// 8, each in row blocks of up to 6; the last n mod 8 columns in Go.
+// nnAVX is C += A·B through the micro-kernels.
 func nnAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
 	if m <= 0 || n <= 0 || k <= 0 {
 		return
@@ -70,42 +70,61 @@ func nnAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32,
 	_ = a[(m-1)*lda+k-1]
 	_ = b[(k-1)*ldb+n-1]
 	_ = c[(m-1)*ldc+n-1]
+	blocks(m, k, n, a, lda, 1, b, ldb, c, ldc)
+}
+
+// tnAVX is C += Aᵀ·B (A stored k×m) through the same micro-kernels,
+// reading A down its columns.
+func tnAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
+	if m <= 0 || n <= 0 || k <= 0 {
+		return
+	}
+	_ = a[(k-1)*lda+m-1]
+	_ = b[(k-1)*ldb+n-1]
+	_ = c[(m-1)*ldc+n-1]
+	blocks(m, k, n, a, 1, lda, b, ldb, c, ldc)
+}
+
+// blocks covers C with column blocks of 16, then 8, each in row blocks of
+// up to 6, and does the last n mod 8 columns in Go. A[i][p] is
+// a[i·ra + p·pa]. The callers have checked every index.
+func blocks(m, k, n int, a []float32, ra, pa int, b []float32, ldb int, c []float32, ldc int) {
 	j := 0
 	for ; j+16 <= n; j += 16 {
 		for i := 0; i < m; i += 6 {
-			ap, bp, cp := &a[i*lda], &b[j], &c[i*ldc+j]
+			ap, bp, cp := &a[i*ra], &b[j], &c[i*ldc+j]
 			switch min(6, m-i) {
 			case 6:
-				gemm6x16(k, ap, lda, bp, ldb, cp, ldc)
+				gemm6x16(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 5:
-				gemm5x16(k, ap, lda, bp, ldb, cp, ldc)
+				gemm5x16(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 4:
-				gemm4x16(k, ap, lda, bp, ldb, cp, ldc)
+				gemm4x16(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 3:
-				gemm3x16(k, ap, lda, bp, ldb, cp, ldc)
+				gemm3x16(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 2:
-				gemm2x16(k, ap, lda, bp, ldb, cp, ldc)
+				gemm2x16(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 1:
-				gemm1x16(k, ap, lda, bp, ldb, cp, ldc)
+				gemm1x16(k, ap, ra, pa, bp, ldb, cp, ldc)
 			}
 		}
 	}
 	for ; j+8 <= n; j += 8 {
 		for i := 0; i < m; i += 6 {
-			ap, bp, cp := &a[i*lda], &b[j], &c[i*ldc+j]
+			ap, bp, cp := &a[i*ra], &b[j], &c[i*ldc+j]
 			switch min(6, m-i) {
 			case 6:
-				gemm6x8(k, ap, lda, bp, ldb, cp, ldc)
+				gemm6x8(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 5:
-				gemm5x8(k, ap, lda, bp, ldb, cp, ldc)
+				gemm5x8(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 4:
-				gemm4x8(k, ap, lda, bp, ldb, cp, ldc)
+				gemm4x8(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 3:
-				gemm3x8(k, ap, lda, bp, ldb, cp, ldc)
+				gemm3x8(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 2:
-				gemm2x8(k, ap, lda, bp, ldb, cp, ldc)
+				gemm2x8(k, ap, ra, pa, bp, ldb, cp, ldc)
 			case 1:
-				gemm1x8(k, ap, lda, bp, ldb, cp, ldc)
+				gemm1x8(k, ap, ra, pa, bp, ldb, cp, ldc)
 			}
 		}
 	}
@@ -113,7 +132,7 @@ func nnAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32,
 		for i := 0; i < m; i++ {
 			crow := c[i*ldc+j : i*ldc+n]
 			for p := 0; p < k; p++ {
-				av := a[i*lda+p]
+				av := a[i*ra+p*pa]
 				brow := b[p*ldb+j : p*ldb+n]
 				for q, bv := range brow {
 					crow[q] += av * bv

@@ -4,18 +4,20 @@
 
 #include "textflag.h"
 
-// func gemm1x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm1x16(SB), NOSPLIT, $0-56
+// func gemm1x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm1x16(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	VMOVUPS 32(AX), Y1
@@ -28,7 +30,7 @@ gemm1x16_loop:
 	VBROADCASTSS (SI)(AX*1), Y14
 	VFMADD231PS Y12, Y14, Y0
 	VFMADD231PS Y13, Y14, Y1
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm1x16_loop
@@ -39,19 +41,21 @@ gemm1x16_store:
 	VZEROUPPER
 	RET
 
-// func gemm2x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm2x16(SB), NOSPLIT, $0-56
+// func gemm2x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm2x16(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
 	LEAQ (SI)(R8*1), R11
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	VMOVUPS 32(AX), Y1
@@ -70,7 +74,7 @@ gemm2x16_loop:
 	VBROADCASTSS (R11)(AX*1), Y15
 	VFMADD231PS Y12, Y15, Y2
 	VFMADD231PS Y13, Y15, Y3
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm2x16_loop
@@ -84,20 +88,22 @@ gemm2x16_store:
 	VZEROUPPER
 	RET
 
-// func gemm3x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm3x16(SB), NOSPLIT, $0-56
+// func gemm3x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm3x16(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
 	LEAQ (SI)(R8*1), R11
 	LEAQ (R11)(R8*1), R12
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	VMOVUPS 32(AX), Y1
@@ -122,7 +128,7 @@ gemm3x16_loop:
 	VBROADCASTSS (R12)(AX*1), Y14
 	VFMADD231PS Y12, Y14, Y4
 	VFMADD231PS Y13, Y14, Y5
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm3x16_loop
@@ -139,21 +145,23 @@ gemm3x16_store:
 	VZEROUPPER
 	RET
 
-// func gemm4x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm4x16(SB), NOSPLIT, $0-56
+// func gemm4x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm4x16(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
 	LEAQ (SI)(R8*1), R11
 	LEAQ (R11)(R8*1), R12
 	LEAQ (R12)(R8*1), R13
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	VMOVUPS 32(AX), Y1
@@ -184,7 +192,7 @@ gemm4x16_loop:
 	VBROADCASTSS (R13)(AX*1), Y15
 	VFMADD231PS Y12, Y15, Y6
 	VFMADD231PS Y13, Y15, Y7
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm4x16_loop
@@ -204,15 +212,15 @@ gemm4x16_store:
 	VZEROUPPER
 	RET
 
-// func gemm5x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm5x16(SB), NOSPLIT, $0-56
+// func gemm5x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm5x16(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
@@ -220,6 +228,8 @@ TEXT ·gemm5x16(SB), NOSPLIT, $0-56
 	LEAQ (R11)(R8*1), R12
 	LEAQ (R12)(R8*1), R13
 	LEAQ (R13)(R8*1), R14
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	VMOVUPS 32(AX), Y1
@@ -256,7 +266,7 @@ gemm5x16_loop:
 	VBROADCASTSS (R14)(AX*1), Y14
 	VFMADD231PS Y12, Y14, Y8
 	VFMADD231PS Y13, Y14, Y9
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm5x16_loop
@@ -279,15 +289,15 @@ gemm5x16_store:
 	VZEROUPPER
 	RET
 
-// func gemm6x16(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm6x16(SB), NOSPLIT, $0-56
+// func gemm6x16(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm6x16(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
@@ -296,6 +306,8 @@ TEXT ·gemm6x16(SB), NOSPLIT, $0-56
 	LEAQ (R12)(R8*1), R13
 	LEAQ (R13)(R8*1), R14
 	LEAQ (R14)(R8*1), BX
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	VMOVUPS 32(AX), Y1
@@ -338,7 +350,7 @@ gemm6x16_loop:
 	VBROADCASTSS (BX)(AX*1), Y15
 	VFMADD231PS Y12, Y15, Y10
 	VFMADD231PS Y13, Y15, Y11
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm6x16_loop
@@ -364,18 +376,20 @@ gemm6x16_store:
 	VZEROUPPER
 	RET
 
-// func gemm1x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm1x8(SB), NOSPLIT, $0-56
+// func gemm1x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm1x8(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	XORQ AX, AX
@@ -385,7 +399,7 @@ gemm1x8_loop:
 	VMOVUPS 0(DI), Y12
 	VBROADCASTSS (SI)(AX*1), Y14
 	VFMADD231PS Y12, Y14, Y0
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm1x8_loop
@@ -395,19 +409,21 @@ gemm1x8_store:
 	VZEROUPPER
 	RET
 
-// func gemm2x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm2x8(SB), NOSPLIT, $0-56
+// func gemm2x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm2x8(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
 	LEAQ (SI)(R8*1), R11
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	ADDQ R10, AX
@@ -421,7 +437,7 @@ gemm2x8_loop:
 	VFMADD231PS Y12, Y14, Y0
 	VBROADCASTSS (R11)(AX*1), Y15
 	VFMADD231PS Y12, Y15, Y1
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm2x8_loop
@@ -433,20 +449,22 @@ gemm2x8_store:
 	VZEROUPPER
 	RET
 
-// func gemm3x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm3x8(SB), NOSPLIT, $0-56
+// func gemm3x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm3x8(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
 	LEAQ (SI)(R8*1), R11
 	LEAQ (R11)(R8*1), R12
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	ADDQ R10, AX
@@ -464,7 +482,7 @@ gemm3x8_loop:
 	VFMADD231PS Y12, Y15, Y1
 	VBROADCASTSS (R12)(AX*1), Y14
 	VFMADD231PS Y12, Y14, Y2
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm3x8_loop
@@ -478,21 +496,23 @@ gemm3x8_store:
 	VZEROUPPER
 	RET
 
-// func gemm4x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm4x8(SB), NOSPLIT, $0-56
+// func gemm4x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm4x8(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
 	LEAQ (SI)(R8*1), R11
 	LEAQ (R11)(R8*1), R12
 	LEAQ (R12)(R8*1), R13
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	ADDQ R10, AX
@@ -514,7 +534,7 @@ gemm4x8_loop:
 	VFMADD231PS Y12, Y14, Y2
 	VBROADCASTSS (R13)(AX*1), Y15
 	VFMADD231PS Y12, Y15, Y3
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm4x8_loop
@@ -530,15 +550,15 @@ gemm4x8_store:
 	VZEROUPPER
 	RET
 
-// func gemm5x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm5x8(SB), NOSPLIT, $0-56
+// func gemm5x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm5x8(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
@@ -546,6 +566,8 @@ TEXT ·gemm5x8(SB), NOSPLIT, $0-56
 	LEAQ (R11)(R8*1), R12
 	LEAQ (R12)(R8*1), R13
 	LEAQ (R13)(R8*1), R14
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	ADDQ R10, AX
@@ -571,7 +593,7 @@ gemm5x8_loop:
 	VFMADD231PS Y12, Y15, Y3
 	VBROADCASTSS (R14)(AX*1), Y14
 	VFMADD231PS Y12, Y14, Y4
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm5x8_loop
@@ -589,15 +611,15 @@ gemm5x8_store:
 	VZEROUPPER
 	RET
 
-// func gemm6x8(k int, a *float32, lda int, b *float32, ldb int, c *float32, ldc int)
-TEXT ·gemm6x8(SB), NOSPLIT, $0-56
+// func gemm6x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
+TEXT ·gemm6x8(SB), NOSPLIT, $0-64
 	MOVQ k+0(FP), CX
 	MOVQ a+8(FP), SI
 	MOVQ lda+16(FP), R8
-	MOVQ b+24(FP), DI
-	MOVQ ldb+32(FP), R9
-	MOVQ c+40(FP), DX
-	MOVQ ldc+48(FP), R10
+	MOVQ b+32(FP), DI
+	MOVQ ldb+40(FP), R9
+	MOVQ c+48(FP), DX
+	MOVQ ldc+56(FP), R10
 	SHLQ $2, R8
 	SHLQ $2, R9
 	SHLQ $2, R10
@@ -606,6 +628,8 @@ TEXT ·gemm6x8(SB), NOSPLIT, $0-56
 	LEAQ (R12)(R8*1), R13
 	LEAQ (R13)(R8*1), R14
 	LEAQ (R14)(R8*1), BX
+	MOVQ inc+24(FP), R8
+	SHLQ $2, R8
 	MOVQ DX, AX
 	VMOVUPS 0(AX), Y0
 	ADDQ R10, AX
@@ -635,7 +659,7 @@ gemm6x8_loop:
 	VFMADD231PS Y12, Y14, Y4
 	VBROADCASTSS (BX)(AX*1), Y15
 	VFMADD231PS Y12, Y15, Y5
-	ADDQ $4, AX
+	ADDQ R8, AX
 	ADDQ R9, DI
 	DECQ CX
 	JNZ gemm6x8_loop
