@@ -177,31 +177,23 @@ func (s *pixSource) row(dst []float32, x, y, n, C int) {
 	switch s.kind {
 	case kindRGBA:
 		off := y*s.stride + 4*x
-		p := s.pix[off : off+4*n]
-		if C == 3 {
+		if p := s.pix[off : off+4*n]; C == 3 {
 			rgbaRow3(dst, p)
 		} else {
 			rgbaRow1(dst, p)
 		}
 	case kindGray:
 		off := y*s.stride + x
-		p := s.pix[off : off+n]
-		if C == 3 {
+		if p := s.pix[off : off+n]; C == 3 {
 			grayRow3(dst, p)
 		} else {
 			grayRow1(dst, p)
 		}
 	case kindPaletted:
 		off := y*s.stride + x
-		p := s.pix[off : off+n]
-		for i, ix := range p {
+		for i, ix := range s.pix[off : off+n] {
 			c := &s.pal[ix]
-			if C == 3 {
-				d := dst[3*i : 3*i+3 : 3*i+3]
-				d[0], d[1], d[2] = unit[c[0]], unit[c[1]], unit[c[2]]
-			} else {
-				dst[i] = luma(c[0], c[1], c[2])
-			}
+			putRGB(dst, i, C, c[0], c[1], c[2])
 		}
 	case kindYCbCr:
 		im := s.ycc
@@ -209,13 +201,18 @@ func (s *pixSource) row(dst []float32, x, y, n, C int) {
 			px, py := s.minX+x+i, s.minY+y
 			yi, ci := im.YOffset(px, py), im.COffset(px, py)
 			r, g, b := color.YCbCrToRGB(im.Y[yi], im.Cb[ci], im.Cr[ci])
-			if C == 3 {
-				d := dst[3*i : 3*i+3 : 3*i+3]
-				d[0], d[1], d[2] = unit[r], unit[g], unit[b]
-			} else {
-				dst[i] = luma(r, g, b)
-			}
+			putRGB(dst, i, C, r, g, b)
 		}
+	}
+}
+
+// putRGB stores pixel i of a row: three values, or the luma for C = 1.
+func putRGB(dst []float32, i, C int, r, g, b uint8) {
+	if C == 3 {
+		d := dst[3*i : 3*i+3 : 3*i+3]
+		d[0], d[1], d[2] = unit[r], unit[g], unit[b]
+	} else {
+		dst[i] = luma(r, g, b)
 	}
 }
 

@@ -5,6 +5,7 @@ import (
 	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
+	"fmt"
 	"image"
 	"image/color"
 	"image/png"
@@ -662,5 +663,69 @@ func TestApplyErrorsAndAllocs(t *testing.T) {
 	})
 	if n != 0 {
 		t.Fatalf("Apply allocates %v times a step", n)
+	}
+}
+
+// Schedule: Every 0 keeps one permutation for the whole sequence; Every T
+// changes it exactly at multiples of T (with 24 cells a repeat by chance
+// is negligible).
+func TestScrambleSchedule(t *testing.T) {
+	g := mustGrid(t, GridConfig{Width: 24, Height: 16, PatchW: 4, Channels: 1})
+	_, _, src := tokensOf(t, g, 1)
+	for _, every := range []int{0, 1, 3} {
+		p := mustPipe(t, g, Spec{Scramble: "full", Every: every, Rotate: true})
+		p.Reset(4)
+		dst := NewTokenSet(p.Capacity(), g.D())
+		var rec FrameRecord
+		prev := ""
+		for step := 0; step < 12; step++ {
+			if err := p.Apply(step, src, dst, &rec); err != nil {
+				t.Fatal(err)
+			}
+			cur := fmt.Sprint(rec.Perm, rec.Orient)
+			changed := step > 0 && cur != prev
+			want := every > 0 && step > 0 && step%every == 0
+			if changed != want {
+				t.Fatalf("every %d step %d: changed %v, want %v", every, step, changed, want)
+			}
+			if wantE := map[bool]int{true: 0, false: step / max(every, 1)}[every == 0]; rec.Epoch != wantE {
+				t.Fatalf("every %d step %d: epoch %d, want %d", every, step, rec.Epoch, wantE)
+			}
+			prev = cur
+		}
+	}
+}
+
+// Rotations: a turned 2×2 token holds its source's pixels in the turned
+// order (clockwise quarter turn: top-left ← bottom-left).
+func TestRotationLayout(t *testing.T) {
+	g := mustGrid(t, GridConfig{Width: 2, Height: 2, PatchW: 2, Channels: 1})
+	src := NewTokenSet(1, 4)
+	src.N, src.Pos[0] = 1, Pos{}
+	copy(src.Data, []float32{0.1, 0.2, 0.3, 0.4}) // a b / c d
+	want := map[int][]float32{
+		0: {0.1, 0.2, 0.3, 0.4},
+		1: {0.3, 0.1, 0.4, 0.2}, // c a / d b
+		2: {0.4, 0.3, 0.2, 0.1},
+		3: {0.2, 0.4, 0.1, 0.3},
+		4: {0.2, 0.1, 0.4, 0.3}, // mirrored: b a / d c
+	}
+	p := mustPipe(t, g, Spec{Rotate: true, Flip: true, Every: 1})
+	p.Reset(1)
+	dst := NewTokenSet(p.Capacity(), 4)
+	var rec FrameRecord
+	seen := map[int]bool{}
+	for step := 0; step < 200; step++ {
+		if err := p.Apply(step, src, dst, &rec); err != nil {
+			t.Fatal(err)
+		}
+		o := rec.Orient[0]
+		seen[o] = true
+		if w, ok := want[o]; ok && !equalF32(dst.Data[:4], w) {
+			t.Fatalf("orientation %d gave %v, want %v", o, dst.Data[:4], w)
+		}
+	}
+	if len(seen) != 8 {
+		t.Fatalf("saw orientations %v, want all 8", seen)
 	}
 }

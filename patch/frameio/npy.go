@@ -447,19 +447,29 @@ func (n *NPYReader) ReadFrame(dst *image.RGBA) error {
 		if _, err := io.ReadFull(n.r, row); err != nil {
 			return fmt.Errorf("%s: frame %d of %d: %w", n.name, n.next, s.Frames, noEOF(err))
 		}
-		out := dst.Pix[y*dst.Stride : y*dst.Stride+s.Width*4]
-		if s.Channels == 3 {
-			for x, o := 0, 0; x+2 < len(row); x, o = x+3, o+4 {
-				out[o], out[o+1], out[o+2], out[o+3] = row[x], row[x+1], row[x+2], 0xff
-			}
-		} else {
-			for x, v := range row {
-				out[4*x], out[4*x+1], out[4*x+2], out[4*x+3] = v, v, v, 0xff
-			}
-		}
+		o := dst.PixOffset(dst.Rect.Min.X, dst.Rect.Min.Y+y)
+		expandRow(dst.Pix[o:o+4*s.Width], row, s.Channels)
 	}
 	n.next++
 	return nil
+}
+
+// expandRow turns one row of RGB (c 3) or grey (c 1) bytes into opaque
+// RGBA bytes.
+func expandRow(out, row []byte, c int) {
+	if c == 3 {
+		n := len(out) / 4
+		row = row[:3*n]
+		for x := 0; x < n; x++ {
+			s := row[3*x : 3*x+3 : 3*x+3]
+			binary.LittleEndian.PutUint32(out[4*x:], uint32(s[0])|uint32(s[1])<<8|uint32(s[2])<<16|0xff<<24)
+		}
+		return
+	}
+	for x := 0; x < len(out)/4; x++ {
+		v := uint32(row[x])
+		binary.LittleEndian.PutUint32(out[4*x:], v|v<<8|v<<16|0xff<<24)
+	}
 }
 
 // Close closes the underlying file if the reader was opened by Open.

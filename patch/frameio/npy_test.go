@@ -388,3 +388,15 @@ func BenchmarkNPYRead96(b *testing.B) {
 		k++
 	}
 }
+
+// BenchmarkNPYCopyBaseline is the yardstick for the .npy benchmarks: a
+// plain copy of one frame's RGBA bytes, in the same run.
+func BenchmarkNPYCopyBaseline(b *testing.B) {
+	src := patternFrames(1, 96, 96, 3)[0].Pix
+	dst := make([]byte, len(src))
+	b.SetBytes(96 * 96 * 3)
+	b.ReportAllocs()
+	for b.Loop() {
+		copy(dst, src)
+	}
+}
