@@ -2,7 +2,11 @@
 
 package nets
 
-import "golang.org/x/sys/cpu"
+import (
+	"sync"
+
+	"golang.org/x/sys/cpu"
+)
 
 // Assembly micro-kernels (kernels_amd64.s, written by asm_gen.py):
 // gemmRxW computes C (R×W) += A (R×k) · B (k×W) with AVX and FMA, where
@@ -58,7 +62,7 @@ func fastKernels() kernels {
 	if !haveAVX {
 		return kernels{nn: nnBlocked, nt: ntBlocked, tn: tnBlocked}
 	}
-	return kernels{nn: nnAVX, nt: ntBlocked, tn: tnAVX}
+	return kernels{nn: nnAVX, nt: ntAVX, tn: tnAVX}
 }
 
 // nnAVX is C += A·B through the micro-kernels.
@@ -83,6 +87,35 @@ func tnAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32,
 	_ = b[(k-1)*ldb+n-1]
 	_ = c[(m-1)*ldc+n-1]
 	blocks(m, k, n, a, 1, lda, b, ldb, c, ldc)
+}
+
+// scratch holds transposed matrices for ntAVX; a pool, since nets on
+// different goroutines share the kernels.
+var scratch = sync.Pool{New: func() any { return new([]float32) }}
+
+// ntAVX is C += A·Bᵀ (B stored n×k): B is transposed into scratch memory
+// so that the product runs in the micro-kernels. For fewer than 4 rows the
+// transposition costs more than it saves, and the blocked Go loop runs.
+func ntAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
+	if m < 4 || n < 8 {
+		ntBlocked(m, k, n, a, lda, b, ldb, c, ldc)
+		return
+	}
+	if k <= 0 {
+		return
+	}
+	_ = b[(n-1)*ldb+k-1]
+	bp := scratch.Get().(*[]float32)
+	bt := grow(*bp, k*n)
+	for j := 0; j < n; j++ {
+		row := b[j*ldb : j*ldb+k]
+		for p, v := range row {
+			bt[p*n+j] = v
+		}
+	}
+	nnAVX(m, k, n, a, lda, bt, n, c, ldc)
+	*bp = bt
+	scratch.Put(bp)
 }
 
 // blocks covers C with column blocks of 16, then 8, each in row blocks of
