@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"math/rand/v2"
 	"slices"
 
 	"tilebench/patch"
@@ -111,8 +112,9 @@ func interval(theta []float64, level float64) (lo, hi float64) {
 }
 
 // resample fills buf (len s.N()) with one stratified resample of s: each
-// stratum of size m contributes m draws with replacement from itself.
-func resample(r interface{ IntN(int) int }, s Strata, buf []float64) {
+// stratum of size m contributes m draws with replacement from itself (the
+// same draws as sampler.draw, as values).
+func resample(r *rand.Rand, s Strata, buf []float64) {
 	o := 0
 	for _, x := range s {
 		m := len(x)
@@ -140,13 +142,13 @@ func (b Bootstrap) CI(s Strata, st Statistic) (Estimate, error) {
 	if err := s.check("bootstrap"); err != nil {
 		return Estimate{}, err
 	}
-	buf := s.Pool()
-	e := Estimate{Value: st.inPlace(buf), Level: lv, Resamples: B}
+	e := Estimate{Value: st.inPlace(s.Pool()), Level: lv, Resamples: B}
+	sp := newSampler(s)
 	theta := make([]float64, B)
 	r := patch.NewRand(b.Seed)
 	for i := range theta {
-		resample(r, s, buf)
-		theta[i] = st.inPlace(buf)
+		sp.draw(r)
+		theta[i] = sp.stat(st)
 	}
 	e.Lo, e.Hi = interval(theta, lv)
 	return e, nil
@@ -185,13 +187,11 @@ func (b Bootstrap) Summarize(s Strata) (Summary, error) {
 	sum.IQM = est(iqmSorted(buf))
 	th := make([]float64, 3*B)
 	tMean, tMed, tIQM := th[:B], th[B:2*B], th[2*B:]
+	sp := newSampler(s)
 	r := patch.NewRand(b.Seed)
 	for i := 0; i < B; i++ {
-		resample(r, s, buf)
-		slices.Sort(buf)
-		tMean[i] = Mean(buf)
-		tMed[i] = medianSorted(buf)
-		tIQM[i] = iqmSorted(buf)
+		sp.draw(r)
+		tMean[i], tMed[i], tIQM[i] = sp.mean(), sp.median(), sp.iqm()
 	}
 	sum.Mean.Lo, sum.Mean.Hi = interval(tMean, lv)
 	sum.Median.Lo, sum.Median.Hi = interval(tMed, lv)
@@ -251,20 +251,20 @@ func (b Bootstrap) twoSample(what, xn, yn string, x, y Strata, st Statistic,
 	if err := y.check(what + ": " + yn); err != nil {
 		return Estimate{}, err
 	}
-	xb, yb := x.Pool(), y.Pool()
-	sx, sy := st.inPlace(xb), st.inPlace(yb)
+	sx, sy := st.inPlace(x.Pool()), st.inPlace(y.Pool())
 	if checkY != nil {
 		if err := checkY(sy); err != nil {
 			return Estimate{}, err
 		}
 	}
 	e := Estimate{Value: f(sx, sy), Level: lv, Resamples: B}
+	spx, spy := newSampler(x), newSampler(y)
 	theta := make([]float64, B)
 	r := patch.NewRand(b.Seed)
 	for i := range theta {
-		resample(r, x, xb)
-		resample(r, y, yb)
-		theta[i] = f(st.inPlace(xb), st.inPlace(yb))
+		spx.draw(r)
+		spy.draw(r)
+		theta[i] = f(spx.stat(st), spy.stat(st))
 	}
 	e.Lo, e.Hi = interval(theta, lv)
 	return e, nil
