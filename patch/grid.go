@@ -112,7 +112,23 @@ func NewGrid(cfg GridConfig) (*Grid, error) {
 	if g.Rows, g.OutH, err = axis(cfg.Height, cfg.PatchH, cfg.StrideY, cfg.Edge, "height"); err != nil {
 		return nil, err
 	}
+	if g.Cols > maxCells || g.Rows > maxCells {
+		return nil, fmt.Errorf("grid of %dx%d cells: at most %d along each axis", g.Cols, g.Rows, maxCells)
+	}
 	return g, nil
+}
+
+// maxCells is the most cells along one axis (Pos holds int16).
+const maxCells = 1<<15 - 1
+
+// Covered returns the grid for frames of the covered size OutW×OutH (the
+// padded or cropped frames that Assemble draws), with the same patches,
+// stride and channels and edge strict: it has the same cells as g, so a
+// frame exported at the covered size tokenizes back onto g's cells.
+func (g *Grid) Covered() *Grid {
+	c := *g
+	c.Width, c.Height, c.Edge = g.OutW, g.OutH, EdgeStrict
+	return &c
 }
 
 // axis resolves one dimension: the number of cells and the covered length.

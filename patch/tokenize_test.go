@@ -241,3 +241,30 @@ func TestTokenizeNoAllocs(t *testing.T) {
 		t.Errorf("Assemble: %v allocations", n)
 	}
 }
+
+func TestCoveredGrid(t *testing.T) {
+	for _, cfg := range []GridConfig{
+		{Width: 30, Height: 22, PatchW: 6},
+		{Width: 30, Height: 22, PatchW: 6, Edge: EdgeCrop},
+		{Width: 31, Height: 20, PatchW: 5, PatchH: 4, StrideX: 3, StrideY: 2},
+	} {
+		g := mustGrid(t, cfg)
+		c := g.Covered()
+		if c.Cols != g.Cols || c.Rows != g.Rows || c.OutW != g.OutW || c.OutH != g.OutH || c.Width != g.OutW {
+			t.Fatalf("%v covered as %v", g, c)
+		}
+	}
+	if _, err := NewGrid(GridConfig{Width: 40000, Height: 2, PatchW: 1}); err == nil {
+		t.Fatal("40000 columns accepted")
+	}
+}
+
+// Covered agrees with NewGrid on the covered size.
+func TestCoveredMatchesNewGrid(t *testing.T) {
+	g := mustGrid(t, GridConfig{Width: 31, Height: 20, PatchW: 5, PatchH: 4, StrideX: 3, StrideY: 2, Fill: 0.5})
+	c := g.Covered()
+	n, err := NewGrid(c.GridConfig)
+	if err != nil || *n != *c {
+		t.Fatalf("covered %v, NewGrid %v (%v)", c, n, err)
+	}
+}
