@@ -14,7 +14,7 @@ Rounds alternate Go and torch so that both see the same machine load; the
 ratio of each round is Go time / torch time, and the script prints every
 round and the median ratio. Usage:
 
-    /usr/bin/python3 testdata/ref/nets_speed.py [--rounds 7] [--steps 3000] [--json]
+    /usr/bin/python3 testdata/ref/nets_speed.py [--rounds 11] [--steps 3000] [--json]
 
 Only Debian packages: python3-torch (and the Go toolchain for the
 benchmark).
@@ -104,7 +104,7 @@ def time_go(binary, steps):
 
 def main():
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--rounds", type=int, default=7)
+    ap.add_argument("--rounds", type=int, default=11)
     ap.add_argument("--steps", type=int, default=3000)
     ap.add_argument("--json", action="store_true")
     args = ap.parse_args()

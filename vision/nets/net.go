@@ -299,6 +299,9 @@ func (in *inputs) build(obs *vision.Observation, g *patch.Grid) ([]float32, int,
 	if ts.D != in.d {
 		return nil, 0, 0, fmt.Errorf("tokens have %d values, the policy was built for %d (patch %dx%d, %d channels)", ts.D, in.d, g.PatchW, g.PatchH, g.Channels)
 	}
+	if og := obs.Grid; og != nil && og != g && (og.Cols != g.Cols || og.Rows != g.Rows) {
+		return nil, 0, 0, fmt.Errorf("tokens were cut on a grid of %dx%d cells, the policy was built for %dx%d (%s)", og.Cols, og.Rows, g.Cols, g.Rows, g)
+	}
 	if n < 0 || len(ts.Data) < n*ts.D || len(ts.Pos) < n {
 		return nil, 0, 0, fmt.Errorf("token set claims %d tokens but holds %d values and %d positions", n, len(ts.Data), len(ts.Pos))
 	}

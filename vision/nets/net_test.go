@@ -276,6 +276,14 @@ func TestNewRejectsBadConfigs(t *testing.T) {
 	if err := n.Act(obs, make([]float64, 3)); err == nil || !strings.Contains(err.Error(), "values") {
 		t.Errorf("tokens of the wrong size: error %v", err)
 	}
+	obs = randomObs(testGrid(t, 64, 32, 8), 1, 3)
+	obs.Tokens.N = g.N()
+	if err := n.Act(obs, make([]float64, 3)); err == nil || !strings.Contains(err.Error(), "grid of 8x4 cells") {
+		t.Errorf("tokens of another grid: error %v", err)
+	}
+	if err := n.Act(&vision.Observation{}, make([]float64, 3)); err == nil {
+		t.Error("observation without tokens accepted")
+	}
 }
 
 // Same seed, same parameters; Clone acts the same; Params aliases.
