@@ -458,17 +458,17 @@ func (n *NPYReader) ReadFrame(dst *image.RGBA) error {
 // RGBA bytes.
 func expandRow(out, row []byte, c int) {
 	if c == 3 {
-		n := len(out) / 4
-		row = row[:3*n]
-		for x := 0; x < n; x++ {
+		for x := 0; x < len(out)/4; x++ {
 			s := row[3*x : 3*x+3 : 3*x+3]
-			binary.LittleEndian.PutUint32(out[4*x:], uint32(s[0])|uint32(s[1])<<8|uint32(s[2])<<16|0xff<<24)
+			d := out[4*x : 4*x+4 : 4*x+4]
+			d[0], d[1], d[2], d[3] = s[0], s[1], s[2], 0xff
 		}
 		return
 	}
 	for x := 0; x < len(out)/4; x++ {
-		v := uint32(row[x])
-		binary.LittleEndian.PutUint32(out[4*x:], v|v<<8|v<<16|0xff<<24)
+		v := row[x]
+		d := out[4*x : 4*x+4 : 4*x+4]
+		d[0], d[1], d[2], d[3] = v, v, v, 0xff
 	}
 }
 
