@@ -1,0 +1,126 @@
+package main
+
+import (
+	"encoding/json"
+	"image/gif"
+	"image/png"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+func TestPlayExpertLines(t *testing.T) {
+	code, out, errs := runCLI(t, "", "play", "--game", "drive", "--episodes", "2")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	lines := strings.Split(strings.TrimSpace(out), "\n")
+	if len(lines) < 4 {
+		t.Fatalf("output:\n%s", out)
+	}
+	for i, want := range []string{"seed 1000000", "seed 1000001"} {
+		if !strings.Contains(lines[i], want) || !strings.Contains(lines[i], "completed") {
+			t.Errorf("line %d %q: want %s and completed", i, lines[i], want)
+		}
+	}
+	if !strings.Contains(out, "2 episodes: mean return") || !strings.Contains(out, "caution:") {
+		t.Errorf("no summary or caution:\n%s", out)
+	}
+}
+
+func TestPlayJSONAndDeterminism(t *testing.T) {
+	args := []string{"play", "--game", "paddle", "--episodes", "3", "--seed", "42", "--variation", "drifter", "--json"}
+	code, out, errs := runCLI(t, "", args...)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	var s playSummary
+	if err := json.Unmarshal([]byte(out), &s); err != nil {
+		t.Fatal(err)
+	}
+	if s.Format != 1 || s.Game != "paddle" || s.Variation != "drifter" || !s.ReadsState || len(s.Episodes) != 3 {
+		t.Fatalf("summary %+v", s)
+	}
+	for i, e := range s.Episodes {
+		if e.Seed != 42+uint64(i) || e.Steps == 0 || e.Reason == "" {
+			t.Errorf("episode %d: %+v", i, e)
+		}
+	}
+	// The same command gives the same episodes.
+	_, out2, _ := runCLI(t, "", args...)
+	var s2 playSummary
+	if err := json.Unmarshal([]byte(out2), &s2); err != nil {
+		t.Fatal(err)
+	}
+	for i := range s.Episodes {
+		if s.Episodes[i] != s2.Episodes[i] {
+			t.Errorf("episode %d: %+v then %+v", i, s.Episodes[i], s2.Episodes[i])
+		}
+	}
+}
+
+func TestPlayRecordsFrames(t *testing.T) {
+	dir := t.TempDir()
+	gifPath := filepath.Join(dir, "play.gif")
+	frames := filepath.Join(dir, "frames")
+	code, out, errs := runCLI(t, "", "play", "--game", "drive", "--variation", "small", "--episodes", "1", "--gif", gifPath, "--frames", frames, "--json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	var s playSummary
+	if err := json.Unmarshal([]byte(out), &s); err != nil {
+		t.Fatal(err)
+	}
+	steps := s.Episodes[0].Steps
+	f, err := os.Open(gifPath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	an, err := gif.DecodeAll(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(an.Image) != steps || an.Image[0].Bounds().Dx() != 64 {
+		t.Fatalf("GIF has %d frames of %v, want %d of 64 wide", len(an.Image), an.Image[0].Bounds(), steps)
+	}
+	pngs, _ := filepath.Glob(filepath.Join(frames, "episode-001", "frame-*.png"))
+	if len(pngs) != steps {
+		t.Fatalf("%d PNG frames, want %d", len(pngs), steps)
+	}
+	pf, err := os.Open(pngs[len(pngs)/2])
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer pf.Close()
+	img, err := png.Decode(pf)
+	if err != nil || img.Bounds().Dx() != 64 || img.Bounds().Dy() != 64 {
+		t.Fatalf("PNG frame: %v %v", err, img)
+	}
+}
+
+func TestPlayBadInput(t *testing.T) {
+	for _, args := range [][]string{
+		{"play"},
+		{"play", "--game", "chess"},
+		{"play", "--game", "drive", "--policy", "oracle"},
+		{"play", "--game", "drive", "--episodes", "0"},
+		{"play", "--game", "drive", "--variation", "meadow"},
+		{"play", "--game", "paddle", "--size", "96x96"},
+		{"play", "--game", "paddle", "--patch", "100"},
+		{"play", "--game", "drive", "--size", "bad"},
+		{"play", "--game", "drive", "--fps", "0"},
+		{"play", "--game", "drive", "extra"},
+		{"play", "--game", "drive", "--episodes", "x"},
+	} {
+		code, _, errs := runCLI(t, "", args...)
+		if code != 2 || strings.Count(errs, "\n") != 1 {
+			t.Errorf("%v: exit %d, stderr %q; want 2 and one line", args, code, errs)
+		}
+	}
+	code, out, _ := runCLI(t, "", "play", "-help")
+	if code != 0 || !strings.Contains(out, "--game drive") || !strings.Contains(out, "-variation") {
+		t.Errorf("help: exit %d\n%s", code, out)
+	}
+}
