@@ -313,9 +313,7 @@ func (r *RawReader) Next() (*image.RGBA, error) {
 	case err != nil:
 		return nil, fmt.Errorf("%s: frame %d: %w", r.name, r.n, err)
 	}
-	for i, o := 0, 0; i < len(r.buf); i, o = i+3, o+4 {
-		r.frame.Pix[o], r.frame.Pix[o+1], r.frame.Pix[o+2], r.frame.Pix[o+3] = r.buf[i], r.buf[i+1], r.buf[i+2], 0xff
-	}
+	expandRow(r.frame.Pix, r.buf, 3) // both are whole frames, rows back to back
 	r.n++
 	return r.frame, nil
 }
