@@ -104,6 +104,20 @@ func TestRefChromium(t *testing.T) {
 	}
 }
 
+// The hostile report (every user string an attack) renders without any
+// injected script running.
+func TestRefChromiumHostile(t *testing.T) {
+	needChromium(t)
+	dir := t.TempDir()
+	if err := Write(dir, hostileData()); err != nil {
+		t.Fatal(err)
+	}
+	shot := filepath.Join(artifactDir(t), "report-hostile-screenshot.png")
+	if console := renderChromium(t, filepath.Join(dir, HTMLFile), shot); len(console) > 0 {
+		t.Errorf("console messages while rendering the hostile report:\n%s", strings.Join(console, "\n"))
+	}
+}
+
 // The console check can fail: a page with a script error is caught.
 func TestRefChromiumCatchesErrors(t *testing.T) {
 	needChromium(t)

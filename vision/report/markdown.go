@@ -7,11 +7,13 @@ import (
 )
 
 // mdEscaper makes a user string safe inside Markdown text and table cells:
-// characters with Markdown meaning get a backslash, raw HTML is defused,
-// and line breaks become spaces (a cell is one line).
+// characters with Markdown meaning, and the < > & that would start raw
+// HTML or an entity, get a backslash (CommonMark lets any ASCII
+// punctuation be escaped so), and line breaks become spaces (a cell is one
+// line).
 var mdEscaper = strings.NewReplacer(
 	`\`, `\\`, "`", "\\`", "*", `\*`, "_", `\_`, "[", `\[`, "]", `\]`,
-	"|", `\|`, "#", `\#`, "<", "&lt;", ">", "&gt;", "&", "&amp;",
+	"|", `\|`, "#", `\#`, "<", `\<`, ">", `\>`, "&", `\&`,
 	"\r\n", " ", "\n", " ", "\r", " ",
 )
 

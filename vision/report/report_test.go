@@ -49,7 +49,9 @@ func TestWriteDemo(t *testing.T) {
 	}
 }
 
-const hostile = `<script>alert("x")</script><img src=x onerror=alert(1)>"'&|*_` + "`\n# h"
+// hostile is an attack string: if it reached the page unescaped it would
+// run script that logs to the console (which TestRefChromium watches).
+const hostile = `<script>console.error("INJECTED")</script><img src=x onerror=console.error("INJECTED")>"'&|*_` + "`\n# h</title></style>"
 
 // hostileData puts the same attack string into every user-given string
 // field of a Data.
@@ -100,8 +102,14 @@ func TestEscaping(t *testing.T) {
 		j := strings.Index(body[i+5:], "```")
 		body = body[:i] + body[i+5+j+3:]
 	}
-	if strings.Contains(body, "<script") || strings.Contains(body, "<img") {
-		t.Errorf("summary.md carries raw HTML:\n%s", body)
+	// Every < is backslash-escaped (CommonMark: no tag can start there).
+	for i := 0; i < len(body); i++ {
+		if body[i] == '<' && (i == 0 || body[i-1] != '\\') {
+			t.Fatalf("summary.md carries a raw '<': …%s…", body[max(0, i-40):min(len(body), i+40)])
+		}
+	}
+	if !strings.Contains(body, `\<script\>`) {
+		t.Error("escaped hostile string not found in summary.md")
 	}
 }
 
