@@ -68,6 +68,7 @@ type pipeState struct {
 	line    []int     // max(Rows,Cols): local scratch
 	outPerm []int     // Capacity: Perm of the last Apply
 	outOri  []uint8   // Capacity
+	outCell []int     // N: cell of each real output token
 	maskIdx []int     // N: ascending occluded cells
 
 	// per-sequence shape placement
@@ -160,6 +161,7 @@ func newPipeline(g *Grid, spec Spec) (*Pipeline, error) {
 	x.line = make([]int, max(g.Rows, g.Cols))
 	x.outPerm = make([]int, capa)
 	x.outOri = make([]uint8, capa)
+	x.outCell = make([]int, N)
 	x.maskIdx = make([]int, 0, N)
 	p.reset(0)
 	return p, nil
@@ -499,7 +501,7 @@ func (p *Pipeline) apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 			}
 		}
 		dst.Pos[k] = g.Cell(i)
-		x.outPerm[k], x.outOri[k] = j, o
+		x.outPerm[k], x.outOri[k], x.outCell[k] = j, o, i
 		k++
 	}
 	real := k
@@ -541,6 +543,10 @@ func (p *Pipeline) apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 			}
 		}
 		rec.Mask = append(rec.Mask[:0], x.maskIdx...)
+		rec.Cells = rec.Cells[:0]
+		if real < N {
+			rec.Cells = append(rec.Cells, x.outCell[:real]...)
+		}
 		rec.Real, rec.Noise, rec.Dups = real, p.spec.NoiseTokens, dups
 		rec.Epoch = epoch
 		rec.Params = FrameParams{

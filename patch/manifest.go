@@ -74,6 +74,10 @@ func (m *Manifest) Append(rec *FrameRecord) {
 		c.Orient = nil
 	}
 	c.Mask = append([]int{}, rec.Mask...)
+	c.Cells = nil
+	if len(rec.Cells) > 0 {
+		c.Cells = append([]int{}, rec.Cells...)
+	}
 	m.Frames = append(m.Frames, c)
 }
 
@@ -213,6 +217,17 @@ func checkRecord(r *FrameRecord, N, capa int, spec Spec, pr parsedSpec, seen []b
 			return fmt.Errorf("orient[%d] = %d is not allowed by the spec", i, o)
 		}
 	}
+	if len(r.Cells) != 0 && len(r.Cells) != r.Real {
+		return fmt.Errorf("%d cells for %d real tokens", len(r.Cells), r.Real)
+	}
+	for i, c := range r.Cells {
+		if c < 0 || c >= N || i > 0 && c <= r.Cells[i-1] {
+			return fmt.Errorf("cells is not an ascending list of cells below %d", N)
+		}
+	}
+	if pr.fill == fillDrop && r.Real < N && len(r.Cells) != r.Real {
+		return fmt.Errorf("fill drop removed %d tokens but the record lists %d cells for %d tokens", N-r.Real, len(r.Cells), r.Real)
+	}
 	for i, c := range r.Mask {
 		if c < 0 || c >= N || i > 0 && c <= r.Mask[i-1] {
 			return fmt.Errorf("mask is not an ascending list of cells below %d", N)
@@ -265,13 +280,42 @@ func (m *Manifest) Unscramble(frame int, src, dst *TokenSet) error {
 // gets zeros and Pos NoCell, so Assemble draws it black. dst must have
 // room for g.N() tokens.
 func (r *FrameRecord) Unscramble(g *Grid, src, dst *TokenSet) error {
+	if src.N != len(r.Perm) || src.D != g.D() || len(src.Data) < src.N*src.D {
+		return fmt.Errorf("unscramble: frame %d has %d tokens of %d values, record has %d tokens of %d", r.Frame, src.N, src.D, len(r.Perm), g.D())
+	}
+	return r.unscramble(g, src, dst, func(k int) int { return k })
+}
+
+// UnscramblePicture is Unscramble for the picture of a step's output (as
+// Assemble draws it and an export saves it): cells holds that picture
+// tokenized in grid order (N tokens, e.g. by a Tokenizer on g.Covered()),
+// so the token that output token k became is read from the cell it sat
+// in. Exact for non-overlapping grids; with overlapping tiles the picture
+// holds averages.
+func (r *FrameRecord) UnscramblePicture(g *Grid, cells, dst *TokenSet) error {
+	N := g.N()
+	if cells.N != N || cells.D != g.D() || len(cells.Data) < N*cells.D {
+		return fmt.Errorf("unscramble: picture of frame %d has %d tokens of %d values, grid has %d of %d", r.Frame, cells.N, cells.D, N, g.D())
+	}
+	if len(r.Cells) != 0 && len(r.Cells) != r.Real {
+		return fmt.Errorf("unscramble: frame %d record is inconsistent", r.Frame)
+	}
+	return r.unscramble(g, cells, dst, func(k int) int {
+		if len(r.Cells) != 0 {
+			return r.Cells[k]
+		}
+		return k
+	})
+}
+
+// unscramble moves token at(k) of src, for each real output token k, to
+// dst slot Perm[k], undoing its orientation.
+func (r *FrameRecord) unscramble(g *Grid, src, dst *TokenSet, at func(k int) int) error {
 	N, D, C := g.N(), g.D(), g.Channels
 	switch {
-	case src.N != len(r.Perm) || src.D != D || len(src.Data) < src.N*D:
-		return fmt.Errorf("unscramble: frame %d has %d tokens of %d values, record has %d tokens of %d", r.Frame, src.N, src.D, len(r.Perm), D)
 	case dst == src || dst.Cap() < N || len(dst.Data) < N*D:
 		return fmt.Errorf("unscramble: destination has room for %d tokens, need %d (and must not be the source)", dst.Cap(), N)
-	case r.Real > len(r.Perm) || len(r.Orient) != 0 && len(r.Orient) != len(r.Perm):
+	case r.Real < 0 || r.Real > len(r.Perm) || len(r.Orient) != 0 && len(r.Orient) != len(r.Perm):
 		return fmt.Errorf("unscramble: frame %d record is inconsistent", r.Frame)
 	}
 	dst.N, dst.D = N, D
@@ -280,18 +324,24 @@ func (r *FrameRecord) Unscramble(g *Grid, src, dst *TokenSet) error {
 	}
 	clear(dst.Data[:N*D])
 	pw, ph := g.PatchW, g.PatchH
-	for i := 0; i < r.Real; i++ {
-		j := r.Perm[i]
+	for k := 0; k < r.Real; k++ {
+		j, s := r.Perm[k], at(k)
 		if j < 0 || j >= N || dst.Pos[j] != NoCell {
-			return fmt.Errorf("unscramble: frame %d: perm[%d] = %d is not a fresh cell", r.Frame, i, j)
+			return fmt.Errorf("unscramble: frame %d: perm[%d] = %d is not a fresh cell", r.Frame, k, j)
 		}
-		in := src.Data[i*D : (i+1)*D]
+		if s < 0 || s >= src.N {
+			return fmt.Errorf("unscramble: frame %d: token %d has no place %d", r.Frame, k, s)
+		}
+		in := src.Data[s*D : (s+1)*D]
 		out := dst.Data[j*D : (j+1)*D]
 		var o uint8
 		if len(r.Orient) != 0 {
-			o = uint8(r.Orient[i])
+			if r.Orient[k] < 0 || r.Orient[k] > 7 {
+				return fmt.Errorf("unscramble: frame %d: orientation %d out of range", r.Frame, r.Orient[k])
+			}
+			o = uint8(r.Orient[k])
 		}
-		if o&3 != 0 && pw != ph || o > 7 {
+		if o&3 != 0 && pw != ph {
 			return fmt.Errorf("unscramble: frame %d: orientation %d does not fit %dx%d patches", r.Frame, o, pw, ph)
 		}
 		if o == 0 {
@@ -308,6 +358,16 @@ func (r *FrameRecord) Unscramble(g *Grid, src, dst *TokenSet) error {
 		dst.Pos[j] = g.Cell(j)
 	}
 	return nil
+}
+
+// UnscramblePicture inverts the scramble of frame t from its picture (see
+// FrameRecord.UnscramblePicture).
+func (m *Manifest) UnscramblePicture(frame int, cells, dst *TokenSet) error {
+	r := m.Record(frame)
+	if r == nil {
+		return fmt.Errorf("unscramble: manifest has no frame %d", frame)
+	}
+	return r.UnscramblePicture(m.g, cells, dst)
 }
 
 // MaskCells decides which cells of g a user mask hides. The mask must be

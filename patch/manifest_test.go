@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"encoding/json"
 	"image"
+	"image/color"
 	"os"
 	"path/filepath"
 	"reflect"
@@ -228,5 +229,74 @@ func TestManifestWriteFileAtomic(t *testing.T) {
 	m := NewManifest(g, Spec{}, 0)
 	if err := m.WriteFile(filepath.Join(t.TempDir(), "missing-dir", "m.json")); err == nil {
 		t.Fatal("write into a missing folder succeeded")
+	}
+}
+
+// The picture of a scrambled step (dropped tokens, noise tokens,
+// duplicates, rotations), tokenized again in grid order, unscrambles to
+// the original frame except for the dropped cells, which come back black.
+func TestUnscramblePicture(t *testing.T) {
+	g := mustGrid(t, GridConfig{Width: 28, Height: 20, PatchW: 4, Edge: EdgePad})
+	tk := NewTokenizer(g)
+	f := randomRGBA(28, 20, 6)
+	src := NewTokenSet(g.N(), g.D())
+	if err := tk.Tokenize(f, src); err != nil {
+		t.Fatal(err)
+	}
+	for _, spec := range []Spec{
+		{Scramble: "full", Rotate: true, Flip: true, Occlude: "random:0.3", Fill: "drop", NoiseTokens: 3, Duplicates: 2},
+		{Scramble: "local:1", Occlude: "block:0.2", Fill: "black", Duplicates: 4},
+		{Scramble: "partial:0.4"},
+	} {
+		p := mustPipe(t, g, spec)
+		p.Reset(8)
+		m := NewManifest(g, spec, 8)
+		dst := NewTokenSet(p.Capacity(), g.D())
+		var rec FrameRecord
+		if err := p.Apply(0, src, dst, &rec); err != nil {
+			t.Fatal(err)
+		}
+		m.Append(&rec)
+		var buf bytes.Buffer
+		m.Write(&buf)
+		m2, err := ReadManifest(&buf, g)
+		if err != nil {
+			t.Fatal(err)
+		}
+		pic := image.NewRGBA(image.Rect(0, 0, g.OutW, g.OutH))
+		if err := tk.Assemble(dst, pic); err != nil {
+			t.Fatal(err)
+		}
+		cg := g.Covered()
+		cells := NewTokenSet(cg.N(), cg.D())
+		if err := NewTokenizer(cg).Tokenize(pic, cells); err != nil {
+			t.Fatal(err)
+		}
+		un := NewTokenSet(g.N(), g.D())
+		if err := m2.UnscramblePicture(0, cells, un); err != nil {
+			t.Fatal(err)
+		}
+		back := image.NewRGBA(pic.Rect)
+		if err := tk.Assemble(un, back); err != nil {
+			t.Fatal(err)
+		}
+		occ := map[int]bool{}
+		for _, c := range rec.Mask {
+			occ[c] = true
+		}
+		for j := 0; j < g.N(); j++ {
+			r := g.Rect(g.Cell(j)).Intersect(f.Rect)
+			for y := r.Min.Y; y < r.Max.Y; y++ {
+				for x := r.Min.X; x < r.Max.X; x++ {
+					got, want := back.RGBAAt(x, y), f.RGBAAt(x, y)
+					if occ[j] {
+						want = color.RGBA{0, 0, 0, 255}
+					}
+					if got != want {
+						t.Fatalf("%v: cell %d pixel (%d,%d) = %v, want %v", spec, j, x, y, got, want)
+					}
+				}
+			}
+		}
 	}
 }

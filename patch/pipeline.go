@@ -153,6 +153,10 @@ type FrameRecord struct {
 	// mirrored left-right, bits 0–1 the number of clockwise quarter turns
 	// after the mirror. Empty when the spec neither rotates nor flips.
 	Orient []int `json:"orient,omitempty"`
+	// Cells lists the cell (grid-order index) that each real output token
+	// sits in, when fill "drop" removed tokens; it is empty otherwise, and
+	// then real output token i sits in cell i.
+	Cells []int `json:"cells,omitempty"`
 	// Mask lists the occluded source cells (grid-order indices,
 	// ascending).
 	Mask []int `json:"mask"`

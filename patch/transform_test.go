@@ -664,6 +664,23 @@ func TestApplyErrorsAndAllocs(t *testing.T) {
 	if n != 0 {
 		t.Fatalf("Apply allocates %v times a step", n)
 	}
+	for _, s := range []Spec{
+		{Scramble: "local:2", Every: 1, Occlude: "sweep:0.2", Fill: "mean", Flip: true},
+		{Scramble: "partial:0.3", Every: 1, Occlude: "bands:0.3", Fill: "noise", Brightness: 0.1},
+		{Occlude: "block:0.4", Duplicates: 3},
+	} {
+		p := mustPipe(t, g, s)
+		dst := NewTokenSet(p.Capacity(), g.D())
+		step := 0
+		if n := testing.AllocsPerRun(20, func() {
+			step++
+			if err := p.Apply(step, src, dst, &rec); err != nil {
+				t.Fatal(err)
+			}
+		}); n != 0 {
+			t.Errorf("%v: Apply allocates %v times a step", s, n)
+		}
+	}
 }
 
 // Schedule: Every 0 keeps one permutation for the whole sequence; Every T

@@ -30,22 +30,27 @@ func openGIF(path string) (Reader, error) {
 		return nil, fmt.Errorf("input %s: %w", path, unwrapPath(err))
 	}
 	defer f.Close()
-	// image/gif decodes the whole file; refuse absurd screens first.
-	cfg, err := gif.DecodeConfig(f)
+	return readGIF(path, f)
+}
+
+// readGIF decodes a whole GIF from r (image/gif decodes all frames at
+// once), refusing absurd screen sizes before decoding the frames.
+func readGIF(name string, r io.ReadSeeker) (*gifReader, error) {
+	cfg, err := gif.DecodeConfig(r)
 	if err != nil {
-		return nil, fmt.Errorf("input %s: %w", path, err)
+		return nil, fmt.Errorf("input %s: %w", name, err)
 	}
 	if err := checkSize(cfg.Width, cfg.Height); err != nil {
-		return nil, fmt.Errorf("input %s: %w", path, err)
+		return nil, fmt.Errorf("input %s: %w", name, err)
 	}
-	if _, err := f.Seek(0, io.SeekStart); err != nil {
-		return nil, fmt.Errorf("input %s: %w", path, err)
+	if _, err := r.Seek(0, io.SeekStart); err != nil {
+		return nil, fmt.Errorf("input %s: %w", name, err)
 	}
-	g, err := gif.DecodeAll(f)
+	g, err := gif.DecodeAll(r)
 	if err != nil {
-		return nil, fmt.Errorf("input %s: %w", path, err)
+		return nil, fmt.Errorf("input %s: %w", name, err)
 	}
-	return newGIFReader(path, g)
+	return newGIFReader(name, g)
 }
 
 // NewGIFReader returns a reader of the composited frames of g.

@@ -401,3 +401,52 @@ func TestNearestMatchesPaletteIndex(t *testing.T) {
 		check(uint8(rng.IntN(256)), uint8(rng.IntN(256)), uint8(rng.IntN(256)))
 	}
 }
+
+// FuzzReadGIF feeds arbitrary bytes to the GIF reader (image/gif's
+// decoder, then our compositing): no panic, and every frame it returns
+// is opaque and of the screen size.
+func FuzzReadGIF(f *testing.F) {
+	r, _ := Builtin("checker", 3, 12, 9)
+	frames, _ := ReadAll(r)
+	w := &GIFWriter{}
+	for _, fr := range frames {
+		w.Add(fr)
+	}
+	var b bytes.Buffer
+	w.Encode(&b)
+	f.Add(b.Bytes())
+	pal := color.Palette{color.RGBA{0, 0, 0, 255}, color.RGBA{255, 0, 0, 255}, color.RGBA{}}
+	g := &gif.GIF{
+		Image:    []*image.Paletted{image.NewPaletted(image.Rect(0, 0, 4, 4), pal), image.NewPaletted(image.Rect(1, 1, 3, 3), pal)},
+		Delay:    []int{1, 1},
+		Disposal: []byte{gif.DisposalPrevious, gif.DisposalBackground},
+		Config:   image.Config{ColorModel: pal, Width: 4, Height: 4},
+	}
+	b.Reset()
+	gif.EncodeAll(&b, g)
+	f.Add(b.Bytes())
+	f.Fuzz(func(t *testing.T, data []byte) {
+		gr, err := readGIF("fuzz.gif", bytes.NewReader(data))
+		if err != nil {
+			return
+		}
+		info := gr.Info()
+		for {
+			fr, err := gr.Next()
+			if err == io.EOF {
+				return
+			}
+			if err != nil {
+				t.Fatalf("frame error after a good open: %v", err)
+			}
+			if fr.Rect.Dx() != info.Width || fr.Rect.Dy() != info.Height {
+				t.Fatalf("frame %v, screen %dx%d", fr.Rect, info.Width, info.Height)
+			}
+			for i := 3; i < len(fr.Pix); i += 4 {
+				if fr.Pix[i] != 255 {
+					t.Fatal("frame not opaque")
+				}
+			}
+		}
+	})
+}
