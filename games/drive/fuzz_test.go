@@ -1,0 +1,59 @@
+package drive
+
+import (
+	"errors"
+	"math"
+	"strings"
+	"testing"
+
+	"tilebench/games"
+)
+
+// FuzzParseVariation: any string either parses to a canonical spelling
+// that parses to itself, or is refused with an error naming the game.
+func FuzzParseVariation(f *testing.F) {
+	for _, s := range []string{"", "default", "glacier", "glacier+clutter", "clutter+glacier+clutter", "narrow+broad", "grass", "+", "small+ large", "saffron+grain+narrow+small"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		_, canon, err := ParseVariation(s)
+		if err != nil {
+			if !strings.HasPrefix(err.Error(), "drive: ") {
+				t.Fatalf("error %q does not name the game", err)
+			}
+			return
+		}
+		_, again, err := ParseVariation(canon)
+		if err != nil || again != canon {
+			t.Fatalf("canonical %q reparsed as %q, %v", canon, again, err)
+		}
+	})
+}
+
+// FuzzStep: any action either steps the game or, if not finite or of the
+// wrong length, is refused with ErrBadAction; the state stays finite.
+func FuzzStep(f *testing.F) {
+	f.Add(0.0, 1.0, 0.0, uint8(10))
+	f.Add(math.NaN(), 0.0, 0.0, uint8(1))
+	f.Add(1e300, -1e300, 5.0, uint8(200))
+	f.Add(-0.3, 0.7, 0.1, uint8(255))
+	g, err := New(games.Options{})
+	if err != nil {
+		f.Fatal(err)
+	}
+	f.Fuzz(func(t *testing.T, steer, throttle, brake float64, n uint8) {
+		g.Reset(games.HeldOut(int(n % 4)))
+		a := []float64{steer, throttle, brake}
+		finite := !math.IsNaN(steer+throttle+brake) && !math.IsInf(steer, 0) && !math.IsInf(throttle, 0) && !math.IsInf(brake, 0)
+		for k := 0; k < int(n); k++ {
+			_, err := g.Step(a)
+			if finite != (err == nil) || (err != nil && !errors.Is(err, games.ErrBadAction)) {
+				t.Fatalf("action %v: err %v", a, err)
+			}
+		}
+		c := g.Car()
+		if math.IsNaN(c.Pos.X+c.Pos.Y+c.Heading+c.Speed) || c.Speed < 0 {
+			t.Fatalf("state went bad: %+v", c)
+		}
+	})
+}

@@ -1,0 +1,67 @@
+package paddle
+
+import (
+	"errors"
+	"math"
+	"strings"
+	"testing"
+
+	"tilebench/games"
+)
+
+// FuzzParseVariation: any string either parses to a canonical spelling
+// that parses to itself, or is refused with an error naming the game.
+func FuzzParseVariation(f *testing.F) {
+	for _, s := range []string{"", "default", "lagoon", "drifter+orchid", "short+long", "bricks", "+", "analog+analog", "brisk+tinyball+long+lagoon"} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		_, canon, err := ParseVariation(s)
+		if err != nil {
+			if !strings.HasPrefix(err.Error(), "paddle: ") {
+				t.Fatalf("error %q does not name the game", err)
+			}
+			return
+		}
+		_, again, err := ParseVariation(canon)
+		if err != nil || again != canon {
+			t.Fatalf("canonical %q reparsed as %q, %v", canon, again, err)
+		}
+	})
+}
+
+// FuzzStep: any action value either steps both the discrete and the
+// analog game or is refused with ErrBadAction; the ball stays in the
+// field's columns and keeps a finite speed.
+func FuzzStep(f *testing.F) {
+	f.Add(1.0, uint16(100))
+	f.Add(2.0, uint16(3000))
+	f.Add(math.Inf(1), uint16(1))
+	f.Add(-7.5, uint16(500))
+	f.Add(0.5, uint16(10))
+	dg, err := New(games.Options{Variation: "drifter"})
+	if err != nil {
+		f.Fatal(err)
+	}
+	ag, err := New(games.Options{Variation: "analog+drifter"})
+	if err != nil {
+		f.Fatal(err)
+	}
+	f.Fuzz(func(t *testing.T, v float64, n uint16) {
+		for _, g := range []*Game{dg, ag} {
+			g.Reset(uint64(n))
+			ok := g.Spec().Action.Check([]float64{v}) == nil
+			for k := 0; k < int(n%2500); k++ {
+				_, err := g.Step([]float64{v})
+				if ok != (err == nil) || (err != nil && !errors.Is(err, games.ErrBadAction)) {
+					t.Fatalf("action %v: err %v", v, err)
+				}
+				b := g.Ball()
+				r := g.Config().BallRadius
+				if b.X < Left+r-1e-6 || b.X > Right-r+1e-6 || math.IsNaN(b.Speed()) || b.Speed() > g.Config().MaxSpeed+1e-9 {
+					t.Fatalf("step %d: ball %+v", k, b)
+				}
+			}
+		}
+	})
+}
