@@ -1,0 +1,37 @@
+package main
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+func TestDemo(t *testing.T) {
+	// About half a minute on 2 busy cores: run in CI (CI set) or with
+	// TILEBENCH_LONG=1, not by default.
+	if testing.Short() || os.Getenv("CI") == "" && os.Getenv("TILEBENCH_LONG") != "1" {
+		t.Skip("runs two small studies; set TILEBENCH_LONG=1")
+	}
+	out := filepath.Join(t.TempDir(), "demo")
+	code, stdout, stderr := runCLI(t, "", "demo", "--out", out, "--episodes", "1")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	for _, f := range []string{"index.html", "sizes/report.html", "stress/report.html", "sizes/costs.json"} {
+		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
+			t.Fatal(err)
+		}
+		if f != "sizes/costs.json" && !strings.Contains(stdout, filepath.Join(out, f)) {
+			t.Fatalf("stdout %q does not print %s", stdout, f)
+		}
+	}
+	// Again on the same folder: nothing to play, the reports re-made.
+	code, _, stderr = runCLI(t, "", "demo", "--out", out, "--episodes", "1")
+	if code != 0 {
+		t.Fatalf("second demo: exit %d: %s", code, stderr)
+	}
+	if code, _, _ := runCLI(t, "", "demo", "--out", out, "--episodes", "2"); code != 1 {
+		t.Fatalf("demo over a different demo: exit %d, want 1", code)
+	}
+}

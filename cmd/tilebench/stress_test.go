@@ -1,0 +1,136 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+// stressArgs is a small stress study of the driving game's expert.
+func stressArgs(out string, more ...string) []string {
+	return append([]string{"stress", "--game", "drive", "--policy", "expert", "--patch", "16",
+		"--occlude", "random:0.5", "--scramble", "none,full", "--episodes", "2", "--resamples", "200", "--out", out}, more...)
+}
+
+func oneLine(t *testing.T, stderr, want string) {
+	t.Helper()
+	if strings.Count(stderr, "\n") != 1 || !strings.Contains(stderr, want) {
+		t.Fatalf("stderr %q: want one line containing %q", stderr, want)
+	}
+}
+
+func TestStressRunsRefusesAndResumes(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "s")
+	code, stdout, stderr := runCLI(t, "", stressArgs(out)...)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if !strings.Contains(stdout, "report: "+filepath.Join(out, "report.html")) || stderr != "" {
+		t.Fatalf("stdout %q stderr %q", stdout, stderr)
+	}
+	for _, f := range []string{"study.json", "results.jsonl", "timing.jsonl", "report.html", "summary.md", "cells.csv"} {
+		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
+			t.Fatal(err)
+		}
+	}
+	results, _ := os.ReadFile(filepath.Join(out, "results.jsonl"))
+	// 3 cells (occluded, occluded and scrambled, the clean reference) × 2 episodes.
+	if n := bytes.Count(results, []byte("\n")); n != 6 {
+		t.Fatalf("%d records, want 3 cells × 2 episodes", n)
+	}
+	code, _, stderr = runCLI(t, "", stressArgs(out)...)
+	if code != 1 {
+		t.Fatalf("rerun without --resume: exit %d", code)
+	}
+	oneLine(t, stderr, "--resume")
+	code, stdout, stderr = runCLI(t, "", stressArgs(out, "--resume", "--json")...)
+	if code != 0 {
+		t.Fatalf("resume: exit %d: %s", code, stderr)
+	}
+	var js map[string]any
+	if err := json.Unmarshal([]byte(stdout), &js); err != nil || js["format"] != 1.0 || js["ran"] != 0.0 || js["kept"] != 6.0 {
+		t.Fatalf("--json %q: %v", stdout, err)
+	}
+	after, _ := os.ReadFile(filepath.Join(out, "results.jsonl"))
+	if !bytes.Equal(after, results) {
+		t.Fatal("resume of a finished study changed its results")
+	}
+	// A different study on --resume.
+	code, _, stderr = runCLI(t, "", append(stressArgs(out, "--resume"), "--episodes", "3")...)
+	if code != 1 {
+		t.Fatalf("different study on --resume: exit %d", code)
+	}
+	oneLine(t, stderr, "different study")
+	if after, _ := os.ReadFile(filepath.Join(out, "results.jsonl")); !bytes.Equal(after, results) {
+		t.Fatal("a refused resume changed the results")
+	}
+	// The same cells replay alone to the recorded return.
+	code, stdout, stderr = runCLI(t, "", "replay", out, "--cell", "1", "--episode", "1")
+	if code != 0 || !strings.Contains(stdout, "matches the recorded result") {
+		t.Fatalf("replay: exit %d %q %q", code, stdout, stderr)
+	}
+	code, _, stderr = runCLI(t, "", "replay", out, "--cell", "9", "--episode", "0")
+	if code != 1 {
+		t.Fatalf("replay of a missing cell: exit %d", code)
+	}
+	oneLine(t, stderr, "cell 9")
+	// The report is re-made byte for byte from the records.
+	csv, _ := os.ReadFile(filepath.Join(out, "cells.csv"))
+	page, _ := os.ReadFile(filepath.Join(out, "report.html"))
+	os.Remove(filepath.Join(out, "cells.csv"))
+	code, stdout, _ = runCLI(t, "", "report", out)
+	if code != 0 || !strings.Contains(stdout, "report.html") {
+		t.Fatalf("report: exit %d %q", code, stdout)
+	}
+	csv2, _ := os.ReadFile(filepath.Join(out, "cells.csv"))
+	page2, _ := os.ReadFile(filepath.Join(out, "report.html"))
+	if !bytes.Equal(csv, csv2) || !bytes.Equal(page, page2) {
+		t.Fatal("tilebench report did not re-make the same files")
+	}
+	if !bytes.Contains(page2, []byte("not a safety certification")) {
+		t.Fatal("the report lacks the safety caution")
+	}
+}
+
+func TestStressBadInput(t *testing.T) {
+	dir := t.TempDir()
+	cfg := filepath.Join(dir, "study.toml")
+	os.WriteFile(cfg, []byte("name = \"x\"\n[axes]\nocclude = \"random:0.2\"\nscrambel = \"full\"\n"), 0o644)
+	out := filepath.Join(dir, "out")
+	for _, c := range []struct {
+		args []string
+		code int
+		want string
+	}{
+		{stressArgs(out, "--occlude", "random:0.9:0:0.1"), 2, "yields no values"},
+		{stressArgs(out, "--every", "0,,10"), 2, "empty item"},
+		{stressArgs(out, "--scramble", "sideways"), 2, "want none, full"},
+		{stressArgs(out, "--shard", "3/3"), 2, "shard"},
+		{stressArgs(out, "--fill", "purple"), 2, "axes.fill"},
+		{[]string{"stress", "--config", cfg, "--out", out}, 2, `line 4: unknown key "axes.scrambel"`},
+		{[]string{"stress", "--game", "drive"}, 2, "--out"},
+		{stressArgs(out, "--game", "pong"), 1, "unknown game"},
+		{stressArgs(out, "--policy", filepath.Join(dir, "missing.safetensors")), 1, "missing.safetensors"},
+		{stressArgs(out, "--episodes", "-1"), 2, "episodes"},
+	} {
+		code, _, stderr := runCLI(t, "", c.args...)
+		if code != c.code {
+			t.Errorf("%v: exit %d, want %d (%s)", c.args, code, c.code, stderr)
+			continue
+		}
+		oneLine(t, stderr, c.want)
+	}
+	if _, err := os.Stat(out); !os.IsNotExist(err) {
+		t.Fatal("bad input left an output folder")
+	}
+}
+
+func TestStressHelp(t *testing.T) {
+	code, stdout, _ := runCLI(t, "", "stress", "-help")
+	if code != 0 || !strings.Contains(stdout, "--occlude random:0:0.9:0.1,block:0.3") || !strings.Contains(stdout, "-resume") {
+		t.Fatalf("help: %d %q", code, stdout)
+	}
+}
