@@ -34,7 +34,8 @@ examples:
   tilebench export --in FRAMES_DIR --patch 8 --edge pad --scramble full --every 0 --occlude random:0.25 --fill black --seed 7 --out OUT --as png,npy,gif,sheet
   tilebench export --in OUT/frames.npy --unscramble OUT/manifest.json --out BACK --as npy
   tilebench export --in movie.gif --patch 6 --scramble local:1 --every 10 --occlude sweep:0.3 --out OUT2 --as gif
-  ffmpeg -i clip.mp4 -f rawvideo -pix_fmt rgb24 - | tilebench export --in - --size 160x120 --patch 8 --out OUT3 --as npy
+  DECODER clip.mp4 | tilebench export --in - --size 160x120 --patch 8 --out OUT3 --as npy
+    (DECODER: any video decoder writing raw 24-bit RGB frames to stdout)
 
 options:`
 

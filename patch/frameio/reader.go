@@ -270,7 +270,7 @@ func (l *fileList) Next() (*image.RGBA, error) {
 func (l *fileList) Close() error { return nil }
 
 // RawReader reads raw RGB24 frames (3 bytes a pixel, row-major, no
-// header), as a video decoder writes them with a rawvideo/rgb24 output.
+// header), as a video decoder writes them when asked for raw 24-bit RGB.
 type RawReader struct {
 	name  string
 	r     io.ReadCloser
