@@ -6,6 +6,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"slices"
+	"strconv"
 
 	"tilebench/patch"
 )
@@ -63,9 +64,17 @@ type Estimate struct {
 	Resamples int
 }
 
-// String formats e as "value [lo, hi]" with 3 significant digits.
+// String formats e as "value [lo, hi]": three significant digits, or
+// whole numbers from 100 up (so 4123.4 is "4123", not "4.12e+03").
 func (e Estimate) String() string {
-	return fmt.Sprintf("%.3g [%.3g, %.3g]", e.Value, e.Lo, e.Hi)
+	return short(e.Value) + " [" + short(e.Lo) + ", " + short(e.Hi) + "]"
+}
+
+func short(v float64) string {
+	if a := math.Abs(v); a >= 100 && a < 1e15 {
+		return strconv.FormatFloat(v, 'f', 0, 64)
+	}
+	return strconv.FormatFloat(v, 'g', 3, 64)
 }
 
 // Bootstrap configures the stratified percentile bootstrap. The zero value

@@ -242,3 +242,19 @@ func TestBadInput(t *testing.T) {
 		}
 	}
 }
+
+func TestEstimateString(t *testing.T) {
+	for _, c := range []struct {
+		e    Estimate
+		want string
+	}{
+		{Estimate{Value: 4123.4, Lo: 3999.6, Hi: 4250}, "4123 [4000, 4250]"},
+		{Estimate{Value: 0.5, Lo: 0.4123, Hi: 0.61}, "0.5 [0.412, 0.61]"},
+		{Estimate{Value: -100, Lo: -100, Hi: -100}, "-100 [-100, -100]"},
+		{Estimate{Value: 12.34, Lo: math.NaN(), Hi: math.Inf(1)}, "12.3 [NaN, +Inf]"},
+	} {
+		if got := c.e.String(); got != c.want {
+			t.Errorf("%#v.String() = %q, want %q", c.e, got, c.want)
+		}
+	}
+}
