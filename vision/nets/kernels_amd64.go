@@ -49,11 +49,17 @@ func gemm5x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, l
 //go:noescape
 func gemm6x8(k int, a *float32, lda, inc int, b *float32, ldb int, c *float32, ldc int)
 
-// expSub4 replaces each of the n values at x (n a multiple of 4) by
-// e^(x−m), as expf does, and returns their sum.
+// expSub8 replaces each of the n values at x (n a multiple of 8) by
+// e^(x−m), with the steps and coefficients of expf, and returns their sum.
 //
 //go:noescape
-func expSub4(x *float32, n int, m float32) float32
+func expSub8(x *float32, n int, m float32) float32
+
+// max8 returns the largest of the n values at x (n a positive multiple
+// of 8).
+//
+//go:noescape
+func max8(x *float32, n int) float32
 
 // haveAVX reports whether the assembly kernels can run here.
 var haveAVX = cpu.X86.HasAVX && cpu.X86.HasFMA && cpu.X86.HasSSE41
@@ -177,10 +183,23 @@ func blocks(m, k, n int, a []float32, ra, pa int, b []float32, ldb int, c []floa
 
 // expSubRow sets row[i] = e^(row[i]−m) and returns the sum.
 func expSubRow(row []float32, m float32) float32 {
-	if !haveAVX || len(row) < 4 {
+	if !haveAVX || len(row) < 8 {
 		return expSubRowGo(row, m)
 	}
-	n4 := len(row) &^ 3
-	s := expSub4(&row[0], n4, m)
-	return s + expSubRowGo(row[n4:], m)
+	n8 := len(row) &^ 7
+	s := expSub8(&row[0], n8, m)
+	return s + expSubRowGo(row[n8:], m)
+}
+
+// maxRow returns the largest value of a non-empty row.
+func maxRow(row []float32) float32 {
+	if !haveAVX || len(row) < 8 {
+		return maxRowGo(row)
+	}
+	n8 := len(row) &^ 7
+	mx := max8(&row[0], n8)
+	if n8 < len(row) {
+		mx = max(mx, maxRowGo(row[n8:]))
+	}
+	return mx
 }

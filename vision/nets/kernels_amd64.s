@@ -745,63 +745,110 @@ DATA expconst_bias<>+8(SB)/4, $127
 DATA expconst_bias<>+12(SB)/4, $127
 GLOBL expconst_bias<>(SB), RODATA|NOPTR, $16
 
-// func expSub4(x *float32, n int, m float32) float32
-TEXT ·expSub4(SB), NOSPLIT, $0-28
+// func expSub8(x *float32, n int, m float32) float32
+TEXT ·expSub8(SB), NOSPLIT, $0-28
 	MOVQ x+0(FP), SI
 	MOVQ n+8(FP), CX
-	VBROADCASTSS m+16(FP), X8
-	VXORPS X9, X9, X9
-	SHRQ $2, CX
+	VBROADCASTSS m+16(FP), Y8
+	VXORPS Y9, Y9, Y9
+	VBROADCASTSS expconst_lo<>(SB), Y7
+	VBROADCASTSS expconst_log2e<>(SB), Y10
+	VBROADCASTSS expconst_half<>(SB), Y11
+	VBROADCASTSS expconst_c1<>(SB), Y12
+	VBROADCASTSS expconst_c2<>(SB), Y13
+	VMOVUPS expconst_bias<>(SB), X14
+	SHRQ $3, CX
 	TESTQ CX, CX
-	JZ exp4_done
-exp4_loop:
-	VMOVUPS (SI), X0
-	VSUBPS X8, X0, X0
-	VMOVUPS expconst_lo<>(SB), X7
-	VCMPPS $1, X7, X0, X6
-	VMAXPS X7, X0, X0
-	VMULPS expconst_log2e<>(SB), X0, X1
-	VADDPS expconst_half<>(SB), X1, X1
-	VROUNDPS $1, X1, X1
-	VMULPS expconst_c1<>(SB), X1, X2
-	VSUBPS X2, X0, X0
-	VMULPS expconst_c2<>(SB), X1, X2
-	VSUBPS X2, X0, X0
-	VMOVUPS expconst_p0<>(SB), X3
-	VMULPS X0, X3, X3
-	VADDPS expconst_p1<>(SB), X3, X3
-	VMULPS X0, X3, X3
-	VADDPS expconst_p2<>(SB), X3, X3
-	VMULPS X0, X3, X3
-	VADDPS expconst_p3<>(SB), X3, X3
-	VMULPS X0, X3, X3
-	VADDPS expconst_p4<>(SB), X3, X3
-	VMULPS X0, X3, X3
-	VADDPS expconst_p5<>(SB), X3, X3
-	VMULPS X0, X3, X3
-	VMULPS X0, X3, X3
-	VADDPS X0, X3, X3
-	VADDPS expconst_one<>(SB), X3, X3
-	VCVTPS2DQ X1, X1
+	JZ exp8_done
+exp8_loop:
+	VMOVUPS (SI), Y0
+	VSUBPS Y8, Y0, Y0
+	VCMPPS $1, Y7, Y0, Y6
+	VMAXPS Y7, Y0, Y0
+	VMULPS Y10, Y0, Y1
+	VADDPS Y11, Y1, Y1
+	VROUNDPS $1, Y1, Y1
+	VMULPS Y12, Y1, Y2
+	VSUBPS Y2, Y0, Y0
+	VMULPS Y13, Y1, Y2
+	VSUBPS Y2, Y0, Y0
+	VBROADCASTSS expconst_p0<>(SB), Y3
+	VMULPS Y0, Y3, Y3
+	VBROADCASTSS expconst_p1<>(SB), Y4
+	VADDPS Y4, Y3, Y3
+	VMULPS Y0, Y3, Y3
+	VBROADCASTSS expconst_p2<>(SB), Y4
+	VADDPS Y4, Y3, Y3
+	VMULPS Y0, Y3, Y3
+	VBROADCASTSS expconst_p3<>(SB), Y4
+	VADDPS Y4, Y3, Y3
+	VMULPS Y0, Y3, Y3
+	VBROADCASTSS expconst_p4<>(SB), Y4
+	VADDPS Y4, Y3, Y3
+	VMULPS Y0, Y3, Y3
+	VBROADCASTSS expconst_p5<>(SB), Y4
+	VADDPS Y4, Y3, Y3
+	VMULPS Y0, Y3, Y3
+	VMULPS Y0, Y3, Y3
+	VADDPS Y0, Y3, Y3
+	VBROADCASTSS expconst_one<>(SB), Y4
+	VADDPS Y4, Y3, Y3
+	VCVTPS2DQ Y1, Y1
+	VEXTRACTF128 $1, Y1, X5
 	VPSRAD $1, X1, X2
 	VPSUBD X2, X1, X1
-	VMOVUPS expconst_bias<>(SB), X4
-	VPADDD X4, X2, X2
-	VPADDD X4, X1, X1
+	VPADDD X14, X2, X2
+	VPADDD X14, X1, X1
 	VPSLLD $23, X2, X2
 	VPSLLD $23, X1, X1
-	VMULPS X2, X3, X3
-	VMULPS X1, X3, X3
-	VANDNPS X3, X6, X3
-	VMOVUPS X3, (SI)
-	VADDPS X3, X9, X9
-	ADDQ $16, SI
+	VPSRAD $1, X5, X4
+	VPSUBD X4, X5, X5
+	VPADDD X14, X4, X4
+	VPADDD X14, X5, X5
+	VPSLLD $23, X4, X4
+	VPSLLD $23, X5, X5
+	VINSERTF128 $1, X5, Y1, Y1
+	VINSERTF128 $1, X4, Y2, Y2
+	VMULPS Y2, Y3, Y3
+	VMULPS Y1, Y3, Y3
+	VANDNPS Y3, Y6, Y3
+	VMOVUPS Y3, (SI)
+	VADDPS Y3, Y9, Y9
+	ADDQ $32, SI
 	DECQ CX
-	JNZ exp4_loop
-exp4_done:
+	JNZ exp8_loop
+exp8_done:
+	VEXTRACTF128 $1, Y9, X0
+	VADDPS X0, X9, X9
 	VMOVHLPS X9, X9, X0
 	VADDPS X0, X9, X9
 	VPSHUFD $1, X9, X0
 	VADDSS X0, X9, X9
 	VMOVSS X9, ret+24(FP)
+	VZEROUPPER
+	RET
+
+// func max8(x *float32, n int) float32
+TEXT ·max8(SB), NOSPLIT, $0-20
+	MOVQ x+0(FP), SI
+	MOVQ n+8(FP), CX
+	VMOVUPS (SI), Y0
+	ADDQ $32, SI
+	SHRQ $3, CX
+	DECQ CX
+	JZ max8_done
+max8_loop:
+	VMAXPS (SI), Y0, Y0
+	ADDQ $32, SI
+	DECQ CX
+	JNZ max8_loop
+max8_done:
+	VEXTRACTF128 $1, Y0, X1
+	VMAXPS X1, X0, X0
+	VMOVHLPS X0, X0, X1
+	VMAXPS X1, X0, X0
+	VPSHUFD $1, X0, X1
+	VMAXSS X1, X0, X0
+	VMOVSS X0, ret+16(FP)
+	VZEROUPPER
 	RET

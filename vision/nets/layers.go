@@ -111,14 +111,16 @@ type attention struct {
 	scale    float32
 	needDV   bool // compute the value gradient in backward
 
-	q, k, v  []float32
-	ldk, ldv int
-	n        int
-	p, o     []float32 // m×n probabilities, m×dv output
-	kt       []float32 // d×n transposed keys
-	dp       []float32
-	dq, dk   []float32
-	dvb      []float32
+	q, k, v    []float32
+	ldk, ldv   int
+	n          int
+	p, o       []float32 // m×n probabilities (see probs), m×dv output
+	inv        []float32 // 1 / row sums of the unnormalised softmax
+	normalized bool      // p holds P rather than e^(S − max S)
+	kt         []float32 // d×n transposed keys
+	dp         []float32
+	dq, dk     []float32
+	dvb        []float32
 }
 
 // forward returns O (m×dv). With no keys (n = 0) the output is zero.
@@ -141,11 +143,37 @@ func (a *attention) forward(q, k []float32, ldk int, v []float32, ldv, n int) []
 		}
 	}
 	kern.nn(a.m, a.d, n, q, a.d, a.kt, n, a.p, n)
+	// Softmax with the normalisation moved past the product: O = (E·V)/s
+	// row by row, where E holds e^(S − max S) and s its row sums. That is
+	// m·dv divisions' worth of work instead of m·n; P itself is normalised
+	// only if a backward pass needs it.
+	a.inv = grow(a.inv, a.m)
 	for i := 0; i < a.m; i++ {
-		softmaxRow(a.p[i*n : (i+1)*n])
+		a.inv[i] = 1 / expRow(a.p[i*n:(i+1)*n])
 	}
+	a.normalized = false
 	kern.nn(a.m, n, a.dv, a.p, n, v, ldv, a.o, a.dv)
+	for i := 0; i < a.m; i++ {
+		row := a.o[i*a.dv : (i+1)*a.dv]
+		for j := range row {
+			row[j] *= a.inv[i]
+		}
+	}
 	return a.o
+}
+
+// probs returns P = softmax(Q·Kᵀ/√d) of the last forward pass (m×n).
+func (a *attention) probs() []float32 {
+	if !a.normalized {
+		for i := 0; i < a.m; i++ {
+			row := a.p[i*a.n : (i+1)*a.n]
+			for j := range row {
+				row[j] *= a.inv[i]
+			}
+		}
+		a.normalized = true
+	}
+	return a.p[:a.m*a.n]
 }
 
 // backward takes dO (m×dv) and returns dQ (m×d), dK (n×d) and dV (n×dv,
@@ -166,21 +194,22 @@ func (a *attention) backward(do []float32) (dq, dk, dv []float32) {
 	if n == 0 {
 		return a.dq, a.dk, dv
 	}
+	p := a.probs()
 	a.dp = grow(a.dp, a.m*n)
 	clear(a.dp)
 	kern.nt(a.m, a.dv, n, do, a.dv, a.v, a.ldv, a.dp, n)
 	if a.needDV {
-		kern.tn(n, a.m, a.dv, a.p, n, do, a.dv, dv, a.dv)
+		kern.tn(n, a.m, a.dv, p, n, do, a.dv, dv, a.dv)
 	}
 	for i := 0; i < a.m; i++ {
-		p := a.p[i*n : (i+1)*n]
+		pr := p[i*n : (i+1)*n]
 		g := a.dp[i*n : (i+1)*n]
 		var s float32
-		for j := range p {
-			s += p[j] * g[j]
+		for j := range pr {
+			s += pr[j] * g[j]
 		}
-		for j := range p {
-			g[j] = p[j] * (g[j] - s) * a.scale
+		for j := range pr {
+			g[j] = pr[j] * (g[j] - s) * a.scale
 		}
 	}
 	kern.nn(a.m, n, a.d, a.dp, n, a.k, a.ldk, a.dq, a.d)

@@ -163,3 +163,42 @@ func TestMeanPoolGradient(t *testing.T) {
 		}
 	}
 }
+
+// Attention with logits of ±1e4 stays finite and gives the softmax of
+// the definition (computed here in float64 from the same float32 logits),
+// forward and backward.
+func TestAttentionExtremeLogits(t *testing.T) {
+	a := &attention{m: 1, d: 1, dv: 2, scale: 1, needDV: true}
+	q := []float32{100}
+	k := []float32{100, -100, 99.99}
+	v := []float32{1, 0, 0, 1, 2, 3}
+	o := a.forward(q, k, 1, v, 2, 3)
+	logits := make([]float64, 3)
+	for i := range k {
+		logits[i] = float64(q[0] * k[i])
+	}
+	w := make([]float64, 3)
+	var s float64
+	for i, z := range logits {
+		w[i] = math.Exp(z - logits[0])
+		s += w[i]
+	}
+	want := []float64{(w[0]*1 + w[2]*2) / s, (w[2] * 3) / s}
+	for j := range want {
+		if math.IsNaN(float64(o[j])) || math.Abs(float64(o[j])-want[j]) > 1e-5 {
+			t.Fatalf("attention output %v, want %v", o, want)
+		}
+	}
+	dq, dk, dv := a.backward([]float32{1, 1})
+	for _, g := range [][]float32{dq, dk, dv} {
+		for _, x := range g {
+			if math.IsNaN(float64(x)) || math.IsInf(float64(x), 0) {
+				t.Fatalf("non-finite gradient %v %v %v", dq, dk, dv)
+			}
+		}
+	}
+	// dV = Pᵀ·dO: row i is P_i·(1, 1).
+	if math.Abs(float64(dv[0])-w[0]/s) > 1e-5 || dv[2] != 0 || dv[3] != 0 || math.Abs(float64(dv[5])-w[2]/s) > 1e-5 {
+		t.Errorf("dV = %v, want rows weighted %v", dv, []float64{w[0] / s, 0, w[2] / s})
+	}
+}

@@ -79,20 +79,27 @@ func softmaxRow(row []float32) {
 	if len(row) == 0 {
 		return
 	}
+	inv := 1 / expRow(row)
+	for i := range row {
+		row[i] *= inv
+	}
+}
+
+// expRow replaces a non-empty row z by e^(z − max z) and returns the sum,
+// which is at least 1 (the largest entry contributes e^0): the unnormalised
+// softmax.
+func expRow(row []float32) float32 { return expSubRow(row, maxRow(row)) }
+
+// maxRowGo is the largest value of a non-empty row.
+func maxRowGo(row []float32) float32 {
 	mx := row[0]
 	for _, v := range row[1:] {
 		if v > mx {
 			mx = v
 		}
 	}
-	sum := expSubRow(row, mx)
-	inv := 1 / sum // sum ≥ 1: the largest entry contributes e^0
-	for i := range row {
-		row[i] *= inv
-	}
+	return mx
 }
-
-func sqrtf(x float32) float32 { return float32(math.Sqrt(float64(x))) }
 
 // expSubRowGo sets row[i] = e^(row[i]−m) with expf and returns the sum.
 func expSubRowGo(row []float32, m float32) float32 {
@@ -104,3 +111,5 @@ func expSubRowGo(row []float32, m float32) float32 {
 	}
 	return sum
 }
+
+func sqrtf(x float32) float32 { return float32(math.Sqrt(float64(x))) }
