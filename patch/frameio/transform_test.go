@@ -200,3 +200,48 @@ func TestInvertMismatch(t *testing.T) {
 type unknownLen struct{ Reader }
 
 func (u *unknownLen) Info() Info { i := u.Reader.Info(); i.Frames = -1; return i }
+
+// repeatReader serves one frame n times.
+type repeatReader struct {
+	frame *image.RGBA
+	n, i  int
+}
+
+func (r *repeatReader) Info() Info {
+	return Info{Name: "repeat", Width: r.frame.Rect.Dx(), Height: r.frame.Rect.Dy(), Channels: 3, Frames: r.n}
+}
+
+func (r *repeatReader) Next() (*image.RGBA, error) {
+	if r.i >= r.n {
+		return nil, io.EOF
+	}
+	r.i++
+	return r.frame, nil
+}
+
+func (r *repeatReader) Close() error { return nil }
+
+// BenchmarkTransform96 is the per-frame cost of the export flow on a
+// 96×96 frame (tokenize → scramble+occlude → assemble → hand over),
+// without file output; steady state allocates nothing per frame.
+func BenchmarkTransform96(b *testing.B) {
+	r, _ := Builtin("drift", 1, 96, 96)
+	frame, _ := r.Next()
+	g, _ := patch.NewGrid(patch.GridConfig{Width: 96, Height: 96, PatchW: 8})
+	p, err := patch.NewPipeline(g, patch.Spec{Scramble: "full", Every: 1, Occlude: "random:0.25"})
+	if err != nil {
+		b.Fatal(err)
+	}
+	p.Reset(1)
+	out, err := NewOutputs(OutputConfig{Dir: b.TempDir(), Frames: b.N}, 96, 96)
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer out.Abort()
+	tok := patch.NewTokenizer(g)
+	b.ReportAllocs()
+	b.ResetTimer()
+	if _, err := Transform(&repeatReader{frame: frame, n: b.N}, tok, p, nil, out, nil); err != nil {
+		b.Fatal(err)
+	}
+}
