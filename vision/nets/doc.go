@@ -47,5 +47,6 @@
 // each with a forward and a backward pass checked by central finite
 // differences. Matrix products go through a small kernel table: a plain
 // reference, blocked kernels, and on amd64 with AVX and FMA an assembly
-// kernel (disabled by the purego build tag); tests compare them.
+// kernel with an 8-wide exp for the softmax (disabled by the purego build
+// tag); tests compare them.
 package nets

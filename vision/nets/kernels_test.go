@@ -2,7 +2,12 @@ package nets
 
 import (
 	"math"
+	"os"
+	"os/exec"
+	"path/filepath"
 	"testing"
+
+	"tilebench/internal/reftest"
 )
 
 // The kernels in use (blocked or assembly) against the plain loops, on
@@ -50,5 +55,26 @@ func TestKernelsMatchPlain(t *testing.T) {
 				}
 			}
 		}
+	}
+}
+
+// The committed assembly is what asm_gen.py writes (stdlib Python only).
+func TestAssemblyUpToDate(t *testing.T) {
+	reftest.Need(t)
+	out := filepath.Join(t.TempDir(), "k.s")
+	cmd := exec.Command(reftest.Python, "asm_gen.py", out)
+	if b, err := cmd.CombinedOutput(); err != nil {
+		t.Fatalf("asm_gen.py: %v\n%s", err, b)
+	}
+	want, err := os.ReadFile(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := os.ReadFile("kernels_amd64.s")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if string(got) != string(want) {
+		t.Error("kernels_amd64.s differs from the output of asm_gen.py: run /usr/bin/python3 asm_gen.py in vision/nets")
 	}
 }
