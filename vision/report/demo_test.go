@@ -95,6 +95,10 @@ func demoData() *Data {
 			br, _ := stats.BreakingPoint(levels, 0)
 			d.Breaks = append(d.Breaks, Break{Axis: fmt.Sprintf("occlusion, patch %d", p), Break: br})
 		}
+		if p == 4 { // a strict-looking threshold nothing falls below, to show "not reached"
+			br, _ := stats.BreakingPoint(levels, 0.1)
+			d.Breaks = append(d.Breaks, Break{Axis: "occlusion, patch 4, threshold 0.1", Break: br})
+		}
 	}
 	ch, _ := stats.Recommender{Bootstrap: stats.Bootstrap{Resamples: 500}, Budget: 3}.Recommend(cands)
 	pa := &Pareto{XLabel: "MFLOP per step", YLabel: "IQM return (clean)", LogX: true, Budget: 3}

@@ -156,7 +156,7 @@ func buildView(d *Data) (*view, error) {
 		}
 		if b.Break.Reached {
 			bv.Big = num(b.Break.Severity)
-			bv.Sub = "retention falls below " + num(th)
+			bv.Sub = "first severity with retention below " + num(th)
 			bv.Text = fmt.Sprintf("%s (retention below %s)", num(b.Break.Severity), num(th))
 		} else {
 			bv.Big = "not reached"
