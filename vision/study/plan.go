@@ -9,6 +9,7 @@ import (
 	"math"
 	"strconv"
 	"strings"
+	"time"
 
 	"tilebench/games"
 	"tilebench/patch"
@@ -68,6 +69,11 @@ func (d *Definition) Normalize() error {
 	}
 	if d.Policy.Family == "" {
 		d.Policy.Family = "attention"
+	}
+	if d.Policy.Timeout != "" {
+		if t, err := time.ParseDuration(d.Policy.Timeout); err != nil || t <= 0 {
+			return fieldErr("policy.timeout", fmt.Errorf("%q: want a positive duration such as 5s", d.Policy.Timeout))
+		}
 	}
 	if !isWord(d.Policy.Family) {
 		return fieldErr("policy.family", fmt.Errorf("%q is not a family name", d.Policy.Family))

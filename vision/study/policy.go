@@ -1,27 +1,39 @@
 package study
 
 import (
-	"errors"
 	"fmt"
+	"os"
 	"strconv"
 	"strings"
 	"sync"
+	"time"
 
 	"tilebench/games"
 	_ "tilebench/games/all" // the built-in games
 	"tilebench/patch"
 	"tilebench/vision"
 	"tilebench/vision/nets"
+	"tilebench/vision/remote"
 )
 
-// ErrNoExternal is returned for exec: and tcp:// policies while this build
-// has no external-policy adapter.
-var ErrNoExternal = errors.New("external policies (exec:, tcp://) are not available in this build")
-
-// ExternalFunc makes an external policy for a source ("exec:..." or
-// "tcp://..."); set by the package that implements the protocol. logDir is
-// where the policy's stderr should be kept.
-var ExternalFunc func(source string, g games.Game, grid *patch.Grid, logDir string) (vision.Policy, error)
+// external opens an external policy over the protocol of vision/remote
+// (docs/policy-protocol.md), keeping its stderr in logDir.
+func external(source string, timeout string, g games.Game, grid *patch.Grid, logDir string) (vision.Policy, error) {
+	cfg := remote.Config{Game: g.Spec(), Grid: grid, LogDir: logDir}
+	if timeout != "" {
+		d, err := time.ParseDuration(timeout)
+		if err != nil {
+			return nil, fmt.Errorf("policy timeout %q: %w", timeout, err)
+		}
+		cfg.StepTimeout = d
+	}
+	if logDir != "" {
+		if err := os.MkdirAll(logDir, 0o755); err != nil {
+			return nil, fmt.Errorf("policy log folder: %w", err)
+		}
+	}
+	return remote.Open(source, cfg)
+}
 
 // PolicyPath is the weights file for patch size ps: source with every
 // "{patch}" replaced by ps.
@@ -47,11 +59,8 @@ func Policies(p *Plan, logDir string) PolicyFunc {
 			return pol, nil
 		case src == "fresh":
 			return nets.New(nets.Config{Family: def.Family}, grid, g.Spec().Action, p.PolicySeed(ps))
-		case strings.HasPrefix(src, "exec:") || strings.HasPrefix(src, "tcp://"):
-			if ExternalFunc == nil {
-				return nil, ErrNoExternal
-			}
-			return ExternalFunc(src, g, grid, logDir)
+		case remote.IsTarget(src):
+			return external(src, def.Timeout, g, grid, logDir)
 		}
 		path := PolicyPath(src, ps)
 		mu.Lock()
@@ -105,7 +114,7 @@ func DefaultEnv(p *Plan, logDir string) EnvFactory {
 // for, so that a study of that file needs no patch list.
 func PatchOfPolicy(source string) (int, bool) {
 	if source == "" || source == "expert" || source == "fresh" || strings.Contains(source, "{patch}") ||
-		strings.HasPrefix(source, "exec:") || strings.HasPrefix(source, "tcp://") {
+		remote.IsTarget(source) {
 		return 0, false
 	}
 	n, err := nets.Load(source)
