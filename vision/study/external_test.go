@@ -32,7 +32,7 @@ type fakeRemote struct {
 	seed  uint64
 }
 
-func (f *fakeRemote) Info() vision.Info  { return vision.Info{Family: "external", Label: "fake"} }
+func (f *fakeRemote) Info() vision.Info { return vision.Info{Family: "external", Label: "fake"} }
 func (f *fakeRemote) Reset(seed uint64) { f.seed = seed }
 func (f *fakeRemote) Act(obs *vision.Observation, a []float64) error {
 	if f.crash && f.seed%3 == 0 && obs.Step == 17 {
