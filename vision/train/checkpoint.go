@@ -34,9 +34,11 @@ const (
 const Caution = "simulated robustness is not a safety certification; defer to the applicable safety standards, local regulations and licensed practice"
 
 func (t *Trainer) checkpointFile() (*weights.File, error) {
+	st := t.st
+	st.BestVal, st.BestEver = noInf(st.BestVal), noInf(st.BestEver)
 	f, err := nets.ToFile(t.net, map[string]string{
 		keyCkptConfig: jsonString(t.cfg),
-		keyCkptState:  jsonString(t.st),
+		keyCkptState:  jsonString(st),
 		keyAdamT:      strconv.Itoa(t.adam().T),
 	})
 	if err != nil {
@@ -109,6 +111,7 @@ func resumeFile(f *weights.File, iters int, budget float64) (*Trainer, error) {
 	if err := json.Unmarshal([]byte(sj), &st); err != nil {
 		return nil, fmt.Errorf("checkpoint state: %w", err)
 	}
+	st.BestVal, st.BestEver = fromJSONInf(st.BestVal), fromJSONInf(st.BestEver)
 	// The net: its own tensors only.
 	nf := &weights.File{Metadata: map[string]string{}}
 	extra := map[string]*weights.Tensor{}
@@ -228,6 +231,7 @@ func (t *Trainer) rebuildData() error {
 	for _, p := range parts {
 		t.ds.appendFrom(p)
 	}
+	t.ds.setSpread()
 	return nil
 }
 

@@ -1,6 +1,11 @@
 package train
 
-import "tilebench/patch"
+import (
+	"math"
+
+	"tilebench/games"
+	"tilebench/patch"
+)
 
 // dataset holds the aggregated behaviour-cloning samples: each clean
 // token set quantised back to the bytes it came from (lossless, since the
@@ -16,6 +21,37 @@ type dataset struct {
 	label  []float32
 	pos    []patch.Pos
 	tokenN int
+	sd     []float64 // per label dimension, from setSpread
+}
+
+// setSpread computes each label dimension's standard deviation over the
+// whole data set (called after every aggregation, before training).
+func (ds *dataset) setSpread() {
+	ds.sd = make([]float64, ds.ldim)
+	if ds.n == 0 {
+		return
+	}
+	for j := range ds.sd {
+		var s, s2 float64
+		for i := 0; i < ds.n; i++ {
+			v := float64(ds.label[i*ds.ldim+j])
+			s += v
+			s2 += v * v
+		}
+		m := s / float64(ds.n)
+		ds.sd[j] = math.Sqrt(math.Max(0, s2/float64(ds.n)-m*m))
+	}
+}
+
+// spread is the scale of label dimension j in the loss: its standard
+// deviation, floored at 2% of the action range (so a constant label does
+// not blow the loss up), or the range itself before setSpread.
+func (ds *dataset) spread(j int, space games.ActionSpace) float64 {
+	r := space.High[j] - space.Low[j]
+	if len(ds.sd) <= j {
+		return r
+	}
+	return math.Max(ds.sd[j], 0.02*r)
 }
 
 var unit = func() (u [256]float32) {

@@ -199,7 +199,10 @@ func (e *env) replay(gameSeed uint64, actions []float32, keep int, ds *dataset) 
 
 // sampleLoss loads sample i of ds (augmented with the pipeline from
 // pipeSeed), runs the net forward and backward, and returns the loss: the
-// mean over dimensions of ((out−label)/range)² for continuous actions,
+// mean over dimensions of ((out−label)/s_j)² for continuous actions, where
+// s_j is the spread of dimension j's labels (dataset.spread), so that a
+// dimension the expert moves little (steering) weighs as much as one it
+// moves a lot (throttle); 
 // the cross-entropy of the softmax of the logits for discrete ones.
 // scale multiplies the gradient (1/batch size).
 func (e *env) sampleLoss(ds *dataset, i int, pipeSeed uint64, scale float32, backward bool) (float64, error) {
@@ -217,7 +220,7 @@ func (e *env) sampleLoss(ds *dataset, i int, pipeSeed uint64, scale float32, bac
 	if e.space.Kind == games.Continuous {
 		k := float64(len(e.out))
 		for j, o := range e.out {
-			r := e.space.High[j] - e.space.Low[j]
+			r := ds.spread(j, e.space)
 			d := (float64(o) - float64(lab[j])) / r
 			loss += d * d / k
 			e.dOut[j] = scale * float32(2*d/(r*k))

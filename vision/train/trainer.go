@@ -547,6 +547,7 @@ func (t *Trainer) runClone(ctx context.Context, stop func() string, iter func(Pr
 			t.st.Episodes = append(t.st.Episodes, episode{Seed: seed, Steps: len(acts[i]) / t.s.space.Dim()})
 			t.acts = append(t.acts, acts[i]...)
 		}
+		t.ds.setSpread()
 		var loss float64
 		for ep := 0; ep < cc.Epochs; ep++ {
 			if loss, err = t.epoch(ctx, round, ep); err != nil {
@@ -667,6 +668,7 @@ func (t *Trainer) runES(ctx context.Context, stop func() string, iter func(Progr
 		}
 		t.st.Iter = t.es.Gen
 		t.st.Evals = t.es.Evals
+		t.st.BestEver = t.es.BestEver
 		copy(t.net.Params(), t.es.Theta)
 		p := Progress{Iter: gs.Gen, Best: gs.Best, Mean: gs.Mean, Evals: gs.Evals, Val: math.NaN()}
 		if t.st.Iter%t.cfg.ValEvery == 0 {
@@ -756,6 +758,31 @@ func sortedKeys(m map[string]string) []string {
 }
 
 func jsonString(v any) string {
-	b, _ := json.Marshal(v)
+	b, err := json.Marshal(v)
+	if err != nil {
+		panic("train: " + err.Error()) // only finite numbers reach here
+	}
 	return string(b)
+}
+
+// noInf maps ±Inf (a score not yet measured) to ∓MaxFloat64 for JSON,
+// which has no infinities; fromJSONInf maps it back.
+func noInf(v float64) float64 {
+	switch {
+	case math.IsInf(v, -1):
+		return -math.MaxFloat64
+	case math.IsInf(v, 1):
+		return math.MaxFloat64
+	}
+	return v
+}
+
+func fromJSONInf(v float64) float64 {
+	switch v {
+	case -math.MaxFloat64:
+		return math.Inf(-1)
+	case math.MaxFloat64:
+		return math.Inf(1)
+	}
+	return v
 }

@@ -1,0 +1,158 @@
+package train
+
+import (
+	"context"
+	"errors"
+	"path/filepath"
+	"reflect"
+	"testing"
+
+	_ "tilebench/games/all"
+	"tilebench/games"
+	"tilebench/patch"
+	"tilebench/vision/nets"
+)
+
+// tiny returns a small, fast configuration on drive.
+func tiny(method string, workers int) Config {
+	return Config{
+		Game: "drive", Patch: 4, Method: method, Seed: 11, Workers: workers, Iters: 2, Patience: -1,
+		Net:         nets.Config{KeySize: 4, Queries: 4, QueryDim: 4, ValueSize: 4, Hidden: 8},
+		ValEpisodes: 1, FitnessEpisodes: 1, ValEvery: 1,
+		Clone:       CloneConfig{EpisodesPerRound: 1, Epochs: 1, Batch: 32, Keep: 8},
+		ES:          ESConfig{Pairs: 2},
+		CMA:         CMAConfig{Population: 4},
+		Augment:     patch.Spec{Occlude: "random:0.25"},
+	}
+}
+
+func runTo(t *testing.T, tr *Trainer, stopAfter int) []float32 {
+	t.Helper()
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	_, err := tr.Run(ctx, func(p Progress) {
+		if stopAfter > 0 && p.Iter >= stopAfter {
+			cancel()
+		}
+	}, 0, nil)
+	if stopAfter > 0 {
+		if !errors.Is(err, context.Canceled) && err != nil {
+			t.Fatal(err)
+		}
+	} else if err != nil {
+		t.Fatal(err)
+	}
+	return append([]float32(nil), tr.net.Params()...)
+}
+
+// TestResumeContinuesExactly: for every method, a run interrupted after
+// one iteration, checkpointed and resumed, ends with the same parameter
+// bytes as an uninterrupted run of two iterations.
+func TestResumeContinuesExactly(t *testing.T) {
+	for _, m := range []string{Clone, ESm, CMAES} {
+		t.Run(m, func(t *testing.T) {
+			full, err := New(tiny(m, 2))
+			if err != nil {
+				t.Fatal(err)
+			}
+			want := runTo(t, full, 0)
+			part, err := New(tiny(m, 2))
+			if err != nil {
+				t.Fatal(err)
+			}
+			runTo(t, part, 1)
+			path := filepath.Join(t.TempDir(), "run.ckpt")
+			if err := part.SaveCheckpoint(path); err != nil {
+				t.Fatal(err)
+			}
+			res, err := Resume(path, 0, 0)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if res.st.Iter != 1 {
+				t.Fatalf("checkpoint holds iteration %d, want 1", res.st.Iter)
+			}
+			got := runTo(t, res, 0)
+			if !reflect.DeepEqual(got, want) {
+				t.Fatalf("resumed run differs from the uninterrupted one")
+			}
+			if !reflect.DeepEqual(res.best, full.best) {
+				t.Fatalf("best weights differ after resume")
+			}
+		})
+	}
+}
+
+// TestCloneSameAcrossWorkerCounts: the gradient is summed over a fixed
+// number of shards in a fixed order, so 1 and 2 workers give the same bytes.
+func TestCloneSameAcrossWorkerCounts(t *testing.T) {
+	a, err := New(tiny(Clone, 1))
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := New(tiny(Clone, 2))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if pa, pb := runTo(t, a, 0), runTo(t, b, 0); !reflect.DeepEqual(pa, pb) {
+		t.Fatal("1 and 2 workers gave different weights")
+	}
+	c := tiny(Clone, 2)
+	c.Seed++
+	cc, _ := New(c)
+	if reflect.DeepEqual(runTo(t, cc, 0), a.net.Params()) {
+		t.Fatal("another seed gave the same weights")
+	}
+}
+
+func TestNewRejectsBadConfig(t *testing.T) {
+	bad := []func(*Config){
+		func(c *Config) { c.Method = "sgd" },
+		func(c *Config) { c.Game = "chess" },
+		func(c *Config) { c.Patch = 500 },
+		func(c *Config) { c.Net.Family = "cnn" },
+		func(c *Config) { c.Clone.BetaDecay = 2 },
+		func(c *Config) { c.Augment.Occlude = "random:7" },
+		func(c *Config) { c.Net.Context = 3 },
+		func(c *Config) { c.Method = CMAES; c.Net = nets.Config{} }, // ~15k parameters: too many for CMA-ES
+	}
+	for i, f := range bad {
+		c := tiny(Clone, 1)
+		f(&c)
+		if _, err := New(c); err == nil {
+			t.Errorf("bad config %d accepted", i)
+		}
+	}
+}
+
+// TestDatasetLossless: the data set stores bytes, and the tokenizer maps
+// byte b to float32(b)/255, so a stored sample loads back bit for bit.
+func TestDatasetLossless(t *testing.T) {
+	g, _ := patch.NewGrid(patch.GridConfig{Width: 8, Height: 8, PatchW: 4})
+	ds := newDataset(g, 1, 1)
+	src := patch.NewTokenSet(g.N(), g.D())
+	for i := range src.Data {
+		src.Data[i] = float32(i*37%256) / 255
+	}
+	ds.add(src.Data, []float64{0.25}, []float64{-0.5})
+	dst := patch.NewTokenSet(g.N(), g.D())
+	prev := []float64{0}
+	ds.load(0, dst, prev)
+	if !reflect.DeepEqual(dst.Data, src.Data) || prev[0] != 0.25 || ds.labels(0)[0] != -0.5 || dst.Pos[3] != g.Cell(3) {
+		t.Fatal("sample did not load back exactly")
+	}
+}
+
+func TestSeedsStayOffHeldOut(t *testing.T) {
+	tr, err := New(tiny(ESm, 1))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for gen := 0; gen < 50; gen++ {
+		for _, s := range tr.fitnessSeeds(gen) {
+			if s >= games.Train(ValidationStart) {
+				t.Fatalf("fitness seed %d is outside the training slice", s)
+			}
+		}
+	}
+}
