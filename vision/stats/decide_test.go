@@ -217,6 +217,12 @@ func TestDiffAndRetention(t *testing.T) {
 	if err != nil || !(r.Lo < r.Value && r.Value < r.Hi && r.Hi < 1) {
 		t.Fatalf("retention %v %v", r, err)
 	}
+	// A clean sample with a positive mean whose resamples can go negative:
+	// those resamples count as +Inf, so the interval is open above.
+	r, err = Bootstrap{}.Retention(Strata{{1, 2}}, Strata{{5, -1}}, StatMean)
+	if err != nil || !math.IsInf(r.Hi, 1) || r.Value != 0.75 {
+		t.Fatalf("retention against an unstable clean score: %v %v", r, err)
+	}
 	_, err = Bootstrap{}.Retention(y, Strata{{-1, 0, -2}}, StatIQM)
 	if !errors.Is(err, ErrNotPositive) {
 		t.Fatalf("retention against a non-positive clean score: %v", err)

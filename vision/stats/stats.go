@@ -180,6 +180,17 @@ func percentileSorted(x []float64, p float64) float64 {
 	}
 	f := h - float64(lo)
 	a, b := x[lo], x[lo+1]
+	switch {
+	case f == 0 || a == b:
+		return a
+	case math.IsInf(b, 1) || math.IsInf(a, -1):
+		// Between a finite value and an infinite one the line is infinite
+		// (numpy's formula would give NaN).
+		if math.IsInf(a, -1) {
+			return a
+		}
+		return b
+	}
 	if f >= 0.5 { // numpy's _lerp form, for the same rounding
 		return b - (b-a)*(1-f)
 	}

@@ -197,21 +197,25 @@ func TestRefBootstrap(t *testing.T) {
 // The counting sampler gives the statistics of the resample it stands for:
 // checked against drawing the values and applying the plain functions.
 func TestSamplerMatchesValues(t *testing.T) {
-	s := Strata{{3, 1, 4, 1, 5}, {9, 2, 6}, {5, 3, 5, 8, 9, 7, 9}, {3}}
-	sp := newSampler(s)
-	r1, r2 := patch.NewRand(11), patch.NewRand(11)
-	buf := make([]float64, s.N())
-	for i := 0; i < 500; i++ {
-		sp.draw(r1)
-		resample(r2, s, buf)
-		for _, st := range []Statistic{StatMean, StatMedian, StatIQM} {
-			if a, b := sp.stat(st), st.Of(buf); math.Abs(a-b) > 1e-12 {
-				t.Fatalf("resample %d %v: sampler %v, values %v (%v)", i, st, a, b, buf)
+	for _, s := range []Strata{
+		{{3, 1, 4, 1, 5}, {9, 2, 6}, {5, 3, 5, 8, 9, 7, 9}, {3}}, // 16 scores
+		{{2.5, -1, 7}, {0, 0, 1, 8}, {4, 4, 4, 4, 4, 3}},         // 13 scores
+	} {
+		sp := newSampler(s)
+		r1, r2 := patch.NewRand(11), patch.NewRand(11)
+		buf := make([]float64, s.N())
+		for i := 0; i < 500; i++ {
+			sp.draw(r1)
+			resample(r2, s, buf)
+			for _, st := range []Statistic{StatMean, StatMedian, StatIQM} {
+				if a, b := sp.stat(st), st.Of(buf); math.Abs(a-b) > 1e-12 {
+					t.Fatalf("resample %d %v: sampler %v, values %v (%v)", i, st, a, b, buf)
+				}
 			}
 		}
-	}
-	sp.full()
-	if sp.iqm() != IQM(s.Pool()) || sp.median() != Median(s.Pool()) {
-		t.Fatal("full sampler differs from the data")
+		sp.full()
+		if sp.iqm() != IQM(s.Pool()) || sp.median() != Median(s.Pool()) {
+			t.Fatal("full sampler differs from the data")
+		}
 	}
 }
