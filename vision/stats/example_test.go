@@ -44,3 +44,27 @@ func ExampleRecommender() {
 	fmt.Println("best:", cands[ch.Best].Name, "pick:", cands[ch.Pick].Name)
 	// Output: best: patch 4 pick: patch 8
 }
+
+func ExampleBreakingPoint() {
+	levels := []stats.Level{
+		{Severity: 0.1, Retention: stats.Estimate{Value: 0.95}},
+		{Severity: 0.3, Retention: stats.Estimate{Value: 0.71}},
+		{Severity: 0.5, Retention: stats.Estimate{Value: 0.42}},
+		{Severity: 0.7, Retention: stats.Estimate{Value: 0.18}},
+	}
+	b, _ := stats.BreakingPoint(levels, 0) // default threshold 0.5
+	fmt.Println(b)
+	b, _ = stats.BreakingPoint(levels, 0.1)
+	fmt.Println(b)
+	// Output:
+	// 0.5
+	// not reached (≤ 0.7)
+}
+
+func ExampleBootstrap_Retention() {
+	clean := stats.Strata{{100, 104, 98, 101, 99, 103, 97, 102}}
+	stressed := stats.Strata{{52, 49, 55, 47, 50, 51, 53, 48}}
+	r, _ := stats.Bootstrap{Seed: 3}.Retention(stressed, clean, stats.StatIQM)
+	fmt.Printf("retention %.2f, interval inside (0.45, 0.55): %v\n", r.Value, r.Lo > 0.45 && r.Hi < 0.55)
+	// Output: retention 0.50, interval inside (0.45, 0.55): true
+}
