@@ -150,8 +150,9 @@ type Policy struct {
 	name   string
 	invar  bool
 
-	w      conn
-	r      *bufio.Reader
+	w      conn          // where messages go
+	rd     conn          // where replies come from (deadlines)
+	r      *bufio.Reader // buffered rd
 	closer []io.Closer
 
 	// child process (exec: targets)
@@ -207,7 +208,7 @@ func Open(target string, cfg Config) (*Policy, error) {
 		if tc, ok := c.(*net.TCPConn); ok {
 			tc.SetNoDelay(true)
 		}
-		p.w = c
+		p.w, p.rd = c, c
 		p.r = bufio.NewReaderSize(c, MaxLine)
 		p.closer = append(p.closer, c)
 	default:
@@ -286,7 +287,7 @@ func (p *Policy) startChild(argv []string) error {
 		p.waitErr = cmd.Wait()
 		close(p.exited)
 	}()
-	p.w = inW
+	p.w, p.rd = inW, outR
 	p.r = bufio.NewReaderSize(outR, MaxLine)
 	p.closer = append(p.closer, inW, outR)
 	return nil
@@ -376,7 +377,7 @@ func (p *Policy) kill() {
 
 // readLine reads one header line before deadline.
 func (p *Policy) readLine(phase string, step int, deadline time.Time, timeout time.Duration) ([]byte, *FaultError) {
-	p.w.SetReadDeadline(deadline)
+	p.rd.SetReadDeadline(deadline)
 	line, err := p.r.ReadSlice('\n')
 	if err != nil {
 		switch {

@@ -168,21 +168,43 @@ func appendFloat(b []byte, v float64) []byte {
 // appendFrame appends the H×W×C bytes (or float32s) of img.
 func appendFrame(b []byte, img *image.RGBA, channels int, dtype string) []byte {
 	w, h := img.Rect.Dx(), img.Rect.Dy()
+	size := 1
+	if dtype == Float32 {
+		size = 4
+	}
+	start := len(b)
+	need := w * h * channels * size
+	if cap(b)-start < need {
+		nb := make([]byte, start, start+need)
+		copy(nb, b)
+		b = nb
+	}
+	b = b[:start+need]
+	dst := b[start:]
+	k := 0
 	for y := 0; y < h; y++ {
 		row := img.Pix[y*img.Stride : y*img.Stride+4*w]
 		switch {
-		case dtype == Uint8 && channels == 3:
-			for x := 0; x+3 < len(row); x += 4 {
-				b = append(b, row[x], row[x+1], row[x+2])
+		case size == 1 && channels == 3:
+			// One 4-byte store per pixel; the spare byte is overwritten
+			// by the next pixel (the last pixel is copied bytewise).
+			d := dst[k : k+3*w]
+			for x := 0; x < w-1; x++ {
+				binary.LittleEndian.PutUint32(d[3*x:3*x+4], binary.LittleEndian.Uint32(row[4*x:4*x+4]))
 			}
-		case dtype == Uint8:
-			for x := 0; x < len(row); x += 4 {
-				b = append(b, row[x])
+			x := w - 1
+			d[3*x], d[3*x+1], d[3*x+2] = row[4*x], row[4*x+1], row[4*x+2]
+			k += 3 * w
+		case size == 1:
+			for x := 0; x < w; x++ {
+				dst[k+x] = row[4*x]
 			}
+			k += w
 		default:
-			for x := 0; x < len(row); x += 4 {
+			for x := 0; x < w; x++ {
 				for c := 0; c < channels; c++ {
-					b = binary.LittleEndian.AppendUint32(b, math.Float32bits(float32(row[x+c])/255))
+					binary.LittleEndian.PutUint32(dst[k:], math.Float32bits(float32(row[4*x+c])/255))
+					k += 4
 				}
 			}
 		}

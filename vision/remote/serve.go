@@ -83,7 +83,7 @@ func Serve(r io.Reader, w io.Writer, pol vision.Policy, opt ServeOptions) error 
 	s := &server{h: &h, grid: grid, space: space, pol: pol}
 	s.tokens = patch.NewTokenSet(h.Tokens.Max, grid.D())
 	s.frame = image.NewRGBA(image.Rect(0, 0, h.Frame[1], h.Frame[0]))
-	if h.Obs == ObsTokens && info.WantsFrame {
+	if h.Obs == ObsTokens && info.WantsFrame || h.Obs == ObsFrame && !info.WantsFrame && grid.OutW == grid.Width && grid.OutH == grid.Height {
 		s.tok = patch.NewTokenizer(grid)
 	}
 	s.payload = make([]byte, h.Limits.MaxPayload)
@@ -146,6 +146,9 @@ func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
 	if err != nil || !ok {
 		return fmt.Errorf("serve: step %d: bad payload length", t)
 	}
+	// The header aliases the reader's buffer: take what is needed before
+	// reading the payload.
+	count, _, cerr := s.hdr.integer("n", 0, int64(s.tokens.Cap()))
 	buf := s.payload[:n]
 	if _, err := io.ReadFull(br, buf); err != nil {
 		return fmt.Errorf("serve: step %d: payload: %w", t, err)
@@ -160,9 +163,8 @@ func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
 	s.obs.Step = int(t)
 	s.obs.Frame = nil
 	if s.h.Obs == ObsTokens {
-		count, _, err := s.hdr.integer("n", 0, int64(s.tokens.Cap()))
-		if err != nil || int(n) != int(count)*(s.grid.D()*size+4) {
-			return fmt.Errorf("serve: step %d: token count and payload disagree", t)
+		if err := cerr; err != nil || int(n) != int(count)*(s.grid.D()*size+4) {
+			return fmt.Errorf("serve: step %d: %d tokens (%v) and a payload of %d bytes disagree", t, count, err, n)
 		}
 		ts := s.tokens
 		ts.N = int(count)
@@ -189,22 +191,16 @@ func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
 		if int(n) != hh*ww*cc*size {
 			return fmt.Errorf("serve: step %d: frame payload of %d bytes", t, n)
 		}
-		pix := s.frame.Pix
-		for i := 0; i < hh*ww; i++ {
-			for c := 0; c < 3; c++ {
-				cs := min(c, cc-1)
-				var v uint8
-				if size == 1 {
-					v = buf[i*cc+cs]
-				} else {
-					f := math.Float32frombits(binary.LittleEndian.Uint32(buf[4*(i*cc+cs):]))
-					v = uint8(math.Round(float64(min(1, max(0, f))) * 255))
-				}
-				pix[4*i+c] = v
-			}
-			pix[4*i+3] = 255
-		}
+		decodeFrame(s.frame.Pix, buf, hh*ww, cc, size)
 		s.obs.Frame = s.frame
+		// Token-reading policies get the frame's tokens, in grid order.
+		s.tokens.N = 0
+		if s.tok != nil {
+			if err := s.tok.Tokenize(s.frame, s.tokens); err != nil {
+				return fmt.Errorf("serve: step %d: %w", t, err)
+			}
+			s.tokens.N = s.grid.N()
+		}
 	}
 	clear(s.action)
 	if err := s.pol.Act(&s.obs, s.action); err != nil {
@@ -240,4 +236,35 @@ func appendJSONFloat(b []byte, v float64) []byte {
 		return append(b, "-Infinity"...)
 	}
 	return appendFloat(b, v)
+}
+
+// decodeFrame fills RGBA pixels from n pixels of c channels (grey is
+// spread to R, G and B) of 1-byte or float32 values.
+func decodeFrame(pix, buf []byte, n, c, size int) {
+	pix = pix[:4*n]
+	switch {
+	case size == 1 && c == 3:
+		buf = buf[:3*n]
+		// One 4-byte load per pixel (the last pixel is read bytewise).
+		for i := 0; i < n-1; i++ {
+			v := binary.LittleEndian.Uint32(buf[3*i : 3*i+4])
+			binary.LittleEndian.PutUint32(pix[4*i:4*i+4], v|0xff000000)
+		}
+		if i := n - 1; i >= 0 {
+			pix[4*i], pix[4*i+1], pix[4*i+2], pix[4*i+3] = buf[3*i], buf[3*i+1], buf[3*i+2], 255
+		}
+	case size == 1:
+		for i := 0; i < n; i++ {
+			v := buf[i]
+			pix[4*i], pix[4*i+1], pix[4*i+2], pix[4*i+3] = v, v, v, 255
+		}
+	default:
+		for i := 0; i < n; i++ {
+			for ch := 0; ch < 3; ch++ {
+				f := math.Float32frombits(binary.LittleEndian.Uint32(buf[4*(i*c+min(ch, c-1)):]))
+				pix[4*i+ch] = uint8(math.Round(float64(min(1, max(0, f))) * 255))
+			}
+			pix[4*i+3] = 255
+		}
+	}
 }
