@@ -5,6 +5,7 @@ import (
 	"image"
 	"image/color"
 	"image/draw"
+	"unsafe"
 )
 
 // Pixel values and the luma rule.
@@ -217,11 +218,18 @@ func putRGB(dst []float32, i, C int, r, g, b uint8) {
 }
 
 func rgbaRow3(dst []float32, p []byte) {
-	for len(p) >= 4 && len(dst) >= 3 {
-		dst[0] = unit[p[0]]
-		dst[1] = unit[p[1]]
-		dst[2] = unit[p[2]]
-		p, dst = p[4:], dst[3:]
+	n := min(len(p)/4, len(dst)/3)
+	if n == 0 {
+		return
+	}
+	// Pointer arithmetic within the two slices, checked above: the
+	// bounds-checked loop spends most of its instructions on slice
+	// bookkeeping (measured 2-3x slower).
+	sp, dp := unsafe.Pointer(&p[0]), unsafe.Pointer(&dst[0])
+	for i := 0; i < n; i++ {
+		s := (*[3]byte)(unsafe.Add(sp, 4*i))
+		d := (*[3]float32)(unsafe.Add(dp, 12*i))
+		d[0], d[1], d[2] = unit[s[0]], unit[s[1]], unit[s[2]]
 	}
 }
 

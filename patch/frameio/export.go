@@ -89,40 +89,25 @@ func InvertSize(m *patch.Manifest, cropToSource bool) (w, h int) {
 
 // Invert puts frames that were exported with manifest m back into grid
 // order and hands them to out (orig is the exported frame, out the
-// restored one). Each frame is tokenized on a grid of the exported size;
-// the token in slot order k (the k-th real token the pipeline emitted) is
-// found at its slot's cell, and m's record inverts the permutation,
-// rotations and flips (patch.FrameRecord.Unscramble). Noise tokens and
+// restored one). Each frame is tokenized on the grid of the exported size
+// (patch.Grid.Covered), and m's record of the frame inverts the
+// permutation, rotations and flips (patch.FrameRecord.UnscramblePicture:
+// output token k is read from the cell it was drawn at). Noise tokens and
 // duplicates are left out; occluded cells stay as they were exported
 // (black, mean or noise) and dropped cells come back black. With
 // cropToSource the frame is cropped to the source size. Photometric
 // changes are not undone.
-//
-// When the spec drops occluded tokens, the slots the kept tokens took are
-// not in the record: they are found by replaying the pipeline from the
-// manifest's seed on blank frames (the masks and permutations do not
-// depend on the pixels), and the replayed permutation must equal the
-// recorded one.
 func Invert(r Reader, m *patch.Manifest, cropToSource bool, out *Outputs, progress func(int)) (int, error) {
 	info := r.Info()
 	if err := CheckInvertible(info, m); err != nil {
 		return 0, err
 	}
 	g := m.GridOf()
-	eg, err := patch.NewGrid(patch.GridConfig{Width: g.OutW, Height: g.OutH, Channels: g.Channels,
-		PatchW: g.PatchW, PatchH: g.PatchH, Edge: patch.EdgeStrict})
-	if err != nil {
-		return 0, fmt.Errorf("manifest grid: %w", err)
-	}
-	etok, otok := patch.NewTokenizer(eg), patch.NewTokenizer(g)
-	N, D := g.N(), g.D()
-	capa := N + m.Spec.NoiseTokens + m.Spec.Duplicates
-	slots := patch.NewTokenSet(eg.N(), D)
-	src := patch.NewTokenSet(capa, D)
-	back := patch.NewTokenSet(N, D)
+	etok, otok := patch.NewTokenizer(g.Covered()), patch.NewTokenizer(g)
+	cells := patch.NewTokenSet(g.N(), g.D())
+	back := patch.NewTokenSet(g.N(), g.D())
 	full := image.NewRGBA(image.Rect(0, 0, g.OutW, g.OutH))
 	cw, ch := InvertSize(m, cropToSource)
-	var replay *replayer
 	for t := 0; ; t++ {
 		img, err := r.Next()
 		if err == io.EOF {
@@ -141,29 +126,10 @@ func Invert(r Reader, m *patch.Manifest, cropToSource bool, out *Outputs, progre
 		if rec.Frame != t {
 			return t, fmt.Errorf("manifest record %d is for frame %d: manifest does not match the frames", t, rec.Frame)
 		}
-		if err := etok.Tokenize(img, slots); err != nil {
+		if err := etok.Tokenize(img, cells); err != nil {
 			return t, fmt.Errorf("%s: frame %d: %w", info.Name, t, err)
 		}
-		src.N, src.D = len(rec.Perm), D
-		clear(src.Data[:src.N*D])
-		if rec.Real == N {
-			copy(src.Data[:N*D], slots.Data[:N*D])
-		} else {
-			if replay == nil {
-				if replay, err = newReplayer(m); err != nil {
-					return t, err
-				}
-			}
-			pos, err := replay.slots(t, rec)
-			if err != nil {
-				return t, err
-			}
-			for k := 0; k < rec.Real; k++ {
-				i := g.Index(pos[k])
-				copy(src.Data[k*D:(k+1)*D], slots.Data[i*D:(i+1)*D])
-			}
-		}
-		if err := rec.Unscramble(g, src, back); err != nil {
+		if err := rec.UnscramblePicture(g, cells, back); err != nil {
 			return t, fmt.Errorf("%s: frame %d: %w", info.Name, t, err)
 		}
 		if err := otok.Assemble(back, full); err != nil {
@@ -180,45 +146,4 @@ func Invert(r Reader, m *patch.Manifest, cropToSource bool, out *Outputs, progre
 			progress(t + 1)
 		}
 	}
-}
-
-// replayer re-runs a manifest's pipeline on blank frames to learn the
-// cells that the kept tokens of each frame were drawn at.
-type replayer struct {
-	p        *patch.Pipeline
-	src, dst *patch.TokenSet
-	rec      patch.FrameRecord
-	next     int
-}
-
-func newReplayer(m *patch.Manifest) (*replayer, error) {
-	p, err := m.NewPipeline()
-	if err != nil {
-		return nil, err
-	}
-	g := m.GridOf()
-	src := patch.NewTokenSet(g.N(), g.D())
-	src.N = g.N()
-	for i := 0; i < g.N(); i++ {
-		src.Pos[i] = g.Cell(i)
-	}
-	return &replayer{p: p, src: src, dst: patch.NewTokenSet(p.Capacity(), g.D())}, nil
-}
-
-// slots returns the positions of frame t's output tokens.
-func (r *replayer) slots(t int, want *patch.FrameRecord) ([]patch.Pos, error) {
-	for ; r.next <= t; r.next++ {
-		if err := r.p.Apply(r.next, r.src, r.dst, &r.rec); err != nil {
-			return nil, fmt.Errorf("replay frame %d: %w", r.next, err)
-		}
-	}
-	if len(r.rec.Perm) != len(want.Perm) {
-		return nil, fmt.Errorf("frame %d: replaying the manifest gives %d tokens, the record has %d: manifest is inconsistent", t, len(r.rec.Perm), len(want.Perm))
-	}
-	for i := range want.Perm {
-		if r.rec.Perm[i] != want.Perm[i] {
-			return nil, fmt.Errorf("frame %d: replaying the manifest gives another permutation than the record: manifest is inconsistent", t)
-		}
-	}
-	return r.dst.Pos[:r.dst.N], nil
 }
