@@ -47,7 +47,7 @@ var (
 // chart (so it never covers data).
 type legendItem struct {
 	Name  string
-	Kind  string // "line", "dashed", "dot" or "pick"
+	Kind  string // "line", "dashed", "dot", "ring" or "pick"
 	Color string // CSS colour
 }
 
@@ -135,6 +135,7 @@ func finite(v ...float64) bool {
 // line through Y and the measured points.
 func curvesSVG(c Curves) (template.HTML, []legendItem, error) {
 	var leg []legendItem
+	var breaks plotter.XYs
 	p := newPlot(c.XLabel, c.YLabel)
 	xmin, xmax := math.Inf(1), math.Inf(-1)
 	any := false
@@ -180,6 +181,16 @@ func curvesSVG(c Curves) (template.HTML, []legendItem, error) {
 		sc.Color, sc.Shape, sc.Radius = col, draw.CircleGlyph{}, vg.Points(2.6)
 		p.Add(l, sc)
 		leg = append(leg, legendItem{Name: s.Name, Kind: "line", Color: cssColor(col)})
+		if c.Threshold != 0 {
+			// The first point below the threshold: the series' breaking
+			// point under the rule of stats.BreakingPoint.
+			for _, q := range line {
+				if q.Y < c.Threshold {
+					breaks = append(breaks, q)
+					break
+				}
+			}
+		}
 	}
 	if !any {
 		return "", nil, fmt.Errorf("chart %q: no finite points", c.Title)
@@ -194,6 +205,15 @@ func curvesSVG(c Curves) (template.HTML, []legendItem, error) {
 		}
 		p.Add(th)
 		leg = append(leg, legendItem{Name: "threshold " + num(c.Threshold), Kind: "dashed", Color: cssColor(alertColor)})
+		if len(breaks) > 0 {
+			br, err := plotter.NewScatter(breaks)
+			if err != nil {
+				return "", nil, err
+			}
+			br.Color, br.Shape, br.Radius = alertColor, draw.RingGlyph{}, vg.Points(6)
+			p.Add(br)
+			leg = append(leg, legendItem{Name: "first below threshold", Kind: "ring", Color: cssColor(alertColor)})
+		}
 	}
 	p.X.Max += (p.X.Max - p.X.Min) * 0.03
 	svg, err := renderSVG(p, c.Title)
