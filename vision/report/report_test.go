@@ -21,8 +21,10 @@ func writeDemo(t *testing.T) (string, *Data) {
 	return dir, d
 }
 
-// artifactDir is where the Chromium screenshot is kept: $TILEBENCH_ARTIFACTS
-// when set, else the test's temporary folder (its path is logged).
+// artifactDir is where the Chromium screenshots are kept:
+// $TILEBENCH_ARTIFACTS when set, else the test's artifact folder
+// (t.ArtifactDir: kept under the output folder with `go test -artifacts`,
+// removed after the test otherwise). The path is logged.
 func artifactDir(t *testing.T) string {
 	if a := os.Getenv("TILEBENCH_ARTIFACTS"); a != "" {
 		if err := os.MkdirAll(a, 0o755); err != nil {
@@ -30,7 +32,7 @@ func artifactDir(t *testing.T) string {
 		}
 		return a
 	}
-	return t.TempDir()
+	return t.ArtifactDir()
 }
 
 func TestWriteDemo(t *testing.T) {
