@@ -350,7 +350,8 @@ func (p *Pipeline) scramble(e int) {
 			x.idx[i], x.idx[j] = x.idx[j], x.idx[i]
 		}
 		// Sattolo's algorithm: a uniformly random single k-cycle, so no
-		// chosen token keeps its cell.
+		// chosen token keeps its cell (a single chosen token, k = 1,
+		// cannot move).
 		chosen := x.idx[:k]
 		for i := k - 1; i > 0; i-- {
 			j := r.IntN(i)
@@ -384,7 +385,7 @@ func (p *Pipeline) localShuffle(r *rand.Rand) {
 		for l := 0; l < lines; l++ {
 			keys, order := x.keys[:length], x.line[:length]
 			for k := 0; k < length; k++ {
-				keys[k] = float64(k) + K*r.Float64()
+				keys[k] = float64(k) + float64(K*r.Float64()) // rounded: no fused multiply-add
 				order[k] = x.perm[at(l, k)]
 			}
 			// Insertion sort of (key, order): nearly sorted already.

@@ -13,8 +13,8 @@ import (
 // versions, fused multiply-adds).
 func normalPair(r *rand.Rand) (float64, float64) {
 	for {
-		u := 2*r.Float64() - 1
-		v := 2*r.Float64() - 1
+		u := float64(2*r.Float64()) - 1
+		v := float64(2*r.Float64()) - 1
 		s := float64(u*u) + float64(v*v)
 		if s >= 1 || s == 0 {
 			continue
