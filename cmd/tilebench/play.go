@@ -264,8 +264,12 @@ func printPlaySummary(w io.Writer, s *playSummary) {
 	for _, r := range []games.EndReason{games.Completed, games.Failed, games.TimeUp} {
 		ends = append(ends, fmt.Sprintf("%s %d", r, s.Ends[r.String()]))
 	}
-	fmt.Fprintf(w, "%d episodes: mean return %.2f (min %.2f, max %.2f); %s; %.0f steps/s\n",
-		len(s.Episodes), s.Mean, s.Min, s.Max, strings.Join(ends, ", "), s.StepsPerS)
+	noun := "episodes"
+	if len(s.Episodes) == 1 {
+		noun = "episode"
+	}
+	fmt.Fprintf(w, "%d %s: mean return %.2f (min %.2f, max %.2f); %s; %.0f steps/s\n",
+		len(s.Episodes), noun, s.Mean, s.Min, s.Max, strings.Join(ends, ", "), s.StepsPerS)
 	if s.GIF != "" {
 		fmt.Fprintf(w, "wrote %s\n", s.GIF)
 	}

@@ -102,7 +102,6 @@ type Game struct {
 	offSteps  int
 	done      bool
 	reason    games.EndReason
-	seed      uint64
 	sprite    []spritePx
 	expert    *Expert
 	frameView viewGeom
@@ -197,7 +196,6 @@ func (g *Game) OnRoad() bool { return math.Abs(g.lateral) <= g.track.Width/2 }
 // world image once and puts the car at rest on the start band, facing
 // along the road.
 func (g *Game) Reset(seed uint64) {
-	g.seed = seed
 	tr, err := NewTrack(seed, g.cfg.Track)
 	if err != nil {
 		// Only reachable with extreme configs; NewConfig reports it.
