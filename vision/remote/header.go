@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"strconv"
+	"unicode/utf8"
 	"unsafe"
 )
 
@@ -75,6 +76,9 @@ func (h *header) parse(line []byte) error {
 	h.fields = h.fields[:0]
 	h.nums = h.nums[:0]
 	p := parser{b: line}
+	if !utf8.Valid(line) {
+		return p.fail("header is not valid UTF-8")
+	}
 	p.ws()
 	if p.i >= len(p.b) || p.b[p.i] != '{' {
 		return p.fail("header is not a JSON object")

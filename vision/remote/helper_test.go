@@ -204,8 +204,8 @@ func rawHelper(mode string) int {
 // zeroPolicy answers zeros: the trivial echo policy.
 type zeroPolicy struct{}
 
-func (zeroPolicy) Info() vision.Info                       { return vision.Info{Family: "zero", WantsFrame: true} }
-func (zeroPolicy) Reset(uint64)                            {}
+func (zeroPolicy) Info() vision.Info                        { return vision.Info{Family: "zero", WantsFrame: true} }
+func (zeroPolicy) Reset(uint64)                             {}
 func (zeroPolicy) Act(*vision.Observation, []float64) error { return nil }
 
 // sumPolicy is a deterministic function of the tokens, their positions,
@@ -213,7 +213,9 @@ func (zeroPolicy) Act(*vision.Observation, []float64) error { return nil }
 // policy the protocol must reproduce exactly.
 type sumPolicy struct{ seed uint64 }
 
-func (p *sumPolicy) Info() vision.Info { return vision.Info{Family: "sum", Invariant: true, WantsFrame: true} }
+func (p *sumPolicy) Info() vision.Info {
+	return vision.Info{Family: "sum", Invariant: true, WantsFrame: true}
+}
 func (p *sumPolicy) Reset(seed uint64) { p.seed = seed }
 func (p *sumPolicy) Act(obs *vision.Observation, a []float64) error {
 	var s, w float64
