@@ -47,7 +47,7 @@ type Cost struct {
 // count, FLOPs per step per layer and activation memory, for a full token
 // set (grid.N() tokens).
 func Estimate(cfg Config, grid *patch.Grid, space games.ActionSpace) (Cost, error) {
-	n, err := build(cfg, grid, space)
+	n, err := plan(cfg, grid, space)
 	if err != nil {
 		return Cost{}, err
 	}
@@ -114,7 +114,7 @@ func Estimate(cfg Config, grid *patch.Grid, space games.ActionSpace) (Cost, erro
 	if c.hd.cont {
 		th("action tanh", out)
 	}
-	cost := Cost{Family: cfg.Family, Tokens: int(N), TokenDim: grid.D(), Params: len(c.params), Layers: layers}
+	cost := Cost{Family: cfg.Family, Tokens: int(N), TokenDim: grid.D(), Params: c.size(), Layers: layers}
 	for _, l := range layers {
 		cost.FLOPs += l.FLOPs
 		cost.Activations += l.Activations

@@ -43,16 +43,16 @@ func newAttn(c *core) *attnNet {
 	} else {
 		n.dv = c.in.pixels()
 	}
-	n.pe = PositionalEncoding(cfg.Queries, cfg.QueryDim)
 	n.qoff = c.declare("query.proj", cfg.QueryDim, cfg.QueryDim, cfg.KeySize)
 	if n.pos {
 		n.eoff = c.declare("pos.embed", 0, c.grid.N(), cfg.KeySize)
 	}
-	n.q = make([]float32, cfg.Queries*cfg.KeySize)
 	n.att = attention{m: cfg.Queries, d: cfg.KeySize, dv: n.dv, needDV: n.value != nil}
 	n.att.scale = 1 / sqrtf(float32(cfg.KeySize))
 	c.newHead(cfg.Queries*n.dv, true)
 	c.binds = append(c.binds, func() {
+		n.pe = PositionalEncoding(cfg.Queries, cfg.QueryDim)
+		n.q = make([]float32, cfg.Queries*cfg.KeySize)
 		sz := cfg.QueryDim * cfg.KeySize
 		n.wq, n.gq = c.params[n.qoff:n.qoff+sz], c.grads[n.qoff:n.qoff+sz]
 		if n.pos {
@@ -203,7 +203,7 @@ func newMLP(c *core) *mlpNet {
 		in += c.in.pa
 	}
 	c.newHead(in, false)
-	n.flat = make([]float32, in)
+	c.binds = append(c.binds, func() { n.flat = make([]float32, in) })
 	return n
 }
 

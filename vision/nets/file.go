@@ -94,7 +94,7 @@ func FromFile(f *weights.File) (Net, error) {
 	if err != nil {
 		return nil, err
 	}
-	n, err := build(cfg, grid, space)
+	n, err := plan(cfg, grid, space)
 	if err != nil {
 		return nil, err
 	}
@@ -111,12 +111,16 @@ func FromFile(f *weights.File) (Net, error) {
 				return nil, fmt.Errorf("tensor %q: value %d is %v", s.name, i, v)
 			}
 		}
-		copy(c.params[s.off:s.off+s.size], data)
 	}
 	for _, t := range f.Tensors {
 		if !want[t.Name] {
 			return nil, fmt.Errorf("tensor %q does not belong to a %s policy with these hyper-parameters", t.Name, cfg.Family)
 		}
+	}
+	c.alloc()
+	for _, s := range c.specs {
+		data, _ := f.Want(s.name, s.shape...)
+		copy(c.params[s.off:s.off+s.size], data)
 	}
 	return n, nil
 }

@@ -11,9 +11,21 @@ import (
 // the policy loader: no panic, and a loaded net acts without error on a
 // full token set of its grid.
 func FuzzFromFile(f *testing.F) {
-	g := testGrid(f, 16, 16, 8)
-	for _, sc := range smallConfigs[:5] {
-		n := mustNew(f, sc.cfg, g, contSpace, 1)
+	// Tiny nets keep the seeds small, so that the fuzzer's minimisation of
+	// new inputs stays quick.
+	g := testGrid(f, 4, 4, 2)
+	tiny := []Config{
+		{Family: Attention, KeySize: 2, Queries: 2, QueryDim: 2, ValueSize: 2, Hidden: 2},
+		{Family: PosAttention, KeySize: 2, Queries: 2, QueryDim: 2, Value: "identity", Hidden: 2, PrevAction: true},
+		{Family: MeanPool, TokenHidden: 2, Hidden: 2, Context: 2},
+		{Family: MLP, Hidden: 2},
+	}
+	for i, cfg := range tiny {
+		sp := contSpace
+		if i%2 == 1 {
+			sp = discSpace
+		}
+		n := mustNew(f, cfg, g, sp, 1)
 		wf, err := ToFile(n, map[string]string{"seed": "1"})
 		if err != nil {
 			f.Fatal(err)

@@ -80,6 +80,18 @@ type net interface {
 
 // build constructs an untrained net (zero parameters).
 func build(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
+	n, err := plan(cfg, grid, space)
+	if err != nil {
+		return nil, err
+	}
+	n.base().alloc()
+	return n, nil
+}
+
+// plan declares a net's layers and tensors without allocating its
+// parameters or buffers (alloc does), so that a weights file can be
+// checked against the family before anything large is allocated.
+func plan(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
 	if grid == nil {
 		return nil, errors.New("new policy: no patch grid")
 	}
@@ -113,7 +125,6 @@ func build(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
 	if total := c.size(); total > maxValues {
 		return nil, fmt.Errorf("new %s policy: %d parameters, more than %d", cfg.Family, total, int64(maxValues))
 	}
-	c.alloc()
 	return n, nil
 }
 
@@ -208,6 +219,7 @@ func (c *core) size() int {
 }
 
 func (c *core) alloc() {
+	c.in.alloc()
 	total := c.size()
 	c.params = make([]float32, total)
 	c.grads = make([]float32, total)
@@ -259,6 +271,7 @@ type inputs struct {
 	hist          []float32 // (k−1) slots × cells × d
 	head          int       // slot holding the previous step
 	cellOf        []int     // grid index of each token of the last set (-1 none)
+	capacity      int
 }
 
 func (in *inputs) init(cfg Config, g *patch.Grid, s games.ActionSpace) {
@@ -272,11 +285,17 @@ func (in *inputs) init(cfg Config, g *patch.Grid, s games.ActionSpace) {
 		}
 	}
 	in.din = in.d*in.k + in.pa
+	in.capacity = cfg.Capacity
+}
+
+func (in *inputs) alloc() {
 	if in.k > 1 {
 		in.hist = make([]float32, (in.k-1)*in.cells*in.d)
 	}
-	in.buf = make([]float32, cfg.Capacity*in.din)
-	in.cellOf = make([]int, cfg.Capacity)
+	if in.k > 1 || in.pa > 0 {
+		in.buf = make([]float32, in.capacity*in.din)
+	}
+	in.cellOf = make([]int, in.capacity)
 }
 
 func (in *inputs) reset() {
