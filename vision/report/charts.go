@@ -119,6 +119,10 @@ func renderSVG(p *plot.Plot, label string) (out template.HTML, err error) {
 	s = svgPrefix.ReplaceAllString(s, "<svg ")
 	s = svgXMLNS.ReplaceAllString(s, "")
 	s = svgSize.ReplaceAllString(s, `class="chart" role="img" aria-label="`+template.HTMLEscapeString(label)+`"`)
+	// gonum/plot measures text with Liberation Sans; where that font is
+	// missing, fall back to the fonts with the same metrics (Arimo, Arial,
+	// Helvetica: common practice) before any sans-serif.
+	s = strings.ReplaceAll(s, "font-family:Liberation Sans;", "font-family:'Liberation Sans',Arimo,Arial,Helvetica,sans-serif;")
 	return template.HTML(s), nil
 }
 
