@@ -107,6 +107,9 @@ func plan(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
 	}
 	// Refuse sizes that would allocate beyond reason (a corrupt file or a
 	// typo), before allocating anything.
+	if grid.N() > 1<<22 || grid.D() > 1<<22 {
+		return nil, fmt.Errorf("new %s policy: %d tokens of %d values is too large", cfg.Family, grid.N(), grid.D())
+	}
 	rowValues := int64(grid.D())*int64(cfg.Context) + int64(space.Dim()+len(space.Names))
 	if v := rowValues * int64(max(cfg.Capacity, grid.N())) * int64(cfg.Context); v > maxValues {
 		return nil, fmt.Errorf("new %s policy: %d tokens of %d values with context %d need %d values of input buffers, more than %d", cfg.Family, grid.N(), grid.D(), cfg.Context, v, int64(maxValues))

@@ -271,6 +271,11 @@ func TestNewRejectsBadConfigs(t *testing.T) {
 	if _, err := New(Config{}, nil, contSpace, 1); err == nil {
 		t.Error("nil grid accepted")
 	}
+	for _, huge := range []*patch.Grid{testGrid(t, 1<<16, 1<<16, 1), testGrid(t, 4096, 4096, 4)} {
+		if _, err := New(Config{Family: MLP}, huge, contSpace, 1); err == nil || !strings.Contains(err.Error(), "large") && !strings.Contains(err.Error(), "more than") {
+			t.Errorf("grid %s: error %v, want a refusal as too large", huge, err)
+		}
+	}
 	n := mustNew(t, Config{}, g, contSpace, 1)
 	obs := randomObs(testGrid(t, 32, 32, 4), 1, 3)
 	if err := n.Act(obs, make([]float64, 3)); err == nil || !strings.Contains(err.Error(), "values") {
