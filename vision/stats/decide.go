@@ -188,7 +188,7 @@ type Choice struct {
 }
 
 // Rule is the one-line description of Recommender's rule, for reports.
-const Rule = "cheapest candidate within the budget whose probability of being beaten by the best, P(best > it), has a 95% bootstrap interval reaching 0.5 or below (Agarwal et al. 2021)"
+const Rule = "the cheapest candidate within the budget that the best does not beat significantly: the lower end of the stratified bootstrap interval (95% by default) of P(best > candidate), the probability of improvement of Agarwal et al. 2021, is at most 0.5"
 
 // Recommend applies the rule documented on Recommender.
 func (r Recommender) Recommend(cands []Candidate) (Choice, error) {
