@@ -301,7 +301,6 @@ func (g *Game) Render(dst *image.RGBA) {
 	y0 := c.Y + f0*sn + l0*cs
 	u0 := (x0 - wd.minX) * wd.ppm
 	v0 := (wd.maxY - y0) * wd.ppm
-	const one = 1 << 16
 	// Keep fixed-point values in range; a car this far out sees only
 	// border anyway.
 	if math.Abs(u0) > 20000 || math.Abs(v0) > 20000 {
@@ -309,61 +308,91 @@ func (g *Game) Render(dst *image.RGBA) {
 		g.drawSprite(dst)
 		return
 	}
-	fix := func(x float64) int32 { return int32(math.Floor(x * one)) }
 	// Sample at pixel centres: the +0.5 world pixel offset is implicit in
 	// flooring the continuous coordinate.
-	ur, vr := fix(u0), fix(v0)
-	iduc, idvc, idur, idvr := fix(duc), fix(dvc), fix(dur), fix(dvr)
-	ww, wh := uint(wd.w), uint(wd.h)
-	pix := wd.pix
-	border := wd.border
+	st := sampling{
+		u: fix16(u0), v: fix16(v0),
+		duc: fix16(duc), dvc: fix16(dvc), dur: fix16(dur), dvr: fix16(dvr),
+	}
 	// Fast path: the frame maps to a parallelogram in the world image; if
 	// its four corners (and so all of it) fall inside, no pixel needs the
 	// bounds test.
-	inside := func(cu, cv int32) bool {
-		x, y := cu>>16, cv>>16
-		return x >= 1 && y >= 1 && int(x) < wd.w-1 && int(y) < wd.h-1
-	}
 	w1, h1 := int32(W-1), int32(H-1)
-	if inside(ur, vr) && inside(ur+w1*iduc, vr+w1*idvc) &&
-		inside(ur+h1*idur, vr+h1*idvr) && inside(ur+w1*iduc+h1*idur, vr+w1*idvc+h1*idvr) &&
+	if wd.inside(st.u, st.v) && wd.inside(st.u+w1*st.duc, st.v+w1*st.dvc) &&
+		wd.inside(st.u+h1*st.dur, st.v+h1*st.dvr) && wd.inside(st.u+w1*st.duc+h1*st.dur, st.v+w1*st.dvc+h1*st.dvr) &&
 		len(dst.Pix) >= (H-1)*dst.Stride+4*W {
-		base := unsafe.Pointer(unsafe.SliceData(pix))
-		out := unsafe.Pointer(unsafe.SliceData(dst.Pix))
-		stride := uintptr(ww) * 4
-		for row := 0; row < H; row++ {
-			o := unsafe.Add(out, row*dst.Stride)
-			u, vv := ur, vr
-			for col := 0; col < W; col++ {
-				// In range by the corner test above.
-				src := unsafe.Add(base, uintptr(vv>>16)*stride+uintptr(u>>16)*4)
-				*(*uint32)(unsafe.Add(o, 4*col)) = *(*uint32)(src)
-				u += iduc
-				vv += idvc
-			}
-			ur += idur
-			vr += idvr
-		}
-		g.drawSprite(dst)
-		return
-	}
-	for row := 0; row < H; row++ {
-		line := dst.Pix[row*dst.Stride : row*dst.Stride+4*W]
-		u, vv := ur, vr
-		for col := 0; col < W; col++ {
-			x, y := uint(u>>16), uint(vv>>16)
-			px := border
-			if x < ww && y < wh {
-				px = pix[y*ww+x]
-			}
-			binary.LittleEndian.PutUint32(line[4*col:], px)
-			u += iduc
-			vv += idvc
-		}
-		ur += idur
-		vr += idvr
+		sampleInside(wd.pix, wd.w, dst.Pix, dst.Stride, W, H, st)
+	} else {
+		sampleClipped(wd.pix, wd.w, wd.h, wd.border, dst.Pix, dst.Stride, W, H, st)
 	}
 	g.drawSprite(dst)
+}
+
+// sampling is the fixed-point (16.16) world-pixel position of frame
+// pixel (0,0) and its steps per frame column and per frame row.
+type sampling struct {
+	u, v, duc, dvc, dur, dvr int32
+}
+
+func fix16(x float64) int32 { return int32(math.Floor(x * (1 << 16))) }
+
+// inside reports whether the fixed-point position falls at least one
+// pixel inside the world image.
+func (wd *world) inside(u, v int32) bool {
+	x, y := u>>16, v>>16
+	return x >= 1 && y >= 1 && int(x) < wd.w-1 && int(y) < wd.h-1
+}
+
+// sampleInside copies the sampled pixels with no bounds tests; the caller
+// has checked that every sample falls inside the world image and that out
+// holds H rows of W pixels. Plain arguments (no closures) keep the loop
+// state in registers.
+func sampleInside(pix []uint32, ww int, out []byte, outStride, W, H int, st sampling) {
+	base := unsafe.Pointer(unsafe.SliceData(pix))
+	dst := unsafe.Pointer(unsafe.SliceData(out))
+	stride := uintptr(ww) * 4
+	ur, vr := st.u, st.v
+	for row := 0; row < H; row++ {
+		sampleRow(base, stride, unsafe.Add(dst, row*outStride), W, ur, vr, st.duc, st.dvc)
+		ur += st.dur
+		vr += st.dvr
+	}
+}
+
+// sampleRow copies n samples of one frame row. It is kept out of line so
+// that its few loop variables stay in registers.
+//
+//go:noinline
+func sampleRow(base unsafe.Pointer, stride uintptr, o unsafe.Pointer, n int, u, v, du, dv int32) {
+	for ; n > 0; n-- {
+		*(*uint32)(o) = *(*uint32)(unsafe.Add(base, uintptr(v>>16)*stride+uintptr(u>>16)*4))
+		o = unsafe.Add(o, 4)
+		u += du
+		v += dv
+	}
+}
+
+// sampleClipped is the bounds-checked sampler: samples outside the world
+// image take the border colour.
+func sampleClipped(pix []uint32, ww, wh int, border uint32, out []byte, outStride, W, H int, st sampling) {
+	uw, uh := uint(ww), uint(wh)
+	ur, vr := st.u, st.v
+	for row := 0; row < H; row++ {
+		line := out[row*outStride : row*outStride+4*W]
+		u, v := ur, vr
+		for col := 0; col < W; col++ {
+			x, y := uint(u>>16), uint(v>>16)
+			px := border
+			if x < uw && y < uh {
+				px = pix[y*uw+x]
+			}
+			binary.LittleEndian.PutUint32(line[4*col:], px)
+			u += st.duc
+			v += st.dvc
+		}
+		ur += st.dur
+		vr += st.dvr
+	}
 }
 
 func fillFrame(dst *image.RGBA, c uint32) {
