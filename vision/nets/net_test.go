@@ -271,7 +271,7 @@ func TestNewRejectsBadConfigs(t *testing.T) {
 	if _, err := New(Config{}, nil, contSpace, 1); err == nil {
 		t.Error("nil grid accepted")
 	}
-	for _, huge := range []*patch.Grid{testGrid(t, 1<<16, 1<<16, 1), testGrid(t, 4096, 4096, 4)} {
+	for _, huge := range []*patch.Grid{testGrid(t, 1<<14, 1<<14, 1), testGrid(t, 4096, 4096, 4)} {
 		if _, err := New(Config{Family: MLP}, huge, contSpace, 1); err == nil || !strings.Contains(err.Error(), "large") && !strings.Contains(err.Error(), "more than") {
 			t.Errorf("grid %s: error %v, want a refusal as too large", huge, err)
 		}
