@@ -1,0 +1,141 @@
+#!/usr/bin/env python3
+"""A tilebench policy with NumPy: where to start your own.
+
+The observation arrives as a NumPy array: a frame (height, width, channels)
+or, with obs "tokens", the token set (n, patch_h, patch_w, channels) and
+each token's grid cell (n, 2). Replace `Policy.act` with your model (a
+PyTorch or JAX forward pass); the rest is the protocol
+(docs/policy-protocol.md).
+
+As shipped it plays the paddle game with the same hand rule as
+policy_stdlib.py: move the paddle towards the ball.
+
+    tilebench play --game paddle --policy 'exec:python3 examples/policy_numpy.py'
+
+Logs go to stderr; stdout carries protocol messages only.
+"""
+import json
+import sys
+
+import numpy as np
+
+PROTOCOL = 1
+MAX_LINE = 65536
+PADDLE_ROW = 76  # the paddle's row in the 84x84 paddle field
+
+
+def log(*args):
+    print("policy_numpy:", *args, file=sys.stderr)
+
+
+def read_message(inp):
+    line = inp.readline(MAX_LINE + 1)
+    if not line:
+        return None, None
+    if not line.endswith(b"\n"):
+        raise ValueError("header line too long or cut off")
+    header = json.loads(line)
+    n = header.get("len", 0)
+    payload = inp.read(n) if n else b""
+    if len(payload) != n:
+        raise EOFError("payload cut off")
+    return header, payload
+
+
+def send(out, message):
+    out.write(json.dumps(message, separators=(",", ":")).encode("utf-8") + b"\n")
+    out.flush()
+
+
+class Observation:
+    """Decodes step payloads into arrays (values scaled to [0, 1])."""
+
+    def __init__(self, hello):
+        self.kind = hello["obs"]
+        self.dtype = np.uint8 if hello["dtype"] == "uint8" else np.dtype("<f4")
+        self.frame_shape = tuple(hello["frame"])
+        tk = hello["tokens"]
+        self.patch = (tk["patch"][0], tk["patch"][1], tk["channels"])
+        self.stride = tuple(tk["stride"])
+        self.dim = tk["dim"]
+
+    def decode(self, header, payload):
+        """Returns (frame, tokens, cells); frame is rebuilt from tokens."""
+        scale = 255.0 if self.dtype == np.uint8 else 1.0
+        if self.kind == "frame":
+            frame = np.frombuffer(payload, dtype=self.dtype).reshape(self.frame_shape) / scale
+            return frame, None, None
+        n = header["n"]
+        size = np.dtype(self.dtype).itemsize
+        values = np.frombuffer(payload, dtype=self.dtype, count=n * self.dim)
+        tokens = values.reshape((n,) + self.patch) / scale
+        cells = np.frombuffer(payload, dtype="<i2", offset=n * self.dim * size).reshape(n, 2)
+        # Put each token back in its cell (what a position-aware model
+        # would see); a set model would use `tokens` as they come.
+        frame = np.zeros(self.frame_shape)
+        ph, pw, _ = self.patch
+        for tok, (r, c) in zip(tokens, cells):
+            if r < 0:
+                continue  # a noise token: no cell
+            y, x = r * self.stride[0], c * self.stride[1]
+            frame[y:y + ph, x:x + pw] = tok[: self.frame_shape[0] - y, : self.frame_shape[1] - x]
+        return frame, tokens, cells
+
+
+class Policy:
+    def __init__(self, hello):
+        self.action = hello["action"]
+
+    def reset(self, seed):
+        self.rng = np.random.default_rng(seed)
+
+    def act(self, frame, tokens, cells, prev):
+        field = frame[:PADDLE_ROW]
+        bright = np.all(field >= 200 / 255, axis=2)
+        ys, xs = np.nonzero(bright)
+        row = frame[PADDLE_ROW]
+        far = np.abs(row - np.median(row, axis=0)).sum(axis=1) > 90 / 255
+        if len(xs) == 0 or not far.any():
+            move = 0.0
+        else:
+            gap = xs.mean() - np.nonzero(far)[0].mean()
+            move = 0.0 if abs(gap) <= 2 else float(np.clip(gap / 4.0, -1, 1))
+        if self.action["kind"] == "discrete":
+            return [int(np.sign(move)) + 1]
+        lo, hi = self.action["low"][0], self.action["high"][0]
+        return [float(np.clip(move, lo, hi))] + [0.0] * (self.action["dim"] - 1)
+
+
+def main():
+    inp, out = sys.stdin.buffer, sys.stdout.buffer
+    hello, _ = read_message(inp)
+    if hello is None or hello.get("msg") != "hello":
+        log("no hello")
+        return 1
+    if hello.get("protocol") != PROTOCOL:
+        send(out, {"msg": "refuse", "reason": "speaks protocol %d only" % PROTOCOL})
+        return 0
+    if hello["game"] != "paddle" or hello["frame"][2] != 3 or hello["frame"][0] <= PADDLE_ROW:
+        send(out, {"msg": "refuse", "reason": "the hand rule needs the paddle game in RGB"})
+        return 0
+    obs = Observation(hello)
+    policy = Policy(hello)
+    policy.reset(0)
+    send(out, {"msg": "ready", "protocol": PROTOCOL, "name": "numpy hand rule"})
+    while True:
+        header, payload = read_message(inp)
+        if header is None or header["msg"] == "bye":
+            return 0
+        kind = header["msg"]
+        if kind == "start":
+            policy.reset(header["seed"])
+        elif kind == "step":
+            frame, tokens, cells = obs.decode(header, payload)
+            action = policy.act(frame, tokens, cells, header.get("prev"))
+            send(out, {"msg": "action", "t": header["t"], "action": action})
+        elif kind == "end":
+            log("episode", header.get("episode"), "return", header.get("return"))
+
+
+if __name__ == "__main__":
+    sys.exit(main())
