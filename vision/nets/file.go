@@ -117,7 +117,7 @@ func FromFile(f *weights.File) (Net, error) {
 			return nil, fmt.Errorf("tensor %q does not belong to a %s policy with these hyper-parameters", t.Name, cfg.Family)
 		}
 	}
-	c.alloc()
+	ready(n)
 	for _, s := range c.specs {
 		data, _ := f.Want(s.name, s.shape...)
 		copy(c.params[s.off:s.off+s.size], data)

@@ -84,8 +84,32 @@ func build(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
 	if err != nil {
 		return nil, err
 	}
-	n.base().alloc()
+	ready(n)
 	return n, nil
+}
+
+// ready allocates n's parameters and then every buffer at its full size,
+// by one forward and backward pass on a set of Capacity tokens (the grid's
+// count for mlp), so that later steps do not allocate; it leaves the
+// gradients zero and the history empty.
+func ready(n net) {
+	c := n.base()
+	c.alloc()
+	rows := c.cfg.Capacity
+	if c.cfg.Family == MLP {
+		rows = c.grid.N()
+	}
+	ts := patch.NewTokenSet(rows, c.grid.D())
+	ts.N = rows
+	for i := range ts.Pos {
+		ts.Pos[i] = c.grid.Cell(i % c.grid.N())
+	}
+	out := make([]float32, c.hd.outDim)
+	if n.Forward(&vision.Observation{Tokens: ts, Grid: c.grid}, out) == nil {
+		n.Backward(out)
+	}
+	c.ZeroGrads()
+	c.in.reset()
 }
 
 // plan declares a net's layers and tensors without allocating its
