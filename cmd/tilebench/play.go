@@ -74,8 +74,10 @@ const playCaution = "simulated results are not a safety certification: before de
 // loadPolicy turns a --policy value into a policy for game g whose frames
 // are cut on grid. Only the built-in scripted experts are wired here;
 // weights files and external processes are added beside "expert".
-func loadPolicy(name string, g games.Game, grid *patch.Grid) (vision.Policy, error) {
-	_ = grid // weights files will check their geometry against it
+func loadPolicy(name string, g games.Game, grid *patch.Grid, ext *externalOptions) (vision.Policy, error) {
+	if isExternal(name) {
+		return openExternal(name, g, grid, ext)
+	}
 	switch name {
 	case "expert":
 		pol, ok := vision.NewExpertPolicy(g)
@@ -101,7 +103,7 @@ func autoPatch(w, h int) int {
 func runPlay(ctx *runContext, args []string) error {
 	fs := newFlags(ctx, "play", playUsage)
 	game := fs.String("game", "", "game to play: "+strings.Join(games.Names(), " or ")+" (e.g. --game drive)")
-	policy := fs.String("policy", "expert", "policy: expert (the game's scripted expert, reads the true state) (e.g. --policy expert)")
+	policy := fs.String("policy", "expert", "policy: expert (the game's scripted expert, reads the true state), or an external policy exec:COMMAND... / tcp://HOST:PORT (docs/policy-protocol.md) (e.g. --policy 'exec:python3 examples/policy_stdlib.py')")
 	episodes := fs.Int("episodes", 5, "number of episodes, 1 to 100000 (e.g. --episodes 20)")
 	seed := fs.Uint64("seed", games.HeldOutSeedStart, "seed of the first episode; the next ones count up (e.g. --seed 1000000)")
 	variation := fs.String("variation", "", "game variation, names joined with + (e.g. --variation glacier+clutter)")
@@ -111,6 +113,7 @@ func runPlay(ctx *runContext, args []string) error {
 	framesDir := fs.String("frames", "", "write the frames the policy saw as PNGs, DIR/episode-NNN/frame-NNNNN.png (e.g. --frames out/)")
 	fps := fs.Float64("fps", 20, "GIF frames a second, 1 to 100 (e.g. --fps 10)")
 	asJSON := fs.Bool("json", false, "print the episodes and summary as one JSON document (\"format\": 1) (e.g. --json)")
+	ext := addExternalFlags(fs)
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -150,10 +153,11 @@ func runPlay(ctx *runContext, args []string) error {
 	if err != nil {
 		return usagef("play: --patch: %v", err)
 	}
-	pol, err := loadPolicy(*policy, g, grid)
+	pol, err := loadPolicy(*policy, g, grid, ext)
 	if err != nil {
 		return err
 	}
+	defer closePolicy(pol)
 	pipe, err := patch.NewPipeline(grid, patch.Spec{})
 	if err != nil {
 		return fmt.Errorf("play: %w", err)
