@@ -309,12 +309,12 @@ func (b Bootstrap) ProbImprovementCI(x, y Strata) (Estimate, error) {
 	copyStrata(xs, x)
 	copyStrata(ys, y)
 	e := Estimate{Value: piSorted(x, y, xs, ys), Level: lv, Resamples: B}
+	ps := newPISampler(x, y)
 	theta := make([]float64, B)
 	r := patch.NewRand(b.Seed)
 	for i := range theta {
-		resample(r, x, xs)
-		resample(r, y, ys)
-		theta[i] = piSorted(x, y, xs, ys)
+		ps.draw(r)
+		theta[i] = ps.pi()
 	}
 	e.Lo, e.Hi = interval(theta, lv)
 	return e, nil

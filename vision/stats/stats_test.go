@@ -219,3 +219,25 @@ func TestSamplerMatchesValues(t *testing.T) {
 		}
 	}
 }
+
+// The counting P(X > Y) equals the one computed from the drawn values.
+func TestPISamplerMatchesValues(t *testing.T) {
+	x := Strata{{1, 3, 3, 7, 2}, {0.5, 0.5, 9}}
+	y := Strata{{3, 2, 2, 8}, {0.5, 1, 0, 4, 4, 9}}
+	ps := newPISampler(x, y)
+	ps.full()
+	want, _ := ProbImprovement(x, y)
+	if got := ps.pi(); math.Abs(got-want) > 1e-15 {
+		t.Fatalf("full: %v, want %v", got, want)
+	}
+	r1, r2 := patch.NewRand(5), patch.NewRand(5)
+	xs, ys := make([]float64, x.N()), make([]float64, y.N())
+	for i := 0; i < 500; i++ {
+		ps.draw(r1)
+		resample(r2, x, xs)
+		resample(r2, y, ys)
+		if a, b := ps.pi(), piSorted(x, y, xs, ys); math.Abs(a-b) > 1e-15 {
+			t.Fatalf("resample %d: counts %v, values %v", i, a, b)
+		}
+	}
+}
