@@ -352,9 +352,12 @@ func (in *inputs) build(obs *vision.Observation, g *patch.Grid) ([]float32, int,
 		return nil, 0, 0, fmt.Errorf("token set claims %d tokens but holds %d values and %d positions", n, len(ts.Data), len(ts.Pos))
 	}
 	if in.pa > 0 && len(obs.PrevAction) != 0 {
-		want := len(obs.PrevAction)
-		if in.discrete && want != 1 || !in.discrete && want != in.pa {
-			return nil, 0, 0, fmt.Errorf("previous action has %d values, want %d", want, map[bool]int{true: 1, false: in.pa}[in.discrete])
+		want := in.pa
+		if in.discrete {
+			want = 1
+		}
+		if len(obs.PrevAction) != want {
+			return nil, 0, 0, fmt.Errorf("previous action has %d values, want %d", len(obs.PrevAction), want)
 		}
 	}
 	if cap(in.cellOf) < n {

@@ -289,6 +289,11 @@ func TestNewRejectsBadConfigs(t *testing.T) {
 	if err := n.Act(&vision.Observation{}, make([]float64, 3)); err == nil {
 		t.Error("observation without tokens accepted")
 	}
+	p := mustNew(t, Config{PrevAction: true}, g, contSpace, 1)
+	obs = randomObs(g, 1, 2)
+	if err := p.Act(obs, make([]float64, 3)); err == nil || !strings.Contains(err.Error(), "previous action has 2 values, want 3") {
+		t.Errorf("previous action of the wrong length: error %v", err)
+	}
 }
 
 // Same seed, same parameters; Clone acts the same; Params aliases.
