@@ -33,7 +33,13 @@
 //	params := net.Params()              // flat, aliases the net
 //	err = nets.Save(path, net, meta)    // safetensors with __metadata__
 //	net, err = nets.Load(path)
+//	f, err := nets.ToFile(net, meta)    // *weights.File; nets.FromFile(f) back
 //	cost, err := nets.Estimate(cfg, grid, space)
+//	d, err := nets.MeasureLatency(net, nets.RandomObservation(grid, space, 1), 15, 20)
+//
+// Tensor names, shapes and metadata keys of weights files are listed in
+// docs/families.md. Net is not safe for concurrent use: give each
+// goroutine its own Clone.
 //
 // Forward and Backward keep the activations of one observation; a
 // minibatch is a loop of Forward/Backward pairs accumulating into Grads.
