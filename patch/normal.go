@@ -13,6 +13,7 @@ import (
 // versions, fused multiply-adds).
 func normalPair(r *rand.Rand) (float64, float64) {
 	for {
+		// 2·x is exact, so a fused multiply-add here rounds the same.
 		u := float64(2*r.Float64()) - 1
 		v := float64(2*r.Float64()) - 1
 		s := float64(u*u) + float64(v*v)

@@ -267,7 +267,7 @@ func to8(v float32) uint8 {
 	if v >= 1 {
 		return 255
 	}
-	return uint8(v*255 + 0.5)
+	return uint8(float32(v*255) + 0.5) // rounded product: no fused multiply-add
 }
 
 func (t *Tokenizer) assemble(ts *TokenSet, dst *image.RGBA) error {
