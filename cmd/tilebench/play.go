@@ -1,11 +1,14 @@
 package main
 
 import (
+	"bytes"
 	"encoding/json"
 	"fmt"
 	"image"
+	"image/png"
 	"io"
 	"math"
+	"os"
 	"path/filepath"
 	"strings"
 
@@ -185,10 +188,10 @@ func runPlay(ctx *runContext, args []string) error {
 	for i := 0; i < *episodes; i++ {
 		s := *seed + uint64(i)
 		var hook vision.StepHook
-		var pngs *frameio.Outputs
+		var pngs *frameFolder
 		if *framesDir != "" {
 			dir := filepath.Join(*framesDir, fmt.Sprintf("episode-%03d", i+1))
-			if pngs, err = frameio.NewOutputs(frameio.OutputConfig{Dir: dir, Formats: []string{frameio.AsPNG}}, grid.OutW, grid.OutH); err != nil {
+			if pngs, err = newFrameFolder(dir); err != nil {
 				return fmt.Errorf("play: --frames: %w", err)
 			}
 		}
@@ -198,7 +201,7 @@ func runPlay(ctx *runContext, args []string) error {
 					hookErr = gw.Add(obs.Frame)
 				}
 				if hookErr == nil && pngs != nil {
-					hookErr = pngs.Add(nil, obs.Frame)
+					hookErr = pngs.Add(t, obs.Frame)
 				}
 			}
 		}
@@ -216,7 +219,7 @@ func runPlay(ctx *runContext, args []string) error {
 			return fmt.Errorf("play: episode %d (seed %d): %w", i+1, s, hookErr)
 		}
 		if pngs != nil {
-			if _, err := pngs.Commit(); err != nil {
+			if err := pngs.Commit(); err != nil {
 				return fmt.Errorf("play: --frames: %w", err)
 			}
 		}
@@ -282,3 +285,54 @@ func printPlaySummary(w io.Writer, s *playSummary) {
 	}
 	fmt.Fprintf(w, "caution: %s\n", s.Caution)
 }
+
+// frameFolder writes one episode's PNG frames into a hidden staging
+// folder beside dir and renames it to dir when the episode is done, so dir
+// only ever holds a whole episode. (Frames are not synced one by one: the
+// folder is the unit that appears or not.)
+type frameFolder struct {
+	dir, stage string
+	enc        png.Encoder
+	buf        bytes.Buffer
+}
+
+func newFrameFolder(dir string) (*frameFolder, error) {
+	parent := filepath.Dir(dir)
+	if err := os.MkdirAll(parent, 0o755); err != nil {
+		return nil, err
+	}
+	stage, err := os.MkdirTemp(parent, "."+filepath.Base(dir)+".tmp-")
+	if err != nil {
+		return nil, err
+	}
+	return &frameFolder{dir: dir, stage: stage, enc: png.Encoder{CompressionLevel: png.BestSpeed}}, nil
+}
+
+// Add writes frame t.
+func (f *frameFolder) Add(t int, img image.Image) error {
+	f.buf.Reset()
+	if err := f.enc.Encode(&f.buf, img); err != nil {
+		return err
+	}
+	path := filepath.Join(f.stage, frameio.FrameName(t))
+	if err := os.WriteFile(path, f.buf.Bytes(), 0o644); err != nil {
+		return fmt.Errorf("write %s: %w", path, err)
+	}
+	return nil
+}
+
+// Commit replaces dir with the staged frames.
+func (f *frameFolder) Commit() error {
+	if err := os.RemoveAll(f.dir); err != nil {
+		f.Abort()
+		return fmt.Errorf("replace %s: %w", f.dir, err)
+	}
+	if err := os.Rename(f.stage, f.dir); err != nil {
+		f.Abort()
+		return fmt.Errorf("write %s: %w", f.dir, err)
+	}
+	return nil
+}
+
+// Abort removes the staged frames.
+func (f *frameFolder) Abort() { os.RemoveAll(f.stage) }

@@ -2,12 +2,15 @@ package main
 
 import (
 	"encoding/json"
+	"image"
 	"image/gif"
 	"image/png"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"tilebench/games"
 )
 
 func TestPlayExpertLines(t *testing.T) {
@@ -89,14 +92,35 @@ func TestPlayRecordsFrames(t *testing.T) {
 	if len(pngs) != steps {
 		t.Fatalf("%d PNG frames, want %d", len(pngs), steps)
 	}
-	pf, err := os.Open(pngs[len(pngs)/2])
+	// With the identity pipeline the recorded frames are the game's own:
+	// frame 0 equals a fresh render of the episode's seed.
+	pf, err := os.Open(pngs[0])
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer pf.Close()
-	img, err := png.Decode(pf)
-	if err != nil || img.Bounds().Dx() != 64 || img.Bounds().Dy() != 64 {
-		t.Fatalf("PNG frame: %v %v", err, img)
+	got, err := png.Decode(pf)
+	if err != nil {
+		t.Fatal(err)
+	}
+	g, err := games.New("drive", games.Options{Variation: "small"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	g.Reset(s.Episodes[0].Seed)
+	want := image.NewRGBA(image.Rect(0, 0, 64, 64))
+	g.Render(want)
+	if got.Bounds() != want.Bounds() {
+		t.Fatalf("frame %v, want %v", got.Bounds(), want.Bounds())
+	}
+	for y := 0; y < 64; y++ {
+		for x := 0; x < 64; x++ {
+			r1, g1, b1, _ := got.At(x, y).RGBA()
+			r2, g2, b2, _ := want.At(x, y).RGBA()
+			if r1 != r2 || g1 != g2 || b1 != b2 {
+				t.Fatalf("recorded frame 0 differs from the game's render at (%d,%d)", x, y)
+			}
+		}
 	}
 }
 
