@@ -92,6 +92,15 @@ func (c Config) withDefaults(n int) Config {
 	return c
 }
 
+// Outputter is implemented by policies whose raw output (before any
+// choice is made) can be compared; vision/nets networks implement it.
+type Outputter interface {
+	// OutputDim is the length of Forward's output.
+	OutputDim() int
+	// Forward writes the raw output for obs into out.
+	Forward(obs *vision.Observation, out []float32) error
+}
+
 // Stat summarises the action changes of one kind of perturbation.
 type Stat struct {
 	// Max and Mean are the largest and mean action change.
@@ -123,6 +132,9 @@ type Report struct {
 	Perms  int `json:"perms"`
 	Noise  int `json:"noise_tokens"`
 	Drop   int `json:"dropped_tokens"`
+	// Compared is "output" (the raw output of an Outputter: logits for a
+	// discrete game) or "action".
+	Compared string `json:"compared"`
 	// Permute: token order shuffled, each token keeping its grid position
 	// (the same set in another order). Scramble: cell contents moved to
 	// other cells (positions stay in grid order). Noise: noise tokens
@@ -201,6 +213,12 @@ func Run(g games.Game, tok *patch.Tokenizer, pol vision.Policy, cfg Config) (*Re
 		perm:     make([]int, n),
 		wantsPix: info.WantsFrame,
 	}
+	if o, ok := pol.(Outputter); ok {
+		m.out = o
+		m.base = make([]float64, o.OutputDim())
+		m.act = make([]float64, o.OutputDim())
+		m.raw = make([]float32, o.OutputDim())
+	}
 	if m.wantsPix {
 		m.seen = image.NewRGBA(image.Rect(0, 0, gr.OutW, gr.OutH))
 	}
@@ -252,7 +270,10 @@ func Run(g games.Game, tok *patch.Tokenizer, pol vision.Policy, cfg Config) (*Re
 		Format: 1, Family: info.Family, Label: info.Label, Invariant: info.Invariant,
 		Game: sp.Name, Tokens: n, Frames: done, Perms: cfg.Perms, Noise: cfg.Noise, Drop: cfg.Drop,
 		Permute: m.permute.stat(), Scramble: m.scramble.stat(), Noised: m.noise.stat(), Dropped: m.drop.stat(),
-		Tol: cfg.Tol,
+		Tol: cfg.Tol, Compared: "action",
+	}
+	if m.out != nil {
+		r.Compared = "output"
 	}
 	r.Pass = !info.Invariant || (r.Permute.Refused == 0 && r.Permute.Max <= cfg.Tol)
 	return r, nil
@@ -272,6 +293,8 @@ type meter struct {
 	prev     []float64
 	perm     []int
 	wantsPix bool
+	out      Outputter
+	raw      []float32
 	permute  acc
 	scramble acc
 	noise    acc
@@ -289,12 +312,19 @@ func (m *meter) actOn(ts *patch.TokenSet, step int, seed uint64, dst []float64) 
 	}
 	m.pol.Reset(seed)
 	clear(dst)
-	if err := m.pol.Act(&obs, dst); err != nil {
+	if m.out != nil {
+		if err := m.out.Forward(&obs, m.raw); err != nil {
+			return err
+		}
+		for i, v := range m.raw {
+			dst[i] = float64(v)
+		}
+	} else if err := m.pol.Act(&obs, dst); err != nil {
 		return err
 	}
 	for i, v := range dst {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return fmt.Errorf("policy action %d is %v", i, v)
+			return fmt.Errorf("policy output %d is %v", i, v)
 		}
 	}
 	return nil
@@ -302,7 +332,7 @@ func (m *meter) actOn(ts *patch.TokenSet, step int, seed uint64, dst []float64) 
 
 // change is the action change between a and b.
 func (m *meter) change(a, b []float64) float64 {
-	if m.space.Kind == games.Discrete {
+	if m.space.Kind == games.Discrete && m.out == nil {
 		if a[0] != b[0] {
 			return 1
 		}

@@ -12,6 +12,7 @@ import (
 	"tilebench/games"
 	"tilebench/patch"
 	"tilebench/vision"
+	"tilebench/vision/nets"
 )
 
 // blobs is a small deterministic game for the tests: coloured squares that
@@ -232,5 +233,59 @@ func TestDefaultsAndProgress(t *testing.T) {
 	}
 	if calls != 12 || r.Frames != 12 || r.Noise != 1 || r.Drop != 1 || r.Tol != DefaultTol {
 		t.Fatalf("defaults: calls %d, %+v", calls, r)
+	}
+}
+
+// outPolicy has a raw output (three logits) beside its discrete choice.
+type outPolicy struct{ orderPolicy }
+
+func (p *outPolicy) OutputDim() int { return 3 }
+func (p *outPolicy) Forward(obs *vision.Observation, out []float32) error {
+	var a [2]float64
+	p.orderPolicy.Act(obs, a[:])
+	out[0], out[1], out[2] = float32(a[0]), float32(-a[0]), 0.5
+	return nil
+}
+
+func TestDiscreteOutputterComparesLogits(t *testing.T) {
+	g, tok := setup(t, true)
+	r, err := Run(g, tok, &outPolicy{}, small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Compared != "output" || r.Permute.Max <= 0 || r.Permute.Max >= 1 || r.Permute.Max == math.Trunc(r.Permute.Max) {
+		t.Fatalf("logit change %+v (compared %s)", r.Permute, r.Compared)
+	}
+}
+
+// The families of vision/nets: the invariant ones hold the bound with
+// float32 arithmetic, the others show their order sensitivity.
+func TestNetFamilies(t *testing.T) {
+	for _, discrete := range []bool{false, true} {
+		g, tok := setup(t, discrete)
+		for _, fam := range nets.Families {
+			n, err := nets.New(nets.Config{Family: fam}, tok.Grid(), g.Spec().Action, 3)
+			if err != nil {
+				t.Fatal(err)
+			}
+			r, err := Run(g, tok, n, Config{Perms: 10, Seeds: []uint64{5}, Frames: 2})
+			if err != nil {
+				t.Fatalf("%s: %v", fam, err)
+			}
+			inv := n.Info().Invariant
+			switch {
+			case inv && (!r.Pass || r.Permute.Max > DefaultTol):
+				t.Errorf("%s (discrete %v): invariant family moved %g under permutation", fam, discrete, r.Permute.Max)
+			case fam == nets.MLP && r.Permute.Max < 1e-6:
+				t.Errorf("mlp (discrete %v): no sensitivity to token order (%g)", discrete, r.Permute.Max)
+			case fam == nets.PosAttention && r.Scramble.Max < 1e-6:
+				t.Errorf("posattention (discrete %v): no sensitivity to scrambled contents (%g)", discrete, r.Scramble.Max)
+			case inv && r.Noised.Max == 0:
+				t.Errorf("%s (discrete %v): noise tokens changed nothing", fam, discrete)
+			}
+			if r.Compared != "output" {
+				t.Errorf("%s: compared %s", fam, r.Compared)
+			}
+		}
 	}
 }
