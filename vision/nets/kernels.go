@@ -11,8 +11,10 @@ package nets
 type kernels struct {
 	// nn: C (m×n) += A (m×k) · B (k×n).
 	nn func(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int)
-	// nt: C (m×n) += A (m×k) · Bᵀ, B stored n×k.
-	nt func(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int)
+	// nt: C (m×n) += A (m×k) · Bᵀ, B stored n×k. A kernel that needs a
+	// transposed copy of B keeps it in *scratch (owned by the calling
+	// layer, so that nets on different goroutines share nothing).
+	nt func(scratch *[]float32, m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int)
 	// tn: C (m×n) += Aᵀ · B, A stored k×m, B k×n.
 	tn func(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int)
 }
@@ -37,7 +39,7 @@ func nnPlain(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float3
 	}
 }
 
-func ntPlain(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
+func ntPlain(_ *[]float32, m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
 	for i := 0; i < m; i++ {
 		arow := a[i*lda : i*lda+k]
 		crow := c[i*ldc : i*ldc+n]
@@ -112,7 +114,7 @@ func nnBlocked(m, k, n int, a []float32, lda int, b []float32, ldb int, c []floa
 	}
 }
 
-func ntBlocked(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
+func ntBlocked(_ *[]float32, m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
 	for i := 0; i < m; i++ {
 		arow := a[i*lda : i*lda+k]
 		crow := c[i*ldc : i*ldc+n]
@@ -149,7 +151,7 @@ func countingKernels(macs *int64) kernels {
 				}
 			}
 		},
-		nt: func(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
+		nt: func(_ *[]float32, m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
 			for i := 0; i < m; i++ {
 				for j := 0; j < n; j++ {
 					for p := 0; p < k; p++ {

@@ -2,11 +2,7 @@
 
 package nets
 
-import (
-	"sync"
-
-	"golang.org/x/sys/cpu"
-)
+import "golang.org/x/sys/cpu"
 
 // Assembly micro-kernels (kernels_amd64.s, written by asm_gen.py):
 // gemmRxW computes C (R×W) += A (R×k) · B (k×W) with AVX and FMA, where
@@ -95,24 +91,20 @@ func tnAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32,
 	blocks(m, k, n, a, 1, lda, b, ldb, c, ldc)
 }
 
-// scratch holds transposed matrices for ntAVX; a pool, since nets on
-// different goroutines share the kernels.
-var scratch = sync.Pool{New: func() any { return new([]float32) }}
-
-// ntAVX is C += A·Bᵀ (B stored n×k): B is transposed into scratch memory
+// ntAVX is C += A·Bᵀ (B stored n×k): B is transposed into *scratch
 // so that the product runs in the micro-kernels. For fewer than 4 rows the
 // transposition costs more than it saves, and the blocked Go loop runs.
-func ntAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
+func ntAVX(scratch *[]float32, m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
 	if m < 4 || n < 8 {
-		ntBlocked(m, k, n, a, lda, b, ldb, c, ldc)
+		ntBlocked(scratch, m, k, n, a, lda, b, ldb, c, ldc)
 		return
 	}
 	if k <= 0 {
 		return
 	}
 	_ = b[(n-1)*ldb+k-1]
-	bp := scratch.Get().(*[]float32)
-	bt := grow(*bp, k*n)
+	bt := grow(*scratch, k*n)
+	*scratch = bt
 	for j := 0; j < n; j++ {
 		row := b[j*ldb : j*ldb+k]
 		for p, v := range row {
@@ -120,8 +112,6 @@ func ntAVX(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32,
 		}
 	}
 	nnAVX(m, k, n, a, lda, bt, n, c, ldc)
-	*bp = bt
-	scratch.Put(bp)
 }
 
 // blocks covers C with column blocks of 16, then 8, each in row blocks of

@@ -34,8 +34,12 @@ func TestKernelsMatchPlain(t *testing.T) {
 			c0 := randSlice(rng, m*ldc, 1)
 			want := append([]float32(nil), c0...)
 			got := append([]float32(nil), c0...)
+			var scratch []float32
 			pick := func(ks kernels) func(int, int, int, []float32, int, []float32, int, []float32, int) {
-				return map[string]func(int, int, int, []float32, int, []float32, int, []float32, int){"nn": ks.nn, "nt": ks.nt, "tn": ks.tn}[op]
+				nt := func(m, k, n int, a []float32, lda int, b []float32, ldb int, c []float32, ldc int) {
+					ks.nt(&scratch, m, k, n, a, lda, b, ldb, c, ldc)
+				}
+				return map[string]func(int, int, int, []float32, int, []float32, int, []float32, int){"nn": ks.nn, "nt": nt, "tn": ks.tn}[op]
 			}
 			pick(plainKernels)(m, k, n, a, lda, b, ldb, want, ldc)
 			pick(kern)(m, k, n, a, lda, b, ldb, got, ldc)

@@ -25,6 +25,7 @@ type linear struct {
 	x         []float32 // last input (aliased, not copied)
 	ldx, rows int
 	y, dx     []float32
+	bt        []float32 // kernel scratch
 }
 
 func (l *linear) bind(params, grads []float32) {
@@ -75,7 +76,7 @@ func (l *linear) backward(dy []float32) []float32 {
 	dx := l.dx[:rows*l.in]
 	clear(dx)
 	if rows > 0 {
-		kern.nt(rows, l.out, l.in, dy, l.out, l.w, l.out, dx, l.in)
+		kern.nt(&l.bt, rows, l.out, l.in, dy, l.out, l.w, l.out, dx, l.in)
 	}
 	return dx
 }
@@ -118,6 +119,7 @@ type attention struct {
 	inv        []float32 // 1 / row sums of the unnormalised softmax
 	normalized bool      // p holds P rather than e^(S − max S)
 	kt         []float32 // d×n transposed keys
+	bt         []float32 // kernel scratch
 	dp         []float32
 	dq, dk     []float32
 	dvb        []float32
@@ -197,7 +199,7 @@ func (a *attention) backward(do []float32) (dq, dk, dv []float32) {
 	p := a.probs()
 	a.dp = grow(a.dp, a.m*n)
 	clear(a.dp)
-	kern.nt(a.m, a.dv, n, do, a.dv, a.v, a.ldv, a.dp, n)
+	kern.nt(&a.bt, a.m, a.dv, n, do, a.dv, a.v, a.ldv, a.dp, n)
 	if a.needDV {
 		kern.tn(n, a.m, a.dv, p, n, do, a.dv, dv, a.dv)
 	}
