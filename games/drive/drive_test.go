@@ -429,14 +429,19 @@ func TestGoldenFrames(t *testing.T) {
 }
 
 // The expert drives a full lap without its centre leaving the road on at
-// least 95% of 200 held-out circuits (the target). The full run
-// takes a few seconds; -short checks the first 20.
+// least 95% of 200 held-out circuits (the target), and on a tenth
+// as many with the narrow and broad roads. The full run takes a few
+// seconds; -short checks a tenth of each.
 func TestExpertLaps(t *testing.T) {
 	n := 200
 	if testing.Short() {
 		n = 20
 	}
-	for _, v := range []string{""} {
+	for _, v := range []string{"", "narrow", "broad"} {
+		n := n
+		if v != "" {
+			n /= 10 // the road-width variations: a smaller sample
+		}
 		g := newGame(t, v)
 		act := make([]float64, 3)
 		clean := 0
