@@ -85,7 +85,7 @@ func runSizes(ctx *runContext, args []string) error {
 		d.Axes = study.DefaultStressSet
 		d.Axes.Fill = fill
 	}
-	if !set["policy"] && *sf.config == "" || d.Policy.Source == "" {
+	if !set["policy"] && (*sf.config == "" || d.Policy.Source == "expert") {
 		switch {
 		case *trainM != "":
 			d.Policy.Source = study.TrainTemplate(*sf.out)

@@ -108,9 +108,7 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 			*dst = study.ParseAxis(v)
 		}
 	}
-	if d.Kind == "" || set["kind"] {
-		d.Kind = kind
-	}
+	d.Kind = kind
 	useStr("name", &d.Name, *sf.name)
 	useStr("game", &d.Game, *sf.game)
 	useStr("variation", &d.Variation, *sf.variation)
