@@ -236,7 +236,8 @@ func clamp(v, lo, hi float64) float64 {
 }
 
 // Step applies steer, throttle, brake (clamped to their bounds) for one
-// time step of DT seconds.
+// time step of DT seconds. After the episode has ended it changes nothing
+// and reports the end again with zero reward.
 func (g *Game) Step(action []float64) (games.Step, error) {
 	if err := g.spec.Action.Check(action); err != nil {
 		return games.Step{}, fmt.Errorf("drive: %w", err)
@@ -278,7 +279,8 @@ func (g *Game) Step(action []float64) (games.Step, error) {
 
 // Render draws the heading-up view around the car into dst by sampling the
 // world image (nearest neighbour, one fixed-point rotation per frame), then
-// the car sprite. It does not allocate.
+// the car sprite. It does not allocate. A dst of another size than the
+// game's frame is left untouched.
 func (g *Game) Render(dst *image.RGBA) {
 	W, H := g.cfg.Width, g.cfg.Height
 	if dst.Rect.Dx() != W || dst.Rect.Dy() != H {

@@ -276,6 +276,8 @@ func (g *Game) serve() {
 // Step moves the paddle by the action (discrete: 0 left, 1 stay, 2 right;
 // analog: velocity in [−1,1], clamped), the obstacle, then the ball for
 // one step, resolving every collision inside the step in time order.
+// After the episode has ended it changes nothing and reports the end
+// again with zero reward.
 func (g *Game) Step(action []float64) (games.Step, error) {
 	if err := g.spec.Action.Check(action); err != nil {
 		return games.Step{}, fmt.Errorf("paddle: %w", err)
@@ -450,7 +452,8 @@ func slab(p, v, lo, hi float64) (float64, float64) {
 }
 
 // Render copies the static field into dst and draws the obstacle, the
-// paddle and the ball with soft edges. It does not allocate.
+// paddle and the ball with soft edges. It does not allocate. A dst of
+// another size than 84×84 is left untouched.
 func (g *Game) Render(dst *image.RGBA) {
 	if dst.Rect.Dx() != Size || dst.Rect.Dy() != Size {
 		return
