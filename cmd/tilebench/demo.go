@@ -1,15 +1,11 @@
 package main
 
 import (
-	"context"
 	"encoding/json"
 	"fmt"
 	"html"
 	"io"
-	"os"
-	"os/signal"
 	"path/filepath"
-	"syscall"
 	"time"
 
 	"tilebench/internal/atomicfile"
@@ -84,7 +80,7 @@ func runDemo(ctx *runContext, args []string) error {
 	if err != nil {
 		return err
 	}
-	sctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	sctx, stop := interruptible()
 	defer stop()
 	sizesDir, stressDir := filepath.Join(*out, "sizes"), filepath.Join(*out, "stress")
 	for _, dir := range []string{sizesDir, stressDir} {

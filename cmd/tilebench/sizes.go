@@ -4,11 +4,8 @@ import (
 	"context"
 	"flag"
 	"fmt"
-	"os"
-	"os/signal"
 	"path/filepath"
 	"strconv"
-	"syscall"
 	"time"
 
 	"tilebench/vision/study"
@@ -119,7 +116,7 @@ func runSizes(ctx *runContext, args []string) error {
 		return err
 	}
 	if *trainM != "" {
-		sctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+		sctx, stop := interruptible()
 		bar := newProgress(ctx.stderr, len(p.Patches()), "training")
 		done := map[int]bool{}
 		err := study.TrainPolicies(sctx, p, *sf.out, study.TrainOptions{Method: *trainM, Budget: *trainB, Workers: d.Workers,
@@ -143,7 +140,7 @@ func runSizes(ctx *runContext, args []string) error {
 // runSizesStudy runs the study, then measures costs and writes the report.
 func runSizesStudy(ctx *runContext, p *study.Plan, sf *studyFlags, shard study.Shard, args []string) error {
 	dir := *sf.out
-	sctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	sctx, stop := interruptible()
 	defer stop()
 	out, err := runPlan(sctx, ctx, p, dir, *sf.resume, shard, commandLine(args), "sizes")
 	if err != nil {

@@ -156,6 +156,18 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	return d, nil
 }
 
+// interruptible returns a context cancelled by the first Ctrl-C or
+// SIGTERM, which lets the episodes in flight finish and be recorded; a
+// second signal then ends the process at once (default handling).
+func interruptible() (context.Context, context.CancelFunc) {
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	go func() {
+		<-ctx.Done()
+		stop()
+	}()
+	return ctx, stop
+}
+
 // shardOf resolves --shard, or the cluster's environment.
 func (sf *studyFlags) shardOf() (study.Shard, error) {
 	if *sf.shard != "" {
@@ -195,7 +207,7 @@ func runStudyCLI(ctx *runContext, p *study.Plan, sf *studyFlags, args []string, 
 		return err
 	}
 	dir := *sf.out
-	sctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	sctx, stop := interruptible()
 	defer stop()
 	out, err := runPlan(sctx, ctx, p, dir, *sf.resume, shard, commandLine(args), what)
 	if err != nil {
