@@ -53,11 +53,15 @@ func rgbaCells3(dst []float32, p []byte, cells, pw, D int) {
 	// Pointer arithmetic inside the two slices, whose lengths are checked
 	// above: a bounds-checked loop spends most of its instructions on
 	// slice bookkeeping.
+	done := rgbaCellsSIMD(dst, p, cells, pw, D)
+	if done == pw {
+		return
+	}
 	sp, dp := unsafe.Pointer(&p[0]), unsafe.Pointer(&dst[0])
 	for c := 0; c < cells; c++ {
 		s := unsafe.Add(sp, 4*pw*c)
 		d := unsafe.Add(dp, 4*D*c)
-		for x := 0; x < pw; x++ {
+		for x := done; x < pw; x++ {
 			px := (*[4]byte)(unsafe.Add(s, 4*x))
 			v := (*[3]float32)(unsafe.Add(d, 12*x))
 			v[0], v[1], v[2] = unit[px[0]], unit[px[1]], unit[px[2]]

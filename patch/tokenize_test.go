@@ -268,3 +268,35 @@ func TestCoveredMatchesNewGrid(t *testing.T) {
 		t.Fatalf("covered %v, NewGrid %v (%v)", c, n, err)
 	}
 }
+
+// The assembly path computes float32(float64(b)·(1/255)); that equals
+// float32(b)/255 for every byte (exhaustive check of the identity).
+func TestInverse255Exact(t *testing.T) {
+	for b := 0; b < 256; b++ {
+		if float32(float64(b)*(1.0/255)) != float32(b)/255 {
+			t.Fatalf("byte %d: float64 route differs", b)
+		}
+	}
+}
+
+// The SIMD path (where the CPU has one) and the portable path give the
+// same bits, for patch widths with and without a remainder of 4.
+func TestSIMDAgreesWithPortable(t *testing.T) {
+	if !haveSIMD {
+		t.Skip("no SIMD path on this machine")
+	}
+	defer func(v bool) { haveSIMD = v }(haveSIMD)
+	for _, pw := range []int{1, 3, 4, 5, 6, 8, 12, 16} {
+		for _, edge := range []Edge{EdgePad, EdgeCrop} {
+			g := mustGrid(t, GridConfig{Width: 50, Height: 34, PatchW: pw, PatchH: 2, Edge: edge, Fill: 0.5})
+			f := randomRGBA(50, 34, uint64(pw))
+			haveSIMD = true
+			a := tokenizeAll(t, g, f)
+			haveSIMD = false
+			b := tokenizeAll(t, g, f)
+			if !equalF32(a, b) {
+				t.Fatalf("patch %d %v: SIMD and portable paths differ", pw, edge)
+			}
+		}
+	}
+}

@@ -1,0 +1,9 @@
+//go:build !amd64 || purego
+
+package patch
+
+// haveSIMD is false where there is no assembly path.
+var haveSIMD = false
+
+// rgbaCellsSIMD does nothing without an assembly path.
+func rgbaCellsSIMD(dst []float32, p []byte, cells, pw, D int) int { return 0 }
