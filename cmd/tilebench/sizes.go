@@ -112,6 +112,9 @@ func runSizes(ctx *runContext, args []string) error {
 	if err != nil {
 		return err
 	}
+	if *trainM != "" && !shard.Whole() {
+		return usagef("sizes: --train with shard %s would train different policies in every shard; train once (tilebench train), then run the shards with --policy FILE-p{patch}.safetensors", shard)
+	}
 	if err := study.CheckDir(p, *sf.out, *sf.resume, shard); err != nil {
 		return err
 	}

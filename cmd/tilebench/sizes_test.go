@@ -54,6 +54,7 @@ func TestSizesBadInput(t *testing.T) {
 		{[]string{"sizes", "--train", "magic", "--out", out}, "--train"},
 		{[]string{"sizes", "--patch", "8:4:1", "--out", out}, "yields no values"},
 		{[]string{"sizes", "--policy", "expert", "--out", out}, "expert"},
+		{[]string{"sizes", "--train", "clone", "--shard", "0/2", "--out", out}, "every shard"},
 	} {
 		code, _, stderr := runCLI(t, "", c.args...)
 		if code != 2 {
