@@ -186,14 +186,7 @@ func appendFrame(b []byte, img *image.RGBA, channels int, dtype string) []byte {
 		row := img.Pix[y*img.Stride : y*img.Stride+4*w]
 		switch {
 		case size == 1 && channels == 3:
-			// One 4-byte store per pixel; the spare byte is overwritten
-			// by the next pixel (the last pixel is copied bytewise).
-			d := dst[k : k+3*w]
-			for x := 0; x < w-1; x++ {
-				binary.LittleEndian.PutUint32(d[3*x:3*x+4], binary.LittleEndian.Uint32(row[4*x:4*x+4]))
-			}
-			x := w - 1
-			d[3*x], d[3*x+1], d[3*x+2] = row[4*x], row[4*x+1], row[4*x+2]
+			packRGB(dst[k:k+3*w], row, w)
 			k += 3 * w
 		case size == 1:
 			for x := 0; x < w; x++ {
@@ -230,4 +223,43 @@ func appendTokens(b []byte, ts *patch.TokenSet, dtype string) []byte {
 		b = binary.LittleEndian.AppendUint16(b, uint16(p.Col))
 	}
 	return b
+}
+
+// packRGB copies the R, G, B bytes of w RGBA pixels from row into dst
+// (3·w bytes), four pixels per step with 8-byte loads and stores.
+func packRGB(dst, row []byte, w int) {
+	x := 0
+	for ; x+4 <= w; x += 4 {
+		s := row[4*x : 4*x+16 : 4*x+16]
+		a := binary.LittleEndian.Uint64(s[0:8])
+		b := binary.LittleEndian.Uint64(s[8:16])
+		p0, p1 := a&0xffffff, (a>>32)&0xffffff
+		p2, p3 := b&0xffffff, (b>>32)&0xffffff
+		d := dst[3*x : 3*x+12 : 3*x+12]
+		binary.LittleEndian.PutUint64(d[0:8], p0|p1<<24|p2<<48)
+		binary.LittleEndian.PutUint32(d[8:12], uint32(p2>>16|p3<<8))
+	}
+	for ; x < w; x++ {
+		dst[3*x], dst[3*x+1], dst[3*x+2] = row[4*x], row[4*x+1], row[4*x+2]
+	}
+}
+
+// unpackRGB is the inverse of packRGB: n RGB pixels of src into RGBA
+// pixels of dst with alpha 255.
+func unpackRGB(dst, src []byte, n int) {
+	i := 0
+	for ; i+4 <= n; i += 4 {
+		s := src[3*i : 3*i+12 : 3*i+12]
+		a := binary.LittleEndian.Uint64(s[0:8])
+		c := uint64(binary.LittleEndian.Uint32(s[8:12]))
+		p0, p1 := a&0xffffff, (a>>24)&0xffffff
+		p2, p3 := (a>>48)|(c&0xff)<<16, c>>8
+		const opaque = 0xff000000
+		d := dst[4*i : 4*i+16 : 4*i+16]
+		binary.LittleEndian.PutUint64(d[0:8], p0|opaque|(p1|opaque)<<32)
+		binary.LittleEndian.PutUint64(d[8:16], p2|opaque|(p3|opaque)<<32)
+	}
+	for ; i < n; i++ {
+		dst[4*i], dst[4*i+1], dst[4*i+2], dst[4*i+3] = src[3*i], src[3*i+1], src[3*i+2], 255
+	}
 }

@@ -244,15 +244,7 @@ func decodeFrame(pix, buf []byte, n, c, size int) {
 	pix = pix[:4*n]
 	switch {
 	case size == 1 && c == 3:
-		buf = buf[:3*n]
-		// One 4-byte load per pixel (the last pixel is read bytewise).
-		for i := 0; i < n-1; i++ {
-			v := binary.LittleEndian.Uint32(buf[3*i : 3*i+4])
-			binary.LittleEndian.PutUint32(pix[4*i:4*i+4], v|0xff000000)
-		}
-		if i := n - 1; i >= 0 {
-			pix[4*i], pix[4*i+1], pix[4*i+2], pix[4*i+3] = buf[3*i], buf[3*i+1], buf[3*i+2], 255
-		}
+		unpackRGB(pix, buf, n)
 	case size == 1:
 		for i := 0; i < n; i++ {
 			v := buf[i]
