@@ -270,6 +270,7 @@ func (t *Trainer) WeightsMeta(res Result, heldOut, expert []float64) map[string]
 		m[weights.KeyHeldOutScore] = strconv.FormatFloat(mean(heldOut), 'g', -1, 64)
 		m[weights.KeyHeldOutEpisodes] = strconv.Itoa(len(heldOut))
 		m["heldout.iqm"] = strconv.FormatFloat(stats.IQM(heldOut), 'g', -1, 64)
+		m["heldout.returns"] = jsonString(heldOut)
 	}
 	if len(expert) > 0 {
 		m["heldout.expert_score"] = strconv.FormatFloat(mean(expert), 'g', -1, 64)

@@ -22,6 +22,7 @@ type dataset struct {
 	pos    []patch.Pos
 	tokenN int
 	sd     []float64 // per label dimension, from setSpread
+	step   []int32   // each sample's step index within its episode
 }
 
 // setSpread computes each label dimension's standard deviation over the
@@ -70,7 +71,8 @@ func newDataset(grid *patch.Grid, adim, ldim int) *dataset {
 	return ds
 }
 
-func (ds *dataset) add(tokens []float32, prev, label []float64) {
+func (ds *dataset) add(step int, tokens []float32, prev, label []float64) {
+	ds.step = append(ds.step, int32(step))
 	for _, v := range tokens {
 		ds.pix = append(ds.pix, uint8(v*255+0.5))
 	}
@@ -87,6 +89,7 @@ func (ds *dataset) add(tokens []float32, prev, label []float64) {
 // discarded).
 func (ds *dataset) truncate(n int) {
 	ds.n = n
+	ds.step = ds.step[:n]
 	ds.pix = ds.pix[:n*ds.size]
 	ds.prev = ds.prev[:n*ds.adim]
 	ds.label = ds.label[:n*ds.ldim]

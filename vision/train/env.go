@@ -109,10 +109,10 @@ func clampLabel(space games.ActionSpace, a []float64) {
 
 // record appends the current clean frame, previous action and expert
 // label to ds.
-func (e *env) record(ds *dataset) {
+func (e *env) record(ds *dataset, t int) {
 	e.expert.Act(e.label)
 	clampLabel(e.space, e.label)
-	ds.add(e.clean.Data[:e.clean.N*e.clean.D], e.prev, e.label)
+	ds.add(t, e.clean.Data[:e.clean.N*e.clean.D], e.prev, e.label)
 }
 
 // rollout plays one DAgger episode (Ross, Gordon & Bagnell 2011): at each
@@ -134,7 +134,7 @@ func (e *env) rollout(gameSeed, pipeSeed, mixSeed uint64, beta float64, keep int
 			return actions, ret, err
 		}
 		if t%keep == 0 {
-			e.record(ds)
+			e.record(ds, t)
 		} else {
 			e.expert.Act(e.label)
 		}
@@ -180,7 +180,7 @@ func (e *env) replay(gameSeed uint64, actions []float32, keep int, ds *dataset) 
 			return err
 		}
 		if t%keep == 0 {
-			e.record(ds)
+			e.record(ds, t)
 		}
 		for i := range e.act {
 			e.act[i] = float64(actions[t*dim+i])
@@ -202,18 +202,25 @@ func (e *env) replay(gameSeed uint64, actions []float32, keep int, ds *dataset) 
 // mean over dimensions of ((out−label)/s_j)² for continuous actions, where
 // s_j is the spread of dimension j's labels (dataset.spread), so that a
 // dimension the expert moves little (steering) weighs as much as one it
-// moves a lot (throttle); 
+// moves a lot (throttle);
 // the cross-entropy of the softmax of the logits for discrete ones.
 // scale multiplies the gradient (1/batch size).
 func (e *env) sampleLoss(ds *dataset, i int, pipeSeed uint64, scale float32, backward bool) (float64, error) {
-	ds.load(i, e.clean, e.prev)
 	e.pipe.Reset(pipeSeed)
-	if err := e.pipe.Apply(0, e.clean, e.seen, nil); err != nil {
-		return 0, err
-	}
-	e.obs.Step = 0
-	if err := e.net.Forward(&e.obs, e.out); err != nil {
-		return 0, err
+	e.net.Reset(pipeSeed)
+	// A net with temporal context first sees the frames before sample i
+	// (as far back as its episode goes), forward only: its history holds
+	// their pixels, which are inputs, not activations.
+	back := min(e.net.Config().Context-1, int(ds.step[i]))
+	for j := back; j >= 0; j-- {
+		ds.load(i-j, e.clean, e.prev)
+		if err := e.pipe.Apply(back-j, e.clean, e.seen, nil); err != nil {
+			return 0, err
+		}
+		e.obs.Step = back - j
+		if err := e.net.Forward(&e.obs, e.out); err != nil {
+			return 0, err
+		}
 	}
 	lab := ds.labels(i)
 	loss := 0.0

@@ -24,9 +24,13 @@ func TestGradientThroughLoss(t *testing.T) {
 		"continuous": {Kind: games.Continuous, Names: []string{"a", "b"}, Low: []float64{-1, 0}, High: []float64{1, 2}},
 		"discrete":   {Kind: games.Discrete, Names: []string{"l", "s", "r"}},
 	}
-	for _, fam := range nets.Families {
+	for _, fam := range append(nets.Families, "attention+context") {
 		for sname, space := range spaces {
 			cfg := nets.Config{Family: fam, KeySize: 4, Queries: 3, QueryDim: 4, ValueSize: 3, Hidden: 5, TokenHidden: 4, PrevAction: true}
+			if fam == "attention+context" {
+				// Temporal context: the sample is fed after the frame before it.
+				cfg.Family, cfg.Context = nets.Attention, 2
+			}
 			net, err := nets.New(cfg, grid, space, 7)
 			if err != nil {
 				t.Fatal(err)
@@ -46,16 +50,20 @@ func TestGradientThroughLoss(t *testing.T) {
 			} else {
 				prev[0], label[0] = 2, 1
 			}
-			ds.add(tok, prev, label)
+			ds.add(0, tok, prev, label)
+			for i := range tok {
+				tok[i] = float32(r.IntN(256)) / 255
+			}
+			ds.add(1, tok, prev, label)
 			loss := func() float64 {
-				v, err := e.sampleLoss(ds, 0, 1, 1, false)
+				v, err := e.sampleLoss(ds, 1, 1, 1, false)
 				if err != nil {
 					t.Fatal(err)
 				}
 				return v
 			}
 			net.ZeroGrads()
-			if _, err := e.sampleLoss(ds, 0, 1, 1, true); err != nil {
+			if _, err := e.sampleLoss(ds, 1, 1, 1, true); err != nil {
 				t.Fatal(err)
 			}
 			p, g := net.Params(), append([]float32(nil), net.Grads()...)

@@ -7,7 +7,6 @@ import (
 	"fmt"
 	"math"
 	"runtime"
-	"sort"
 	"strconv"
 	"sync"
 	"time"
@@ -45,6 +44,8 @@ type CloneConfig struct {
 	BetaDecay float64
 	// Keep records every Keep-th visited frame (1 = every frame). 0
 	// means 2 (consecutive frames are nearly identical; halves memory).
+	// A net with temporal context (Context k > 1) always records every
+	// frame, and each sample is fed after the k−1 frames before it.
 	Keep int
 }
 
@@ -253,7 +254,9 @@ func New(cfg Config) (*Trainer, error) {
 		return nil, fmt.Errorf("clone settings %+v: episodes, epochs, batch and keep must be ≥ 1 and beta decay in (0,1)", cc)
 	}
 	if cfg.Net.Context > 1 && cfg.Method == Clone {
-		return nil, errors.New("behaviour cloning trains on single frames: temporal context (k > 1) needs --method es or cmaes")
+		// Each sample is fed with the k−1 frames before it, so every
+		// frame is recorded.
+		cfg.Clone.Keep = 1
 	}
 	g, err := games.New(cfg.Game, games.Options{Variation: cfg.Variation})
 	if err != nil {
@@ -357,20 +360,10 @@ func (t *Trainer) parallel(n int, job func(w, i int) error) error {
 	return nil
 }
 
-// score plays n episodes of the given params on seeds under the clean
-// pipeline and returns every return.
+// score plays the params on seeds under the clean pipeline and returns
+// every return.
 func (t *Trainer) score(params []float32, seeds []uint64, stream string) ([]float64, error) {
-	out := make([]float64, len(seeds))
-	for _, e := range t.envs {
-		e.setParams(params)
-	}
-	base := patch.DeriveSeed(t.cfg.Seed, patch.StreamKey(stream))
-	err := t.parallel(len(seeds), func(w, i int) error {
-		r, err := t.envs[w].eval.Run(seeds[i], patch.DeriveSeed(base, uint64(i)), nil)
-		out[i] = r.Return
-		return err
-	})
-	return out, err
+	return t.scoreFrom(params, seeds, stream, 0)
 }
 
 func mean(v []float64) float64 {
@@ -635,6 +628,7 @@ func (t *Trainer) epoch(ctx context.Context, round, ep int) (float64, error) {
 }
 
 func (ds *dataset) appendFrom(o *dataset) {
+	ds.step = append(ds.step, o.step...)
 	ds.pix = append(ds.pix, o.pix...)
 	ds.prev = append(ds.prev, o.prev...)
 	ds.label = append(ds.label, o.label...)
@@ -746,15 +740,6 @@ func (t *Trainer) snapshot(elapsed time.Duration) {
 	if err == nil {
 		t.snap = f
 	}
-}
-
-func sortedKeys(m map[string]string) []string {
-	k := make([]string, 0, len(m))
-	for s := range m {
-		k = append(k, s)
-	}
-	sort.Strings(k)
-	return k
 }
 
 func jsonString(v any) string {

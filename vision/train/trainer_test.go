@@ -7,8 +7,8 @@ import (
 	"reflect"
 	"testing"
 
-	_ "tilebench/games/all"
 	"tilebench/games"
+	_ "tilebench/games/all"
 	"tilebench/patch"
 	"tilebench/vision/nets"
 )
@@ -19,10 +19,10 @@ func tiny(method string, workers int) Config {
 		Game: "drive", Patch: 4, Method: method, Seed: 11, Workers: workers, Iters: 2, Patience: -1,
 		Net:         nets.Config{KeySize: 4, Queries: 4, QueryDim: 4, ValueSize: 4, Hidden: 8},
 		ValEpisodes: 1, FitnessEpisodes: 1, ValEvery: 1,
-		Clone:       CloneConfig{EpisodesPerRound: 1, Epochs: 1, Batch: 32, Keep: 8},
-		ES:          ESConfig{Pairs: 2},
-		CMA:         CMAConfig{Population: 4},
-		Augment:     patch.Spec{Occlude: "random:0.25"},
+		Clone:   CloneConfig{EpisodesPerRound: 1, Epochs: 1, Batch: 32, Keep: 8},
+		ES:      ESConfig{Pairs: 2},
+		CMA:     CMAConfig{Population: 4},
+		Augment: patch.Spec{Occlude: "random:0.25"},
 	}
 }
 
@@ -113,7 +113,6 @@ func TestNewRejectsBadConfig(t *testing.T) {
 		func(c *Config) { c.Net.Family = "cnn" },
 		func(c *Config) { c.Clone.BetaDecay = 2 },
 		func(c *Config) { c.Augment.Occlude = "random:7" },
-		func(c *Config) { c.Net.Context = 3 },
 		func(c *Config) { c.Method = CMAES; c.Net = nets.Config{} }, // ~15k parameters: too many for CMA-ES
 	}
 	for i, f := range bad {
@@ -134,7 +133,7 @@ func TestDatasetLossless(t *testing.T) {
 	for i := range src.Data {
 		src.Data[i] = float32(i*37%256) / 255
 	}
-	ds.add(src.Data, []float64{0.25}, []float64{-0.5})
+	ds.add(0, src.Data, []float64{0.25}, []float64{-0.5})
 	dst := patch.NewTokenSet(g.N(), g.D())
 	prev := []float64{0}
 	ds.load(0, dst, prev)
