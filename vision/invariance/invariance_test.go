@@ -119,11 +119,17 @@ func (p *fixedPolicy) Act(obs *vision.Observation, a []float64) error {
 
 func setup(t *testing.T, discrete bool) (games.Game, *patch.Tokenizer) {
 	t.Helper()
+	g, tok := blobsGame()
+	g.discrete = discrete
+	return g, tok
+}
+
+func blobsGame() (*blobs, *patch.Tokenizer) {
 	gr, err := patch.NewGrid(patch.GridConfig{Width: 32, Height: 32, PatchW: 8})
 	if err != nil {
-		t.Fatal(err)
+		panic(err)
 	}
-	return &blobs{discrete: discrete}, patch.NewTokenizer(gr)
+	return &blobs{}, patch.NewTokenizer(gr)
 }
 
 var small = Config{Perms: 20, Seeds: []uint64{1, 2}, Frames: 3}
