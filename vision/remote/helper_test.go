@@ -19,6 +19,7 @@ import (
 	"tilebench/games"
 	"tilebench/patch"
 	"tilebench/vision"
+	"tilebench/vision/nets"
 )
 
 // The test binary re-executes itself as the fake policy: with
@@ -72,6 +73,22 @@ func runHelper(mode string) int {
 		}
 	case mode == "frame":
 		err := Serve(os.Stdin, os.Stdout, &framePolicy{}, ServeOptions{})
+		return exitCode(err)
+	case strings.HasPrefix(mode, "net:"):
+		// A built-in family, built from the hello like the test builds it.
+		w := &netPolicy{}
+		err := Serve(os.Stdin, os.Stdout, w, ServeOptions{Accept: func(h *Hello) error {
+			grid, err := h.Tokens.Grid()
+			if err != nil {
+				return err
+			}
+			space, err := h.Action.Space()
+			if err != nil {
+				return err
+			}
+			w.Net, err = nets.New(nets.Config{Family: strings.TrimPrefix(mode, "net:")}, grid, space, netSeed)
+			return err
+		}})
 		return exitCode(err)
 	case mode == "refuse":
 		err := Serve(os.Stdin, os.Stdout, zeroPolicy{}, ServeOptions{Accept: func(h *Hello) error {
@@ -200,6 +217,12 @@ func rawHelper(mode string) int {
 		fmt.Fprintf(out, `{"msg":"action","t":%d,"action":[%s]}`+"\n", t, strings.Join(vals, ","))
 	}
 }
+
+// netSeed is the parameter seed of the families served by the helper.
+const netSeed = 11
+
+// netPolicy is a net built once the hello has said what it plays.
+type netPolicy struct{ nets.Net }
 
 // zeroPolicy answers zeros: the trivial echo policy.
 type zeroPolicy struct{}

@@ -20,6 +20,7 @@ import (
 	"tilebench/games"
 	"tilebench/patch"
 	"tilebench/vision"
+	"tilebench/vision/nets"
 )
 
 func open(t testing.TB, mode string, mod func(*Config)) (*Policy, error) {
@@ -305,6 +306,42 @@ func TestSameResultsAsBuiltIn(t *testing.T) {
 	check("tcp tokens", p, wantSum)
 	if err := <-done; err != nil {
 		t.Fatalf("server: %v", err)
+	}
+}
+
+// The built-in families, run in this process and served by a child over
+// the protocol (float32 tokens), give the same episodes bit for bit.
+func TestSameResultsAsBuiltInFamilies(t *testing.T) {
+	g := &blobs{}
+	for _, fam := range nets.Families {
+		spec := patch.Spec{Scramble: "full", NoiseTokens: 2}
+		if fam == nets.MLP {
+			spec = patch.Spec{} // a fixed-size family: no added tokens
+		}
+		n, err := nets.New(nets.Config{Family: fam}, testGrid(t), g.Spec().Action, netSeed)
+		if err != nil {
+			t.Fatal(err)
+		}
+		p, err := open(t, "net:"+fam, func(c *Config) { c.Obs, c.Dtype = ObsTokens, Float32 })
+		if err != nil {
+			t.Fatal(err)
+		}
+		for s := uint64(1); s <= 2; s++ {
+			want, err := episode(t, n, spec, s)
+			if err != nil {
+				t.Fatal(err)
+			}
+			got, err := episode(t, p, spec, s)
+			if err != nil {
+				t.Fatalf("%s: %v", fam, err)
+			}
+			if math.Float64bits(got.Return) != math.Float64bits(want.Return) || got.Steps != want.Steps {
+				t.Fatalf("%s seed %d: external %v in %d steps, built-in %v in %d", fam, s, got.Return, got.Steps, want.Return, want.Steps)
+			}
+		}
+		if err := p.Close(); err != nil {
+			t.Fatal(err)
+		}
 	}
 }
 
