@@ -322,19 +322,32 @@ func (g *Game) moveObstacle() {
 	} else if g.obsX+obstacleW > Right {
 		g.obsX, g.obsV = 2*(Right-obstacleW)-g.obsX, -g.obsV
 	}
-	// If the bar moved into the ball, push the ball out sideways and send
-	// it away from the bar.
+	// If the bar moved into the ball, push the ball out through the
+	// nearest face that leaves it room inside the walls, and send it away
+	// from the bar along that axis.
 	b := &g.ball
 	r := g.cfg.BallRadius
-	if b.Y+r > obstacleY && b.Y-r < obstacleY+obstacleH && b.X+r > g.obsX && b.X-r < g.obsX+obstacleW {
-		if g.obsV > 0 {
-			b.X = g.obsX + obstacleW + r
-			b.VX = math.Abs(b.VX)
-		} else {
-			b.X = g.obsX - r
-			b.VX = -math.Abs(b.VX)
+	x0, x1 := g.obsX-r, g.obsX+obstacleW+r
+	y0, y1 := obstacleY-r, obstacleY+obstacleH+r
+	if b.X <= x0 || b.X >= x1 || b.Y <= y0 || b.Y >= y1 {
+		return
+	}
+	best, face := math.Inf(1), -1
+	for f, d := range [4]float64{b.X - x0, x1 - b.X, b.Y - y0, y1 - b.Y} {
+		room := (f == 0 && x0 >= Left+r) || (f == 1 && x1 <= Right-r) || (f == 2 && y0 >= Top+r) || f == 3
+		if room && d < best {
+			best, face = d, f
 		}
-		b.X = math.Max(Left+r, math.Min(Right-r, b.X))
+	}
+	switch face {
+	case 0:
+		b.X, b.VX = x0, -math.Abs(b.VX)
+	case 1:
+		b.X, b.VX = x1, math.Abs(b.VX)
+	case 2:
+		b.Y, b.VY = y0, -math.Abs(b.VY)
+	default:
+		b.Y, b.VY = y1, math.Abs(b.VY)
 	}
 }
 

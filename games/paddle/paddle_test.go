@@ -346,3 +346,47 @@ func TestStepRenderAllocs(t *testing.T) {
 		t.Fatalf("%v allocations per step", n)
 	}
 }
+
+// Bounces off the drifting bar keep the speed and reverse one velocity
+// component (law of reflection on an axis-aligned face), and the ball
+// never ends a step inside the bar.
+func TestObstacleBounces(t *testing.T) {
+	g := newGame(t, "drifter")
+	rng := patch.NewRand(23)
+	r := g.cfg.BallRadius
+	hits := 0
+	for shot := 0; shot < 300; shot++ {
+		g.Reset(uint64(shot))
+		g.paddleX = -1e6
+		a := 2 * math.Pi * rng.Float64()
+		s := 0.5 + 3*rng.Float64()
+		g.ball = Ball{X: Left + r + (Right-Left-2*r)*rng.Float64(), Y: Top + r + 20*rng.Float64(), VX: s * math.Cos(a), VY: s * math.Sin(a)}
+		for k := 0; k < 200; k++ {
+			g.moveObstacle()
+			g.numEvents = 0
+			g.advance(1, true)
+			for _, ev := range g.Events() {
+				if ev.Kind != HitObstacle {
+					continue
+				}
+				hits++
+				bi, af := ev.Before, ev.After
+				if math.Abs(bi.Speed()-af.Speed()) > 1e-12 {
+					t.Fatalf("shot %d: speed %v → %v off the bar", shot, bi.Speed(), af.Speed())
+				}
+				flippedX := af.VX == -bi.VX && af.VY == bi.VY
+				flippedY := af.VY == -bi.VY && af.VX == bi.VX
+				if !flippedX && !flippedY {
+					t.Fatalf("shot %d: %+v → %+v is no reflection off a face", shot, bi, af)
+				}
+			}
+			b := g.ball
+			if b.Y > obstacleY-r+1e-6 && b.Y < obstacleY+obstacleH+r-1e-6 && b.X > g.obsX-r+1e-6 && b.X < g.obsX+obstacleW+r-1e-6 {
+				t.Fatalf("shot %d step %d: ball %+v inside the bar at x %v", shot, k, b, g.obsX)
+			}
+		}
+	}
+	if hits < 100 {
+		t.Fatalf("only %d bar bounces", hits)
+	}
+}
