@@ -96,14 +96,7 @@ func runDemo(ctx *runContext, args []string) error {
 	if _, err := runPlan(sctx, ctx, sp, sizesDir, true, study.Shard{}, cmd, "demo: patch sizes"); err != nil {
 		return err
 	}
-	costs, err := study.MeasureCosts(sp)
-	if err != nil {
-		return err
-	}
-	if err := study.WriteCosts(sizesDir, costs); err != nil {
-		return err
-	}
-	if err := study.WriteReport(sizesDir); err != nil {
+	if err := study.FinishSizes(sp, sizesDir); err != nil {
 		return err
 	}
 	if _, err := runPlan(sctx, ctx, tp, stressDir, true, study.Shard{}, cmd, "demo: stress"); err != nil {

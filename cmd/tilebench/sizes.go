@@ -149,14 +149,7 @@ func runSizesStudy(ctx *runContext, p *study.Plan, sf *studyFlags, shard study.S
 	if err != nil {
 		return err
 	}
-	costs, err := study.MeasureCosts(p)
-	if err != nil {
-		return err
-	}
-	if err := study.WriteCosts(dir, costs); err != nil {
-		return err
-	}
-	if err := study.WriteReport(dir); err != nil {
+	if err := study.FinishSizes(p, dir); err != nil {
 		return err
 	}
 	if err := printOutcome(ctx, p, dir, shard, out, *sf.asJSON); err != nil {

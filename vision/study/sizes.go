@@ -74,6 +74,19 @@ func MeasureCosts(p *Plan) ([]Cost, error) {
 	return out, nil
 }
 
+// FinishSizes ends a sizes study run in dir: it measures the costs
+// (MeasureCosts), records them in costs.json and writes the report.
+func FinishSizes(p *Plan, dir string) error {
+	costs, err := MeasureCosts(p)
+	if err != nil {
+		return err
+	}
+	if err := WriteCosts(dir, costs); err != nil {
+		return err
+	}
+	return WriteReport(dir)
+}
+
 // TrainOptions configure TrainPolicies.
 type TrainOptions struct {
 	// Method is the training method of vision/train: "clone" (default),
