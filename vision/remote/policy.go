@@ -412,7 +412,7 @@ func (p *Policy) write(phase string, step int, b []byte, deadline time.Time, tim
 // may see (error, payloads).
 func (p *Policy) parseReply(phase string, step int, line []byte) *FaultError {
 	if err := p.hdr.parse(line); err != nil {
-		return p.newFault(phase, step, Garbage, "%v: %q", err, clip(line))
+		return p.newFault(phase, step, Garbage, "%v: %q (stdout must carry protocol messages only; log to stderr)", err, clip(line))
 	}
 	if n, ok, err := p.hdr.integer("len", 0, math.MaxInt64); err != nil {
 		return p.newFault(phase, step, Protocol, "%v", err)
