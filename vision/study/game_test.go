@@ -157,3 +157,37 @@ func TestWeightsGeometryMismatch(t *testing.T) {
 		t.Fatalf("PatchOfPolicy %d %v", got, ok)
 	}
 }
+
+func TestReferencePolicies(t *testing.T) {
+	g, err := games.New("drive", games.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := t.TempDir()
+	for _, fam := range []string{"attention", "posattention"} {
+		for _, ps := range []int{4, 8, 16} {
+			grid, _ := patch.NewGrid(patch.GridConfig{Width: 96, Height: 96, PatchW: ps})
+			n, err := nets.New(nets.Config{Family: fam}, grid, g.Spec().Action, 1)
+			if err != nil {
+				t.Fatal(err)
+			}
+			if err := nets.Save(filepath.Join(dir, fmt.Sprintf("drive-%s-p%d.safetensors", fam, ps)), n, nil); err != nil {
+				t.Fatal(err)
+			}
+		}
+	}
+	tmpl, ok := ReferencePolicies(dir, "drive", "attention", []int{4, 8, 16})
+	if !ok || tmpl != filepath.Join(dir, "drive-attention-p{patch}.safetensors") {
+		t.Fatalf("template %q %v", tmpl, ok)
+	}
+	tmpl, ok = ReferencePolicies(dir, "drive", "posattention", []int{16})
+	if !ok || tmpl != filepath.Join(dir, "drive-posattention-p{patch}.safetensors") {
+		t.Fatalf("template %q %v", tmpl, ok)
+	}
+	if _, ok := ReferencePolicies(dir, "drive", "attention", []int{4, 6}); ok {
+		t.Fatal("found a policy for patch 6")
+	}
+	if _, ok := ReferencePolicies(dir, "paddle", "attention", []int{4}); ok {
+		t.Fatal("found a paddle policy")
+	}
+}
