@@ -66,8 +66,7 @@ func newFlags(ctx *runContext, name, usage string) *flag.FlagSet {
 func parseFlags(fs *flag.FlagSet, args []string) error {
 	if err := fs.Parse(args); err != nil {
 		if errors.Is(err, flag.ErrHelp) {
-			fs.Usage()
-			return errHelp
+			return errHelp // the flag package has printed the usage already
 		}
 		return usageError{err}
 	}
