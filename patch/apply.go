@@ -69,6 +69,7 @@ type pipeState struct {
 	outPerm []int     // Capacity: Perm of the last Apply
 	outOri  []uint8   // Capacity
 	outCell []int     // N: cell of each real output token
+	cells   []Pos     // N: g.Cell(i)
 	maskIdx []int     // N: ascending occluded cells
 
 	// per-sequence shape placement
@@ -162,6 +163,8 @@ func newPipeline(g *Grid, spec Spec) (*Pipeline, error) {
 	x.outPerm = make([]int, capa)
 	x.outOri = make([]uint8, capa)
 	x.outCell = make([]int, N)
+	x.cells = make([]Pos, N)
+	setGridPos(g, x.cells)
 	x.maskIdx = make([]int, 0, N)
 	p.reset(0)
 	return p, nil
@@ -417,8 +420,8 @@ func (p *Pipeline) apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 	if src.D != D || src.N != N || len(src.Data) < N*D || len(src.Pos) < N {
 		return fmt.Errorf("pipeline: source has %d tokens of %d values, grid has %d of %d", src.N, src.D, N, D)
 	}
-	for i := 0; i < N; i++ {
-		if src.Pos[i] != g.Cell(i) {
+	for i, p := range x.cells {
+		if src.Pos[i] != p {
 			return fmt.Errorf("pipeline: source token %d is not in grid order (cell %v)", i, src.Pos[i])
 		}
 	}
@@ -501,7 +504,7 @@ func (p *Pipeline) apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 				copy(out[dp*C:dp*C+C], in[int(sp)*C:int(sp)*C+C])
 			}
 		}
-		dst.Pos[k] = g.Cell(i)
+		dst.Pos[k] = x.cells[i]
 		x.outPerm[k], x.outOri[k], x.outCell[k] = j, o, i
 		k++
 	}

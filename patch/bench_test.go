@@ -6,7 +6,7 @@ import (
 )
 
 // The benchmark frame: 96×96 RGB (opaque RGBA), patch 8, float32 tokens.
-func benchSetup(b *testing.B) (*Tokenizer, *image.RGBA, *TokenSet) {
+func benchSetup(b testing.TB) (*Tokenizer, *image.RGBA, *TokenSet) {
 	g := mustGrid(b, GridConfig{Width: 96, Height: 96, PatchW: 8})
 	return NewTokenizer(g), randomRGBA(96, 96, 1), NewTokenSet(g.N(), g.D())
 }

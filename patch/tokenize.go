@@ -134,9 +134,7 @@ func (t *Tokenizer) tokenize(img image.Image, dst *TokenSet) error {
 		return err
 	}
 	dst.N, dst.D = n, d
-	for i := 0; i < n; i++ {
-		dst.Pos[i] = g.Cell(i)
-	}
+	setGridPos(g, dst.Pos[:n])
 	if src.kind == kindRGBA && g.Channels == 3 {
 		tokenizeRGBA3(g, &src, dst.Data)
 		return nil
@@ -165,6 +163,17 @@ func (t *Tokenizer) tokenize(img image.Image, dst *TokenSet) error {
 		}
 	}
 	return nil
+}
+
+// setGridPos sets pos[i] = g.Cell(i) without dividing.
+func setGridPos(g *Grid, pos []Pos) {
+	i := 0
+	for r := 0; r < g.Rows; r++ {
+		for c := 0; c < g.Cols; c++ {
+			pos[i] = Pos{Row: int16(r), Col: int16(c)}
+			i++
+		}
+	}
 }
 
 func fillValues(v []float32, f float32) {

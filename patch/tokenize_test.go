@@ -269,16 +269,6 @@ func TestCoveredMatchesNewGrid(t *testing.T) {
 	}
 }
 
-// The assembly path computes float32(float64(b)·(1/255)); that equals
-// float32(b)/255 for every byte (exhaustive check of the identity).
-func TestInverse255Exact(t *testing.T) {
-	for b := 0; b < 256; b++ {
-		if float32(float64(b)*(1.0/255)) != float32(b)/255 {
-			t.Fatalf("byte %d: float64 route differs", b)
-		}
-	}
-}
-
 // The SIMD path (where the CPU has one) and the portable path give the
 // same bits, for patch widths with and without a remainder of 4.
 func TestSIMDAgreesWithPortable(t *testing.T) {
