@@ -144,7 +144,7 @@ func TestPlayBadInput(t *testing.T) {
 		}
 	}
 	code, out, _ := runCLI(t, "", "play", "-help")
-	if code != 0 || !strings.Contains(out, "--game drive") || !strings.Contains(out, "-variation") {
+	if code != 0 || !strings.Contains(out, "--game drive") || !strings.Contains(out, "-variation") || strings.Count(out, "usage:") != 1 {
 		t.Errorf("help: exit %d\n%s", code, out)
 	}
 }
