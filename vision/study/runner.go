@@ -240,6 +240,10 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	if opt.Progress != nil {
 		opt.Progress(out.Kept, total)
 	}
+	// A failed write stops the run: episodes that cannot be recorded are
+	// not worth playing.
+	runCtx, cancelRun := context.WithCancel(ctx)
+	defer cancelRun()
 	jobs := make(chan unit)
 	results := make(chan finished, workers)
 	var wg sync.WaitGroup
@@ -247,7 +251,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			worker(ctx, p, opt, w, jobs, results)
+			worker(runCtx, p, opt, w, jobs, results)
 		}()
 	}
 	go func() {
@@ -255,7 +259,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		for _, u := range todo {
 			select {
 			case jobs <- u:
-			case <-ctx.Done():
+			case <-runCtx.Done():
 				return
 			}
 		}
@@ -277,6 +281,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		}
 		if err != nil {
 			writeErr = fmt.Errorf("write results: %w", err)
+			cancelRun()
 			continue
 		}
 		if tb, err := jsonLine(f.timing); err == nil {
