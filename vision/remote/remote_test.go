@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"errors"
 	"image"
+	"io"
 	"math"
 	"net"
 	"os"
@@ -654,5 +655,40 @@ func BenchmarkFrameCodec(b *testing.B) {
 	for b.Loop() {
 		buf = appendFrame(buf[:0], img, 3, Uint8)
 		decodeFrame(pix, buf, 96*96, 3, 1)
+	}
+}
+
+// FuzzServe feeds Serve a valid hello followed by arbitrary messages: it
+// must answer or return an error, never panic.
+func FuzzServe(f *testing.F) {
+	grid, _ := patch.NewGrid(patch.GridConfig{Width: 16, Height: 8, PatchW: 8})
+	for _, obs := range []string{ObsFrame, ObsTokens} {
+		h := Hello{Msg: "hello", Protocol: Version, Game: "g", Obs: obs, Dtype: Uint8, Frame: [3]int{8, 16, 3},
+			Tokens: layoutOf(grid, 4), Action: specOf(games.ActionSpace{Kind: games.Discrete, Names: []string{"a", "b"}}),
+			Limits: Limits{MaxLine: MaxLine, MaxPayload: 1024}}
+		b, _ := json.Marshal(h)
+		hello := append(b, '\n')
+		f.Add(hello, []byte(`{"msg":"start","episode":0,"seed":5}`+"\n"+`{"msg":"step","t":0,"n":2,"prev":[0],"len":392}`+"\n"+strings.Repeat("x", 392)+`{"msg":"bye"}`+"\n"))
+		f.Add(hello, []byte(`{"msg":"step","t":0,"prev":[1],"len":384}`+"\n"+strings.Repeat("y", 384)))
+	}
+	f.Fuzz(func(t *testing.T, hello, rest []byte) {
+		var h Hello
+		if json.Unmarshal(hello, &h) != nil || h.Limits.MaxPayload > 1<<16 || h.Tokens.Max > 1024 || h.Frame[0]*h.Frame[1] > 1<<16 || h.Frame[0] < 0 || h.Frame[1] < 0 {
+			return // keep the fuzzer's allocations small
+		}
+		in := append(append([]byte(nil), hello...), rest...)
+		Serve(strings.NewReader(string(in)), io.Discard, zeroPolicy{}, ServeOptions{})
+	})
+}
+
+func TestServeRefusesInconsistentHello(t *testing.T) {
+	grid := testGrid(t)
+	h := Hello{Msg: "hello", Protocol: Version, Game: "g", Obs: ObsFrame, Dtype: Uint8, Frame: [3]int{24, 32, 0},
+		Tokens: layoutOf(grid, 12), Action: specOf((&blobs{}).Spec().Action), Limits: Limits{MaxPayload: 4096}}
+	b, _ := json.Marshal(h)
+	var out strings.Builder
+	err := Serve(strings.NewReader(string(b)+"\n"), &out, zeroPolicy{}, ServeOptions{})
+	if err == nil || !strings.Contains(out.String(), `"refuse"`) || !strings.Contains(out.String(), "does not match") {
+		t.Fatalf("Serve: %v, wrote %q", err, out.String())
 	}
 }

@@ -58,6 +58,12 @@ func Serve(r io.Reader, w io.Writer, pol vision.Policy, opt ServeOptions) error 
 	if err != nil {
 		return refuse(err.Error())
 	}
+	if h.Frame != [3]int{grid.OutH, grid.OutW, grid.Channels} {
+		return refuse(fmt.Sprintf("frame %v does not match the token grid (%dx%dx%d)", h.Frame, grid.OutH, grid.OutW, grid.Channels))
+	}
+	if h.Tokens.Max < 0 || h.Tokens.Max > 1<<20 {
+		return refuse(fmt.Sprintf("token capacity %d out of range", h.Tokens.Max))
+	}
 	if h.Obs != ObsFrame && h.Obs != ObsTokens || h.Dtype != Uint8 && h.Dtype != Float32 {
 		return refuse(fmt.Sprintf("observation %s/%s not understood", h.Obs, h.Dtype))
 	}
