@@ -2,9 +2,11 @@
 
 package nets
 
+//go:generate go run ./internal/asmgen/cmd/asmgen -o kernels_amd64.s
+
 import "golang.org/x/sys/cpu"
 
-// Assembly micro-kernels (kernels_amd64.s, written by asm_gen.py):
+// Assembly micro-kernels (kernels_amd64.s, written by internal/asmgen):
 // gemmRxW computes C (R×W) += A (R×k) · B (k×W) with AVX and FMA, where
 // A[r][p] is at a + r·lda + p·inc: inc = 1 reads A, lda = 1 reads Aᵀ.
 // Strides are in elements.

@@ -1,13 +1,12 @@
 package nets
 
 import (
+	"bytes"
 	"math"
 	"os"
-	"os/exec"
-	"path/filepath"
 	"testing"
 
-	"tilebench/internal/reftest"
+	"tilebench/vision/nets/internal/asmgen"
 )
 
 // The kernels in use (blocked or assembly) against the plain loops, on
@@ -62,23 +61,13 @@ func TestKernelsMatchPlain(t *testing.T) {
 	}
 }
 
-// The committed assembly is what asm_gen.py writes (stdlib Python only).
+// The committed assembly is what the generator in internal/asmgen writes.
 func TestAssemblyUpToDate(t *testing.T) {
-	reftest.Need(t)
-	out := filepath.Join(t.TempDir(), "k.s")
-	cmd := exec.Command(reftest.Python, "asm_gen.py", out)
-	if b, err := cmd.CombinedOutput(); err != nil {
-		t.Fatalf("asm_gen.py: %v\n%s", err, b)
-	}
-	want, err := os.ReadFile(out)
-	if err != nil {
-		t.Fatal(err)
-	}
 	got, err := os.ReadFile("kernels_amd64.s")
 	if err != nil {
 		t.Fatal(err)
 	}
-	if string(got) != string(want) {
-		t.Error("kernels_amd64.s differs from the output of asm_gen.py: run /usr/bin/python3 asm_gen.py in vision/nets")
+	if want := asmgen.Generate(); !bytes.Equal(got, want) {
+		t.Error("kernels_amd64.s differs from the output of internal/asmgen: run go generate in vision/nets")
 	}
 }
