@@ -8,6 +8,7 @@ import (
 	"math"
 	"os"
 	"os/signal"
+	"strconv"
 	"strings"
 	"syscall"
 	"time"
@@ -16,6 +17,7 @@ import (
 	"tilebench/patch"
 	"tilebench/vision/nets"
 	"tilebench/vision/train"
+	"tilebench/vision/weights"
 )
 
 func init() {
@@ -179,8 +181,8 @@ func runTrain(ctx *runContext, args []string) error {
 		"caution": train.Caution,
 	}
 	if len(held) > 0 {
-		sum["heldout_score"], sum["heldout_iqm"] = meta["heldout.score"], meta["heldout.iqm"]
-		sum["expert_score"], sum["expert_iqm"] = meta["heldout.expert_score"], meta["heldout.expert_iqm"]
+		sum["heldout_score"], sum["heldout_iqm"] = num(meta[weights.KeyHeldOutScore]), num(meta["heldout_iqm"])
+		sum["expert_score"], sum["expert_iqm"] = num(meta["heldout_expert_score"]), num(meta["heldout_expert_iqm"])
 	}
 	if *jsonOut {
 		return enc.Encode(sum)
@@ -189,10 +191,18 @@ func runTrain(ctx *runContext, args []string) error {
 		cfg.Net.Family, cfg.Game, cfg.Patch, cfg.Game, cfg.Method, res.Iters, res.Stopped, res.Elapsed.Round(time.Second), res.BestVal)
 	if len(held) > 0 {
 		fmt.Fprintf(ctx.stdout, "held-out score over %d episodes: mean %s, IQM %s (scripted expert, reads game state: mean %s, IQM %s)\n",
-			len(held), meta["heldout.score"], meta["heldout.iqm"], meta["heldout.expert_score"], meta["heldout.expert_iqm"])
+			len(held), meta[weights.KeyHeldOutScore], meta["heldout_iqm"], meta["heldout_expert_score"], meta["heldout_expert_iqm"])
 	}
 	fmt.Fprintf(ctx.stdout, "wrote %s (checkpoint %s)\ncaution: %s\n", *out, *ckpt, train.Caution)
 	return nil
+}
+
+func num(s string) any {
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil {
+		return nil
+	}
+	return finite(v)
 }
 
 func finite(v float64) any {

@@ -99,19 +99,14 @@ func resumeFile(f *weights.File, iters int, budget float64) (*Trainer, error) {
 	if err != nil {
 		return nil, errors.New("not a training checkpoint (no " + keyCkptConfig + " entry)")
 	}
-	var cfg Config
-	if err := json.Unmarshal([]byte(cj), &cfg); err != nil {
-		return nil, fmt.Errorf("checkpoint config: %w", err)
-	}
-	var st state
 	sj, err := f.Meta(keyCkptState)
 	if err != nil {
 		return nil, err
 	}
-	if err := json.Unmarshal([]byte(sj), &st); err != nil {
-		return nil, fmt.Errorf("checkpoint state: %w", err)
+	cfg, st, err := parseCheckpointMeta(cj, sj)
+	if err != nil {
+		return nil, err
 	}
-	st.BestVal, st.BestEver = fromJSONInf(st.BestVal), fromJSONInf(st.BestEver)
 	// The net: its own tensors only.
 	nf := &weights.File{Metadata: map[string]string{}}
 	extra := map[string]*weights.Tensor{}
@@ -124,7 +119,7 @@ func resumeFile(f *weights.File, iters int, budget float64) (*Trainer, error) {
 		nf.Tensors = append(nf.Tensors, *tt)
 	}
 	for k, v := range f.Metadata {
-		if !strings.HasPrefix(k, "train.") && !strings.HasPrefix(k, "heldout.") && k != "game" && k != "caution" {
+		if !strings.HasPrefix(k, "train") && !strings.HasPrefix(k, "heldout") && k != "game" && k != "caution" && k != "variation" {
 			nf.Metadata[k] = v
 		}
 	}
@@ -206,6 +201,42 @@ func resumeFile(f *weights.File, iters int, budget float64) (*Trainer, error) {
 	return t, nil
 }
 
+// parseCheckpointMeta reads and checks the two JSON entries of a
+// checkpoint.
+func parseCheckpointMeta(cj, sj string) (Config, state, error) {
+	var cfg Config
+	var st state
+	if err := json.Unmarshal([]byte(cj), &cfg); err != nil {
+		return cfg, st, fmt.Errorf("checkpoint config: %w", err)
+	}
+	if err := json.Unmarshal([]byte(sj), &st); err != nil {
+		return cfg, st, fmt.Errorf("checkpoint state: %w", err)
+	}
+	st.BestVal, st.BestEver = fromJSONInf(st.BestVal), fromJSONInf(st.BestEver)
+	switch {
+	case st.Iter < 0 || st.Evals < 0 || st.Stale < 0:
+		return cfg, st, fmt.Errorf("checkpoint state: negative counts (iteration %d, evaluations %d)", st.Iter, st.Evals)
+	case !(st.Elapsed >= 0) || math.IsInf(st.Elapsed, 0):
+		return cfg, st, fmt.Errorf("checkpoint state: time used %v s", st.Elapsed)
+	case math.IsNaN(st.BestVal) || math.IsNaN(st.BestEver):
+		return cfg, st, errors.New("checkpoint state: score is NaN")
+	}
+	for _, e := range st.Episodes {
+		if e.Steps < 0 || e.Steps > 1<<24 {
+			return cfg, st, fmt.Errorf("checkpoint state: episode of %d steps", e.Steps)
+		}
+	}
+	for _, h := range st.History {
+		if _, err := strconv.ParseUint(h.Key, 10, 64); err != nil {
+			return cfg, st, fmt.Errorf("checkpoint state: evaluation key %q: not a number", h.Key)
+		}
+		if math.IsNaN(h.F) {
+			return cfg, st, errors.New("checkpoint state: NaN fitness in history")
+		}
+	}
+	return cfg, st, nil
+}
+
 // rebuildData replays the recorded episodes to rebuild the aggregated
 // data set, in parallel, appending in episode order.
 func (t *Trainer) rebuildData() error {
@@ -259,8 +290,8 @@ func (t *Trainer) WeightsMeta(res Result, heldOut, expert []float64) map[string]
 		weights.KeyGame:   t.cfg.Game,
 		weights.KeyMethod: method,
 		weights.KeySeed:   strconv.FormatUint(t.cfg.Seed, 10),
-		"train.hyper":     jsonString(hyper),
-		"train.augment":   jsonString(t.cfg.Augment),
+		"train_hyper":     jsonString(hyper),
+		"train_augment":   jsonString(t.cfg.Augment),
 		"caution":         Caution,
 	}
 	if t.cfg.Variation != "" {
@@ -269,12 +300,12 @@ func (t *Trainer) WeightsMeta(res Result, heldOut, expert []float64) map[string]
 	if len(heldOut) > 0 {
 		m[weights.KeyHeldOutScore] = strconv.FormatFloat(mean(heldOut), 'g', -1, 64)
 		m[weights.KeyHeldOutEpisodes] = strconv.Itoa(len(heldOut))
-		m["heldout.iqm"] = strconv.FormatFloat(stats.IQM(heldOut), 'g', -1, 64)
-		m["heldout.returns"] = jsonString(heldOut)
+		m["heldout_iqm"] = strconv.FormatFloat(stats.IQM(heldOut), 'g', -1, 64)
+		m["heldout_returns"] = jsonString(heldOut)
 	}
 	if len(expert) > 0 {
-		m["heldout.expert_score"] = strconv.FormatFloat(mean(expert), 'g', -1, 64)
-		m["heldout.expert_iqm"] = strconv.FormatFloat(stats.IQM(expert), 'g', -1, 64)
+		m["heldout_expert_score"] = strconv.FormatFloat(mean(expert), 'g', -1, 64)
+		m["heldout_expert_iqm"] = strconv.FormatFloat(stats.IQM(expert), 'g', -1, 64)
 	}
 	return m
 }

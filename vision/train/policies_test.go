@@ -48,7 +48,7 @@ func TestShippedPolicies(t *testing.T) {
 				t.Fatalf("seed %q: %v", seedS, err)
 			}
 			var rec []float64
-			rs, _ := f.Meta("heldout.returns")
+			rs, _ := f.Meta("heldout_returns")
 			if err := json.Unmarshal([]byte(rs), &rec); err != nil || len(rec) < 50 {
 				t.Fatalf("recorded held-out returns %q: %v (want ≥ 50)", rs, err)
 			}

@@ -18,10 +18,10 @@ func tiny(method string, workers int) Config {
 	return Config{
 		Game: "drive", Patch: 4, Method: method, Seed: 11, Workers: workers, Iters: 2, Patience: -1,
 		Net:         nets.Config{KeySize: 4, Queries: 4, QueryDim: 4, ValueSize: 4, Hidden: 8},
-		ValEpisodes: 1, FitnessEpisodes: 1, ValEvery: 1,
+		ValEpisodes: 1, FitnessEpisodes: 1, ValEvery: 2,
 		Clone:   CloneConfig{EpisodesPerRound: 1, Epochs: 1, Batch: 32, Keep: 8},
-		ES:      ESConfig{Pairs: 2},
-		CMA:     CMAConfig{Population: 4},
+		ES:      ESConfig{Pairs: 1},
+		CMA:     CMAConfig{Population: 2},
 		Augment: patch.Spec{Occlude: "random:0.25"},
 	}
 }

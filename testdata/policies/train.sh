@@ -1,0 +1,60 @@
+#!/usr/bin/env bash
+# Trains the reference policies in testdata/policies: the set-attention
+# and position-aware attention families on both games at three patch sizes
+# each (drive: 4, 8, 16; paddle: 4, 7, 12), by behaviour cloning with
+# DAgger from the games' scripted experts, on training seeds only, then
+# scores each on 50 held-out episodes (recorded in the file).
+#
+# Every run is limited by --iters (so the same commands give the same
+# bytes on the same machine) and capped by --budget 5m on 2 workers; if
+# the budget ends a run first, its .json summary says "stopped": "budget".
+#
+# usage: testdata/policies/train.sh [game ...]     (default: drive paddle)
+#        testdata/policies/train.sh table          (the docs/training.md table,
+#                                                  from the recorded summaries)
+set -euo pipefail
+cd "$(dirname "$0")/../.."
+out=testdata/policies
+
+if [ "${1:-}" = table ]; then
+  echo "| policy | iterations | training time | held-out IQM | held-out mean | expert IQM | expert mean | IQM / expert |"
+  echo "|---|---|---|---|---|---|---|---|"
+  for f in "$out"/*.json; do
+    /usr/bin/python3 - "$f" <<'PY'
+import json, os, sys
+d = json.load(open(sys.argv[1]))
+name = os.path.basename(sys.argv[1])[:-5]
+print("| %s | %d (%s) | %.0f s | %.1f | %.1f | %.1f | %.1f | %.0f%% |" % (
+    name, d["iters"], d["stopped"], d["elapsed_s"], d["heldout_iqm"], d["heldout_score"],
+    d["expert_iqm"], d["expert_score"], 100 * d["heldout_iqm"] / d["expert_iqm"]))
+PY
+  done
+  exit 0
+fi
+bin=$(mktemp -d)/tilebench
+ckpt=$(mktemp -d)
+go build -o "$bin" ./cmd/tilebench
+
+# Hyper-parameters shared by every reference policy (see docs/training.md).
+common=(--method clone --seed 1 --workers 2 --budget 5m --heldout 50 --patience -1 --epochs 4 --batch 32 --episodes-per-round 4)
+drive=(--iters 8)
+paddle=(--iters 4)
+
+games=("$@")
+[ ${#games[@]} -eq 0 ] && games=(drive paddle)
+for game in "${games[@]}"; do
+  case $game in
+    drive)  sizes=(4 8 16); hp=("${drive[@]}") ;;
+    paddle) sizes=(4 7 12); hp=("${paddle[@]}") ;;
+    *) echo "unknown game $game" >&2; exit 2 ;;
+  esac
+  for family in attention posattention; do
+    for p in "${sizes[@]}"; do
+      name=$game-$family-p$p
+      echo "== $name" >&2
+      "$bin" train --game "$game" --family "$family" --patch "$p" "${common[@]}" "${hp[@]}" \
+        --checkpoint "$ckpt/$name.ckpt" --out "$out/$name.safetensors" --json | tail -n 1 > "$out/$name.json"
+    done
+  done
+done
+rm -rf "$ckpt" "$(dirname "$bin")"
