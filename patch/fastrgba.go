@@ -14,12 +14,19 @@ func tokenizeRGBA3(g *Grid, src *pixSource, data []float32) {
 	if g.StrideX == pw {
 		whole = min(g.Cols, g.Width/pw)
 	}
+	// done: frame rows below this have their whole cells converted.
+	done := 0
+	if rows := min(g.Height, g.Rows*ph); rgbaFrameSIMD(g, src, data, rows, whole) {
+		done = rows
+	}
 	for r := 0; r < g.Rows; r++ {
 		for py := 0; py < ph; py++ {
 			y := r*g.StrideY + py
 			first := r*g.Cols*D + py*rowLen
 			c0 := 0
-			if y < g.Height && whole > 0 {
+			if y < done {
+				c0 = whole
+			} else if y < g.Height && whole > 0 {
 				off := y * src.stride
 				rgbaCells3(data[first:first+(whole-1)*D+rowLen], src.pix[off:off+4*whole*pw], whole, pw, D)
 				c0 = whole

@@ -4,9 +4,9 @@ package patch
 
 import "golang.org/x/sys/cpu"
 
-// haveSIMD says whether rgbaCellsAVX2 may run: the CPU has AVX2. Tests
-// switch it off to check the portable path.
-var haveSIMD = cpu.X86.HasAVX2
+// haveSIMD says whether rgbaCellsAVX2 may run: the CPU has AVX2 and FMA.
+// Tests switch it off to check the portable path.
+var haveSIMD = cpu.X86.HasAVX2 && cpu.X86.HasFMA
 
 // rgbaCellsAVX2 is in fastrgba_amd64.s.
 //
@@ -23,4 +23,29 @@ func rgbaCellsSIMD(dst []float32, p []byte, cells, pw, D int) int {
 	}
 	rgbaCellsAVX2(&dst[0], &p[0], cells, groups, 4*pw, 4*D)
 	return 4 * groups
+}
+
+// rgbaFrameAVX2 is in fastrgba_amd64.s.
+//
+//go:noescape
+func rgbaFrameAVX2(dst *float32, src *byte, rows, cells, groups, srcStride, srcCell, dstCell, ph, rowBytes, gridRowBytes int)
+
+// rgbaFrameSIMD converts, in one call, the whole cells (the first cells
+// of every grid row) of the first rows frame rows, for a grid whose
+// strides equal its patch size and whose patch width is a multiple of 4.
+// It reports whether it ran.
+func rgbaFrameSIMD(g *Grid, src *pixSource, data []float32, rows, cells int) bool {
+	pw, ph, D := g.PatchW, g.PatchH, g.D()
+	if !haveSIMD || pw%4 != 0 || g.StrideX != pw || g.StrideY != ph || rows <= 0 || cells <= 0 {
+		return false
+	}
+	// Bounds, as the assembly does not check: the last value written and
+	// the last byte read.
+	last := ((rows-1)/ph)*g.Cols*D + ((rows-1)%ph)*3*pw + (cells-1)*D + 3*pw
+	read := (rows-1)*src.stride + 4*pw*cells
+	if last > len(data) || read > len(src.pix) {
+		return false
+	}
+	rgbaFrameAVX2(&data[0], &src.pix[0], rows, cells, pw/4, src.stride, 4*pw, 4*D, ph, 4*3*pw, 4*g.Cols*D)
+	return true
 }

@@ -8,7 +8,9 @@ DATA shufRGB<>+0(SB)/8, $0x0908060504020100
 DATA shufRGB<>+8(SB)/8, $0x808080800e0d0c0a
 GLOBL shufRGB<>(SB), RODATA|NOPTR, $16
 
-// 255 as a float32.
+// float32(1/255) = 0x3b808081 and 255 = 0x437f0000.
+DATA r255<>+0(SB)/4, $0x3b808081
+GLOBL r255<>(SB), RODATA|NOPTR, $4
 DATA f255<>+0(SB)/4, $0x437f0000
 GLOBL f255<>(SB), RODATA|NOPTR, $4
 
@@ -16,10 +18,15 @@ GLOBL f255<>(SB), RODATA|NOPTR, $4
 //
 // For each of cells cells: convert groups groups of 4 RGBA pixels (16
 // bytes from src) into 12 float32 values (48 bytes at dst), then step src
-// by srcCell bytes and dst by dstCell bytes. Each value is float32(b)/255
-// by VDIVPS, correctly rounded as IEEE 754 requires, so it is bit for bit
-// the portable path's value. (Measured faster here than multiplying by
-// 1/255 in float64 and converting, which is also exact.)
+// by srcCell bytes and dst by dstCell bytes.
+//
+// Each value is float32(b)/255 without a division: q = b·r with
+// r = float32(1/255), the exact remainder e = b − 255·q by one fused
+// multiply-add, then q + e·r by another (the correction step of
+// Markstein's division, IA-64 and Elementary Functions, 2000). For every
+// byte this gives the correctly rounded quotient, bit for bit the portable
+// path's value; TestSIMDExhaustive checks all 256. Measured 10-20 %
+// faster than VDIVPS here.
 TEXT ·rgbaCellsAVX2(SB), NOSPLIT, $0-48
 	MOVQ dst+0(FP), DI
 	MOVQ src+8(FP), SI
@@ -28,40 +35,118 @@ TEXT ·rgbaCellsAVX2(SB), NOSPLIT, $0-48
 	MOVQ srcCell+32(FP), R9
 	MOVQ dstCell+40(FP), R10
 	VMOVDQU shufRGB<>(SB), X6
-	VBROADCASTSS f255<>(SB), Y7
+	VBROADCASTSS r255<>(SB), Y7
+	VBROADCASTSS f255<>(SB), Y8
 
-dcell:
+cell:
 	TESTQ CX, CX
-	JZ    ddone
+	JZ    done
 	MOVQ  SI, R11
 	MOVQ  DI, R12
 	MOVQ  R8, DX
 
-dgroup:
+group:
 	TESTQ DX, DX
-	JZ    dnextcell
-	VMOVDQU   (R11), X0
-	VPSHUFB   X6, X0, X0
-	VPMOVZXBD X0, Y1
-	VPSRLDQ   $8, X0, X2
-	VPMOVZXBD X2, X2
-	VCVTDQ2PS Y1, Y1
-	VCVTDQ2PS X2, X2
-	VDIVPS    Y7, Y1, Y1
-	VDIVPS    X7, X2, X2
-	VMOVUPS   Y1, (R12)
-	VMOVUPS   X2, 32(R12)
-	ADDQ      $16, R11
-	ADDQ      $48, R12
-	DECQ      DX
-	JMP       dgroup
+	JZ    nextcell
+	VMOVDQU     (R11), X0
+	VPSHUFB     X6, X0, X0
+	VPMOVZXBD   X0, Y1
+	VPSRLDQ     $8, X0, X2
+	VPMOVZXBD   X2, X2
+	VCVTDQ2PS   Y1, Y1
+	VCVTDQ2PS   X2, X2
+	VMULPS      Y7, Y1, Y3
+	VMULPS      X7, X2, X4
+	VFNMADD231PS Y8, Y3, Y1
+	VFNMADD231PS X8, X4, X2
+	VFMADD231PS Y7, Y1, Y3
+	VFMADD231PS X7, X2, X4
+	VMOVUPS     Y3, (R12)
+	VMOVUPS     X4, 32(R12)
+	ADDQ        $16, R11
+	ADDQ        $48, R12
+	DECQ        DX
+	JMP         group
 
-dnextcell:
+nextcell:
 	ADDQ R9, SI
 	ADDQ R10, DI
 	DECQ CX
-	JMP  dcell
+	JMP  cell
 
-ddone:
+done:
+	VZEROUPPER
+	RET
+
+// func rgbaFrameAVX2(dst *float32, src *byte, rows, cells, groups, srcStride, srcCell, dstCell, ph, rowBytes, gridRowBytes int)
+//
+// rgbaCellsAVX2 for rows consecutive frame rows of a grid whose strides
+// equal its patch size: frame row y starts at src + y·srcStride and goes
+// to dst + (y/ph)·gridRowBytes + (y%ph)·rowBytes, one call for the whole
+// frame.
+TEXT ·rgbaFrameAVX2(SB), NOSPLIT, $0-88
+	MOVQ dst+0(FP), DI
+	MOVQ src+8(FP), SI
+	MOVQ rows+16(FP), BX
+	VMOVDQU shufRGB<>(SB), X6
+	VBROADCASTSS r255<>(SB), Y7
+	VBROADCASTSS f255<>(SB), Y8
+	XORQ R13, R13
+
+frow:
+	TESTQ BX, BX
+	JZ    fdone
+	MOVQ  R13, AX
+	IMULQ rowBytes+72(FP), AX
+	ADDQ  DI, AX
+	MOVQ  SI, R8
+	MOVQ  cells+24(FP), CX
+
+fcell:
+	TESTQ CX, CX
+	JZ    fnextrow
+	MOVQ  R8, R11
+	MOVQ  AX, R12
+	MOVQ  groups+32(FP), DX
+
+fgroup:
+	VMOVDQU      (R11), X0
+	VPSHUFB      X6, X0, X0
+	VPMOVZXBD    X0, Y1
+	VPSRLDQ      $8, X0, X2
+	VPMOVZXBD    X2, X2
+	VCVTDQ2PS    Y1, Y1
+	VCVTDQ2PS    X2, X2
+	VMULPS       Y7, Y1, Y3
+	VMULPS       X7, X2, X4
+	VFNMADD231PS Y8, Y3, Y1
+	VFNMADD231PS X8, X4, X2
+	VFMADD231PS  Y7, Y1, Y3
+	VFMADD231PS  X7, X2, X4
+	VMOVUPS      Y3, (R12)
+	VMOVUPS      X4, 32(R12)
+	ADDQ         $16, R11
+	ADDQ         $48, R12
+	DECQ         DX
+	JNZ          fgroup
+
+	ADDQ srcCell+48(FP), R8
+	ADDQ dstCell+56(FP), AX
+	DECQ CX
+	JMP  fcell
+
+fnextrow:
+	ADDQ srcStride+40(FP), SI
+	INCQ R13
+	CMPQ R13, ph+64(FP)
+	JLT  fsame
+	XORQ R13, R13
+	ADDQ gridRowBytes+80(FP), DI
+
+fsame:
+	DECQ BX
+	JMP  frow
+
+fdone:
 	VZEROUPPER
 	RET

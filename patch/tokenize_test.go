@@ -278,14 +278,45 @@ func TestSIMDAgreesWithPortable(t *testing.T) {
 	defer func(v bool) { haveSIMD = v }(haveSIMD)
 	for _, pw := range []int{1, 3, 4, 5, 6, 8, 12, 16} {
 		for _, edge := range []Edge{EdgePad, EdgeCrop} {
-			g := mustGrid(t, GridConfig{Width: 50, Height: 34, PatchW: pw, PatchH: 2, Edge: edge, Fill: 0.5})
+			ph := 2 + pw%3
+			g := mustGrid(t, GridConfig{Width: 50, Height: 34, PatchW: pw, PatchH: ph, Edge: edge, Fill: 0.5})
 			f := randomRGBA(50, 34, uint64(pw))
 			haveSIMD = true
 			a := tokenizeAll(t, g, f)
 			haveSIMD = false
 			b := tokenizeAll(t, g, f)
 			if !equalF32(a, b) {
-				t.Fatalf("patch %d %v: SIMD and portable paths differ", pw, edge)
+				t.Fatalf("patch %dx%d %v: SIMD and portable paths differ", pw, ph, edge)
+			}
+		}
+	}
+}
+
+// The SIMD path gives float32(b)/255 exactly for every byte value in every
+// channel position.
+func TestSIMDExhaustive(t *testing.T) {
+	f := image.NewRGBA(image.Rect(0, 0, 256, 4))
+	for y := 0; y < 4; y++ {
+		for x := 0; x < 256; x++ {
+			f.SetRGBA(x, y, color.RGBA{uint8(x), uint8(255 - x), uint8(x*7 + y), 255})
+		}
+	}
+	for _, pw := range []int{4, 8, 16} {
+		g := mustGrid(t, GridConfig{Width: 256, Height: 4, PatchW: pw, PatchH: 4})
+		got := tokenizeAll(t, g, f)
+		ts := &TokenSet{N: g.N(), D: g.D(), Data: got}
+		for i := 0; i < g.N(); i++ {
+			r := g.Rect(g.Cell(i))
+			tok := ts.Token(i)
+			for y := 0; y < 4; y++ {
+				for x := 0; x < pw; x++ {
+					px := f.RGBAAt(r.Min.X+x, y)
+					for c, b := range []uint8{px.R, px.G, px.B} {
+						if v := tok[(y*pw+x)*3+c]; v != float32(b)/255 {
+							t.Fatalf("patch %d: byte %d gave %v, want %v", pw, b, v, float32(b)/255)
+						}
+					}
+				}
 			}
 		}
 	}
