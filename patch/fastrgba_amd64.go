@@ -30,6 +30,11 @@ func rgbaCellsSIMD(dst []float32, p []byte, cells, pw, D int) int {
 //go:noescape
 func rgbaFrameAVX2(dst *float32, src *byte, rows, cells, groups, srcStride, srcCell, dstCell, ph, rowBytes, gridRowBytes int)
 
+// rgbaFrame8AVX2 is in fastrgba_amd64.s.
+//
+//go:noescape
+func rgbaFrame8AVX2(dst *float32, src *byte, rows, cells, groups, srcStride, srcCell, dstCell, ph, rowBytes, gridRowBytes int)
+
 // rgbaFrameSIMD converts, in one call, the whole cells (the first cells
 // of every grid row) of the first rows frame rows, for a grid whose
 // strides equal its patch size and whose patch width is a multiple of 4.
@@ -46,6 +51,10 @@ func rgbaFrameSIMD(g *Grid, src *pixSource, data []float32, rows, cells int) boo
 	if last > len(data) || read > len(src.pix) {
 		return false
 	}
-	rgbaFrameAVX2(&data[0], &src.pix[0], rows, cells, pw/4, src.stride, 4*pw, 4*D, ph, 4*3*pw, 4*g.Cols*D)
+	if pw%8 == 0 {
+		rgbaFrame8AVX2(&data[0], &src.pix[0], rows, cells, pw/8, src.stride, 4*pw, 4*D, ph, 4*3*pw, 4*g.Cols*D)
+	} else {
+		rgbaFrameAVX2(&data[0], &src.pix[0], rows, cells, pw/4, src.stride, 4*pw, 4*D, ph, 4*3*pw, 4*g.Cols*D)
+	}
 	return true
 }

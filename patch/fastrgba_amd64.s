@@ -150,3 +150,94 @@ fsame:
 fdone:
 	VZEROUPPER
 	RET
+
+// Dword order that packs the 12 RGB bytes of each 128-bit lane together.
+DATA packLanes<>+0(SB)/4, $0
+DATA packLanes<>+4(SB)/4, $1
+DATA packLanes<>+8(SB)/4, $2
+DATA packLanes<>+12(SB)/4, $4
+DATA packLanes<>+16(SB)/4, $5
+DATA packLanes<>+20(SB)/4, $6
+DATA packLanes<>+24(SB)/4, $3
+DATA packLanes<>+28(SB)/4, $7
+GLOBL packLanes<>(SB), RODATA|NOPTR, $32
+
+// func rgbaFrame8AVX2(dst *float32, src *byte, rows, cells, groups, srcStride, srcCell, dstCell, ph, rowBytes, gridRowBytes int)
+//
+// rgbaFrameAVX2 taking 8 pixels (32 bytes → 24 values) a step; groups
+// counts 8-pixel groups.
+TEXT ·rgbaFrame8AVX2(SB), NOSPLIT, $0-88
+	MOVQ dst+0(FP), DI
+	MOVQ src+8(FP), SI
+	MOVQ rows+16(FP), BX
+	VBROADCASTI128 shufRGB<>(SB), Y6
+	VMOVDQU packLanes<>(SB), Y9
+	VBROADCASTSS r255<>(SB), Y7
+	VBROADCASTSS f255<>(SB), Y8
+	XORQ R13, R13
+
+erow:
+	TESTQ BX, BX
+	JZ    edone
+	MOVQ  R13, AX
+	IMULQ rowBytes+72(FP), AX
+	ADDQ  DI, AX
+	MOVQ  SI, R8
+	MOVQ  cells+24(FP), CX
+
+ecell:
+	TESTQ CX, CX
+	JZ    enextrow
+	MOVQ  R8, R11
+	MOVQ  AX, R12
+	MOVQ  groups+32(FP), DX
+
+egroup:
+	VMOVDQU      (R11), Y0
+	VPSHUFB      Y6, Y0, Y0
+	VPERMD       Y0, Y9, Y0
+	VPMOVZXBD    X0, Y1
+	VPSRLDQ      $8, X0, X2
+	VPMOVZXBD    X2, Y2
+	VEXTRACTI128 $1, Y0, X3
+	VPMOVZXBD    X3, Y3
+	VCVTDQ2PS    Y1, Y1
+	VCVTDQ2PS    Y2, Y2
+	VCVTDQ2PS    Y3, Y3
+	VMULPS       Y7, Y1, Y4
+	VMULPS       Y7, Y2, Y5
+	VMULPS       Y7, Y3, Y10
+	VFNMADD231PS Y8, Y4, Y1
+	VFNMADD231PS Y8, Y5, Y2
+	VFNMADD231PS Y8, Y10, Y3
+	VFMADD231PS  Y7, Y1, Y4
+	VFMADD231PS  Y7, Y2, Y5
+	VFMADD231PS  Y7, Y3, Y10
+	VMOVUPS      Y4, (R12)
+	VMOVUPS      Y5, 32(R12)
+	VMOVUPS      Y10, 64(R12)
+	ADDQ         $32, R11
+	ADDQ         $96, R12
+	DECQ         DX
+	JNZ          egroup
+
+	ADDQ srcCell+48(FP), R8
+	ADDQ dstCell+56(FP), AX
+	DECQ CX
+	JMP  ecell
+
+enextrow:
+	ADDQ srcStride+40(FP), SI
+	INCQ R13
+	CMPQ R13, ph+64(FP)
+	JLT  esame
+	XORQ R13, R13
+	ADDQ gridRowBytes+80(FP), DI
+
+esame:
+	DECQ BX
+	JMP  erow
+
+edone:
+	VZEROUPPER
+	RET
