@@ -471,8 +471,12 @@ func (g *Game) Render(dst *image.RGBA) {
 	if dst.Rect.Dx() != Size || dst.Rect.Dy() != Size {
 		return
 	}
-	for row := 0; row < Size; row++ {
-		copy(dst.Pix[row*dst.Stride:row*dst.Stride+4*Size], g.bg[row*4*Size:(row+1)*4*Size])
+	if dst.Stride == 4*Size && len(dst.Pix) >= len(g.bg) {
+		copy(dst.Pix, g.bg)
+	} else {
+		for row := 0; row < Size; row++ {
+			copy(dst.Pix[row*dst.Stride:row*dst.Stride+4*Size], g.bg[row*4*Size:(row+1)*4*Size])
+		}
 	}
 	p := g.cfg.Palette
 	if g.cfg.Obstacle {
@@ -492,6 +496,13 @@ func capsule(dst *image.RGBA, x0, y, x1, rad float64, c color.RGBA) {
 	cx1 := int(math.Ceil(x1 + rad + 1))
 	cy0 := int(math.Floor(y - rad - 1))
 	cy1 := int(math.Ceil(y + rad + 1))
+	// Squared distances beyond outer2 get no coverage, within inner2 full
+	// coverage; only the one-pixel rim in between needs the square root.
+	outer2 := (rad + 0.5) * (rad + 0.5)
+	inner2 := 0.0
+	if rad > 0.5 {
+		inner2 = (rad - 0.5) * (rad - 0.5)
+	}
 	cx0, cy0 = max(cx0, 0), max(cy0, 0)
 	cx1, cy1 = min(cx1, Size-1), min(cy1, Size-1)
 	for py := cy0; py <= cy1; py++ {
@@ -504,12 +515,20 @@ func capsule(dst *image.RGBA, x0, y, x1, rad float64, c color.RGBA) {
 			} else if fx > x1 {
 				dx = fx - x1
 			}
-			cov := rad + 0.5 - math.Sqrt(dx*dx+fy*fy)
-			if cov <= 0 {
+			d2 := dx*dx + fy*fy
+			if d2 >= outer2 {
 				continue
 			}
 			o := py*dst.Stride + 4*px
 			pix := dst.Pix[o : o+3 : o+3]
+			if d2 <= inner2 {
+				pix[0], pix[1], pix[2] = c.R, c.G, c.B
+				continue
+			}
+			cov := rad + 0.5 - math.Sqrt(d2)
+			if cov <= 0 {
+				continue
+			}
 			if cov >= 1 {
 				pix[0], pix[1], pix[2] = c.R, c.G, c.B
 				continue
