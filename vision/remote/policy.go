@@ -157,6 +157,7 @@ type Policy struct {
 
 	// child process (exec: targets)
 	cmd     *exec.Cmd
+	pipe    *os.File // the child's stdin
 	exited  chan struct{}
 	waitErr error
 	tail    *tailWriter
@@ -289,6 +290,7 @@ func (p *Policy) startChild(argv []string) error {
 	}()
 	p.w, p.rd = inW, outR
 	p.r = bufio.NewReaderSize(outR, MaxLine)
+	p.pipe = inW
 	p.closer = append(p.closer, inW, outR)
 	return nil
 }
@@ -478,6 +480,9 @@ func (p *Policy) handshake() error {
 		p.invar = true
 	}
 	p.out = make([]byte, 0, h.Limits.MaxPayload+1024)
+	if p.pipe != nil {
+		growPipe(p.pipe, min(1<<20, h.Limits.MaxPayload+MaxLine))
+	}
 	return nil
 }
 

@@ -208,19 +208,34 @@ func appendFrame(b []byte, img *image.RGBA, channels int, dtype string) []byte {
 // appendTokens appends the N×D values then N (row, col) int16 pairs.
 func appendTokens(b []byte, ts *patch.TokenSet, dtype string) []byte {
 	vals := ts.Data[:ts.N*ts.D]
-	if dtype == Uint8 {
-		for _, v := range vals {
+	size := 1
+	if dtype == Float32 {
+		size = 4
+	}
+	start := len(b)
+	need := len(vals)*size + 4*ts.N
+	if cap(b)-start < need {
+		nb := make([]byte, start, start+need)
+		copy(nb, b)
+		b = nb
+	}
+	b = b[:start+need]
+	dst := b[start:]
+	if size == 1 {
+		for i, v := range vals {
 			q := math.Round(float64(v) * 255)
-			b = append(b, uint8(min(255, max(0, q))))
+			dst[i] = uint8(min(255, max(0, q)))
 		}
 	} else {
-		for _, v := range vals {
-			b = binary.LittleEndian.AppendUint32(b, math.Float32bits(v))
+		dst := dst[:4*len(vals)]
+		for i, v := range vals {
+			binary.LittleEndian.PutUint32(dst[4*i:4*i+4], math.Float32bits(v))
 		}
 	}
-	for _, p := range ts.Pos[:ts.N] {
-		b = binary.LittleEndian.AppendUint16(b, uint16(p.Row))
-		b = binary.LittleEndian.AppendUint16(b, uint16(p.Col))
+	pos := dst[len(vals)*size:]
+	for i, p := range ts.Pos[:ts.N] {
+		binary.LittleEndian.PutUint16(pos[4*i:], uint16(p.Row))
+		binary.LittleEndian.PutUint16(pos[4*i+2:], uint16(p.Col))
 	}
 	return b
 }

@@ -175,11 +175,14 @@ func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
 		ts := s.tokens
 		ts.N = int(count)
 		vals := ts.Data[:ts.N*ts.D]
-		for i := range vals {
-			if size == 1 {
-				vals[i] = float32(buf[i]) / 255
-			} else {
-				vals[i] = math.Float32frombits(binary.LittleEndian.Uint32(buf[4*i:]))
+		if size == 1 {
+			for i, v := range buf[:len(vals)] {
+				vals[i] = float32(v) / 255
+			}
+		} else {
+			raw := buf[:4*len(vals)]
+			for i := range vals {
+				vals[i] = math.Float32frombits(binary.LittleEndian.Uint32(raw[4*i : 4*i+4]))
 			}
 		}
 		pos := buf[len(vals)*size:]
