@@ -101,3 +101,51 @@ func TestEveryGameKeepsTheContract(t *testing.T) {
 		}
 	}
 }
+
+// The games are not trivial: a policy of uniformly random actions scores
+// far below the scripted expert on the same held-out seeds.
+func TestRandomPolicyFallsShort(t *testing.T) {
+	for _, name := range games.Names() {
+		g, err := games.New(name, games.Options{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		act := g.Spec().Action
+		a := make([]float64, act.Dim())
+		play := func(expert bool, seed uint64) float64 {
+			g.Reset(seed)
+			rng := patch.NewRand(seed)
+			var ret float64
+			for {
+				if expert {
+					g.(games.WithExpert).Expert().Act(a)
+				} else {
+					for i := range a {
+						if act.Kind == games.Discrete {
+							a[i] = float64(rng.IntN(act.Choices()))
+						} else {
+							a[i] = act.Low[i] + (act.High[i]-act.Low[i])*rng.Float64()
+						}
+					}
+				}
+				st, err := g.Step(a)
+				if err != nil {
+					t.Fatal(err)
+				}
+				ret += st.Reward
+				if st.Done {
+					return ret
+				}
+			}
+		}
+		var ex, rnd float64
+		for i := 0; i < 5; i++ {
+			ex += play(true, games.HeldOut(i)) / 5
+			rnd += play(false, games.HeldOut(i)) / 5
+		}
+		t.Logf("%s: expert mean return %.1f, random %.1f", name, ex, rnd)
+		if rnd > ex/2 {
+			t.Errorf("%s: random actions score %.1f, expert %.1f", name, rnd, ex)
+		}
+	}
+}
