@@ -13,6 +13,7 @@ Usage:
   safetensors_ref.py read FILE          print the file's content as JSON
   safetensors_ref.py write FILE         write a mixed-dtype file, print what it holds
   safetensors_ref.py bad DIR            write malformed files into DIR, print their names
+  safetensors_ref.py half -             print every binary16 pattern as float32 bits
 
 "read" output: {"format": 1, "metadata": {...}, "tensors": [{"name", "dtype",
 "shape", "values"}]} with tensors in data-offset order and values as the
@@ -195,8 +196,18 @@ def bad(folder):
     return {"format": 1, "bad": sorted(cases), "good": ["good"]}
 
 
+def half_table():
+    """For each of the 65536 binary16 patterns, the float32 bit pattern of
+    its value (via struct's 'e' format), or null for NaN."""
+    out = []
+    for h in range(1 << 16):
+        (v,) = struct.unpack("<e", struct.pack("<H", h))
+        out.append(None if math.isnan(v) else struct.unpack("<I", struct.pack("<f", v))[0])
+    return {"format": 1, "half_to_f32_bits": out}
+
+
 def main():
-    if len(sys.argv) != 3 or sys.argv[1] not in ("read", "write", "bad"):
+    if len(sys.argv) != 3 or sys.argv[1] not in ("read", "write", "bad", "half"):
         sys.stderr.write(__doc__)
         sys.exit(2)
     cmd, arg = sys.argv[1], sys.argv[2]
@@ -204,6 +215,10 @@ def main():
         result = read(arg)
     elif cmd == "write":
         result = write(arg)
+    elif cmd == "half":
+        json.dump(half_table(), sys.stdout, separators=(",", ":"))
+        sys.stdout.write("\n")
+        return
     else:
         result = bad(arg)
     json.dump(result, sys.stdout, indent=1, sort_keys=True)

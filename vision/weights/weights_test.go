@@ -484,3 +484,27 @@ func BenchmarkDecode(b *testing.B) {
 		}
 	}
 }
+
+// TestRefHalfToFloat compares the binary16 conversion for all 65536 bit
+// patterns with Python's struct 'e' format, live.
+func TestRefHalfToFloat(t *testing.T) {
+	reftest.Need(t)
+	var ref struct {
+		Bits []*uint32 `json:"half_to_f32_bits"`
+	}
+	if err := json.Unmarshal(reftest.Run(t, "safetensors_ref.py", "half", "-"), &ref); err != nil || len(ref.Bits) != 1<<16 {
+		t.Fatalf("reference table: %v (%d entries)", err, len(ref.Bits))
+	}
+	for h, want := range ref.Bits {
+		got := halfToFloat(uint16(h))
+		if want == nil {
+			if !math.IsNaN(float64(got)) {
+				t.Fatalf("half %#04x: %v, want NaN", h, got)
+			}
+			continue
+		}
+		if math.Float32bits(got) != *want {
+			t.Fatalf("half %#04x: bits %#08x, want %#08x", h, math.Float32bits(got), *want)
+		}
+	}
+}
