@@ -8,6 +8,7 @@ import (
 	"strconv"
 	"strings"
 
+	"tilebench/games"
 	"tilebench/vision/nets"
 	"tilebench/vision/stats"
 	"tilebench/vision/weights"
@@ -263,6 +264,9 @@ func (t *Trainer) rebuildData() error {
 		t.ds.appendFrom(p)
 	}
 	t.ds.setSpread()
+	if t.s.space.Kind == games.Discrete {
+		t.ds.setClassWeights(t.s.space.Choices())
+	}
 	return nil
 }
 

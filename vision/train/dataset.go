@@ -23,6 +23,35 @@ type dataset struct {
 	tokenN int
 	sd     []float64 // per label dimension, from setSpread
 	step   []int32   // each sample's step index within its episode
+	classW []float64 // discrete: per-choice loss weight, from setSpread
+}
+
+// setClassWeights gives each discrete choice the weight n/(K·n_c) (n_c
+// samples of K choices labelled c; "balanced" class weights, common
+// practice), capped at 10, so that rare moves weigh as much as the
+// frequent "stay".
+func (ds *dataset) setClassWeights(k int) {
+	count := make([]float64, k)
+	for i := 0; i < ds.n; i++ {
+		if c := int(ds.label[i*ds.ldim]); c >= 0 && c < k {
+			count[c]++
+		}
+	}
+	ds.classW = make([]float64, k)
+	for c := range count {
+		ds.classW[c] = 1
+		if count[c] > 0 {
+			ds.classW[c] = math.Min(10, float64(ds.n)/(float64(k)*count[c]))
+		}
+	}
+}
+
+// weight is the loss weight of choice c (1 before setClassWeights).
+func (ds *dataset) weight(c int) float64 {
+	if c < 0 || c >= len(ds.classW) {
+		return 1
+	}
+	return ds.classW[c]
 }
 
 // setSpread computes each label dimension's standard deviation over the

@@ -203,7 +203,8 @@ func (e *env) replay(gameSeed uint64, actions []float32, keep int, ds *dataset) 
 // s_j is the spread of dimension j's labels (dataset.spread), so that a
 // dimension the expert moves little (steering) weighs as much as one it
 // moves a lot (throttle);
-// the cross-entropy of the softmax of the logits for discrete ones.
+// the class-weighted cross-entropy of the softmax of the logits for
+// discrete ones (dataset.setClassWeights).
 // scale multiplies the gradient (1/batch size).
 func (e *env) sampleLoss(ds *dataset, i int, pipeSeed uint64, scale float32, backward bool) (float64, error) {
 	e.pipe.Reset(pipeSeed)
@@ -242,13 +243,14 @@ func (e *env) sampleLoss(ds *dataset, i int, pipeSeed uint64, scale float32, bac
 		for _, o := range e.out {
 			z += math.Exp(float64(o) - m)
 		}
-		loss = -(float64(e.out[c]) - m - math.Log(z))
+		w := ds.weight(c)
+		loss = -w * (float64(e.out[c]) - m - math.Log(z))
 		for j, o := range e.out {
 			p := math.Exp(float64(o)-m) / z
 			if j == c {
 				p--
 			}
-			e.dOut[j] = scale * float32(p)
+			e.dOut[j] = scale * float32(w*p)
 		}
 	}
 	if backward {

@@ -541,6 +541,9 @@ func (t *Trainer) runClone(ctx context.Context, stop func() string, iter func(Pr
 			t.acts = append(t.acts, acts[i]...)
 		}
 		t.ds.setSpread()
+		if t.s.space.Kind == games.Discrete {
+			t.ds.setClassWeights(t.s.space.Choices())
+		}
 		var loss float64
 		for ep := 0; ep < cc.Epochs; ep++ {
 			if loss, err = t.epoch(ctx, round, ep); err != nil {

@@ -155,3 +155,21 @@ func TestSeedsStayOffHeldOut(t *testing.T) {
 		}
 	}
 }
+
+// TestClassWeights: balanced weights n/(K·n_c) (common practice), worked
+// by hand for labels (1, 1, 1, 0) of 3 choices: 4/3, 4/9, and 1 for the
+// absent choice.
+func TestClassWeights(t *testing.T) {
+	g, _ := patch.NewGrid(patch.GridConfig{Width: 4, Height: 4, PatchW: 4})
+	ds := newDataset(g, 1, 1)
+	tok := make([]float32, g.N()*g.D())
+	for _, c := range []float64{1, 1, 1, 0} {
+		ds.add(0, tok, []float64{0}, []float64{c})
+	}
+	ds.setClassWeights(3)
+	for c, want := range []float64{4.0 / 3, 4.0 / 9, 1} {
+		if got := ds.weight(c); got != want {
+			t.Fatalf("weight(%d) = %v, want %v", c, got, want)
+		}
+	}
+}
