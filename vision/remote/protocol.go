@@ -38,9 +38,12 @@ const (
 // Hello is the first message tilebench sends: what the session will look
 // like. The policy answers with ready or refuse.
 type Hello struct {
-	Msg      string `json:"msg"` // "hello"
-	Protocol int    `json:"protocol"`
-	Game     string `json:"game"`
+	// Msg is "hello".
+	Msg string `json:"msg"`
+	// Protocol is the version tilebench speaks (Version).
+	Protocol int `json:"protocol"`
+	// Game is the game's name.
+	Game string `json:"game"`
 	// Obs is "frame" (the reassembled frame, H×W×C, channels last) or
 	// "tokens" (the token set and each token's grid cell).
 	Obs string `json:"obs"`
@@ -51,8 +54,10 @@ type Hello struct {
 	// Tokens describes the token payload (also sent with obs "frame", for
 	// information).
 	Tokens TokenLayout `json:"tokens"`
-	Action ActionSpec  `json:"action"`
-	Limits Limits      `json:"limits"`
+	// Action is the game's action space.
+	Action ActionSpec `json:"action"`
+	// Limits are the session's limits.
+	Limits Limits `json:"limits"`
 }
 
 // TokenLayout describes the grid tokens are cut on.
@@ -62,16 +67,20 @@ type TokenLayout struct {
 	Max int `json:"max"`
 	Dim int `json:"dim"`
 	// Rows and Cols are the grid's cells; Patch [h, w] and Stride [y, x]
-	// in pixels; Channels 1 or 3; Edge and Fill as the CLI spells them.
-	Rows     int     `json:"rows"`
-	Cols     int     `json:"cols"`
-	Patch    [2]int  `json:"patch"`
-	Stride   [2]int  `json:"stride"`
-	Channels int     `json:"channels"`
-	Width    int     `json:"width"`
-	Height   int     `json:"height"`
-	Edge     string  `json:"edge"`
-	Fill     float32 `json:"fill"`
+	// in pixels; Channels 1 or 3.
+	Rows     int    `json:"rows"`
+	Cols     int    `json:"cols"`
+	Patch    [2]int `json:"patch"`
+	Stride   [2]int `json:"stride"`
+	Channels int    `json:"channels"`
+	// Width and Height are the source frame's size (before padding or
+	// cropping to whole patches).
+	Width  int `json:"width"`
+	Height int `json:"height"`
+	// Edge ("pad", "crop", "strict") and Fill (the pad value in [0,1])
+	// as the CLI spells them.
+	Edge string  `json:"edge"`
+	Fill float32 `json:"fill"`
 }
 
 // ActionSpec is the game's action space.
@@ -89,9 +98,13 @@ type ActionSpec struct {
 
 // Limits are the session's limits.
 type Limits struct {
-	MaxLine            int   `json:"max_line"`
-	MaxPayload         int   `json:"max_payload"`
-	StepTimeoutMS      int64 `json:"step_timeout_ms"`
+	// MaxLine is the longest header line (MaxLine).
+	MaxLine int `json:"max_line"`
+	// MaxPayload is the largest payload of this session, in bytes.
+	MaxPayload int `json:"max_payload"`
+	// StepTimeoutMS bounds each step's round trip, in milliseconds.
+	StepTimeoutMS int64 `json:"step_timeout_ms"`
+	// HandshakeTimeoutMS bounds start-up and handshake, in milliseconds.
 	HandshakeTimeoutMS int64 `json:"handshake_timeout_ms"`
 }
 
