@@ -60,6 +60,9 @@ func runTrain(ctx *runContext, args []string) error {
 	keySize := fs.Int("key-size", 0, "attention key size (default 16)")
 	queries := fs.Int("queries", 0, "attention queries (default 16)")
 	hidden := fs.Int("hidden", 0, "head hidden width (default 32)")
+	valueSize := fs.Int("value-size", 0, "attention value size (default 16)")
+	keyHidden := fs.Int("key-hidden", 0, "attention: hidden tanh layer of this width in the key function (default 0: linear keys)")
+	ctxFrames := fs.Int("context", 0, "frames each token carries (temporal context k; default 1)")
 	prevAction := fs.Bool("prev-action", false, "give the policy the previous action")
 	lr := fs.Float64("lr", 0, "learning rate (default: clone 3e-3, es 0.01)")
 	batch := fs.Int("batch", 0, "clone: minibatch size (default 64)")
@@ -103,7 +106,8 @@ func runTrain(ctx *runContext, args []string) error {
 		cfg := train.Config{
 			Game: *game, Variation: *variation, Patch: *patchSize, Method: *method, Seed: *seed,
 			Iters: *iters, Budget: *budget, Workers: *workers, Patience: *patience, FitnessEpisodes: *fitEps, ValEpisodes: *valEps,
-			Net:     nets.Config{Family: *family, KeySize: *keySize, Queries: *queries, Hidden: *hidden, PrevAction: *prevAction},
+			Net: nets.Config{Family: *family, KeySize: *keySize, Queries: *queries, Hidden: *hidden, PrevAction: *prevAction,
+				ValueSize: *valueSize, KeyHidden: *keyHidden, Context: *ctxFrames},
 			Augment: patch.Spec{Occlude: *occlude, Fill: *fill, Scramble: *scramble, NoiseTokens: *noiseTok},
 			Clone:   train.CloneConfig{LR: *lr, Batch: *batch, Epochs: *epochs, EpisodesPerRound: *perRound},
 			ES:      train.ESConfig{Pairs: *pairs, Sigma: *sigma, LR: *lr, WeightDecay: *decay},
