@@ -692,3 +692,84 @@ func TestServeRefusesInconsistentHello(t *testing.T) {
 		t.Fatalf("Serve: %v, wrote %q", err, out.String())
 	}
 }
+
+// The messages of a session, in order, as a policy sees them.
+func TestMessageSequence(t *testing.T) {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	seen := make(chan []string, 1)
+	go func() {
+		c, err := ln.Accept()
+		if err != nil {
+			seen <- nil
+			return
+		}
+		defer c.Close()
+		br := bufio.NewReader(c)
+		var log []string
+		for {
+			line, err := br.ReadBytes('\n')
+			if err != nil {
+				break
+			}
+			var m map[string]any
+			json.Unmarshal(line, &m)
+			entry := m["msg"].(string)
+			if n, ok := m["len"].(float64); ok {
+				br.Discard(int(n))
+			}
+			switch entry {
+			case "hello":
+				c.Write([]byte(`{"msg":"ready","protocol":1}` + "\n"))
+			case "step":
+				entry += strconv.Itoa(int(m["t"].(float64)))
+				c.Write([]byte(`{"msg":"action","t":` + strconv.Itoa(int(m["t"].(float64))) + `,"action":[0.5,0]}` + "\n"))
+			case "start":
+				entry += strconv.Itoa(int(m["episode"].(float64))) + "/" + strconv.FormatUint(uint64(m["seed"].(float64)), 10)
+			case "end":
+				entry += strconv.Itoa(int(m["episode"].(float64)))
+				if r, ok := m["return"]; ok {
+					entry += "=" + strconv.FormatFloat(r.(float64), 'g', -1, 64)
+				}
+			}
+			log = append(log, entry)
+			if entry == "bye" {
+				break
+			}
+		}
+		seen <- log
+	}()
+	p, err := Open("tcp://"+ln.Addr().String(), Config{Game: (&blobs{}).Spec(), Grid: testGrid(t)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	frame := image.NewRGBA(image.Rect(0, 0, 32, 24))
+	obs := &vision.Observation{Frame: frame, Grid: testGrid(t), PrevAction: []float64{0, 0}}
+	act := make([]float64, 2)
+	step := func(tt int) {
+		obs.Step = tt
+		if err := p.Act(obs, act); err != nil || act[0] != 0.5 {
+			t.Fatalf("step %d: %v %v", tt, act, err)
+		}
+	}
+	p.Reset(11)
+	step(0)
+	step(1)
+	p.Reset(12) // no End for episode 0
+	step(0)
+	if err := p.End(5, 1); err != nil {
+		t.Fatal(err)
+	}
+	p.Reset(13) // never stepped
+	if err := p.Close(); err != nil {
+		t.Fatal(err)
+	}
+	got := strings.Join(<-seen, " ")
+	want := "hello start0/11 step0 step1 end0 start1/12 step0 end1=5 bye"
+	if got != want {
+		t.Fatalf("messages\n got %s\nwant %s", got, want)
+	}
+}
