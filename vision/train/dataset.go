@@ -114,16 +114,6 @@ func (ds *dataset) add(step int, tokens []float32, prev, label []float64) {
 	ds.n++
 }
 
-// truncate drops samples beyond n (used when an interrupted round is
-// discarded).
-func (ds *dataset) truncate(n int) {
-	ds.n = n
-	ds.step = ds.step[:n]
-	ds.pix = ds.pix[:n*ds.size]
-	ds.prev = ds.prev[:n*ds.adim]
-	ds.label = ds.label[:n*ds.ldim]
-}
-
 // load writes sample i into ts (a full grid-order token set) and prev.
 func (ds *dataset) load(i int, ts *patch.TokenSet, prev []float64) {
 	src := ds.pix[i*ds.size : (i+1)*ds.size]

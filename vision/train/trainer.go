@@ -532,7 +532,6 @@ func (t *Trainer) runClone(ctx context.Context, stop func() string, iter func(Pr
 		if err := ctx.Err(); err != nil {
 			return "", err
 		}
-		n0 := t.ds.n
 		for i := 0; i < n; i++ {
 			k := round*n + i
 			seed := games.Train(int(patch.DeriveSeed(t.cfg.Seed, patch.StreamKey("clone-seed"), uint64(k)) % ValidationStart))
@@ -547,8 +546,8 @@ func (t *Trainer) runClone(ctx context.Context, stop func() string, iter func(Pr
 		var loss float64
 		for ep := 0; ep < cc.Epochs; ep++ {
 			if loss, err = t.epoch(ctx, round, ep); err != nil {
-				t.ds.truncate(n0)
-				t.st.Episodes = t.st.Episodes[:len(t.st.Episodes)-n]
+				// The in-memory state is now mid-round; SaveCheckpoint
+				// writes the snapshot of the last completed round.
 				return "", err
 			}
 		}
@@ -692,7 +691,12 @@ func (t *Trainer) runCMA(ctx context.Context, stop func() string, iter func(Prog
 	}
 	resumeAt := t.st.Iter
 	var why string
-	fit := func(w, _ int, p []float32) (float64, error) { return t.fitness(w, 0, p) }
+	fit := func(w, _ int, p []float32) (float64, error) {
+		if err := ctx.Err(); err != nil {
+			return 0, err // stop mid-generation; the snapshot is the last whole one
+		}
+		return t.fitness(w, 0, p)
+	}
 	onGen := func(gs GenStats, best []float32, hist []CMAEval) error {
 		if gs.Gen <= resumeAt {
 			return nil // replayed generation
