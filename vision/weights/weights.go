@@ -324,6 +324,19 @@ func ReadFile(path string) (*File, error) {
 	if st.Size() > MaxFile {
 		return nil, fmt.Errorf("read weights %s: %w: file of %d bytes exceeds %d", path, ErrMalformed, st.Size(), int64(MaxFile))
 	}
+	if st.Size() >= 8 {
+		// Check the header length before reading the rest.
+		var lenb [8]byte
+		if _, err := io.ReadFull(fh, lenb[:]); err != nil {
+			return nil, fmt.Errorf("read weights %s: %w", path, err)
+		}
+		if err := checkHeaderLen(binary.LittleEndian.Uint64(lenb[:]), st.Size()-8); err != nil {
+			return nil, fmt.Errorf("read weights %s: %w", path, err)
+		}
+		if _, err := fh.Seek(0, io.SeekStart); err != nil {
+			return nil, fmt.Errorf("read weights %s: %w", path, err)
+		}
+	}
 	data := make([]byte, st.Size())
 	if _, err := io.ReadFull(fh, data); err != nil {
 		return nil, fmt.Errorf("read weights %s: %w", path, err)
@@ -369,11 +382,8 @@ func Decode(data []byte) (*File, error) {
 		return nil, malformed("%d bytes, shorter than the 8-byte header length", len(data))
 	}
 	hlen := binary.LittleEndian.Uint64(data[:8])
-	if hlen > MaxHeader {
-		return nil, malformed("header length %d exceeds the limit of %d", hlen, MaxHeader)
-	}
-	if hlen > uint64(len(data)-8) {
-		return nil, malformed("header length %d exceeds the %d bytes after it", hlen, len(data)-8)
+	if err := checkHeaderLen(hlen, int64(len(data)-8)); err != nil {
+		return nil, err
 	}
 	header := data[8 : 8+hlen]
 	body := data[8+hlen:]
@@ -423,6 +433,18 @@ func Decode(data []byte) (*File, error) {
 		f.Tensors = append(f.Tensors, t)
 	}
 	return f, nil
+}
+
+// checkHeaderLen refuses a header length above MaxHeader or beyond the
+// rest bytes that follow it.
+func checkHeaderLen(hlen uint64, rest int64) error {
+	if hlen > MaxHeader {
+		return malformed("header length %d exceeds the limit of %d", hlen, MaxHeader)
+	}
+	if hlen > uint64(rest) {
+		return malformed("header length %d exceeds the %d bytes after it", hlen, rest)
+	}
+	return nil
 }
 
 func convert(e *entry, raw []byte) (Tensor, error) {
