@@ -2,21 +2,22 @@ package patch
 
 import "unsafe"
 
-// tokenizeRGBA3 is the whole of Tokenize for 4-byte pixels (RGBA, NRGBA)
-// and three channels, the hot path. It walks the frame row by row; with
-// non-overlapping columns (StrideX = PatchW) one call converts the part of
-// a frame row that falls in whole cells (rgbaCells3), else each patch row
-// is converted alone (rgbaRow3). Values come from a 256-entry table.
-func tokenizeRGBA3(g *Grid, src *pixSource, data []float32) {
-	pw, ph := g.PatchW, g.PatchH
-	D, rowLen := g.D(), 3*g.PatchW
+// tokenizeRows is Tokenize for packed sources (4-byte RGBA/NRGBA pixels,
+// 1-byte grey). It walks the frame row by row; with non-overlapping
+// columns (StrideX = PatchW) one call converts the part of a frame row
+// that falls in whole cells (src.cells), else each patch row is converted
+// alone (src.row). For RGBA with three channels, the hot path, an
+// assembly routine converts the whole frame where the CPU allows.
+func tokenizeRows(g *Grid, src *pixSource, data []float32) {
+	pw, ph, C := g.PatchW, g.PatchH, g.Channels
+	D, rowLen := g.D(), C*g.PatchW
 	whole := 0 // cells of a row that lie inside the frame, with StrideX = PatchW
 	if g.StrideX == pw {
 		whole = min(g.Cols, g.Width/pw)
 	}
 	// done: frame rows below this have their whole cells converted.
 	done := 0
-	if rows := min(g.Height, g.Rows*ph); rgbaFrameSIMD(g, src, data, rows, whole) {
+	if rows := min(g.Height, g.Rows*ph); src.kind == kindRGBA && C == 3 && rgbaFrameSIMD(g, src, data, rows, whole) {
 		done = rows
 	}
 	for r := 0; r < g.Rows; r++ {
@@ -27,8 +28,7 @@ func tokenizeRGBA3(g *Grid, src *pixSource, data []float32) {
 			if y < done {
 				c0 = whole
 			} else if y < g.Height && whole > 0 {
-				off := y * src.stride
-				rgbaCells3(data[first:first+(whole-1)*D+rowLen], src.pix[off:off+4*whole*pw], whole, pw, D)
+				src.cells(data[first:first+(whole-1)*D+rowLen], y, whole, pw, D, C)
 				c0 = whole
 			}
 			for c := c0; c < g.Cols; c++ {
@@ -40,12 +40,52 @@ func tokenizeRGBA3(g *Grid, src *pixSource, data []float32) {
 				}
 				x0 := c * g.StrideX
 				nx := min(pw, g.Width-x0)
-				off := y*src.stride + 4*x0
-				rgbaRow3(d[:3*nx], src.pix[off:off+4*nx])
+				src.row(d[:C*nx], x0, y, nx, C)
 				if nx < pw {
-					fillValues(d[3*nx:], g.Fill)
+					fillValues(d[C*nx:], g.Fill)
 				}
 			}
+		}
+	}
+}
+
+// cells converts the first cells whole cells of frame row y (StrideX =
+// PatchW) into the rows of cells consecutive tokens starting at dst.
+func (s *pixSource) cells(dst []float32, y, cells, pw, D, C int) {
+	if s.kind == kindRGBA && C == 3 {
+		off := y * s.stride
+		rgbaCells3(dst, s.pix[off:off+4*cells*pw], cells, pw, D)
+		return
+	}
+	if s.kind == kindGray {
+		off := y * s.stride
+		grayCells(dst, s.pix[off:off+cells*pw], cells, pw, D, C)
+		return
+	}
+	for c := 0; c < cells; c++ {
+		s.row(dst[c*D:c*D+C*pw], c*pw, y, pw, C)
+	}
+}
+
+// grayCells is rgbaCells3 for grey bytes, giving C = 1 or 3 values a pixel.
+func grayCells(dst []float32, p []byte, cells, pw, D, C int) {
+	if cells <= 0 || pw <= 0 || len(p) < cells*pw || len(dst) < (cells-1)*D+C*pw {
+		return
+	}
+	sp, dp := unsafe.Pointer(&p[0]), unsafe.Pointer(&dst[0])
+	for c := 0; c < cells; c++ {
+		s := unsafe.Add(sp, pw*c)
+		d := unsafe.Add(dp, 4*D*c)
+		if C == 1 {
+			for x := 0; x < pw; x++ {
+				*(*float32)(unsafe.Add(d, 4*x)) = unit[*(*byte)(unsafe.Add(s, x))]
+			}
+			continue
+		}
+		for x := 0; x < pw; x++ {
+			v := unit[*(*byte)(unsafe.Add(s, x))]
+			o := (*[3]float32)(unsafe.Add(d, 12*x))
+			o[0], o[1], o[2] = v, v, v
 		}
 	}
 }

@@ -135,8 +135,8 @@ func (t *Tokenizer) tokenize(img image.Image, dst *TokenSet) error {
 	}
 	dst.N, dst.D = n, d
 	setGridPos(g, dst.Pos[:n])
-	if src.kind == kindRGBA && g.Channels == 3 {
-		tokenizeRGBA3(g, &src, dst.Data)
+	if src.kind == kindRGBA || src.kind == kindGray {
+		tokenizeRows(g, &src, dst.Data)
 		return nil
 	}
 	C, pw, ph := g.Channels, g.PatchW, g.PatchH
