@@ -295,3 +295,16 @@ func TestNetFamilies(t *testing.T) {
 		}
 	}
 }
+
+// BenchmarkRun is one frame measured under 10 draws of each perturbation
+// with a trivial policy: the checker's own overhead.
+func BenchmarkRun(b *testing.B) {
+	g, tok := blobsGame()
+	cfg := Config{Perms: 10, Seeds: []uint64{1}, Frames: 1}
+	b.ReportAllocs()
+	for b.Loop() {
+		if _, err := Run(g, tok, &sumPolicy{}, cfg); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
