@@ -12,9 +12,16 @@ policy_stdlib.py: move the paddle towards the ball.
 
     tilebench play --game paddle --policy 'exec:python3 examples/policy_numpy.py'
 
+Or serve it over TCP (say, on a machine with an accelerator), one session
+per connection, and point tilebench at it:
+
+    python3 examples/policy_numpy.py --listen 127.0.0.1:7000
+    tilebench play --game paddle --policy tcp://127.0.0.1:7000
+
 Logs go to stderr; stdout carries protocol messages only.
 """
 import json
+import socket
 import sys
 
 import numpy as np
@@ -106,8 +113,8 @@ class Policy:
         return [float(np.clip(move, lo, hi))] + [0.0] * (self.action["dim"] - 1)
 
 
-def main():
-    inp, out = sys.stdin.buffer, sys.stdout.buffer
+def session(inp, out):
+    """Answers one session: hello, episodes, bye."""
     hello, _ = read_message(inp)
     if hello is None or hello.get("msg") != "hello":
         log("no hello")
@@ -137,5 +144,34 @@ def main():
             log("episode", header.get("episode"), "return", header.get("return"))
 
 
+def serve(address, sessions):
+    """Listens on HOST:PORT and answers sessions one after another (0:
+    forever). Port 0 picks a free port; the address is logged."""
+    host, port = address.rsplit(":", 1)
+    with socket.create_server((host, int(port))) as srv:
+        log("listening on %s:%d" % srv.getsockname()[:2])
+        done = 0
+        while sessions == 0 or done < sessions:
+            conn, peer = srv.accept()
+            conn.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+            with conn, conn.makefile("rb") as inp, conn.makefile("wb") as out:
+                try:
+                    session(inp, out)
+                except (OSError, ValueError, EOFError) as err:
+                    log("session from %s ended: %s" % (peer[0], err))
+            done += 1
+    return 0
+
+
+def main(argv):
+    if argv[:1] == ["--listen"] and len(argv) in (2, 4):
+        sessions = int(argv[3]) if len(argv) == 4 and argv[2] == "--sessions" else 0
+        return serve(argv[1], sessions)
+    if argv:
+        log("usage: policy_numpy.py [--listen HOST:PORT [--sessions N]]")
+        return 2
+    return session(sys.stdin.buffer, sys.stdout.buffer)
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    sys.exit(main(sys.argv[1:]))

@@ -1,6 +1,9 @@
 package remote
 
 import (
+	"bufio"
+	"os/exec"
+	"strings"
 	"testing"
 	"time"
 
@@ -111,5 +114,37 @@ func TestRefExamplePolicyNumpy(t *testing.T) {
 		if got < base+3 {
 			t.Fatalf("numpy example (%s/%s) scores %.2f, chance %.2f: want at least 3 more", c.obs, c.dtype, got, base)
 		}
+	}
+}
+
+// TestRefExamplePolicyNumpyTCP serves examples/policy_numpy.py over TCP
+// (--listen on a free port) and plays it through the tcp:// transport.
+func TestRefExamplePolicyNumpyTCP(t *testing.T) {
+	reftest.Need(t, "numpy")
+	cmd := exec.Command(reftest.Python, reftest.Root()+"/examples/policy_numpy.py", "--listen", "127.0.0.1:0", "--sessions", "1")
+	stderr, err := cmd.StderrPipe()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	defer func() { cmd.Process.Kill(); cmd.Wait() }()
+	line, err := bufio.NewReader(stderr).ReadString('\n')
+	addr, ok := strings.CutPrefix(strings.TrimSpace(line), "policy_numpy: listening on ")
+	if err != nil || !ok {
+		t.Fatalf("server said %q (%v)", line, err)
+	}
+	base := chance(t)
+	got := paddleScore(t, func(sp games.Spec, grid *patch.Grid) vision.Policy {
+		p, err := Open("tcp://"+addr, Config{Game: sp, Grid: grid, StepTimeout: 20 * time.Second})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return p
+	}, exampleSeeds)
+	t.Logf("numpy hand rule over tcp %.2f, chance %.2f", got, base)
+	if got < base+3 {
+		t.Fatalf("numpy example over tcp scores %.2f, chance %.2f", got, base)
 	}
 }
