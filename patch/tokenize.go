@@ -20,7 +20,7 @@ import (
 //     ignored.
 //   - *image.Gray: the grey byte.
 //   - *image.YCbCr: R, G, B from the stdlib's color.YCbCrToRGB (JFIF
-//     full-range conversion).
+//     full-range conversion), converted into a scratch RGBA frame first.
 //   - *image.Paletted: the palette colour's premultiplied R, G, B bytes;
 //     an index past the end of the palette reads as black.
 //   - anything else: Color.RGBA() >> 8 of every pixel (premultiplied, as
@@ -50,8 +50,6 @@ type pixKind int
 const (
 	kindRGBA pixKind = iota // 4 bytes a pixel, R G B first (RGBA and NRGBA)
 	kindGray
-	kindYCbCr
-	kindPaletted
 )
 
 // pixSource reads rows of pixels of one frame; x and y are relative to the
@@ -60,10 +58,6 @@ type pixSource struct {
 	kind   pixKind
 	pix    []byte
 	stride int
-	ycc    *image.YCbCr
-	minX   int
-	minY   int
-	pal    *[256][3]uint8
 }
 
 func (t *Tokenizer) source(img image.Image) (pixSource, error) {
@@ -94,7 +88,8 @@ func (t *Tokenizer) source(img image.Image) (pixSource, error) {
 		if len(im.Y) < im.YOffset(b.Max.X-1, b.Max.Y-1)+1 || len(im.Cb) < im.COffset(b.Max.X-1, b.Max.Y-1)+1 || len(im.Cr) < len(im.Cb) {
 			return pixSource{}, fmt.Errorf("tokenize: YCbCr planes too short for a %dx%d frame", g.Width, g.Height)
 		}
-		return pixSource{kind: kindYCbCr, ycc: im, minX: b.Min.X, minY: b.Min.Y}, nil
+		ycbcrToRGBA(im, t.scratch())
+		return pixSource{kind: kindRGBA, pix: t.generic.Pix, stride: t.generic.Stride}, nil
 	case *image.Paletted:
 		s, err := packed(im.Pix, im.Stride, im.PixOffset(b.Min.X, b.Min.Y), 1)
 		if err != nil {
@@ -113,14 +108,74 @@ func (t *Tokenizer) source(img image.Image) (pixSource, error) {
 			r, gg, bb, _ := c.RGBA()
 			t.pal[i] = [3]uint8{uint8(r >> 8), uint8(gg >> 8), uint8(bb >> 8)}
 		}
-		s.kind, s.pal = kindPaletted, t.pal
-		return s, nil
+		out := t.scratch()
+		for y := 0; y < g.Height; y++ {
+			in := s.pix[y*s.stride : y*s.stride+g.Width]
+			o := out.Pix[y*out.Stride : y*out.Stride+4*g.Width]
+			for x, ix := range in {
+				c := &t.pal[ix]
+				px := o[4*x : 4*x+4 : 4*x+4]
+				px[0], px[1], px[2], px[3] = c[0], c[1], c[2], 255
+			}
+		}
+		return pixSource{kind: kindRGBA, pix: out.Pix, stride: out.Stride}, nil
 	}
+	out := t.scratch()
+	draw.Draw(out, out.Rect, img, b.Min, draw.Src)
+	return pixSource{kind: kindRGBA, pix: out.Pix, stride: out.Stride}, nil
+}
+
+// scratch returns the tokenizer's Width×Height RGBA frame for sources
+// that are converted before they are cut.
+func (t *Tokenizer) scratch() *image.RGBA {
 	if t.generic == nil {
-		t.generic = image.NewRGBA(image.Rect(0, 0, g.Width, g.Height))
+		t.generic = image.NewRGBA(image.Rect(0, 0, t.g.Width, t.g.Height))
 	}
-	draw.Draw(t.generic, t.generic.Rect, img, b.Min, draw.Src)
-	return pixSource{kind: kindRGBA, pix: t.generic.Pix, stride: t.generic.Stride}, nil
+	return t.generic
+}
+
+// ycbcrToRGBA converts im into out (same size, origin 0) with the
+// stdlib's color.YCbCrToRGB, finding each pixel's chroma sample as
+// (*image.YCbCr).COffset does.
+func ycbcrToRGBA(im *image.YCbCr, out *image.RGBA) {
+	b := im.Rect
+	hs, vs := 0, 0 // log2 of the horizontal and vertical subsampling
+	switch im.SubsampleRatio {
+	case image.YCbCrSubsampleRatio422:
+		hs = 1
+	case image.YCbCrSubsampleRatio420:
+		hs, vs = 1, 1
+	case image.YCbCrSubsampleRatio440:
+		vs = 1
+	case image.YCbCrSubsampleRatio411:
+		hs = 2
+	case image.YCbCrSubsampleRatio410:
+		hs, vs = 2, 1
+	}
+	w := b.Dx()
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		yrow := im.Y[im.YOffset(b.Min.X, y):]
+		yrow = yrow[:w]
+		o := out.Pix[(y-b.Min.Y)*out.Stride : (y-b.Min.Y)*out.Stride+4*w]
+		if b.Min.X < 0 || b.Min.Y < 0 {
+			// Shifts floor where COffset's division truncates: ask it.
+			for i, yy := range yrow {
+				ci := im.COffset(b.Min.X+i, y)
+				r, g, bb := color.YCbCrToRGB(yy, im.Cb[ci], im.Cr[ci])
+				px := o[4*i : 4*i+4 : 4*i+4]
+				px[0], px[1], px[2], px[3] = r, g, bb, 255
+			}
+			continue
+		}
+		crow := (y>>vs - b.Min.Y>>vs) * im.CStride
+		c0 := b.Min.X >> hs
+		for i, yy := range yrow {
+			ci := crow + (b.Min.X+i)>>hs - c0
+			r, g, bb := color.YCbCrToRGB(yy, im.Cb[ci], im.Cr[ci])
+			px := o[4*i : 4*i+4 : 4*i+4]
+			px[0], px[1], px[2], px[3] = r, g, bb, 255
+		}
+	}
 }
 
 func (t *Tokenizer) tokenize(img image.Image, dst *TokenSet) error {
@@ -135,33 +190,7 @@ func (t *Tokenizer) tokenize(img image.Image, dst *TokenSet) error {
 	}
 	dst.N, dst.D = n, d
 	setGridPos(g, dst.Pos[:n])
-	if src.kind == kindRGBA || src.kind == kindGray {
-		tokenizeRows(g, &src, dst.Data)
-		return nil
-	}
-	C, pw, ph := g.Channels, g.PatchW, g.PatchH
-	rowLen := pw * C
-	for r := 0; r < g.Rows; r++ {
-		y0 := r * g.StrideY
-		for c := 0; c < g.Cols; c++ {
-			x0 := c * g.StrideX
-			i := r*g.Cols + c
-			tok := dst.Data[i*d : (i+1)*d]
-			nx := min(pw, g.Width-x0) // ≥ 1: every cell starts inside the frame
-			for py := 0; py < ph; py++ {
-				row := tok[py*rowLen : (py+1)*rowLen]
-				y := y0 + py
-				if y >= g.Height {
-					fillValues(row, g.Fill)
-					continue
-				}
-				src.row(row[:nx*C], x0, y, nx, C)
-				if nx < pw {
-					fillValues(row[nx*C:], g.Fill)
-				}
-			}
-		}
-	}
+	tokenizeRows(g, &src, dst.Data)
 	return nil
 }
 
@@ -199,30 +228,6 @@ func (s *pixSource) row(dst []float32, x, y, n, C int) {
 		} else {
 			grayRow1(dst, p)
 		}
-	case kindPaletted:
-		off := y*s.stride + x
-		for i, ix := range s.pix[off : off+n] {
-			c := &s.pal[ix]
-			putRGB(dst, i, C, c[0], c[1], c[2])
-		}
-	case kindYCbCr:
-		im := s.ycc
-		for i := 0; i < n; i++ {
-			px, py := s.minX+x+i, s.minY+y
-			yi, ci := im.YOffset(px, py), im.COffset(px, py)
-			r, g, b := color.YCbCrToRGB(im.Y[yi], im.Cb[ci], im.Cr[ci])
-			putRGB(dst, i, C, r, g, b)
-		}
-	}
-}
-
-// putRGB stores pixel i of a row: three values, or the luma for C = 1.
-func putRGB(dst []float32, i, C int, r, g, b uint8) {
-	if C == 3 {
-		d := dst[3*i : 3*i+3 : 3*i+3]
-		d[0], d[1], d[2] = unit[r], unit[g], unit[b]
-	} else {
-		dst[i] = luma(r, g, b)
 	}
 }
 

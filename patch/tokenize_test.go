@@ -96,8 +96,13 @@ func TestFastPathsAgree(t *testing.T) {
 		gray.Pix[i] = uint8(r.UintN(256))
 	}
 	var yccs []image.Image
-	for _, ratio := range []image.YCbCrSubsampleRatio{image.YCbCrSubsampleRatio444, image.YCbCrSubsampleRatio422, image.YCbCrSubsampleRatio420} {
-		y := image.NewYCbCr(rect, ratio)
+	for i, ratio := range []image.YCbCrSubsampleRatio{image.YCbCrSubsampleRatio444, image.YCbCrSubsampleRatio422, image.YCbCrSubsampleRatio420,
+		image.YCbCrSubsampleRatio440, image.YCbCrSubsampleRatio411, image.YCbCrSubsampleRatio410, image.YCbCrSubsampleRatio420} {
+		rc := rect
+		if i == 6 {
+			rc = image.Rect(-3, -5, -3+w, -5+h) // negative origin: chroma index by division
+		}
+		y := image.NewYCbCr(rc, ratio)
 		for _, p := range [][]uint8{y.Y, y.Cb, y.Cr} {
 			for i := range p {
 				p[i] = uint8(r.UintN(256))
