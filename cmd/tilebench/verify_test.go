@@ -160,8 +160,17 @@ func TestRefPlayExternalPolicy(t *testing.T) {
 	if err := json.Unmarshal([]byte(out), &m); err != nil || m["mean_return"].(float64) <= 0 {
 		t.Fatalf("play output %s (%v)", out, err)
 	}
-	code, _, errs = runCLI(t, "", "play", "--game", "paddle", "--episodes", "1", "--policy", "exec:"+reftest.Python+" -c 'import sys; sys.exit(4)'")
-	if code != 1 || strings.Count(errs, "\n") != 1 || !strings.Contains(errs, "crash") {
+	logs := t.TempDir()
+	code, _, errs = runCLI(t, "", "play", "--game", "paddle", "--episodes", "1", "--policy-log", logs,
+		"--policy", "exec:"+reftest.Python+" -c 'import sys; sys.stderr.write(\"model file missing\\n\"); sys.exit(4)'")
+	if code != 1 || strings.Count(errs, "\n") != 1 || !strings.Contains(errs, "crash") || !strings.Contains(errs, "exit status 4") || !strings.Contains(errs, "model file missing") {
 		t.Fatalf("crashing policy: exit %d %q", code, errs)
+	}
+	kept, _ := filepath.Glob(filepath.Join(logs, "*.stderr"))
+	if len(kept) != 1 {
+		t.Fatalf("stderr logs %v", kept)
+	}
+	if b, _ := os.ReadFile(kept[0]); !strings.Contains(string(b), "model file missing") {
+		t.Fatalf("log %s holds %q", kept[0], b)
 	}
 }
