@@ -132,6 +132,8 @@ func rawHelper(mode string) int {
 	case "badready":
 		fmt.Fprintln(out, `{"msg":"ready","protocol":7}`)
 		time.Sleep(time.Hour)
+	case "argv":
+		fmt.Fprintf(out, `{"msg":"ready","protocol":1,"name":%q}`+"\n", strings.Join(os.Args[1:], "|"))
 	case "env":
 		fmt.Fprintf(out, `{"msg":"ready","protocol":1,"name":%q}`+"\n", os.Getenv("TILEBENCH_GAME")+","+os.Getenv("TILEBENCH_OBS")+","+os.Getenv("TILEBENCH_PROTOCOL")+","+os.Getenv("X_EXTRA"))
 	default:

@@ -202,6 +202,20 @@ func TestEnvironment(t *testing.T) {
 	}
 }
 
+// No shell runs: variables, globs and separators reach the program as
+// they were written.
+func TestNoShell(t *testing.T) {
+	g := &blobs{}
+	p, err := Open(helperTarget(t)+` $HOME '*' ";" "a b" $(id)`, Config{Game: g.Spec(), Grid: testGrid(t), Env: []string{helperEnv + "=argv"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer p.Close()
+	if want := "-test.run=^$|$HOME|*|;|a b|$(id)"; p.Name() != want {
+		t.Fatalf("child got %q, want %q", p.Name(), want)
+	}
+}
+
 func TestClampWhenAsked(t *testing.T) {
 	p, err := open(t, "bounds:0", func(c *Config) { c.Clamp = true })
 	if err != nil {
