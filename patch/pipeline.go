@@ -14,12 +14,14 @@ import (
 // one Tokenizer serves one goroutine.
 type Tokenizer struct {
 	g *Grid
-	// sum and cnt accumulate overlapping tokens in Assemble; generic is
+	// sum and cnt accumulate overlapping tokens in Assemble, cellTok
+	// finds the token of each cell of a non-overlapping grid; generic is
 	// the scratch frame of the generic Tokenize path; pal the palette
 	// table of the paletted path. All are allocated on first use and
 	// reused.
 	sum     []float32
 	cnt     []uint32
+	cellTok []int32
 	generic *image.RGBA
 	pal     *[256][3]uint8
 }

@@ -275,7 +275,7 @@ func grayRow3(dst []float32, p []byte) {
 // to8 turns a value in [0,1] into a byte, rounding to nearest; values
 // outside [0,1] (and NaN) are clamped.
 func to8(v float32) uint8 {
-	if !(v > 0) {
+	if !(v > 0) { // also NaN
 		return 0
 	}
 	if v >= 1 {
@@ -295,6 +295,9 @@ func (t *Tokenizer) assemble(ts *TokenSet, dst *image.RGBA) error {
 	}
 	if ts.N < 0 || ts.N > len(ts.Pos) || ts.N*ts.D > len(ts.Data) {
 		return fmt.Errorf("assemble: token set claims %d tokens but has room for %d", ts.N, min(len(ts.Pos), len(ts.Data)/max(ts.D, 1)))
+	}
+	if !g.Overlapping() && t.assembleTiles(ts, dst) {
+		return nil
 	}
 	C, pw, ph, W := g.Channels, g.PatchW, g.PatchH, g.OutW
 	npx := g.OutW * g.OutH
@@ -356,4 +359,71 @@ func (t *Tokenizer) assemble(ts *TokenSet, dst *image.RGBA) error {
 		}
 	}
 	return nil
+}
+
+// assembleTiles is Assemble for non-overlapping grids when no cell holds
+// more than one token (no duplicates): each token is written straight to
+// its cell, empty cells black. It reports false, having written nothing,
+// when some cell holds several tokens.
+func (t *Tokenizer) assembleTiles(ts *TokenSet, dst *image.RGBA) bool {
+	g := t.g
+	N := g.N()
+	if len(t.cellTok) != N {
+		t.cellTok = make([]int32, N)
+	}
+	for c := range t.cellTok {
+		t.cellTok[c] = -1
+	}
+	for i := 0; i < ts.N; i++ {
+		p := ts.Pos[i]
+		if p.Row < 0 || p.Col < 0 || int(p.Row) >= g.Rows || int(p.Col) >= g.Cols {
+			continue
+		}
+		c := int(p.Row)*g.Cols + int(p.Col)
+		if t.cellTok[c] >= 0 {
+			return false
+		}
+		t.cellTok[c] = int32(i)
+	}
+	C, pw, ph, D := g.Channels, g.PatchW, g.PatchH, ts.D
+	b := dst.Bounds()
+	for c, i := range t.cellTok {
+		x0, y0 := (c%g.Cols)*pw, (c/g.Cols)*ph
+		for py := 0; py < ph; py++ {
+			o := dst.PixOffset(b.Min.X+x0, b.Min.Y+y0+py)
+			row := dst.Pix[o : o+4*pw : o+4*pw]
+			if i < 0 {
+				for x := 0; x < pw; x++ {
+					px := row[4*x : 4*x+4 : 4*x+4]
+					px[0], px[1], px[2], px[3] = 0, 0, 0, 255
+				}
+				continue
+			}
+			vals := ts.Data[int(i)*D+py*pw*C : int(i)*D+(py+1)*pw*C]
+			if C == 3 {
+				tileRow3(row, vals, pw)
+				continue
+			}
+			for x := 0; x < pw; x++ {
+				px := row[4*x : 4*x+4 : 4*x+4]
+				y := to8(vals[x])
+				px[0], px[1], px[2], px[3] = y, y, y, 255
+			}
+		}
+	}
+	return true
+}
+
+// tileRow3 writes pw RGB values of vals as opaque RGBA pixels into row.
+func tileRow3(row []byte, vals []float32, pw int) {
+	if pw <= 0 || len(row) < 4*pw || len(vals) < 3*pw {
+		return
+	}
+	// Pointer arithmetic inside the two slices, checked above.
+	rp, vp := unsafe.Pointer(&row[0]), unsafe.Pointer(&vals[0])
+	for x := 0; x < pw; x++ {
+		v := (*[3]float32)(unsafe.Add(vp, 12*x))
+		px := (*[4]byte)(unsafe.Add(rp, 4*x))
+		px[0], px[1], px[2], px[3] = to8(v[0]), to8(v[1]), to8(v[2]), 255
+	}
 }
