@@ -238,7 +238,10 @@ type FieldError struct {
 	Err error
 }
 
+// Error is "key: problem".
 func (e *FieldError) Error() string { return fmt.Sprintf("%s: %v", e.Key, e.Err) }
+
+// Unwrap returns the problem.
 func (e *FieldError) Unwrap() error { return e.Err }
 
 func fieldErr(key string, err error) error { return &FieldError{Key: key, Err: err} }
