@@ -66,6 +66,9 @@ var Variations = games.VariationSet[Config]{
 	vary("nocturne", "held-out palette: indigo ground, rust road, gold edges", "palette", func(c *Config) { c.Palette = Palettes[3] }),
 	vary("narrow", "road 6.5 m wide instead of 9 m", "road", func(c *Config) { c.Track.Width = 6.5 }),
 	vary("broad", "road 12 m wide instead of 9 m", "road", func(c *Config) { c.Track.Width = 12 }),
+	vary("twisty", "wave-shaped circuits: 16 points bent into ovals, beans and peanuts, bends both ways", "circuit", func(c *Config) {
+		c.Track.Points, c.Track.Shape, c.Track.RadiusJitter, c.Track.AngleJitter, c.Track.SamplesPerSegment = 16, 0.45, 0.03, 0.2, 32
+	}),
 	vary("clutter", "160 distractor shapes scattered on the terrain", "shapes", func(c *Config) { c.Shapes = 160 }),
 	vary("grain", "textured terrain (value noise)", "texture", func(c *Config) { c.Noise = 1 }),
 	vary("small", "64×64 frames", "frame size", func(c *Config) { c.Width, c.Height = 64, 64 }),

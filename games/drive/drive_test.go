@@ -425,6 +425,7 @@ func TestGoldenFrames(t *testing.T) {
 		{Variation: "nocturne+narrow", Seed: games.HeldOut(4), Steps: 300},
 		{Variation: "broad+small", Seed: games.HeldOut(5), Steps: 60},
 		{Variation: "large", Seed: games.Train(6), Steps: 120},
+		{Variation: "twisty", Seed: games.HeldOut(7), Steps: 250},
 	})
 }
 
@@ -446,14 +447,15 @@ func bodyOnRoad(g *Game) bool {
 
 // The expert drives a full lap without any corner of the car leaving the
 // road on at least 95% of 200 held-out circuits (the target), and
-// on a tenth as many with the narrow and broad roads. The full run takes a few
+// on a tenth as many with the narrow and broad roads and the wave-shaped
+// circuits. The full run takes a few
 // seconds; -short checks a tenth of each.
 func TestExpertLaps(t *testing.T) {
 	n := 200
 	if testing.Short() {
 		n = 20
 	}
-	for _, v := range []string{"", "narrow", "broad"} {
+	for _, v := range []string{"", "narrow", "broad", "twisty"} {
 		n := n
 		if v != "" {
 			n /= 10 // the road-width variations: a smaller sample

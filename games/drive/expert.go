@@ -10,12 +10,12 @@ type ExpertParams struct {
 	// Defaults 3 m, 0.4 s, 4 m, 14 m.
 	LookBase, LookGain, LookMin, LookMax float64
 	// LatAccel is the lateral acceleration the speed plan allows in
-	// corners (v ≤ √(LatAccel/|κ|)), m/s². Default 4.5.
+	// corners (v ≤ √(LatAccel/|κ|)), m/s². Default 3.5.
 	LatAccel float64
 	// PlanBrake is the deceleration the speed plan assumes when slowing
 	// for a corner ahead, m/s². Default 4.
 	PlanBrake float64
-	// TopSpeed caps the planned speed, m/s. Default 19.
+	// TopSpeed caps the planned speed, m/s. Default 17.
 	TopSpeed float64
 	// SpeedGain is the proportional gain from speed error (m/s) to
 	// throttle or brake. Default 0.6.
@@ -28,9 +28,9 @@ func (p ExpertParams) withDefaults() ExpertParams {
 	def(&p.LookGain, 0.4)
 	def(&p.LookMin, 4)
 	def(&p.LookMax, 14)
-	def(&p.LatAccel, 4.5)
+	def(&p.LatAccel, 3.5)
 	def(&p.PlanBrake, 4)
-	def(&p.TopSpeed, 19)
+	def(&p.TopSpeed, 17)
 	def(&p.SpeedGain, 0.6)
 	return p
 }

@@ -21,21 +21,21 @@ func (a Vec) norm() float64       { return math.Hypot(a.X, a.Y) }
 // TrackConfig shapes the generated circuits. The zero value gives the
 // default circuit family.
 type TrackConfig struct {
-	// Points is the number of control points. Default 16.
+	// Points is the number of control points. Default 9.
 	Points int
 	// Radius is the mean distance of the control points from the centre,
 	// in metres. Default 58.
 	Radius float64
-	// Shape is the largest amplitude, relative to Radius, of each of the
-	// two slow waves (2 and 3 per turn, seeded amplitude and phase) that
-	// bend the circle into ovals, beans and rounded triangles. Default
-	// 0.45.
+	// Shape, when positive, bends the circle by two slow waves (2 and 3
+	// per turn, each of seeded phase and of seeded amplitude up to Shape
+	// relative to Radius) into ovals, beans, peanuts and rounded
+	// triangles; RadiusJitter then adds to that. Default 0 (no waves).
 	Shape float64
-	// RadiusJitter is the largest extra relative change of each point's
-	// radius. Default 0.03.
+	// RadiusJitter is the largest relative change of each point's radius
+	// (0.25 puts radii in [0.75, 1.25]·Radius). Default 0.25.
 	RadiusJitter float64
 	// AngleJitter is the largest shift of each point's angle, as a
-	// fraction of the even spacing 2π/Points. Default 0.2.
+	// fraction of the even spacing 2π/Points. Default 0.25.
 	AngleJitter float64
 	// Width is the road width in metres. Default 9.
 	Width float64
@@ -44,7 +44,7 @@ type TrackConfig struct {
 	// times the car's smallest turning radius at full lock).
 	MinRadius float64
 	// SamplesPerSegment is how finely each spline segment is sampled for
-	// the centreline polyline. Default 32.
+	// the centreline polyline. Default 48.
 	SamplesPerSegment int
 }
 
@@ -52,15 +52,14 @@ func (c TrackConfig) withDefaults() TrackConfig {
 	for _, f := range []struct {
 		v *int
 		d int
-	}{{&c.Points, 16}, {&c.SamplesPerSegment, 32}} {
+	}{{&c.Points, 9}, {&c.SamplesPerSegment, 48}} {
 		if *f.v == 0 {
 			*f.v = f.d
 		}
 	}
 	orDefault(&c.Radius, 58, false)
-	orDefault(&c.Shape, 0.45, false)
-	orDefault(&c.RadiusJitter, 0.03, false)
-	orDefault(&c.AngleJitter, 0.2, false)
+	orDefault(&c.RadiusJitter, 0.25, false)
+	orDefault(&c.AngleJitter, 0.25, false)
 	orDefault(&c.Width, 9, false)
 	orDefault(&c.MinRadius, 14, false)
 	return c
@@ -98,9 +97,7 @@ var ErrNoTrack = errors.New("no acceptable circuit")
 const maxAttempts = 400
 
 // NewTrack generates the circuit for seed. Each attempt draws its control
-// points from patch.DeriveSeed(seed, StreamKey("circuit"), attempt): at
-// evenly spaced, jittered angles around the centre, at radii following two
-// seeded slow waves plus a small jitter;
+// points from patch.DeriveSeed(seed, StreamKey("circuit"), attempt);
 // attempts that self-intersect, come too close to themselves or bend
 // tighter than MinRadius are thrown away.
 func NewTrack(seed uint64, cfg TrackConfig) (*Track, error) {
@@ -110,13 +107,20 @@ func NewTrack(seed uint64, cfg TrackConfig) (*Track, error) {
 	}
 	for a := 0; a < maxAttempts; a++ {
 		rng := patch.NewRand(patch.DeriveSeed(seed, patch.StreamKey("circuit"), uint64(a)))
-		a2, p2 := cfg.Shape*rng.Float64(), 2*math.Pi*rng.Float64()
-		a3, p3 := cfg.Shape*rng.Float64(), 2*math.Pi*rng.Float64()
+		var a2, p2, a3, p3 float64
+		if cfg.Shape > 0 { // (drawn only then: the plain family's stream is unchanged)
+			a2, p2 = cfg.Shape*rng.Float64(), 2*math.Pi*rng.Float64()
+			a3, p3 = cfg.Shape*rng.Float64(), 2*math.Pi*rng.Float64()
+		}
 		ctrl := make([]Vec, cfg.Points)
 		step := 2 * math.Pi / float64(cfg.Points)
 		for k := range ctrl {
 			ang := float64(k)*step + (2*rng.Float64()-1)*cfg.AngleJitter*step
-			r := cfg.Radius * (1 + a2*math.Cos(2*ang+p2) + a3*math.Cos(3*ang+p3) + (2*rng.Float64()-1)*cfg.RadiusJitter)
+			wave := 0.0
+			if cfg.Shape > 0 {
+				wave = a2*math.Cos(2*ang+p2) + a3*math.Cos(3*ang+p3)
+			}
+			r := cfg.Radius * (1 + wave + (2*rng.Float64()-1)*cfg.RadiusJitter)
 			ctrl[k] = Vec{r * math.Cos(ang), r * math.Sin(ang)}
 		}
 		t := buildTrack(ctrl, cfg.Width, cfg.SamplesPerSegment)
