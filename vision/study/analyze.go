@@ -477,6 +477,13 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 			rd.Findings = append(rd.Findings, report.KV{Key: fmt.Sprintf("clean IQM, patch %d", a.Plan.Cells[i].Patch), Value: a.Cells[i].Summary.IQM.String()})
 		}
 	}
+	for i, c := range a.Plan.Cells {
+		// Held-out variations, otherwise clean: how much of the clean
+		// score carries over.
+		if r := a.Cells[i].Retention; r != nil && c.Clean() && c.Variation != d.Variation {
+			rd.Findings = append(rd.Findings, report.KV{Key: fmt.Sprintf("retention on variation %s, patch %d", variationName(c.Variation), c.Patch), Value: r.String()})
+		}
+	}
 	for _, cv := range a.Curves {
 		if cv.Break != nil {
 			rd.Breaks = append(rd.Breaks, report.Break{Axis: cv.Axis + " (" + cv.Context + ")", Break: *cv.Break})
