@@ -175,6 +175,7 @@ func rawHelper(mode string) int {
 				fmt.Fprintf(os.Stderr, "RuntimeError: boom at step %d\n", m.T)
 				return 3
 			case "exit0":
+				os.Stdout.Close() // exits cleanly, output closed first
 				return 0
 			case "hang":
 				time.Sleep(time.Hour)
