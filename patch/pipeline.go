@@ -36,6 +36,9 @@ func (t *Tokenizer) Grid() *Grid { return t.g }
 // Width×Height (its bounds may start anywhere). dst must have room for
 // Grid().N() tokens of Grid().D() values; it is not reallocated. See
 // tokenize.go for the value of each pixel type and the luma rule.
+// *image.RGBA, *image.NRGBA, *image.Gray, *image.YCbCr and
+// *image.Paletted frames allocate nothing after the first call; other
+// image types go through image/draw and its Color values.
 func (t *Tokenizer) Tokenize(img image.Image, dst *TokenSet) error {
 	return t.tokenize(img, dst)
 }
