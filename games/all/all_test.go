@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"tilebench/games"
+	"tilebench/games/internal/gametest"
 	"tilebench/patch"
 )
 
@@ -62,13 +63,7 @@ func TestEveryGameKeepsTheContract(t *testing.T) {
 					}
 				}
 				if rng.IntN(4) == 0 { // now and then a random action
-					for i := range a {
-						if act.Kind == games.Discrete {
-							a[i] = float64(rng.IntN(act.Choices()))
-						} else {
-							a[i] = act.Low[i] + (act.High[i]-act.Low[i])*rng.Float64()
-						}
-					}
+					gametest.RandomAction(act, a, rng)
 				}
 				st, err := g.Step(a)
 				if err != nil {
@@ -120,13 +115,7 @@ func TestRandomPolicyFallsShort(t *testing.T) {
 				if expert {
 					g.(games.WithExpert).Expert().Act(a)
 				} else {
-					for i := range a {
-						if act.Kind == games.Discrete {
-							a[i] = float64(rng.IntN(act.Choices()))
-						} else {
-							a[i] = act.Low[i] + (act.High[i]-act.Low[i])*rng.Float64()
-						}
-					}
+					gametest.RandomAction(act, a, rng)
 				}
 				st, err := g.Step(a)
 				if err != nil {

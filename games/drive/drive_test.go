@@ -2,7 +2,6 @@ package drive
 
 import (
 	"errors"
-	"hash/fnv"
 	"image"
 	"math"
 	"testing"
@@ -10,7 +9,7 @@ import (
 	"gonum.org/v1/gonum/integrate/quad"
 
 	"tilebench/games"
-	"tilebench/games/internal/golden"
+	"tilebench/games/internal/gametest"
 	"tilebench/patch"
 )
 
@@ -270,48 +269,9 @@ func TestRenderMatchesPlainMapping(t *testing.T) {
 	}
 }
 
-func frameHash(img *image.RGBA) uint64 {
-	h := fnv.New64a()
-	h.Write(img.Pix)
-	return h.Sum64()
-}
-
 // The same seed and actions give identical frames and rewards.
 func TestDeterminism(t *testing.T) {
-	play := func(seed uint64) (hs []uint64, rs []float64) {
-		g := newGame(t, "clutter+grain")
-		g.Reset(seed)
-		img := image.NewRGBA(image.Rect(0, 0, DefaultSize, DefaultSize))
-		rng := patch.NewRand(42)
-		for k := 0; k < 300; k++ {
-			a := []float64{2*rng.Float64() - 1, rng.Float64(), 0.2 * rng.Float64()}
-			st, err := g.Step(a)
-			if err != nil {
-				t.Fatal(err)
-			}
-			g.Render(img)
-			hs = append(hs, frameHash(img))
-			rs = append(rs, st.Reward)
-			if st.Done {
-				break
-			}
-		}
-		return
-	}
-	h1, r1 := play(games.HeldOut(8))
-	h2, r2 := play(games.HeldOut(8))
-	h3, _ := play(games.HeldOut(9))
-	if len(h1) != len(h2) {
-		t.Fatalf("runs of one seed lasted %d and %d steps", len(h1), len(h2))
-	}
-	for i := range h1 {
-		if h1[i] != h2[i] || r1[i] != r2[i] {
-			t.Fatalf("step %d differs between two runs of one seed", i)
-		}
-	}
-	if h1[0] == h3[0] {
-		t.Fatal("two seeds give the same first frame")
-	}
+	gametest.CheckDeterminism(t, Name, "clutter+grain", games.HeldOut(8), games.HeldOut(9), 300)
 }
 
 // Rewards: a lap's centreline progress is worth LapReward; each step
@@ -366,14 +326,14 @@ func TestBadActionsAndClamping(t *testing.T) {
 	g := newGame(t, "")
 	img := image.NewRGBA(image.Rect(0, 0, DefaultSize, DefaultSize))
 	g.Render(img)
-	before, car := frameHash(img), g.car
+	before, car := gametest.FrameHash(img), g.car
 	for _, a := range [][]float64{{math.NaN(), 0, 0}, {0, math.Inf(1), 0}, {0, 0, math.Inf(-1)}, {0, 1}, {}, {0, 0, 0, 0}} {
 		if _, err := g.Step(a); !errors.Is(err, games.ErrBadAction) {
 			t.Errorf("action %v: err %v, want ErrBadAction", a, err)
 		}
 	}
 	g.Render(img)
-	if frameHash(img) != before || g.car != car || g.steps != 0 {
+	if gametest.FrameHash(img) != before || g.car != car || g.steps != 0 {
 		t.Fatal("a refused action changed the state")
 	}
 	// Out-of-bounds values are clamped: (5, 3, −2) drives as (1, 1, 0).
@@ -417,7 +377,7 @@ func TestVariationsAndOptions(t *testing.T) {
 // expert match the committed PNGs pixel for pixel. Regenerate with
 // go test ./games/drive -run Golden -update, and look at them.
 func TestGoldenFrames(t *testing.T) {
-	golden.CheckCases(t, Name, []golden.Case{
+	gametest.CheckCases(t, Name, []gametest.Case{
 		{Variation: "", Seed: games.HeldOut(0), Steps: 0},
 		{Variation: "", Seed: games.HeldOut(1), Steps: 200},
 		{Variation: "glacier+clutter", Seed: games.HeldOut(2), Steps: 150},

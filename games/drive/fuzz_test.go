@@ -3,10 +3,10 @@ package drive
 import (
 	"errors"
 	"math"
-	"strings"
 	"testing"
 
 	"tilebench/games"
+	"tilebench/games/internal/gametest"
 )
 
 // FuzzParseVariation: any string either parses to a canonical spelling
@@ -15,19 +15,11 @@ func FuzzParseVariation(f *testing.F) {
 	for _, s := range []string{"", "default", "glacier", "glacier+clutter", "clutter+glacier+clutter", "narrow+broad", "grass", "+", "small+ large", "saffron+grain+narrow+small"} {
 		f.Add(s)
 	}
-	f.Fuzz(func(t *testing.T, s string) {
+	parse := func(s string) (string, error) {
 		_, canon, err := ParseVariation(s)
-		if err != nil {
-			if !strings.HasPrefix(err.Error(), "drive: ") {
-				t.Fatalf("error %q does not name the game", err)
-			}
-			return
-		}
-		_, again, err := ParseVariation(canon)
-		if err != nil || again != canon {
-			t.Fatalf("canonical %q reparsed as %q, %v", canon, again, err)
-		}
-	})
+		return canon, err
+	}
+	f.Fuzz(func(t *testing.T, s string) { gametest.CheckVariationString(t, Name, parse, s) })
 }
 
 // FuzzStep: any action either steps the game or, if not finite or of the

@@ -2,13 +2,12 @@ package paddle
 
 import (
 	"errors"
-	"hash/fnv"
 	"image"
 	"math"
 	"testing"
 
 	"tilebench/games"
-	"tilebench/games/internal/golden"
+	"tilebench/games/internal/gametest"
 	"tilebench/patch"
 )
 
@@ -216,45 +215,10 @@ func TestInterceptMatchesSimulation(t *testing.T) {
 	}
 }
 
-func frameHash(img *image.RGBA) uint64 {
-	h := fnv.New64a()
-	h.Write(img.Pix)
-	return h.Sum64()
-}
-
 // The same seed and actions give the same frames and rewards; another
 // seed gives other frames.
 func TestDeterminism(t *testing.T) {
-	play := func(seed uint64) (hs []uint64, rs []float64) {
-		g := newGame(t, "drifter")
-		g.Reset(seed)
-		img := image.NewRGBA(image.Rect(0, 0, Size, Size))
-		rng := patch.NewRand(99)
-		for k := 0; k < 600; k++ {
-			st, err := g.Step([]float64{float64(rng.IntN(3))})
-			if err != nil {
-				t.Fatal(err)
-			}
-			g.Render(img)
-			hs = append(hs, frameHash(img))
-			rs = append(rs, st.Reward)
-			if st.Done {
-				break
-			}
-		}
-		return
-	}
-	h1, r1 := play(5)
-	h2, r2 := play(5)
-	h3, _ := play(6)
-	for i := range h1 {
-		if h1[i] != h2[i] || r1[i] != r2[i] {
-			t.Fatalf("step %d differs between two runs of one seed", i)
-		}
-	}
-	if h1[0] == h3[0] && h1[10] == h3[10] {
-		t.Fatal("seeds 5 and 6 give the same frames")
-	}
+	gametest.CheckDeterminism(t, Name, "drifter", 5, 6, 600)
 }
 
 func TestBadActions(t *testing.T) {
@@ -263,7 +227,7 @@ func TestBadActions(t *testing.T) {
 		g.Reset(2)
 		img := image.NewRGBA(image.Rect(0, 0, Size, Size))
 		g.Render(img)
-		before, b := frameHash(img), g.ball
+		before, b := gametest.FrameHash(img), g.ball
 		bad := [][]float64{{math.NaN()}, {math.Inf(1)}, {math.Inf(-1)}, {}, {1, 1}}
 		if v == "" {
 			bad = append(bad, []float64{3}, []float64{-1}, []float64{0.5})
@@ -274,7 +238,7 @@ func TestBadActions(t *testing.T) {
 			}
 		}
 		g.Render(img)
-		if frameHash(img) != before || g.ball != b || g.steps != 0 {
+		if gametest.FrameHash(img) != before || g.ball != b || g.steps != 0 {
 			t.Errorf("%q: a refused action changed the state", v)
 		}
 	}
@@ -321,7 +285,7 @@ func TestVariations(t *testing.T) {
 // of the expert, match the committed PNGs pixel for pixel. Regenerate
 // with go test ./games/paddle -run Golden -update (and look at them).
 func TestGoldenFrames(t *testing.T) {
-	golden.CheckCases(t, Name, []golden.Case{
+	gametest.CheckCases(t, Name, []gametest.Case{
 		{Variation: "", Seed: games.HeldOut(0), Steps: 0},
 		{Variation: "", Seed: games.HeldOut(1), Steps: 140},
 		{Variation: "lagoon+drifter", Seed: games.HeldOut(2), Steps: 90},

@@ -1,19 +1,24 @@
-// Package golden compares rendered frames with committed PNG files, pixel
-// for pixel, for the games' tests.
-package golden
+// Package gametest holds the checks every game's tests share: golden
+// frames compared pixel for pixel with committed PNG files, replay
+// determinism, and the variation-string round trip.
+package gametest
 
 import (
 	"flag"
 	"fmt"
+	"hash/fnv"
 	"image"
 	"image/png"
 	"io"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"tilebench/games"
 	"tilebench/internal/atomicfile"
+	"tilebench/patch"
 )
 
 // Update is the -update test flag: rewrite the golden files instead of
@@ -122,5 +127,94 @@ func CheckCases(t *testing.T, game string, cases []Case) {
 			name = "default"
 		}
 		Check(t, fmt.Sprintf("%s-%d-%d", name, c.Seed, c.Steps), img)
+	}
+}
+
+// FrameHash is the FNV-1a hash of a frame's bytes.
+func FrameHash(img *image.RGBA) uint64 {
+	h := fnv.New64a()
+	h.Write(img.Pix)
+	return h.Sum64()
+}
+
+// RandomAction fills a with a uniformly random action of act: a choice
+// index for a discrete space, values within the bounds for a continuous
+// one.
+func RandomAction(act games.ActionSpace, a []float64, rng *rand.Rand) {
+	for i := range a {
+		if act.Kind == games.Discrete {
+			a[i] = float64(rng.IntN(act.Choices()))
+		} else {
+			a[i] = act.Low[i] + (act.High[i]-act.Low[i])*rng.Float64()
+		}
+	}
+}
+
+// Trace plays up to steps random actions (from a fixed stream) in the
+// named game from seed and returns the hash of every frame and every
+// reward.
+func Trace(t testing.TB, game, variation string, seed uint64, steps int) (hashes []uint64, rewards []float64) {
+	t.Helper()
+	g, err := games.New(game, games.Options{Variation: variation})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sp := g.Spec()
+	g.Reset(seed)
+	img := image.NewRGBA(image.Rect(0, 0, sp.Width, sp.Height))
+	a := make([]float64, sp.Action.Dim())
+	rng := patch.NewRand(42)
+	for k := 0; k < steps; k++ {
+		RandomAction(sp.Action, a, rng)
+		st, err := g.Step(a)
+		if err != nil {
+			t.Fatal(err)
+		}
+		g.Render(img)
+		hashes = append(hashes, FrameHash(img))
+		rewards = append(rewards, st.Reward)
+		if st.Done {
+			break
+		}
+	}
+	return hashes, rewards
+}
+
+// CheckDeterminism checks that two plays of seed with the same actions
+// give identical frames and rewards, from fresh game instances, and that
+// other differs from seed in its first frames.
+func CheckDeterminism(t *testing.T, game, variation string, seed, other uint64, steps int) {
+	t.Helper()
+	h1, r1 := Trace(t, game, variation, seed, steps)
+	h2, r2 := Trace(t, game, variation, seed, steps)
+	h3, _ := Trace(t, game, variation, other, steps)
+	if len(h1) != len(h2) {
+		t.Fatalf("two plays of seed %d lasted %d and %d steps", seed, len(h1), len(h2))
+	}
+	for i := range h1 {
+		if h1[i] != h2[i] || r1[i] != r2[i] {
+			t.Fatalf("step %d differs between two plays of seed %d", i, seed)
+		}
+	}
+	if h1[0] == h3[0] && len(h3) > 1 && h1[1] == h3[1] {
+		t.Fatalf("seeds %d and %d give the same frames", seed, other)
+	}
+}
+
+// CheckVariationString is the body of a variation-parser fuzz target: s
+// either parses to a canonical spelling that parses to itself, or is
+// refused with an error that starts with the game's name.
+func CheckVariationString(t *testing.T, game string, parse func(string) (string, error), s string) {
+	t.Helper()
+	canon, err := parse(s)
+	if err != nil {
+		if !strings.HasPrefix(err.Error(), game+": ") {
+			t.Fatalf("error %q does not name the game", err)
+		}
+		return
+	}
+	again, err := parse(canon)
+	if err != nil || again != canon {
+		t.Fatalf("canonical %q reparsed as %q, %v", canon, again, err)
 	}
 }
