@@ -101,3 +101,18 @@ func BenchmarkPipelineApply(b *testing.B) {
 		t++
 	}
 }
+
+// BenchmarkTokenizeLuma: the RGBA frame to one-channel (BT.601 luma)
+// tokens.
+func BenchmarkTokenizeLuma(b *testing.B) {
+	_, f, _ := benchSetup(b)
+	g := mustGrid(b, GridConfig{Width: 96, Height: 96, PatchW: 8, Channels: 1})
+	tk, ts := NewTokenizer(g), NewTokenSet(g.N(), g.D())
+	b.SetBytes(int64(len(ts.Data) * 4))
+	b.ReportAllocs()
+	for b.Loop() {
+		if err := tk.Tokenize(f, ts); err != nil {
+			b.Fatal(err)
+		}
+	}
+}

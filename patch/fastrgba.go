@@ -62,8 +62,29 @@ func (s *pixSource) cells(dst []float32, y, cells, pw, D, C int) {
 		grayCells(dst, s.pix[off:off+cells*pw], cells, pw, D, C)
 		return
 	}
+	if s.kind == kindRGBA && C == 1 {
+		off := y * s.stride
+		rgbaCells1(dst, s.pix[off:off+4*cells*pw], cells, pw, D)
+		return
+	}
 	for c := 0; c < cells; c++ {
 		s.row(dst[c*D:c*D+C*pw], c*pw, y, pw, C)
+	}
+}
+
+// rgbaCells1 is rgbaCells3 giving one luma value a pixel.
+func rgbaCells1(dst []float32, p []byte, cells, pw, D int) {
+	if cells <= 0 || pw <= 0 || len(p) < 4*cells*pw || len(dst) < (cells-1)*D+pw {
+		return
+	}
+	sp, dp := unsafe.Pointer(&p[0]), unsafe.Pointer(&dst[0])
+	for c := 0; c < cells; c++ {
+		s := unsafe.Add(sp, 4*pw*c)
+		d := unsafe.Add(dp, 4*D*c)
+		for x := 0; x < pw; x++ {
+			px := (*[4]byte)(unsafe.Add(s, 4*x))
+			*(*float32)(unsafe.Add(d, 4*x)) = luma(px[0], px[1], px[2])
+		}
 	}
 }
 

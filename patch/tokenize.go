@@ -40,9 +40,12 @@ var unit = func() (u [256]float32) {
 	return u
 }()
 
-// luma returns the BT.601 luma of an 8-bit RGB triple in [0,1].
+// luma returns the BT.601 luma of an 8-bit RGB triple in [0,1]:
+// float32(299·R + 587·G + 114·B) / 255000, computed as a float64 product
+// rounded to float32, which gives the same float32 for every possible sum
+// (TestLumaProductExact checks all 255 001) without a division.
 func luma(r, g, b uint8) float32 {
-	return float32(299*int32(r)+587*int32(g)+114*int32(b)) / 255000
+	return float32(float64(299*int32(r)+587*int32(g)+114*int32(b)) * (1.0 / 255000))
 }
 
 type pixKind int

@@ -326,3 +326,16 @@ func TestSIMDExhaustive(t *testing.T) {
 		}
 	}
 }
+
+// luma's float64 product gives float32(n)/255000 for every reachable and
+// unreachable sum n = 299R+587G+114B in 0..255000.
+func TestLumaProductExact(t *testing.T) {
+	for n := 0; n <= 255000; n++ {
+		if float32(float64(n)*(1.0/255000)) != float32(n)/255000 {
+			t.Fatalf("sum %d: product route differs from division", n)
+		}
+	}
+	if luma(255, 255, 255) != 1 || luma(0, 0, 0) != 0 {
+		t.Fatal("luma endpoints")
+	}
+}
