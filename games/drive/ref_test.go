@@ -90,7 +90,7 @@ func checkAgainstRef(t *testing.T, doc refDoc) {
 
 // The spline matches SciPy's CubicHermiteSpline with Catmull–Rom tangents,
 // and the circuit length SciPy's quad, using the committed golden output of
-// testdata/ref/catmull_rom_ref.py (regenerate with -update).
+// testdata/ref/catmull_rom_ref.py (regenerate with -args -update-ref).
 func TestCatmullRomMatchesSciPyGolden(t *testing.T) {
 	if *updateRef {
 		reftest.Need(t, "numpy", "scipy")
