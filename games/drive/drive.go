@@ -144,8 +144,8 @@ func New(o games.Options) (*Game, error) {
 // NewConfig builds the game from a resolved config; variation is only
 // reported in Spec.
 func NewConfig(cfg Config, variation string) (*Game, error) {
-	if cfg.Width < 16 || cfg.Height < 16 || cfg.Width > 1024 || cfg.Height > 1024 {
-		return nil, fmt.Errorf("drive: frame %dx%d: want 16..1024 pixels a side", cfg.Width, cfg.Height)
+	if cfg.Width < 16 || cfg.Height < 16 || cfg.Width > 256 || cfg.Height > 256 {
+		return nil, fmt.Errorf("drive: frame %dx%d: want 16..256 pixels a side", cfg.Width, cfg.Height)
 	}
 	if cfg.Noise < 0 || cfg.Noise > 1 || cfg.Shapes < 0 || cfg.EdgeWidth < 0 {
 		return nil, fmt.Errorf("drive: noise %v, shapes %d, edge %v out of range", cfg.Noise, cfg.Shapes, cfg.EdgeWidth)

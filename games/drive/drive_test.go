@@ -365,8 +365,10 @@ func TestVariationsAndOptions(t *testing.T) {
 	}
 	img := image.NewRGBA(image.Rect(0, 0, 80, 60))
 	g.Render(img)
-	if _, err := New(games.Options{Width: 4}); err == nil {
-		t.Error("a 4-pixel frame was accepted")
+	for _, o := range []games.Options{{Width: 4}, {Height: 300}, {Width: 2000, Height: 2000}} {
+		if _, err := New(o); err == nil {
+			t.Errorf("frame %dx%d accepted", o.Width, o.Height)
+		}
 	}
 	if gg, err := games.New(Name, games.Options{Variation: "broad"}); err != nil || gg.Spec().Name != Name {
 		t.Errorf("registry: %v", err)
