@@ -118,5 +118,17 @@ func (e *Episode) Run(gameSeed, pipeSeed uint64, hook StepHook) (Result, error) 
 		}
 	}
 	res.Duration = time.Since(start)
+	if ender, ok := e.Policy.(EpisodeEnder); ok {
+		if err := ender.End(res.Return, res.Steps); err != nil {
+			return res, fmt.Errorf("episode end: policy: %w", err)
+		}
+	}
 	return res, nil
+}
+
+// EpisodeEnder is implemented by policies that want to hear how an
+// episode ended (external policies pass it on to their process). The
+// episode loop calls End after the last step.
+type EpisodeEnder interface {
+	End(ret float64, steps int) error
 }
