@@ -107,6 +107,9 @@ type AxisCurve struct {
 	Cells      []int
 	Severities []float64
 	Break      *stats.Break
+	// Pure is true when nothing else is applied (the context is the
+	// clean cell on the study's variation).
+	Pure bool
 }
 
 func (a *Analysis) boot(c int, stream string) stats.Bootstrap {
@@ -328,7 +331,8 @@ func (a *Analysis) curves() {
 			if ctxCell.Variation != a.Plan.Def.Variation {
 				ctxLabel += ", variation " + variationName(ctxCell.Variation)
 			}
-			cv := AxisCurve{Axis: axisName(ax, g.kind), Kind: g.kind, Context: ctxLabel, Patch: ctxCell.Patch, Cells: g.cells}
+			cv := AxisCurve{Axis: axisName(ax, g.kind), Kind: g.kind, Context: ctxLabel, Patch: ctxCell.Patch, Cells: g.cells,
+				Pure: ctxCell.Clean() && ctxCell.Variation == a.Plan.Def.Variation}
 			var levels []stats.Level
 			for _, ci := range g.cells {
 				_, s, _, _ := ax.sev(a.Plan.Cells[ci])
@@ -484,8 +488,10 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 			rd.Findings = append(rd.Findings, report.KV{Key: fmt.Sprintf("retention on variation %s, patch %d", variationName(c.Variation), c.Patch), Value: r.String()})
 		}
 	}
+	// The headline: every axis on its own, and every combination that
+	// breaks; the rest is in the charts and the table.
 	for _, cv := range a.Curves {
-		if cv.Break != nil {
+		if cv.Break != nil && (cv.Pure || cv.Break.Reached) {
 			rd.Breaks = append(rd.Breaks, report.Break{Axis: cv.Axis + " (" + cv.Context + ")", Break: *cv.Break})
 		}
 	}
