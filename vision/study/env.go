@@ -96,11 +96,6 @@ func (e *GameEnv) Player(c Cell) (Player, error) {
 	return episodePlayer{ep}, nil
 }
 
-// ender is a policy that wants to hear each episode's return (an external
-// policy process).
-type ender interface {
-	End(ret float64, steps int) error
-}
 
 // Close closes the policies that hold resources.
 func (e *GameEnv) Close() error {
@@ -121,15 +116,8 @@ type policyKey struct {
 
 type episodePlayer struct{ ep *vision.Episode }
 
+// Play runs one episode (vision.Episode.Run, which also tells an
+// external policy how the episode ended).
 func (p episodePlayer) Play(gameSeed, pipeSeed uint64, hook vision.StepHook) (vision.Result, error) {
-	res, err := p.ep.Run(gameSeed, pipeSeed, hook)
-	if err != nil {
-		return res, err
-	}
-	if e, ok := p.ep.Policy.(ender); ok {
-		if err := e.End(res.Return, res.Steps); err != nil {
-			return res, fmt.Errorf("episode end: %w", err)
-		}
-	}
-	return res, nil
+	return p.ep.Run(gameSeed, pipeSeed, hook)
 }
