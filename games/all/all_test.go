@@ -9,7 +9,7 @@ import (
 
 	"tilebench/games"
 	"tilebench/games/internal/gametest"
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // Every registered game and variation keeps the interface's promises:
@@ -49,7 +49,7 @@ func TestEveryGameKeepsTheContract(t *testing.T) {
 				t.Fatalf("%s has no expert", name)
 			}
 			a := make([]float64, act.Dim())
-			rng := patch.NewRand(1)
+			rng := seeds.NewRand(1)
 			img := image.NewRGBA(image.Rect(0, 0, sp.Width, sp.Height))
 			steps := 0
 			for done := false; !done; steps++ {
@@ -109,7 +109,7 @@ func TestRandomPolicyFallsShort(t *testing.T) {
 		a := make([]float64, act.Dim())
 		play := func(expert bool, seed uint64) float64 {
 			g.Reset(seed)
-			rng := patch.NewRand(seed)
+			rng := seeds.NewRand(seed)
 			var ret float64
 			for {
 				if expert {

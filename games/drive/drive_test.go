@@ -10,7 +10,7 @@ import (
 
 	"tilebench/games"
 	"tilebench/games/internal/gametest"
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 func newGame(t testing.TB, variation string) *Game {
@@ -104,7 +104,7 @@ func TestPurePursuitWorkedExample(t *testing.T) {
 		t.Fatalf("goal on the right: κ = %v, want −0.24", k)
 	}
 	// The same geometry moved and turned gives the same curvature.
-	rng := patch.NewRand(3)
+	rng := seeds.NewRand(3)
 	for i := 0; i < 100; i++ {
 		p := Vec{100 * (rng.Float64() - 0.5), 100 * (rng.Float64() - 0.5)}
 		h := 2 * math.Pi * rng.Float64()

@@ -11,7 +11,7 @@ import (
 	"tilebench/games"
 	"tilebench/internal/atomicfile"
 	"tilebench/internal/reftest"
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // refDoc is the exchange document of testdata/ref/catmull_rom_ref.py.
@@ -36,7 +36,7 @@ var updateRef = flag.Bool("update-ref", false, "rerun testdata/ref/catmull_rom_r
 // circuits and 64 random spline parameters on each.
 func refInput(t *testing.T) refDoc {
 	var doc refDoc
-	rng := patch.NewRand(5)
+	rng := seeds.NewRand(5)
 	for i := 0; i < 3; i++ {
 		tr, err := NewTrack(games.HeldOut(i), TrackConfig{})
 		if err != nil {
@@ -169,7 +169,7 @@ func bikeInput() (bikeDoc, [][][3]float64) {
 	p := CarParams{}.withDefaults()
 	doc := bikeDoc{Wheelbase: p.Wheelbase, DT: DT}
 	var actions [][][3]float64
-	rng := patch.NewRand(17)
+	rng := seeds.NewRand(17)
 	for r := 0; r < 4; r++ {
 		run := bikeRun{Start: [4]float64{10 * rng.Float64(), -5 * rng.Float64(), 2*rng.Float64() - 1, 6 + 4*rng.Float64()}}
 		var acts [][3]float64

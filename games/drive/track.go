@@ -5,7 +5,7 @@ import (
 	"fmt"
 	"math"
 
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // Vec is a point or direction in the world plane, in metres.
@@ -97,7 +97,7 @@ var ErrNoTrack = errors.New("no acceptable circuit")
 const maxAttempts = 400
 
 // NewTrack generates the circuit for seed. Each attempt draws its control
-// points from patch.DeriveSeed(seed, StreamKey("circuit"), attempt);
+// points from seeds.DeriveSeed(seed, StreamKey("circuit"), attempt);
 // attempts that self-intersect, come too close to themselves or bend
 // tighter than MinRadius are thrown away.
 func NewTrack(seed uint64, cfg TrackConfig) (*Track, error) {
@@ -106,7 +106,7 @@ func NewTrack(seed uint64, cfg TrackConfig) (*Track, error) {
 		return nil, fmt.Errorf("track config %+v: need ≥4 points, positive width, radius and sampling", cfg)
 	}
 	for a := 0; a < maxAttempts; a++ {
-		rng := patch.NewRand(patch.DeriveSeed(seed, patch.StreamKey("circuit"), uint64(a)))
+		rng := seeds.NewRand(seeds.DeriveSeed(seed, seeds.StreamKey("circuit"), uint64(a)))
 		var a2, p2, a3, p3 float64
 		if cfg.Shape > 0 { // (drawn only then: the plain family's stream is unchanged)
 			a2, p2 = cfg.Shape*rng.Float64(), 2*math.Pi*rng.Float64()

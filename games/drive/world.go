@@ -8,7 +8,7 @@ import (
 
 	"golang.org/x/image/vector"
 
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // Palette is the set of colours one look of the game is drawn with.
@@ -109,8 +109,8 @@ func rasterise(tr *Track, look worldLook, ppm float64, seed uint64) *world {
 	// texture tone.
 	draw.Draw(img, img.Bounds(), image.NewUniform(look.pal.Terrain), image.Point{}, draw.Src)
 	if look.noise > 0 {
-		n1 := newValueNoise(patch.DeriveSeed(seed, patch.StreamKey("terrain"), 1), 9)
-		n2 := newValueNoise(patch.DeriveSeed(seed, patch.StreamKey("terrain"), 2), 2.5)
+		n1 := newValueNoise(seeds.DeriveSeed(seed, seeds.StreamKey("terrain"), 1), 9)
+		n2 := newValueNoise(seeds.DeriveSeed(seed, seeds.StreamKey("terrain"), 2), 2.5)
 		a, b := look.pal.Terrain, look.pal.Texture
 		for y := 0; y < h; y++ {
 			wy := maxY - (float64(y)+0.5)/ppm
@@ -169,7 +169,7 @@ func rasterise(tr *Track, look worldLook, ppm float64, seed uint64) *world {
 			kind, colour int
 		}
 		var shapes []shape
-		rng := patch.NewRand(patch.DeriveSeed(seed, patch.StreamKey("shapes")))
+		rng := seeds.NewRand(seeds.DeriveSeed(seed, seeds.StreamKey("shapes")))
 		clear := tr.Width/2 + look.edgeWidth + 1.5
 		for tries := 0; len(shapes) < look.shapes && tries < look.shapes*20; tries++ {
 			sh := shape{size: 1.2 + 2.6*rng.Float64()}
@@ -299,7 +299,7 @@ type valueNoise struct {
 
 func newValueNoise(seed uint64, cell float64) *valueNoise {
 	n := &valueNoise{cell: cell}
-	rng := patch.NewRand(seed)
+	rng := seeds.NewRand(seed)
 	for i := range n.vals {
 		n.vals[i] = rng.Float64()
 	}

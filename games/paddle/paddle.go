@@ -8,7 +8,7 @@ import (
 	"math/rand/v2"
 
 	"tilebench/games"
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // Name is the registered name of the paddle game.
@@ -215,7 +215,7 @@ func NewConfig(cfg Config, variation string) (*Game, error) {
 	case cfg.MissLimit < 1 || cfg.MaxSteps < 1:
 		return nil, fmt.Errorf("paddle: miss limit %d and step limit %d must be positive", cfg.MissLimit, cfg.MaxSteps)
 	}
-	g := &Game{cfg: cfg, rng: patch.NewRand(0)}
+	g := &Game{cfg: cfg, rng: seeds.NewRand(0)}
 	act := games.ActionSpace{Kind: games.Discrete, Names: []string{"left", "stay", "right"}}
 	if cfg.Analog {
 		act = games.ActionSpace{Kind: games.Continuous, Names: []string{"velocity"}, Low: []float64{-1}, High: []float64{1}}
@@ -251,7 +251,7 @@ func (g *Game) Events() []Event { return g.events[:g.numEvents] }
 // Reset starts an episode: paddle centred, obstacle (if any) at a seeded
 // place, and the first serve drawn from the seed's "serve" stream.
 func (g *Game) Reset(seed uint64) {
-	g.rng = patch.NewRand(patch.DeriveSeed(seed, patch.StreamKey("serve")))
+	g.rng = seeds.NewRand(seeds.DeriveSeed(seed, seeds.StreamKey("serve")))
 	g.paddleX = Size / 2
 	g.obsX = Left + (Right-Left-obstacleW)*g.rng.Float64()
 	g.obsV = obstacleV

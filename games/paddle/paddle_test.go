@@ -8,7 +8,7 @@ import (
 
 	"tilebench/games"
 	"tilebench/games/internal/gametest"
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 func newGame(t testing.TB, variation string) *Game {
@@ -36,7 +36,7 @@ func imageFold(x, lo, hi float64) float64 {
 // the straight line folded by the method of images.
 func TestReflectionManyShots(t *testing.T) {
 	g := newGame(t, "")
-	rng := patch.NewRand(7)
+	rng := seeds.NewRand(7)
 	r := g.cfg.BallRadius
 	bounces := 0
 	for shot := 0; shot < 2000; shot++ {
@@ -190,7 +190,7 @@ func TestExpertReturnsBalls(t *testing.T) {
 // paddle line, bounces included.
 func TestInterceptMatchesSimulation(t *testing.T) {
 	g := newGame(t, "")
-	rng := patch.NewRand(11)
+	rng := seeds.NewRand(11)
 	r := g.cfg.BallRadius
 	for shot := 0; shot < 500; shot++ {
 		a := 2 * math.Pi * rng.Float64()
@@ -316,7 +316,7 @@ func TestStepRenderAllocs(t *testing.T) {
 // never ends a step inside the bar.
 func TestObstacleBounces(t *testing.T) {
 	g := newGame(t, "drifter")
-	rng := patch.NewRand(23)
+	rng := seeds.NewRand(23)
 	r := g.cfg.BallRadius
 	hits := 0
 	for shot := 0; shot < 300; shot++ {

@@ -18,7 +18,7 @@ import (
 
 	"tilebench/games"
 	"tilebench/internal/atomicfile"
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // Update is the -update test flag: rewrite the golden files instead of
@@ -163,7 +163,7 @@ func Trace(t testing.TB, game, variation string, seed uint64, steps int) (hashes
 	g.Reset(seed)
 	img := image.NewRGBA(image.Rect(0, 0, sp.Width, sp.Height))
 	a := make([]float64, sp.Action.Dim())
-	rng := patch.NewRand(42)
+	rng := seeds.NewRand(42)
 	for k := 0; k < steps; k++ {
 		RandomAction(sp.Action, a, rng)
 		st, err := g.Step(a)
