@@ -25,11 +25,6 @@ func rgbaCellsSIMD(dst []float32, p []byte, cells, pw, D int) int {
 	return 4 * groups
 }
 
-// rgbaFrameAVX2 is in fastrgba_amd64.s.
-//
-//go:noescape
-func rgbaFrameAVX2(dst *float32, src *byte, rows, cells, groups, srcStride, srcCell, dstCell, ph, rowBytes, gridRowBytes int)
-
 // rgbaFrame8AVX2 is in fastrgba_amd64.s.
 //
 //go:noescape
@@ -37,11 +32,11 @@ func rgbaFrame8AVX2(dst *float32, src *byte, rows, cells, groups, srcStride, src
 
 // rgbaFrameSIMD converts, in one call, the whole cells (the first cells
 // of every grid row) of the first rows frame rows, for a grid whose
-// strides equal its patch size and whose patch width is a multiple of 4.
+// strides equal its patch size and whose patch width is a multiple of 8.
 // It reports whether it ran.
 func rgbaFrameSIMD(g *Grid, src *pixSource, data []float32, rows, cells int) bool {
 	pw, ph, D := g.PatchW, g.PatchH, g.D()
-	if !haveSIMD || pw%4 != 0 || g.StrideX != pw || g.StrideY != ph || rows <= 0 || cells <= 0 {
+	if !haveSIMD || pw%8 != 0 || g.StrideX != pw || g.StrideY != ph || rows <= 0 || cells <= 0 {
 		return false
 	}
 	// Bounds, as the assembly does not check: the last value written and
@@ -51,10 +46,6 @@ func rgbaFrameSIMD(g *Grid, src *pixSource, data []float32, rows, cells int) boo
 	if last > len(data) || read > len(src.pix) {
 		return false
 	}
-	if pw%8 == 0 {
-		rgbaFrame8AVX2(&data[0], &src.pix[0], rows, cells, pw/8, src.stride, 4*pw, 4*D, ph, 4*3*pw, 4*g.Cols*D)
-	} else {
-		rgbaFrameAVX2(&data[0], &src.pix[0], rows, cells, pw/4, src.stride, 4*pw, 4*D, ph, 4*3*pw, 4*g.Cols*D)
-	}
+	rgbaFrame8AVX2(&data[0], &src.pix[0], rows, cells, pw/8, src.stride, 4*pw, 4*D, ph, 4*3*pw, 4*g.Cols*D)
 	return true
 }

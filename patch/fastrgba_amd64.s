@@ -78,79 +78,6 @@ done:
 	VZEROUPPER
 	RET
 
-// func rgbaFrameAVX2(dst *float32, src *byte, rows, cells, groups, srcStride, srcCell, dstCell, ph, rowBytes, gridRowBytes int)
-//
-// rgbaCellsAVX2 for rows consecutive frame rows of a grid whose strides
-// equal its patch size: frame row y starts at src + y·srcStride and goes
-// to dst + (y/ph)·gridRowBytes + (y%ph)·rowBytes, one call for the whole
-// frame.
-TEXT ·rgbaFrameAVX2(SB), NOSPLIT, $0-88
-	MOVQ dst+0(FP), DI
-	MOVQ src+8(FP), SI
-	MOVQ rows+16(FP), BX
-	VMOVDQU shufRGB<>(SB), X6
-	VBROADCASTSS r255<>(SB), Y7
-	VBROADCASTSS f255<>(SB), Y8
-	XORQ R13, R13
-
-frow:
-	TESTQ BX, BX
-	JZ    fdone
-	MOVQ  R13, AX
-	IMULQ rowBytes+72(FP), AX
-	ADDQ  DI, AX
-	MOVQ  SI, R8
-	MOVQ  cells+24(FP), CX
-
-fcell:
-	TESTQ CX, CX
-	JZ    fnextrow
-	MOVQ  R8, R11
-	MOVQ  AX, R12
-	MOVQ  groups+32(FP), DX
-
-fgroup:
-	VMOVDQU      (R11), X0
-	VPSHUFB      X6, X0, X0
-	VPMOVZXBD    X0, Y1
-	VPSRLDQ      $8, X0, X2
-	VPMOVZXBD    X2, X2
-	VCVTDQ2PS    Y1, Y1
-	VCVTDQ2PS    X2, X2
-	VMULPS       Y7, Y1, Y3
-	VMULPS       X7, X2, X4
-	VFNMADD231PS Y8, Y3, Y1
-	VFNMADD231PS X8, X4, X2
-	VFMADD231PS  Y7, Y1, Y3
-	VFMADD231PS  X7, X2, X4
-	VMOVUPS      Y3, (R12)
-	VMOVUPS      X4, 32(R12)
-	ADDQ         $16, R11
-	ADDQ         $48, R12
-	DECQ         DX
-	JNZ          fgroup
-
-	ADDQ srcCell+48(FP), R8
-	ADDQ dstCell+56(FP), AX
-	DECQ CX
-	JMP  fcell
-
-fnextrow:
-	ADDQ srcStride+40(FP), SI
-	INCQ R13
-	CMPQ R13, ph+64(FP)
-	JLT  fsame
-	XORQ R13, R13
-	ADDQ gridRowBytes+80(FP), DI
-
-fsame:
-	DECQ BX
-	JMP  frow
-
-fdone:
-	VZEROUPPER
-	RET
-
 // Dword order that packs the 12 RGB bytes of each 128-bit lane together.
 DATA packLanes<>+0(SB)/4, $0
 DATA packLanes<>+4(SB)/4, $1
@@ -164,8 +91,11 @@ GLOBL packLanes<>(SB), RODATA|NOPTR, $32
 
 // func rgbaFrame8AVX2(dst *float32, src *byte, rows, cells, groups, srcStride, srcCell, dstCell, ph, rowBytes, gridRowBytes int)
 //
-// rgbaFrameAVX2 taking 8 pixels (32 bytes → 24 values) a step; groups
-// counts 8-pixel groups.
+// rgbaCellsAVX2 for rows consecutive frame rows of a grid whose strides
+// equal its patch size, taking 8 pixels (32 bytes → 24 values) a step:
+// frame row y starts at src + y·srcStride and goes to
+// dst + (y/ph)·gridRowBytes + (y%ph)·rowBytes; groups counts 8-pixel
+// groups of a cell. One call converts the whole frame.
 TEXT ·rgbaFrame8AVX2(SB), NOSPLIT, $0-88
 	MOVQ dst+0(FP), DI
 	MOVQ src+8(FP), SI

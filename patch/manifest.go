@@ -266,11 +266,18 @@ func (m *Manifest) Record(t int) *FrameRecord {
 // Unscramble inverts the scramble, rotations and flips of frame t (see
 // FrameRecord.Unscramble).
 func (m *Manifest) Unscramble(frame int, src, dst *TokenSet) error {
-	r := m.Record(frame)
-	if r == nil {
-		return fmt.Errorf("unscramble: manifest has no frame %d", frame)
+	r, err := m.recordOf(frame)
+	if err != nil {
+		return err
 	}
 	return r.Unscramble(m.g, src, dst)
+}
+
+func (m *Manifest) recordOf(frame int) (*FrameRecord, error) {
+	if r := m.Record(frame); r != nil {
+		return r, nil
+	}
+	return nil, fmt.Errorf("unscramble: manifest has no frame %d", frame)
 }
 
 // Unscramble puts the tokens of src (the output of the pipeline step that
@@ -363,9 +370,9 @@ func (r *FrameRecord) unscramble(g *Grid, src, dst *TokenSet, at func(k int) int
 // UnscramblePicture inverts the scramble of frame t from its picture (see
 // FrameRecord.UnscramblePicture).
 func (m *Manifest) UnscramblePicture(frame int, cells, dst *TokenSet) error {
-	r := m.Record(frame)
-	if r == nil {
-		return fmt.Errorf("unscramble: manifest has no frame %d", frame)
+	r, err := m.recordOf(frame)
+	if err != nil {
+		return err
 	}
 	return r.UnscramblePicture(m.g, cells, dst)
 }
