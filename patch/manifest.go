@@ -45,11 +45,17 @@ func gridJSON(g *Grid) GridJSON {
 // each frame's scramble (Unscramble) and rebuild the pipeline
 // (NewPipeline) to replay it.
 type Manifest struct {
-	Format int           `json:"format"`
-	Grid   GridJSON      `json:"grid"`
-	Spec   Spec          `json:"spec"`
-	Line   string        `json:"spec_line"`
-	Seed   uint64        `json:"seed"`
+	// Format is ManifestFormat (1).
+	Format int `json:"format"`
+	// Grid is the geometry the frames were cut on.
+	Grid GridJSON `json:"grid"`
+	// Spec is the pipeline's spec; Line is Spec.String(), for people (a
+	// reader ignores it).
+	Spec Spec   `json:"spec"`
+	Line string `json:"spec_line"`
+	// Seed is the seed given to Pipeline.Reset for the sequence.
+	Seed uint64 `json:"seed"`
+	// Frames holds one record per frame, in increasing Frame order.
 	Frames []FrameRecord `json:"frames"`
 
 	g *Grid
