@@ -97,9 +97,12 @@ GLOBL packLanes<>(SB), RODATA|NOPTR, $32
 // dst + (y/ph)·gridRowBytes + (y%ph)·rowBytes; groups counts 8-pixel
 // groups of a cell. One call converts the whole frame.
 TEXT ·rgbaFrame8AVX2(SB), NOSPLIT, $0-88
+	// The caller guarantees rows, cells and groups ≥ 1.
 	MOVQ dst+0(FP), DI
 	MOVQ src+8(FP), SI
 	MOVQ rows+16(FP), BX
+	MOVQ srcCell+48(FP), R9
+	MOVQ dstCell+56(FP), R10
 	VBROADCASTI128 shufRGB<>(SB), Y6
 	VMOVDQU packLanes<>(SB), Y9
 	VBROADCASTSS r255<>(SB), Y7
@@ -107,8 +110,6 @@ TEXT ·rgbaFrame8AVX2(SB), NOSPLIT, $0-88
 	XORQ R13, R13
 
 erow:
-	TESTQ BX, BX
-	JZ    edone
 	MOVQ  R13, AX
 	IMULQ rowBytes+72(FP), AX
 	ADDQ  DI, AX
@@ -116,11 +117,9 @@ erow:
 	MOVQ  cells+24(FP), CX
 
 ecell:
-	TESTQ CX, CX
-	JZ    enextrow
-	MOVQ  R8, R11
-	MOVQ  AX, R12
-	MOVQ  groups+32(FP), DX
+	MOVQ R8, R11
+	MOVQ AX, R12
+	MOVQ groups+32(FP), DX
 
 egroup:
 	VMOVDQU      (R11), Y0
@@ -151,12 +150,11 @@ egroup:
 	DECQ         DX
 	JNZ          egroup
 
-	ADDQ srcCell+48(FP), R8
-	ADDQ dstCell+56(FP), AX
+	ADDQ R9, R8
+	ADDQ R10, AX
 	DECQ CX
-	JMP  ecell
+	JNZ  ecell
 
-enextrow:
 	ADDQ srcStride+40(FP), SI
 	INCQ R13
 	CMPQ R13, ph+64(FP)
@@ -166,8 +164,7 @@ enextrow:
 
 esame:
 	DECQ BX
-	JMP  erow
+	JNZ  erow
 
-edone:
 	VZEROUPPER
 	RET
