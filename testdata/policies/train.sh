@@ -20,6 +20,7 @@ if [ "${1:-}" = table ]; then
   echo "| policy | iterations | training time | held-out IQM | held-out mean | expert IQM | expert mean | IQM / expert |"
   echo "|---|---|---|---|---|---|---|---|"
   for f in "$out"/*.json; do
+    [ -s "$f" ] || continue
     /usr/bin/python3 - "$f" <<'PY'
 import json, os, sys
 d = json.load(open(sys.argv[1]))
@@ -37,7 +38,7 @@ go build -o "$bin" ./cmd/tilebench
 
 # Hyper-parameters shared by every reference policy (see docs/training.md).
 common=(--method clone --seed 1 --workers 2 --budget 5m --heldout 50 --patience -1 --epochs 4 --batch 32 --episodes-per-round 4)
-drive=(--iters 8)
+drive=(--iters 15)
 paddle=(--iters 4)
 
 games=("$@")
