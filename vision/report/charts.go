@@ -135,93 +135,299 @@ func finite(v ...float64) bool {
 	return true
 }
 
-// curvesSVG draws a severity chart: per series a band from Lo to Hi, the
-// line through Y and the measured points.
-func curvesSVG(c Curves) (template.HTML, []legendItem, error) {
-	var leg []legendItem
-	var breaks plotter.XYs
-	p := newPlot(c.XLabel, c.YLabel)
+// curveSeries is one series of a severity chart, sorted by severity,
+// with the points that have a finite interval.
+type curveSeries struct {
+	name  string
+	col   color.RGBA
+	line  plotter.XYs
+	bands []CurvePoint
+}
+
+// Limits of a severity chart's y-axis (see curveRange).
+const (
+	// retentionFloor is the least top of a retention chart: full
+	// retention (1) and a little above always show.
+	retentionFloor = 1.25
+	// retentionCap is the most a retention chart's top is stretched to
+	// fit its point estimates; beyond it lines are clipped and marked.
+	retentionCap = 4.0
+	// bandStretch is how far (as a multiple of the range the point
+	// estimates need) interval bands may stretch the axis before they
+	// are clipped and marked.
+	bandStretch = 1.2
+)
+
+// curveRange picks the y-range of a severity chart from its point
+// estimates, so that a very wide interval (a clean score near 0 lets a
+// retention interval reach 100 and more) cannot squash the lines flat:
+//
+//   - bottom: 0 when every estimate is at least 0, else the lowest
+//     estimate less a tenth of the span;
+//   - base top: 1.1 × the largest estimate (or threshold); on a retention
+//     chart (one with a Threshold) at least 1.25 and at most 4;
+//   - bands may stretch the top (and bottom) by at most 20% of that
+//     range; interval ends beyond are clipped and marked;
+//   - the ends are rounded out to a quarter of the span's power of ten.
+func curveRange(minY, maxY, minLo, maxHi, threshold float64) (lo, hi float64) {
+	top := maxY
+	if threshold != 0 {
+		top = math.Max(top, threshold)
+	}
+	lo = math.Min(0, minY)
+	if threshold != 0 {
+		lo = math.Min(lo, threshold)
+	}
+	if lo < 0 {
+		lo -= 0.1 * math.Max(top-lo, math.Abs(lo))
+	}
+	if top > 0 {
+		top *= 1.1
+	} else {
+		top += 0.1 * math.Max(top-lo, 1)
+	}
+	if threshold > 0 {
+		top = math.Min(math.Max(top, retentionFloor), math.Max(retentionCap, retentionFloor))
+	}
+	if !(top > lo) {
+		top = lo + 1
+	}
+	span := top - lo
+	hi = top
+	if maxHi > hi {
+		hi = math.Min(maxHi, top+(bandStretch-1)*span)
+	}
+	if minLo < lo {
+		lo = math.Max(minLo, lo-(bandStretch-1)*span)
+	}
+	// Round the ends out to a quarter of the span's decade so the top
+	// tick sits on the edge (1.84 becomes 2).
+	step := math.Pow(10, math.Floor(math.Log10(hi-lo))) / 4
+	if step > 0 && finite(step) {
+		hi = math.Ceil(hi/step-1e-9) * step
+		if lo < 0 {
+			lo = math.Floor(lo/step+1e-9) * step
+		}
+	}
+	return lo, hi
+}
+
+// curvesSVG draws a severity chart: per series a light band from Lo to
+// Hi, the line through Y and the measured points on top. The y-range
+// comes from curveRange; interval ends (and, rarely, points) outside it
+// are clipped and marked with a small arrow at the edge, and note says
+// so in a sentence for the caption ("" when nothing was clipped).
+func curvesSVG(c Curves) (svg template.HTML, leg []legendItem, note string, err error) {
+	var series []curveSeries
 	xmin, xmax := math.Inf(1), math.Inf(-1)
-	any := false
+	minY, maxY := math.Inf(1), math.Inf(-1)
+	minLo, maxHi := math.Inf(1), math.Inf(-1)
 	for i, s := range c.Series {
 		pts := slices.Clone(s.Points)
 		slices.SortStableFunc(pts, func(a, b CurvePoint) int { return cmp.Compare(a.X, b.X) })
-		var line plotter.XYs
-		var upper, lower plotter.XYs
+		cs := curveSeries{name: s.Name, col: seriesColor(i)}
 		for _, q := range pts {
 			if !finite(q.X, q.Y) {
 				continue
 			}
-			line = append(line, plotter.XY{X: q.X, Y: q.Y})
+			cs.line = append(cs.line, plotter.XY{X: q.X, Y: q.Y})
 			xmin, xmax = math.Min(xmin, q.X), math.Max(xmax, q.X)
-			if finite(q.Lo, q.Hi) {
-				upper = append(upper, plotter.XY{X: q.X, Y: q.Hi})
-				lower = append(lower, plotter.XY{X: q.X, Y: q.Lo})
+			minY, maxY = math.Min(minY, q.Y), math.Max(maxY, q.Y)
+			// An unbounded end (+Inf when a resampled clean score was not
+			// positive) is clipped like any other end beyond the axis.
+			if !math.IsNaN(q.Lo) && !math.IsNaN(q.Hi) && !math.IsInf(q.Lo, 1) && !math.IsInf(q.Hi, -1) {
+				cs.bands = append(cs.bands, q)
+				minLo, maxHi = math.Min(minLo, q.Lo), math.Max(maxHi, q.Hi)
 			}
 		}
-		if len(line) == 0 {
+		if len(cs.line) > 0 {
+			series = append(series, cs)
+		}
+	}
+	if len(series) == 0 {
+		return "", nil, "", fmt.Errorf("chart %q: no finite points", c.Title)
+	}
+	th := c.Threshold
+	if !finite(th) {
+		th = 0
+	}
+	ylo, yhi := curveRange(minY, maxY, minLo, maxHi, th)
+	p := newPlot(c.XLabel, c.YLabel)
+
+	// Bands first, all of them, so no band covers another series' line;
+	// the more series, the lighter each band, so overlaps stay pale.
+	bandAlpha := uint8(math.Round(0x30 / math.Sqrt(float64(len(series)))))
+	var ups, downs []clipMark
+	for _, cs := range series {
+		if len(cs.bands) < 2 {
 			continue
 		}
-		any = true
-		col := seriesColor(i)
-		if len(upper) >= 2 {
-			ring := slices.Clone(upper)
-			for j := len(lower) - 1; j >= 0; j-- {
-				ring = append(ring, lower[j])
+		var upper, lower plotter.XYs
+		for _, q := range cs.bands {
+			hi, lo := q.Hi, q.Lo
+			if hi > yhi {
+				ups = append(ups, clipMark{q.X, cs.col, q.Hi, cs.name})
+				hi = yhi
 			}
-			band, err := plotter.NewPolygon(ring)
-			if err != nil {
-				return "", nil, fmt.Errorf("chart %q: %w", c.Title, err)
+			if lo < ylo {
+				downs = append(downs, clipMark{q.X, cs.col, q.Lo, cs.name})
+				lo = ylo
 			}
-			band.Color = withAlpha(col, 0x38)
-			band.LineStyle.Width = 0
-			p.Add(band)
+			upper = append(upper, plotter.XY{X: q.X, Y: math.Max(hi, ylo)})
+			lower = append(lower, plotter.XY{X: q.X, Y: math.Min(lo, yhi)})
 		}
-		l, sc, err := plotter.NewLinePoints(line)
+		ring := slices.Clone(upper)
+		for j := len(lower) - 1; j >= 0; j-- {
+			ring = append(ring, lower[j])
+		}
+		band, err := plotter.NewPolygon(ring)
 		if err != nil {
-			return "", nil, fmt.Errorf("chart %q: %w", c.Title, err)
+			return "", nil, "", fmt.Errorf("chart %q: %w", c.Title, err)
 		}
-		l.Color, l.Width = col, vg.Points(1.8)
-		sc.Color, sc.Shape, sc.Radius = col, draw.CircleGlyph{}, vg.Points(2.6)
+		band.Color = withAlpha(cs.col, bandAlpha)
+		band.LineStyle.Width = 0
+		p.Add(band)
+	}
+	var breaks plotter.XYs
+	if th != 0 {
+		x0, x1 := xmin, xmax
+		if x0 == x1 {
+			x0, x1 = x0-0.5, x1+0.5
+		}
+		tl, err := dashedLine(plotter.XYs{{X: x0, Y: th}, {X: x1, Y: th}}, alertColor)
+		if err != nil {
+			return "", nil, "", err
+		}
+		p.Add(tl)
+	}
+	for _, cs := range series {
+		l, sc, err := plotter.NewLinePoints(cs.line)
+		if err != nil {
+			return "", nil, "", fmt.Errorf("chart %q: %w", c.Title, err)
+		}
+		l.Color, l.Width = cs.col, vg.Points(2)
+		sc.Color, sc.Shape, sc.Radius = cs.col, draw.CircleGlyph{}, vg.Points(2.8)
 		p.Add(l, sc)
-		leg = append(leg, legendItem{Name: s.Name, Kind: "line", Color: cssColor(col)})
-		if c.Threshold != 0 {
+		leg = append(leg, legendItem{Name: cs.name, Kind: "line", Color: cssColor(cs.col)})
+		for _, q := range cs.line {
+			if q.Y > yhi {
+				ups = append(ups, clipMark{q.X, cs.col, q.Y, cs.name})
+			} else if q.Y < ylo {
+				downs = append(downs, clipMark{q.X, cs.col, q.Y, cs.name})
+			}
+		}
+		if th != 0 {
 			// The first point below the threshold: the series' breaking
 			// point under the rule of stats.BreakingPoint.
-			for _, q := range line {
-				if q.Y < c.Threshold {
+			for _, q := range cs.line {
+				if q.Y < th {
 					breaks = append(breaks, q)
 					break
 				}
 			}
 		}
 	}
-	if !any {
-		return "", nil, fmt.Errorf("chart %q: no finite points", c.Title)
-	}
-	if c.Threshold != 0 && finite(c.Threshold) {
-		if xmin == xmax {
-			xmin, xmax = xmin-0.5, xmax+0.5
+	// Arrows just inside the edge where something was clipped.
+	inset := 0.035 * (yhi - ylo)
+	for side, m := range [][]clipMark{ups, downs} {
+		if len(m) == 0 {
+			continue
 		}
-		th, err := dashedLine(plotter.XYs{{X: xmin, Y: c.Threshold}, {X: xmax, Y: c.Threshold}}, alertColor)
+		up := side == 0
+		xys := make(plotter.XYs, len(m))
+		for k, cm := range m {
+			xys[k] = plotter.XY{X: cm.x, Y: yhi - inset}
+			if !up {
+				xys[k].Y = ylo + inset
+			}
+		}
+		sc, err := plotter.NewScatter(xys)
 		if err != nil {
-			return "", nil, err
+			return "", nil, "", err
 		}
-		p.Add(th)
-		leg = append(leg, legendItem{Name: "threshold " + num(c.Threshold), Kind: "dashed", Color: cssColor(alertColor)})
+		cols := m
+		sc.GlyphStyleFunc = func(k int) draw.GlyphStyle {
+			g := draw.GlyphStyle{Color: cols[k].col, Radius: vg.Points(3.6), Shape: draw.PyramidGlyph{}}
+			if !up {
+				g.Shape = downPyramid{}
+			}
+			return g
+		}
+		p.Add(sc)
+	}
+	if th != 0 {
+		leg = append(leg, legendItem{Name: "threshold " + num(th), Kind: "dashed", Color: cssColor(alertColor)})
 		if len(breaks) > 0 {
 			br, err := plotter.NewScatter(breaks)
 			if err != nil {
-				return "", nil, err
+				return "", nil, "", err
 			}
 			br.Color, br.Shape, br.Radius = alertColor, draw.RingGlyph{}, vg.Points(6)
 			p.Add(br)
 			leg = append(leg, legendItem{Name: "first below threshold", Kind: "ring", Color: cssColor(alertColor)})
 		}
 	}
+	if len(ups)+len(downs) > 0 {
+		leg = append(leg, legendItem{Name: "clipped at the edge", Kind: "clip", Color: cssColor(mutedColor)})
+	}
+	p.Y.Min, p.Y.Max = ylo, yhi
+	p.Y.Tick.Marker = stepTicks{}
 	p.X.Max += (p.X.Max - p.X.Min) * 0.03
-	svg, err := renderSVG(p, c.Title)
-	return svg, leg, err
+	svg, err = renderSVG(p, c.Title)
+	return svg, leg, clipNote(ups, downs, yhi, ylo), err
+}
+
+// clipMark is one value beyond the chart's y-range.
+type clipMark struct {
+	x   float64
+	col color.RGBA
+	v   float64 // the value that was clipped
+	who string  // its series
+}
+
+// clipNote says in one sentence what was clipped and how far it reached.
+func clipNote(ups, downs []clipMark, hi, lo float64) string {
+	var parts []string
+	if len(ups) > 0 {
+		top := math.Inf(-1)
+		for _, m := range ups {
+			top = math.Max(top, m.v)
+		}
+		parts = append(parts, fmt.Sprintf("%d interval end%s above %s clipped (▲; the highest reaches %s)", len(ups), plural(len(ups)), num(hi), num(top)))
+	}
+	if len(downs) > 0 {
+		bot := math.Inf(1)
+		for _, m := range downs {
+			bot = math.Min(bot, m.v)
+		}
+		parts = append(parts, fmt.Sprintf("%d below %s clipped (▼; the lowest reaches %s)", len(downs), num(lo), num(bot)))
+	}
+	if len(parts) == 0 {
+		return ""
+	}
+	return "The y-axis follows the point estimates: " + strings.Join(parts, "; ") + ". The table of every cell (hover a retention) and cells.csv give the full intervals."
+}
+
+func plural(n int) string {
+	if n == 1 {
+		return ""
+	}
+	return "s"
+}
+
+// downPyramid is a filled triangle pointing down (gonum/plot's
+// PyramidGlyph points up).
+type downPyramid struct{}
+
+// DrawGlyph implements draw.GlyphDrawer.
+func (downPyramid) DrawGlyph(c *draw.Canvas, sty draw.GlyphStyle, pt vg.Point) {
+	r := sty.Radius
+	var path vg.Path
+	path.Move(vg.Point{X: pt.X, Y: pt.Y - r})
+	path.Line(vg.Point{X: pt.X - r*0.866, Y: pt.Y + r*0.5})
+	path.Line(vg.Point{X: pt.X + r*0.866, Y: pt.Y + r*0.5})
+	path.Close()
+	c.Fill(path)
 }
 
 // dashedLine is a thin dashed line through xys (thresholds, budgets).
@@ -400,6 +606,39 @@ func (plainTicks) Ticks(min, max float64) []plot.Tick {
 	for i := range ts {
 		if ts[i].Label != "" {
 			ts[i].Label = num(ts[i].Value)
+		}
+	}
+	return ts
+}
+
+// stepTicks label a linear axis at a round step (1, 2, 2.5 or 5 times a
+// power of ten) giving at most six intervals, so a range such as 0 to 1.75
+// reads 0, 0.5, 1, 1.5 rather than 0, 0.8, 1.6.
+type stepTicks struct{}
+
+// Ticks implements plot.Ticker.
+func (stepTicks) Ticks(min, max float64) []plot.Tick {
+	span := max - min
+	if !(span > 0) || !finite(span) {
+		return plainTicks{}.Ticks(min, max)
+	}
+	e := math.Pow(10, math.Floor(math.Log10(span)))
+	step := 10 * e
+	for _, m := range []float64{0.1, 0.2, 0.25, 0.5, 1, 2, 2.5, 5, 10} {
+		if span/(m*e) <= 6 {
+			step = m * e
+			break
+		}
+	}
+	var ts []plot.Tick
+	for k := math.Ceil(min/step - 1e-9); k*step <= max+1e-9*span; k++ {
+		v := k * step
+		if math.Abs(v) < 1e-12*span {
+			v = 0
+		}
+		ts = append(ts, plot.Tick{Value: v, Label: num(v)})
+		if h := v + step/2; h <= max {
+			ts = append(ts, plot.Tick{Value: h})
 		}
 	}
 	return ts

@@ -33,10 +33,11 @@ type Data struct {
 	// when there is none.
 	Recommendation *Recommendation
 	// Breaks are the breaking points of the stress axes, shown in the
-	// headline.
+	// headline as one table, the earliest breaks first.
 	Breaks []Break
 	// Findings are further headline facts (label and value), e.g.
-	// {"clean IQM", "412 [398, 425]"}. Optional.
+	// {"clean IQM", "412 [398, 425]"}. Optional. Up to three get a card
+	// each; with more, the first two do and the rest share one card.
 	Findings []KV
 	// Costs is the cost table, one row per candidate (patch size).
 	Costs []Cost
@@ -95,6 +96,11 @@ type Recommendation struct {
 type Break struct {
 	// Axis names the axis, e.g. "random occlusion ratio".
 	Axis string
+	// Context says where on the study the axis was measured, e.g.
+	// "patch 8, scramble full". Optional: when empty and Axis ends in a
+	// parenthesised part ("random occlusion ratio (patch 8)"), that part
+	// is shown as the context.
+	Context string
 	// Break is the result of stats.BreakingPoint.
 	Break stats.Break
 }

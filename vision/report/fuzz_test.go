@@ -3,6 +3,7 @@ package report
 import (
 	"bytes"
 	"encoding/csv"
+	"math"
 	"strings"
 	"testing"
 	"unicode/utf8"
@@ -28,6 +29,8 @@ func FuzzStrings(f *testing.F) {
 		sum := stats.Summary{N: 1, Mean: stats.Estimate{Value: 1}, Median: stats.Estimate{Value: 1}, IQM: stats.Estimate{Value: 1, Lo: 1, Hi: 1}}
 		d := &Data{Title: title, Kind: id, Run: Run{Command: "run " + title, Params: []KV{{id, title}}},
 			Findings: []KV{{id, title}}, Notes: []string{id},
+			Breaks: []Break{{Axis: title, Context: id, Break: stats.Break{Reached: true, Severity: 0.5, Threshold: 0.5, Max: 1}},
+				{Axis: id + " (patch 8)", Break: stats.Break{Severity: math.NaN(), Threshold: 0.5, Max: 1}}},
 			Cells: []Cell{{ID: id, Axis: title, Note: title, Summary: sum}}}
 		page, err := HTML(d)
 		if err != nil {

@@ -74,14 +74,26 @@ func Markdown(d *Data) ([]byte, error) {
 			p("  Rule: %s.\n", md(strings.TrimSuffix(r.Rule, ".")))
 		}
 	}
-	for _, br := range v.Breaks {
-		p("- **Breaking point, %s:** %s\n", md(br.Axis), md(br.Text))
-	}
 	for _, f := range d.Findings {
 		p("- **%s:** %s\n", md(f.Key), md(f.Value))
 	}
 	if d.Recommendation == nil && len(v.Breaks) == 0 && len(d.Findings) == 0 {
 		p("- %d cells measured; see the table below.\n", len(d.Cells))
+	}
+	if len(v.Breaks) > 0 {
+		p("\n### Where it breaks\n\n")
+		p("| axis | context | breaking point |\n|---|---|---|\n")
+		for _, br := range v.Breaks {
+			bp := "**" + md(br.Big) + "**"
+			if !br.Reached {
+				bp = md(br.Big)
+			}
+			if br.Sub != "" {
+				bp += " (" + md(br.Sub) + ")"
+			}
+			p("| %s | %s | %s |\n", md(br.Axis), md(br.Context), bp)
+		}
+		p("\n%s\n", md(v.BreakRule))
 	}
 	p("\n> **Caution.** %s\n\n", md(Caution))
 

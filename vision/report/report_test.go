@@ -44,7 +44,7 @@ func TestWriteDemo(t *testing.T) {
 		}
 	}
 	page, _ := os.ReadFile(filepath.Join(dir, HTMLFile))
-	for _, want := range []string{"<svg ", "data:image/png;base64,", Caution, "Recommended", "Breaking point", "Every cell", "Reproduce this run"} {
+	for _, want := range []string{"<svg ", "data:image/png;base64,", Caution, "Recommended", "Where it breaks", "Breaking point", "Every cell", "Reproduce this run"} {
 		if !bytes.Contains(page, []byte(want)) {
 			t.Errorf("report.html lacks %q", want)
 		}

@@ -2,6 +2,7 @@ package report
 
 import (
 	"bytes"
+	"cmp"
 	"encoding/base64"
 	"errors"
 	"fmt"
@@ -9,11 +10,14 @@ import (
 	"image/color"
 	"image/png"
 	"math"
+	"slices"
 	"strconv"
 	"strings"
 
 	"gonum.org/v1/plot/palette"
 	"gonum.org/v1/plot/palette/moreland"
+
+	"tilebench/vision/stats"
 )
 
 // view is Data turned into display strings; both the HTML and the Markdown
@@ -24,6 +28,9 @@ type view struct {
 	Resamples int
 	Level     float64
 	Breaks    []breakView
+	BreakRule string
+	Facts     []KV
+	MoreFacts []KV
 	Costs     []costView
 	Pareto    *chartView
 	Heatmaps  []heatView
@@ -37,9 +44,104 @@ type view struct {
 
 type navItem struct{ ID, Name string }
 
+// breakView is one row of the "Where it breaks" table.
 type breakView struct {
-	Axis, Text, Big, Sub string
-	Reached              bool
+	Axis, Context string
+	// Big is the breaking severity or "not reached"; Sub qualifies it
+	// ("up to 1", or the threshold when it differs from the common one);
+	// Text says it all in one phrase (summary.md, tooltips).
+	Big, Sub, Text string
+	Reached        bool
+}
+
+// maxFactCards is the most headline facts shown as cards of their own.
+const maxFactCards = 3
+
+// splitContext takes "axis (context)" apart at the parenthesised part
+// that closes the string; without one the context is empty.
+func splitContext(s string) (axis, context string) {
+	if !strings.HasSuffix(s, ")") {
+		return s, ""
+	}
+	depth := 0
+	for i := len(s) - 1; i >= 0; i-- {
+		switch s[i] {
+		case ')':
+			depth++
+		case '(':
+			depth--
+			if depth == 0 {
+				a := strings.TrimSpace(s[:i])
+				if a == "" {
+					return s, ""
+				}
+				return a, s[i+1 : len(s)-1]
+			}
+		}
+	}
+	return s, ""
+}
+
+// buildBreaks fills the breaking-point table: the earliest breaks first
+// (ascending severity), then the axes that held, in the order given.
+func (v *view) buildBreaks(bs []Break) {
+	sorted := slices.Clone(bs)
+	slices.SortStableFunc(sorted, func(a, b Break) int {
+		switch {
+		case a.Break.Reached && b.Break.Reached:
+			return cmp.Compare(a.Break.Severity, b.Break.Severity)
+		case a.Break.Reached:
+			return -1
+		case b.Break.Reached:
+			return 1
+		}
+		return 0
+	})
+	thOf := func(b Break) float64 {
+		if b.Break.Threshold == 0 {
+			return stats.DefaultBreakThreshold
+		}
+		return b.Break.Threshold
+	}
+	// The common threshold is the most frequent one (the first of equals).
+	common, best := 0.0, 0
+	for _, b := range sorted {
+		n := 0
+		for _, o := range sorted {
+			if thOf(o) == thOf(b) {
+				n++
+			}
+		}
+		if n > best {
+			common, best = thOf(b), n
+		}
+	}
+	if len(sorted) > 0 {
+		v.BreakRule = "Breaking point: the first measured severity whose retention falls below " + num(common) +
+			"; earliest first. Not reached: retention stayed at or above it up to the largest severity measured."
+	}
+	for _, b := range sorted {
+		th := thOf(b)
+		bv := breakView{Reached: b.Break.Reached, Context: b.Context}
+		bv.Axis = b.Axis
+		if bv.Context == "" {
+			bv.Axis, bv.Context = splitContext(b.Axis)
+		}
+		var qual []string
+		if b.Break.Reached {
+			bv.Big = num(b.Break.Severity)
+			bv.Text = fmt.Sprintf("%s (retention below %s)", num(b.Break.Severity), num(th))
+		} else {
+			bv.Big = "not reached"
+			qual = append(qual, "up to "+num(b.Break.Max))
+			bv.Text = fmt.Sprintf("not reached (retention ≥ %s up to %s)", num(th), num(b.Break.Max))
+		}
+		if th != common {
+			qual = append(qual, "threshold "+num(th))
+		}
+		bv.Sub = strings.Join(qual, ", ")
+		v.Breaks = append(v.Breaks, bv)
+	}
 }
 
 type costView struct {
@@ -148,22 +250,12 @@ func buildView(d *Data) (*view, error) {
 		}
 	}
 	v.Glance = d.Recommendation != nil || len(d.Breaks) > 0 || len(d.Findings) > 0
-	for _, b := range d.Breaks {
-		bv := breakView{Axis: b.Axis, Reached: b.Break.Reached, Text: b.Break.String()}
-		th := b.Break.Threshold
-		if th == 0 {
-			th = 0.5
-		}
-		if b.Break.Reached {
-			bv.Big = num(b.Break.Severity)
-			bv.Sub = "first severity with retention below " + num(th)
-			bv.Text = fmt.Sprintf("%s (retention below %s)", num(b.Break.Severity), num(th))
-		} else {
-			bv.Big = "not reached"
-			bv.Sub = fmt.Sprintf("retention ≥ %s up to %s", num(th), num(b.Break.Max))
-			bv.Text = "not reached (" + bv.Sub + ")"
-		}
-		v.Breaks = append(v.Breaks, bv)
+	v.buildBreaks(d.Breaks)
+	v.Facts = d.Findings
+	if len(v.Facts) > maxFactCards {
+		// A wall of cards reads worse than a list: the first few keep
+		// their cards, the rest share one.
+		v.Facts, v.MoreFacts = d.Findings[:maxFactCards-1], d.Findings[maxFactCards-1:]
 	}
 	for _, c := range d.Costs {
 		cv := costView{Name: c.Name, Pick: c.Pick, OverBudget: c.OverBudget,
@@ -238,11 +330,11 @@ func (v *view) buildCharts(d *Data) error {
 			Caption: "On the Pareto front (no other candidate is both cheaper and better): " + strings.Join(names, ", ") + "."}
 	}
 	for i, c := range d.Curves {
-		svg, leg, err := curvesSVG(c)
+		svg, leg, note, err := curvesSVG(c)
 		if err != nil {
 			return fmt.Errorf("report: curves %d: %w", i+1, err)
 		}
-		v.Curves = append(v.Curves, chartView{Title: c.Title, SVG: svg, Legend: legendViews(leg)})
+		v.Curves = append(v.Curves, chartView{Title: c.Title, SVG: svg, Legend: legendViews(leg), Caption: note})
 	}
 	return nil
 }
