@@ -17,17 +17,18 @@ cd "$(dirname "$0")/../.."
 out=testdata/policies
 
 if [ "${1:-}" = table ]; then
-  echo "| policy | iterations | training time | held-out IQM | held-out mean | expert IQM | expert mean | IQM / expert |"
-  echo "|---|---|---|---|---|---|---|---|"
+  echo "| policy | iterations | training time | held-out IQM | held-out mean | expert IQM | expert mean | IQM / expert IQM | mean / expert mean |"
+  echo "|---|---|---|---|---|---|---|---|---|"
   for f in "$out"/*.json; do
     [ -s "$f" ] || continue
     /usr/bin/python3 - "$f" <<'PY'
 import json, os, sys
 d = json.load(open(sys.argv[1]))
 name = os.path.basename(sys.argv[1])[:-5]
-print("| %s | %d (%s) | %.0f s | %.1f | %.1f | %.1f | %.1f | %.0f%% |" % (
+print("| %s | %d (%s) | %.0f s | %.1f | %.1f | %.1f | %.1f | %.0f%% | %.1f%% |" % (
     name, d["iters"], d["stopped"], d["elapsed_s"], d["heldout_iqm"], d["heldout_score"],
-    d["expert_iqm"], d["expert_score"], 100 * d["heldout_iqm"] / d["expert_iqm"]))
+    d["expert_iqm"], d["expert_score"], 100 * d["heldout_iqm"] / d["expert_iqm"],
+    100 * d["heldout_score"] / d["expert_score"]))
 PY
   done
   exit 0
@@ -38,7 +39,7 @@ go build -o "$bin" ./cmd/tilebench
 
 # Hyper-parameters shared by every reference policy (see docs/training.md).
 common=(--method clone --seed 1 --workers 2 --budget 5m --heldout 50 --patience -1 --epochs 4 --batch 32 --episodes-per-round 4)
-drive=(--iters 15)
+drive=(--iters 20)
 paddle=(--iters 4)
 
 games=("$@")
