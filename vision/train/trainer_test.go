@@ -173,3 +173,26 @@ func TestClassWeights(t *testing.T) {
 		}
 	}
 }
+
+// TestSampleLossDoesNotAllocate: the per-sample training path
+// (dequantise, augment, forward, backward) allocates nothing.
+func TestSampleLossDoesNotAllocate(t *testing.T) {
+	c := tiny(Clone, 1)
+	c.Iters = 1
+	tr, err := New(c)
+	if err != nil {
+		t.Fatal(err)
+	}
+	runTo(t, tr, 0)
+	e := tr.envs[0]
+	tr.ds.setSpread()
+	e.sampleLoss(tr.ds, 1, 3, 1, true)
+	allocs := testing.AllocsPerRun(20, func() {
+		if _, err := e.sampleLoss(tr.ds, 1, 3, 1, true); err != nil {
+			t.Fatal(err)
+		}
+	})
+	if allocs != 0 {
+		t.Fatalf("%v allocations per sample", allocs)
+	}
+}
