@@ -271,8 +271,10 @@ func New(cfg Config) (*Trainer, error) {
 	var net nets.Net
 	if cfg.Init != nil {
 		net = cfg.Init.Clone()
-		if net.Grid().N() != grid.N() || net.Grid().D() != grid.D() || net.Config().Family != cfg.Net.Family {
-			return nil, errors.New("starting weights do not fit this game, patch size and family")
+		if net.Grid().N() != grid.N() || net.Grid().D() != grid.D() || net.Config().Family != cfg.Net.Family ||
+			net.Space().Kind != sp.Action.Kind || net.Space().Dim() != sp.Action.Dim() || net.Space().Choices() != sp.Action.Choices() {
+			return nil, fmt.Errorf("starting weights (%s, %s) do not fit game %s at patch %d with family %s",
+				net.Config().Family, net.Grid(), cfg.Game, cfg.Patch, cfg.Net.Family)
 		}
 		cfg.Net = net.Config()
 		cfg.Init = nil

@@ -126,6 +126,22 @@ func TestNewRejectsBadConfig(t *testing.T) {
 
 // TestDatasetLossless: the data set stores bytes, and the tokenizer maps
 // byte b to float32(b)/255, so a stored sample loads back bit for bit.
+// TestInitMustFit: starting weights from another game or patch size are
+// refused with an error naming them.
+func TestInitMustFit(t *testing.T) {
+	g, _ := patch.NewGrid(patch.GridConfig{Width: 84, Height: 84, PatchW: 4})
+	paddleNet, err := nets.New(nets.Config{}, g, games.ActionSpace{Kind: games.Discrete, Names: []string{"l", "s", "r"}}, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := tiny(ESm, 1)
+	c.Init = paddleNet
+	c.Net = nets.Config{}
+	if _, err := New(c); err == nil {
+		t.Fatal("paddle weights accepted for drive")
+	}
+}
+
 func TestDatasetLossless(t *testing.T) {
 	g, _ := patch.NewGrid(patch.GridConfig{Width: 8, Height: 8, PatchW: 4})
 	ds := newDataset(g, 1, 1)
