@@ -96,7 +96,6 @@ func (e *GameEnv) Player(c Cell) (Player, error) {
 	return episodePlayer{ep}, nil
 }
 
-
 // Close closes the policies that hold resources.
 func (e *GameEnv) Close() error {
 	var first error
