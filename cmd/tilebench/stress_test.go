@@ -112,7 +112,7 @@ func TestStressBadInput(t *testing.T) {
 		{stressArgs(out, "--fill", "purple"), 2, "axes.fill"},
 		{[]string{"stress", "--config", cfg, "--out", out}, 2, `line 4: unknown key "axes.scrambel"`},
 		{[]string{"stress", "--game", "drive"}, 2, "--out"},
-		{stressArgs(out, "--game", "pong"), 1, "unknown game"},
+		{stressArgs(out, "--game", "croquet"), 1, "unknown game"},
 		{stressArgs(out, "--policy", filepath.Join(dir, "missing.safetensors")), 1, "missing.safetensors"},
 		{stressArgs(out, "--episodes", "-1"), 2, "episodes"},
 	} {
