@@ -8,6 +8,11 @@ import "golang.org/x/sys/cpu"
 // Tests switch it off to check the portable path.
 var haveSIMD = cpu.X86.HasAVX2 && cpu.X86.HasFMA
 
+// haveAVX512 says whether rgbaFrame8AVX512 may run (with haveSIMD): the
+// CPU and OS support AVX-512 F and VBMI. Tests switch it off to check the
+// AVX2 frame path.
+var haveAVX512 = cpu.X86.HasAVX512F && cpu.X86.HasAVX512VBMI
+
 // rgbaCellsAVX2 is in fastrgba_amd64.s.
 //
 //go:noescape
@@ -30,10 +35,16 @@ func rgbaCellsSIMD(dst []float32, p []byte, cells, pw, D int) int {
 //go:noescape
 func rgbaFrame8AVX2(dst *float32, src *byte, rows, cells, groups, srcStride, srcCell, dstCell, ph, rowBytes, gridRowBytes int)
 
+// rgbaFrame8AVX512 is in fastrgba_amd64.s.
+//
+//go:noescape
+func rgbaFrame8AVX512(dst *float32, src *byte, rows, pairs, srcStride, dstCell, ph, rowBytes, gridRowBytes int)
+
 // rgbaFrameSIMD converts, in one call, the whole cells (the first cells
 // of every grid row) of the first rows frame rows, for a grid whose
 // strides equal its patch size and whose patch width is a multiple of 8.
-// It reports whether it ran.
+// With AVX-512, patch width 8 and an even number of cells it takes two
+// cells a step. It reports whether it ran.
 func rgbaFrameSIMD(g *Grid, src *pixSource, data []float32, rows, cells int) bool {
 	pw, ph, D := g.PatchW, g.PatchH, g.D()
 	if !haveSIMD || pw%8 != 0 || g.StrideX != pw || g.StrideY != ph || rows <= 0 || cells <= 0 {
@@ -45,6 +56,10 @@ func rgbaFrameSIMD(g *Grid, src *pixSource, data []float32, rows, cells int) boo
 	read := (rows-1)*src.stride + 4*pw*cells
 	if last > len(data) || read > len(src.pix) {
 		return false
+	}
+	if haveAVX512 && pw == 8 && cells%2 == 0 {
+		rgbaFrame8AVX512(&data[0], &src.pix[0], rows, cells/2, src.stride, 4*D, ph, 4*3*pw, 4*g.Cols*D)
+		return true
 	}
 	rgbaFrame8AVX2(&data[0], &src.pix[0], rows, cells, pw/8, src.stride, 4*pw, 4*D, ph, 4*3*pw, 4*g.Cols*D)
 	return true

@@ -187,3 +187,99 @@ esame:
 
 	VZEROUPPER
 	RET
+
+// VPERMB indexes for 16 RGBA pixels (64 bytes) → 48 values in three
+// registers: dword k of register m takes byte 4·⌊i/3⌋ + i mod 3 of the
+// pixels, i = 16m + k, into its low byte (the other three bytes are
+// zeroed by the mask 0x1111…).
+DATA permRGB<>+0(SB)/8, $0x0000000100000000
+DATA permRGB<>+8(SB)/8, $0x0000000400000002
+DATA permRGB<>+16(SB)/8, $0x0000000600000005
+DATA permRGB<>+24(SB)/8, $0x0000000900000008
+DATA permRGB<>+32(SB)/8, $0x0000000c0000000a
+DATA permRGB<>+40(SB)/8, $0x0000000e0000000d
+DATA permRGB<>+48(SB)/8, $0x0000001100000010
+DATA permRGB<>+56(SB)/8, $0x0000001400000012
+DATA permRGB<>+64(SB)/8, $0x0000001600000015
+DATA permRGB<>+72(SB)/8, $0x0000001900000018
+DATA permRGB<>+80(SB)/8, $0x0000001c0000001a
+DATA permRGB<>+88(SB)/8, $0x0000001e0000001d
+DATA permRGB<>+96(SB)/8, $0x0000002100000020
+DATA permRGB<>+104(SB)/8, $0x0000002400000022
+DATA permRGB<>+112(SB)/8, $0x0000002600000025
+DATA permRGB<>+120(SB)/8, $0x0000002900000028
+DATA permRGB<>+128(SB)/8, $0x0000002c0000002a
+DATA permRGB<>+136(SB)/8, $0x0000002e0000002d
+DATA permRGB<>+144(SB)/8, $0x0000003100000030
+DATA permRGB<>+152(SB)/8, $0x0000003400000032
+DATA permRGB<>+160(SB)/8, $0x0000003600000035
+DATA permRGB<>+168(SB)/8, $0x0000003900000038
+DATA permRGB<>+176(SB)/8, $0x0000003c0000003a
+DATA permRGB<>+184(SB)/8, $0x0000003e0000003d
+GLOBL permRGB<>(SB), RODATA|NOPTR, $192
+
+// func rgbaFrame8AVX512(dst *float32, src *byte, rows, pairs, srcStride, dstCell, ph, rowBytes, gridRowBytes int)
+//
+// rgbaFrame8AVX2 for patch width 8 with AVX-512 (F and VBMI), taking two
+// neighbouring cells (16 pixels, 64 bytes → 48 values) a step: pairs
+// counts the cell pairs of a frame row, dstCell is the distance of two
+// tokens in bytes. Three zero-masked VPERMB put each value's byte in a
+// dword; the conversion is rgbaFrame8AVX2's fma(b, hi, b·lo).
+TEXT ·rgbaFrame8AVX512(SB), NOSPLIT, $0-72
+	// The caller guarantees rows and pairs ≥ 1.
+	MOVQ    dst+0(FP), DI
+	MOVQ    src+8(FP), SI
+	MOVQ    rows+16(FP), BX
+	MOVQ    dstCell+40(FP), R10
+	MOVQ    $0x1111111111111111, AX
+	KMOVQ   AX, K1
+	VMOVDQU64 permRGB<>+0(SB), Z11
+	VMOVDQU64 permRGB<>+64(SB), Z12
+	VMOVDQU64 permRGB<>+128(SB), Z13
+	VBROADCASTSS r255<>(SB), Z7
+	VBROADCASTSS r255lo<>(SB), Z8
+	XORQ    R13, R13
+
+zrow:
+	MOVQ  R13, AX
+	IMULQ rowBytes+56(FP), AX
+	ADDQ  DI, AX
+	MOVQ  SI, R8
+	MOVQ  pairs+24(FP), CX
+
+zpair:
+	LEAQ        (AX)(R10*1), R14
+	VPERMB.Z    (R8), Z11, K1, Z0
+	VPERMB.Z    (R8), Z12, K1, Z1
+	VPERMB.Z    (R8), Z13, K1, Z2
+	VCVTDQ2PS   Z0, Z0
+	VCVTDQ2PS   Z1, Z1
+	VCVTDQ2PS   Z2, Z2
+	VMULPS      Z8, Z0, Z3
+	VMULPS      Z8, Z1, Z4
+	VMULPS      Z8, Z2, Z5
+	VFMADD231PS Z7, Z0, Z3
+	VFMADD231PS Z7, Z1, Z4
+	VFMADD231PS Z7, Z2, Z5
+	VMOVUPS     Z3, (AX)
+	VMOVUPS     Y4, 64(AX)
+	VEXTRACTF64X4 $1, Z4, (R14)
+	VMOVUPS     Z5, 32(R14)
+	ADDQ        $64, R8
+	LEAQ        (R14)(R10*1), AX
+	DECQ        CX
+	JNZ         zpair
+
+	ADDQ srcStride+32(FP), SI
+	INCQ R13
+	CMPQ R13, ph+48(FP)
+	JLT  zsame
+	XORQ R13, R13
+	ADDQ gridRowBytes+64(FP), DI
+
+zsame:
+	DECQ BX
+	JNZ  zrow
+
+	VZEROUPPER
+	RET
