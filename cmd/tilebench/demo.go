@@ -56,7 +56,7 @@ func demoStudies(refDir string, episodes int) (sizes, stress study.Definition) {
 func runDemo(ctx *runContext, args []string) error {
 	fs := newFlags(ctx, "demo", demoUsage)
 	out := fs.String("out", "tilebench-demo", "output `DIR`")
-	episodes := fs.Int("episodes", 10, "episodes per cell")
+	episodes := fs.Int("episodes", 30, "episodes per cell")
 	workers := fs.Int("workers", 0, "parallel workers (0: one per core)")
 	refDir := fs.String("reference", "testdata/policies", "folder of the reference policies")
 	asJSON := fs.Bool("json", false, "print a machine-readable summary")
