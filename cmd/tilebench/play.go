@@ -18,6 +18,8 @@ import (
 	"tilebench/patch"
 	"tilebench/patch/frameio"
 	"tilebench/vision"
+	"tilebench/vision/nets"
+	"tilebench/vision/study"
 )
 
 const playUsage = `play --game drive|paddle [--policy expert] [options]
@@ -89,7 +91,27 @@ func loadPolicy(name string, g games.Game, grid *patch.Grid, ext *externalOption
 		}
 		return pol, nil
 	}
-	return nil, usagef("play: --policy %q: want expert", name)
+	return nil, usagef("play: --policy %q: want expert, a .safetensors file, exec:... or tcp://...", name)
+}
+
+// isWeightsFile reports whether a --policy value names a weights file.
+func isWeightsFile(name string) bool { return strings.HasSuffix(name, ".safetensors") }
+
+// loadWeights loads a policy from a weights file for game g. Unless the
+// patch size was given on the command line, the file's own grid is used;
+// either way the file must fit the game's frames, grid and action space.
+func loadWeights(path string, g games.Game, grid *patch.Grid, patchGiven bool) (vision.Policy, *patch.Grid, error) {
+	n, err := nets.Load(path)
+	if err != nil {
+		return nil, nil, fmt.Errorf("play: %w", err)
+	}
+	if !patchGiven {
+		grid = n.Grid()
+	}
+	if err := study.CheckGeometry(path, n, g.Spec(), grid); err != nil {
+		return nil, nil, fmt.Errorf("play: %w", err)
+	}
+	return n, grid, nil
 }
 
 // autoPatch picks the patch size for a frame: the first of 8, 7, 6, 12, 4
@@ -106,7 +128,7 @@ func autoPatch(w, h int) int {
 func runPlay(ctx *runContext, args []string) error {
 	fs := newFlags(ctx, "play", playUsage)
 	game := fs.String("game", "", "game to play: "+strings.Join(games.Names(), " or ")+" (e.g. --game drive)")
-	policy := fs.String("policy", "expert", "policy: expert (the game's scripted expert, reads the true state), or an external policy exec:COMMAND... / tcp://HOST:PORT (docs/policy-protocol.md) (e.g. --policy 'exec:python3 examples/policy_stdlib.py')")
+	policy := fs.String("policy", "expert", "policy: expert (the game's scripted expert, reads the true state), a weights FILE.safetensors, or an external policy exec:COMMAND... / tcp://HOST:PORT (docs/policy-protocol.md) (e.g. --policy 'exec:python3 examples/policy_stdlib.py')")
 	episodes := fs.Int("episodes", 5, "number of episodes, 1 to 100000 (e.g. --episodes 20)")
 	seed := fs.Uint64("seed", games.HeldOutSeedStart, "seed of the first episode; the next ones count up (e.g. --seed 1000000)")
 	variation := fs.String("variation", "", "game variation, names joined with + (e.g. --variation glacier+clutter)")
@@ -156,7 +178,12 @@ func runPlay(ctx *runContext, args []string) error {
 	if err != nil {
 		return usagef("play: --patch: %v", err)
 	}
-	pol, err := loadPolicy(*policy, g, grid, ext)
+	var pol vision.Policy
+	if isWeightsFile(*policy) {
+		pol, grid, err = loadWeights(*policy, g, grid, *patchSz != "")
+	} else {
+		pol, err = loadPolicy(*policy, g, grid, ext)
+	}
 	if err != nil {
 		return err
 	}

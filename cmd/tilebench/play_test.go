@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"tilebench/games"
+	"tilebench/internal/reftest"
 )
 
 func TestPlayExpertLines(t *testing.T) {
@@ -146,5 +147,21 @@ func TestPlayBadInput(t *testing.T) {
 	code, out, _ := runCLI(t, "", "play", "-help")
 	if code != 0 || !strings.Contains(out, "--game drive") || !strings.Contains(out, "-variation") || strings.Count(out, "usage:") != 1 {
 		t.Errorf("help: exit %d\n%s", code, out)
+	}
+}
+
+func TestPlayWeightsFile(t *testing.T) {
+	file := filepath.Join(reftest.Root(), "testdata", "policies", "drive-attention-p8.safetensors")
+	code, out, stderr := runCLI(t, "", "play", "--game", "drive", "--policy", file, "--episodes", "1", "--json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	if !strings.Contains(out, `"format": 1`) && !strings.Contains(out, `"format":1`) {
+		t.Fatalf("--json output without a format version: %s", out)
+	}
+	// The same file on the paddle game: one line naming both frame sizes.
+	code, _, stderr = runCLI(t, "", "play", "--game", "paddle", "--policy", file, "--episodes", "1")
+	if code != 1 || strings.Count(stderr, "\n") != 1 || !strings.Contains(stderr, "96x96") || !strings.Contains(stderr, "84x84") {
+		t.Fatalf("exit %d, stderr %q: want one runtime-error line naming 96x96 and 84x84", code, stderr)
 	}
 }
