@@ -92,7 +92,7 @@ func CheckGeometry(path string, n nets.Net, sp games.Spec, grid *patch.Grid) err
 	}
 	if ng.PatchW != grid.PatchW || ng.PatchH != grid.PatchH || ng.Channels != grid.Channels ||
 		ng.StrideX != grid.StrideX || ng.StrideY != grid.StrideY || ng.Edge != grid.Edge {
-		return fmt.Errorf("%s: weights are for patch %dx%d stride %dx%d (%s), the study cell uses patch %dx%d stride %dx%d (%s)",
+		return fmt.Errorf("%s: weights are for patch %dx%d stride %dx%d (%s), this run cuts frames at patch %dx%d stride %dx%d (%s)",
 			path, ng.PatchW, ng.PatchH, ng.StrideX, ng.StrideY, ng.Edge, grid.PatchW, grid.PatchH, grid.StrideX, grid.StrideY, grid.Edge)
 	}
 	a, b := n.Space(), sp.Action
