@@ -5,6 +5,7 @@ import (
 	"testing"
 
 	"tilebench/games"
+	"tilebench/games/internal/gametest"
 )
 
 // BenchmarkDriveStep measures one step plus one render at 96×96 with the
@@ -14,35 +15,12 @@ func BenchmarkDriveStep(b *testing.B) {
 	if err != nil {
 		b.Fatal(err)
 	}
-	g.Reset(games.HeldOut(0))
-	dst := image.NewRGBA(image.Rect(0, 0, DefaultSize, DefaultSize))
-	act := make([]float64, 3)
-	ex := g.Expert()
-	b.ReportAllocs()
-	b.ResetTimer()
-	for i := 0; i < b.N; i++ {
-		ex.Act(act)
-		st, _ := g.Step(act)
-		g.Render(dst)
-		if st.Done {
-			b.StopTimer()
-			g.Reset(games.HeldOut(0))
-			b.StartTimer()
-		}
-	}
+	gametest.BenchStep(b, g)
 }
 
 // BenchmarkDriveFrameCopy is the yardstick: a plain copy of one 96×96
 // RGBA frame's bytes.
-func BenchmarkDriveFrameCopy(b *testing.B) {
-	src := make([]byte, DefaultSize*DefaultSize*4)
-	dst := make([]byte, len(src))
-	b.ReportAllocs()
-	b.SetBytes(int64(len(src)))
-	for i := 0; i < b.N; i++ {
-		copy(dst, src)
-	}
-}
+func BenchmarkDriveFrameCopy(b *testing.B) { gametest.BenchFrameCopy(b, DefaultSize, DefaultSize) }
 
 // BenchmarkDriveRender measures the render alone.
 func BenchmarkDriveRender(b *testing.B) {

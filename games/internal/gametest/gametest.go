@@ -218,3 +218,37 @@ func CheckVariationString(t *testing.T, game string, parse func(string) (string,
 		t.Fatalf("canonical %q reparsed as %q, %v", canon, again, err)
 	}
 }
+
+// BenchStep measures one expert action, one step and one render of g per
+// iteration; episode resets are left out of the timing.
+func BenchStep(b *testing.B, g games.WithExpert) {
+	sp := g.Spec()
+	g.Reset(games.HeldOut(0))
+	dst := image.NewRGBA(image.Rect(0, 0, sp.Width, sp.Height))
+	act := make([]float64, sp.Action.Dim())
+	ex := g.Expert()
+	b.ReportAllocs()
+	b.ResetTimer()
+	for i := 0; i < b.N; i++ {
+		ex.Act(act)
+		st, _ := g.Step(act)
+		g.Render(dst)
+		if st.Done {
+			b.StopTimer()
+			g.Reset(games.HeldOut(0))
+			b.StartTimer()
+		}
+	}
+}
+
+// BenchFrameCopy is the yardstick for BenchStep: a plain copy of one
+// w×h RGBA frame's bytes.
+func BenchFrameCopy(b *testing.B, w, h int) {
+	src := make([]byte, w*h*4)
+	dst := make([]byte, len(src))
+	b.ReportAllocs()
+	b.SetBytes(int64(len(src)))
+	for i := 0; i < b.N; i++ {
+		copy(dst, src)
+	}
+}
