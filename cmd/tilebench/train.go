@@ -64,6 +64,7 @@ func runTrain(ctx *runContext, args []string) error {
 	keyHidden := fs.Int("key-hidden", 0, "attention: hidden tanh layer of this width in the key function (default 0: linear keys)")
 	ctxFrames := fs.Int("context", 0, "frames each token carries (temporal context k; default 1)")
 	prevAction := fs.Bool("prev-action", false, "give the policy the previous action")
+	centre := fs.Bool("centre", false, "subtract the token set's mean token from every token before the policy reads it")
 	lr := fs.Float64("lr", 0, "learning rate (default: clone 3e-3, es 0.01)")
 	batch := fs.Int("batch", 0, "clone: minibatch size (default 64)")
 	epochs := fs.Int("epochs", 0, "clone: epochs over the aggregated data per round (default 2)")
@@ -107,7 +108,7 @@ func runTrain(ctx *runContext, args []string) error {
 			Game: *game, Variation: *variation, Patch: *patchSize, Method: *method, Seed: *seed,
 			Iters: *iters, Budget: *budget, Workers: *workers, Patience: *patience, FitnessEpisodes: *fitEps, ValEpisodes: *valEps,
 			Net: nets.Config{Family: *family, KeySize: *keySize, Queries: *queries, Hidden: *hidden, PrevAction: *prevAction,
-				ValueSize: *valueSize, KeyHidden: *keyHidden, Context: *ctxFrames},
+				ValueSize: *valueSize, KeyHidden: *keyHidden, Context: *ctxFrames, Centre: *centre},
 			Augment: patch.Spec{Occlude: *occlude, Fill: *fill, Scramble: *scramble, NoiseTokens: *noiseTok},
 			Clone:   train.CloneConfig{LR: *lr, Batch: *batch, Epochs: *epochs, EpisodesPerRound: *perRound},
 			ES:      train.ESConfig{Pairs: *pairs, Sigma: *sigma, LR: *lr, WeightDecay: *decay},

@@ -56,6 +56,13 @@ type Config struct {
 	// began or for cells that had no token). 0 or 1 (default) is the
 	// current frame only.
 	Context int
+	// Centre subtracts the token set's mean token from every token's
+	// pixels (each of the k frames, value by value) before the family
+	// reads them. The mean is over the set, so centring keeps a set
+	// family's indifference to token order; it takes out what all tokens
+	// share (a static backdrop's average, a global colour cast), which
+	// lets a few informative tokens stand out. Default false.
+	Centre bool
 	// Capacity is the number of tokens the buffers are sized for. Default
 	// twice the grid's token count; a larger set grows them once.
 	Capacity int

@@ -71,8 +71,13 @@ func Estimate(cfg Config, grid *patch.Grid, space games.ActionSpace) (Cost, erro
 	th := func(name string, values int64) {
 		layers = append(layers, LayerCost{Name: name, Kind: "tanh", Activations: values})
 	}
-	if in.k > 1 || in.pa > 0 {
+	if in.k > 1 || in.pa > 0 || in.centre {
 		layers = append(layers, LayerCost{Name: "input rows", Kind: "input", Activations: N * int64(in.din)})
+	}
+	if in.centre {
+		// Sums and subtractions only: no products, so no FLOPs in this
+		// model (as for tanh).
+		layers = append(layers, LayerCost{Name: "centre", Kind: "centre", Activations: int64(in.pixels())})
 	}
 	din, px := int64(in.din), int64(in.pixels())
 	H := int64(cfg.Hidden)

@@ -25,6 +25,7 @@ func Metadata(net Net) map[string]string {
 		"value_size": itoa(c.ValueSize), "queries": itoa(c.Queries), "query_dim": itoa(c.QueryDim),
 		"hidden": itoa(c.Hidden), "token_hidden": itoa(c.TokenHidden),
 		"prev_action": strconv.FormatBool(c.PrevAction), "context": itoa(c.Context),
+		"centre": strconv.FormatBool(c.Centre),
 		"frame_width": itoa(g.Width), "frame_height": itoa(g.Height), "channels": itoa(g.Channels),
 		"patch_w": itoa(g.PatchW), "patch_h": itoa(g.PatchH), "stride_x": itoa(g.StrideX), "stride_y": itoa(g.StrideY),
 		"edge": g.Edge.String(), "fill": strconv.FormatFloat(float64(g.Fill), 'g', -1, 32),
@@ -163,6 +164,12 @@ func describe(f *weights.File) (Config, *patch.Grid, games.ActionSpace, error) {
 	}
 	if cfg.PrevAction, err = strconv.ParseBool(pa); err != nil {
 		return cfg, nil, space, fmt.Errorf("weights metadata \"prev_action\" = %q: want true or false", pa)
+	}
+	// "centre" came after format 1's first files: absent means false.
+	if ce, ok := f.Metadata["centre"]; ok {
+		if cfg.Centre, err = strconv.ParseBool(ce); err != nil {
+			return cfg, nil, space, fmt.Errorf("weights metadata \"centre\" = %q: want true or false", ce)
+		}
 	}
 	if r := cfg.Resolved(); r != cfg {
 		return cfg, nil, space, fmt.Errorf("weights metadata: hyper-parameters %+v are not complete for family %q", cfg, fam)

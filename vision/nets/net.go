@@ -293,6 +293,9 @@ func (c *core) act(f func(*vision.Observation, []float32) error, obs *vision.Obs
 type inputs struct {
 	d, k, pa, din int
 	discrete      bool
+	centre        bool
+	mean          []float32 // centre: the set's mean row (pixel part)
+	acc           []float64 // centre: its sums
 	cells         int
 	buf           []float32
 	hist          []float32 // (k−1) slots × cells × d
@@ -313,14 +316,19 @@ func (in *inputs) init(cfg Config, g *patch.Grid, s games.ActionSpace) {
 	}
 	in.din = in.d*in.k + in.pa
 	in.capacity = cfg.Capacity
+	in.centre = cfg.Centre
 }
 
 func (in *inputs) alloc() {
 	if in.k > 1 {
 		in.hist = make([]float32, (in.k-1)*in.cells*in.d)
 	}
-	if in.k > 1 || in.pa > 0 {
+	if in.k > 1 || in.pa > 0 || in.centre {
 		in.buf = make([]float32, in.capacity*in.din)
+	}
+	if in.centre {
+		in.mean = make([]float32, in.d*in.k)
+		in.acc = make([]float64, in.d*in.k)
 	}
 	in.cellOf = make([]int, in.capacity)
 }
@@ -372,7 +380,7 @@ func (in *inputs) build(obs *vision.Observation, g *patch.Grid) ([]float32, int,
 			in.cellOf[i] = g.Index(p)
 		}
 	}
-	if in.k == 1 && in.pa == 0 {
+	if in.k == 1 && in.pa == 0 && !in.centre {
 		return ts.Data[:n*in.d], in.d, n, nil
 	}
 	in.buf = grow(in.buf, n*in.din)
@@ -419,7 +427,38 @@ func (in *inputs) build(obs *vision.Observation, g *patch.Grid) ([]float32, int,
 			}
 		}
 	}
+	if in.centre {
+		in.centreRows(x, n)
+	}
 	return x[:n*in.din], in.din, n, nil
+}
+
+// centreRows subtracts, column by column, the mean over the n rows of x
+// from the pixel part of every row (Config.Centre). The sums are kept in
+// float64: for tokens of 8-bit pixels (float32(b)/255) they are exact, so
+// the mean does not depend on the token order at all.
+func (in *inputs) centreRows(x []float32, n int) {
+	if n == 0 {
+		return
+	}
+	w := in.d * in.k
+	acc := in.acc[:w]
+	clear(acc)
+	for i := 0; i < n; i++ {
+		for j, v := range x[i*in.din : i*in.din+w] {
+			acc[j] += float64(v)
+		}
+	}
+	m := in.mean[:w]
+	for j, s := range acc {
+		m[j] = float32(s / float64(n))
+	}
+	for i := 0; i < n; i++ {
+		row := x[i*in.din : i*in.din+w]
+		for j, v := range m {
+			row[j] -= v
+		}
+	}
 }
 
 // head is the small MLP every family ends with: Linear → tanh → Linear,

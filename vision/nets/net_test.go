@@ -26,6 +26,9 @@ var smallConfigs = []struct {
 	{"meanpool-prev-context", Config{Family: MeanPool, TokenHidden: 6, Hidden: 5, PrevAction: true, Context: 2}},
 	{"mlp", Config{Family: MLP, Hidden: 4}},
 	{"mlp-prev", Config{Family: MLP, Hidden: 4, PrevAction: true}},
+	{"attention-centre", Config{Family: Attention, KeySize: 4, Queries: 3, QueryDim: 4, ValueSize: 3, Hidden: 5, Centre: true}},
+	{"attention-centre-prev-context", Config{Family: Attention, KeySize: 4, Queries: 3, QueryDim: 4, ValueSize: 3, Hidden: 5, PrevAction: true, Context: 2, Centre: true}},
+	{"meanpool-centre", Config{Family: MeanPool, TokenHidden: 6, Hidden: 5, Centre: true}},
 }
 
 // Every family's parameter gradients (both heads, every option) against
@@ -105,7 +108,7 @@ func withHistory(n Net) Net {
 func TestPermutationInvariance(t *testing.T) {
 	g := testGrid(t, 96, 96, 8)
 	for _, fam := range Families {
-		for _, cfg := range []Config{{Family: fam}, {Family: fam, PrevAction: true, Context: 2}} {
+		for _, cfg := range []Config{{Family: fam}, {Family: fam, PrevAction: true, Context: 2}, {Family: fam, Centre: true}} {
 			for _, scramble := range []bool{false, true} {
 				n := mustNew(t, cfg, g, contSpace, 3)
 				m := n.Clone()
@@ -136,7 +139,7 @@ func TestPermutationInvariance(t *testing.T) {
 					}
 				}
 				inv := n.Info().Invariant
-				t.Logf("%s prev=%v context=%d scramble=%v: max |Δaction| %.3g", fam, cfg.PrevAction, cfg.Context, scramble, worst)
+				t.Logf("%s prev=%v context=%d centre=%v scramble=%v: max |Δaction| %.3g", fam, cfg.PrevAction, cfg.Context, cfg.Centre, scramble, worst)
 				mustHold := inv && (!scramble || cfg.Context <= 1)
 				if mustHold && worst > 1e-5 {
 					t.Errorf("%s is declared invariant but its action moved by %.3g", fam, worst)
@@ -424,5 +427,80 @@ func TestLoadRejects(t *testing.T) {
 	n.Params()[3] = float32(math.Inf(1))
 	if err := Save(filepath.Join(dir, "inf"), n, nil); err == nil {
 		t.Error("saving an infinite weight succeeded")
+	}
+}
+
+// With Centre, a family sees every token minus the set's mean token: the
+// same outputs as the plain family fed those differences by hand, and no
+// change at all when one constant is added to every value of every token
+// (a uniform brightness shift) beyond float32 rounding of the mean.
+func TestCentre(t *testing.T) {
+	g := testGrid(t, 16, 12, 4)
+	for _, fam := range Families {
+		plain := mustNew(t, Config{Family: fam}, g, discSpace, 5)
+		cfg := Config{Family: fam, Centre: true}
+		cent := mustNew(t, cfg, g, discSpace, 5)
+		obs := randomObs(g, 6, 1)
+		ts := obs.Tokens
+		// The hand-centred set, summed in float64 as the definition says.
+		hand := *obs
+		hand.Tokens = patch.NewTokenSet(ts.N, ts.D)
+		hand.Tokens.N = ts.N
+		copy(hand.Tokens.Pos, ts.Pos)
+		for j := 0; j < ts.D; j++ {
+			s := 0.0
+			for i := 0; i < ts.N; i++ {
+				s += float64(ts.Data[i*ts.D+j])
+			}
+			m := float32(s / float64(ts.N))
+			for i := 0; i < ts.N; i++ {
+				hand.Tokens.Data[i*ts.D+j] = ts.Data[i*ts.D+j] - m
+			}
+		}
+		a := make([]float32, 3)
+		b := make([]float32, 3)
+		if err := cent.Forward(obs, a); err != nil {
+			t.Fatal(err)
+		}
+		if err := plain.Forward(&hand, b); err != nil {
+			t.Fatal(err)
+		}
+		for i := range a {
+			if a[i] != b[i] {
+				t.Errorf("%s: centred output %v, plain family on hand-centred tokens %v", fam, a, b)
+				break
+			}
+		}
+		shifted := *obs
+		shifted.Tokens = patch.NewTokenSet(ts.N, ts.D)
+		shifted.Tokens.N = ts.N
+		copy(shifted.Tokens.Pos, ts.Pos)
+		for i, v := range ts.Data[:ts.N*ts.D] {
+			shifted.Tokens.Data[i] = v + 0.25
+		}
+		if err := cent.Forward(obs, a); err != nil {
+			t.Fatal(err)
+		}
+		if err := cent.Forward(&shifted, b); err != nil {
+			t.Fatal(err)
+		}
+		for i := range a {
+			if math.Abs(float64(a[i]-b[i])) > 1e-5 {
+				t.Errorf("%s: a uniform shift moved the centred output %v → %v", fam, a, b)
+				break
+			}
+		}
+		// And the option survives a save and load.
+		path := filepath.Join(t.TempDir(), "c.safetensors")
+		if err := Save(path, cent, nil); err != nil {
+			t.Fatal(err)
+		}
+		back, err := Load(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !back.Config().Centre {
+			t.Errorf("%s: centre lost in the weights file", fam)
+		}
 	}
 }
