@@ -43,10 +43,12 @@ const (
 type Palette struct {
 	// Name is the palette's variation name.
 	Name string
-	// Upper and Lower are the background at the top and at the paddle
-	// line; Arcs the faint arcs across it; Pit the strip below the paddle.
-	Upper, Lower, Arcs, Pit color.RGBA
-	// Wall, WallLit are the walls and their inner highlight.
+	// TopLeft, TopRight, BottomLeft and BottomRight are the field's colours
+	// at its corners; the background blends between them, so every part of
+	// the field, walls and pit included, shows by its colour where it is.
+	TopLeft, TopRight, BottomLeft, BottomRight color.RGBA
+	// Wall tints the walls (mixed into the field's colour there), WallLit
+	// their inner edge.
 	Wall, WallLit color.RGBA
 	// Paddle, Ball and Obstacle colour the moving pieces.
 	Paddle, Ball, Obstacle color.RGBA
@@ -56,13 +58,13 @@ func rgb(r, g, b uint8) color.RGBA { return color.RGBA{r, g, b, 255} }
 
 // Palettes lists the palettes; the first ("copper") is the training one.
 var Palettes = []Palette{
-	{Name: "copper", Upper: rgb(54, 32, 44), Lower: rgb(22, 36, 54), Arcs: rgb(70, 48, 62), Pit: rgb(14, 18, 28),
+	{Name: "copper", TopLeft: rgb(132, 40, 56), TopRight: rgb(30, 50, 112), BottomLeft: rgb(104, 30, 44), BottomRight: rgb(18, 38, 90),
 		Wall: rgb(178, 104, 62), WallLit: rgb(226, 156, 104),
-		Paddle: rgb(118, 222, 188), Ball: rgb(252, 238, 204), Obstacle: rgb(222, 92, 124)},
-	{Name: "lagoon", Upper: rgb(8, 58, 66), Lower: rgb(10, 28, 50), Arcs: rgb(22, 80, 88), Pit: rgb(4, 14, 24),
+		Paddle: rgb(118, 236, 188), Ball: rgb(252, 244, 204), Obstacle: rgb(236, 92, 150)},
+	{Name: "lagoon", TopLeft: rgb(12, 104, 96), TopRight: rgb(44, 40, 118), BottomLeft: rgb(8, 78, 74), BottomRight: rgb(30, 26, 92),
 		Wall: rgb(214, 178, 70), WallLit: rgb(246, 214, 120),
 		Paddle: rgb(250, 122, 92), Ball: rgb(230, 250, 255), Obstacle: rgb(156, 112, 226)},
-	{Name: "orchid", Upper: rgb(70, 44, 92), Lower: rgb(30, 22, 54), Arcs: rgb(88, 60, 110), Pit: rgb(16, 10, 28),
+	{Name: "orchid", TopLeft: rgb(112, 40, 128), TopRight: rgb(40, 70, 60), BottomLeft: rgb(86, 28, 100), BottomRight: rgb(26, 52, 44),
 		Wall: rgb(96, 176, 214), WallLit: rgb(150, 214, 240),
 		Paddle: rgb(250, 204, 84), Ball: rgb(255, 255, 255), Obstacle: rgb(92, 210, 142)},
 }
@@ -541,30 +543,34 @@ func capsule(dst *image.RGBA, x0, y, x1, rad float64, c color.RGBA) {
 	}
 }
 
-// background draws the static field once: a vertical blend from Upper to
-// Lower crossed by faint arcs centred above the field, the pit below the
-// paddle line, and the three walls with a lit inner edge.
+// background draws the static field once: a blend between the four
+// corner colours crossed by faint lighter arcs centred above the field,
+// the pit below the paddle line in a darker shade of the same blend, and
+// the three walls tinted over it with a lit inner edge. Walls and pit keep
+// the blend underneath, so no part of the frame stands out but the moving
+// pieces.
 func background(p Palette) []byte {
 	bg := make([]byte, 4*Size*Size)
 	for y := 0; y < Size; y++ {
 		for x := 0; x < Size; x++ {
 			fx, fy := float64(x)+0.5, float64(y)+0.5
-			t := math.Min(1, fy/PaddleY)
-			c := mix(p.Upper, p.Lower, t)
+			u, v := fx/Size, fy/Size
+			c := mix(mix(p.TopLeft, p.TopRight, u), mix(p.BottomLeft, p.BottomRight, u), v)
 			d := math.Hypot(fx-ringX, fy-ringCY)
 			m := math.Mod(d, ringGap)
 			if w := 1 - math.Abs(m-ringGap/2)/0.9; w > 0 {
-				c = mix(c, p.Arcs, w*(1-0.6*t))
+				c = lift(c, 16*w)
 			}
 			switch {
 			case fy > PaddleY+PaddleH+1:
-				c = p.Pit
+				c = mix(c, rgb(0, 0, 0), 0.45)
 			case fx < Left || fx > Right || fy < Top:
-				c = p.Wall
-				litSide := fy >= Top-1 && (fx >= Left-1 || fx <= Right+1)
-				litTop := fy >= Top-1 && fx >= Left-1 && fx <= Right+1
-				if litSide && (fx >= Left-1 && fx < Left || fx > Right && fx <= Right+1) || litTop {
-					c = p.WallLit
+				lit := (fx >= Left-1 && fx < Left || fx > Right && fx <= Right+1) && fy >= Top-1 ||
+					fy >= Top-1 && fx >= Left-1 && fx <= Right+1
+				if lit {
+					c = mix(c, p.WallLit, 0.5)
+				} else {
+					c = mix(c, p.Wall, 0.35)
 				}
 			}
 			o := 4 * (y*Size + x)
@@ -574,10 +580,16 @@ func background(p Palette) []byte {
 	return bg
 }
 
+// lift brightens c by up to n levels per channel.
+func lift(c color.RGBA, n float64) color.RGBA {
+	l := func(x uint8) uint8 { return uint8(math.Min(255, math.Round(float64(x)+n))) }
+	return color.RGBA{l(c.R), l(c.G), l(c.B), 255}
+}
+
 func mix(a, b color.RGBA, t float64) color.RGBA {
 	l := func(x, y uint8) uint8 { return uint8(math.Round(float64(x) + (float64(y)-float64(x))*t)) }
 	return color.RGBA{l(a.R, b.R), l(a.G, b.G), l(a.B, b.B), 255}
 }
 
-// Expert returns the intercept-predicting expert bound to this game.
+// Expert returns the ball-tracking expert bound to this game.
 func (g *Game) Expert() games.Expert { return g.expert }
