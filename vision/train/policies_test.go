@@ -2,8 +2,10 @@ package train
 
 import (
 	"encoding/json"
+	"maps"
 	"math"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"testing"
 
@@ -70,5 +72,42 @@ func TestShippedPolicies(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// The shipped references meet the training targets, by the scores
+// recorded in them (50 held-out episodes; TestShippedPolicies checks that
+// the files still play as recorded): the set-attention policy at patch 8
+// on drive at least 80% of the expert's mean return, and every paddle
+// policy at least 90% of the expert's.
+func TestShippedPoliciesMeetTargets(t *testing.T) {
+	targets := map[string]float64{"drive-attention-p8": 0.8}
+	for _, fam := range []string{"attention", "posattention"} {
+		for _, p := range []string{"4", "7", "12"} {
+			targets["paddle-"+fam+"-p"+p] = 0.9
+		}
+	}
+	for _, name := range slices.Sorted(maps.Keys(targets)) {
+		frac := targets[name]
+		f, err := weights.ReadFile(filepath.Join(reftest.Root(), "testdata", "policies", name+".safetensors"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		score, err := f.MetaFloat(weights.KeyHeldOutScore)
+		if err != nil {
+			t.Fatal(err)
+		}
+		expert, err := f.MetaFloat("heldout_expert_score")
+		if err != nil {
+			t.Fatal(err)
+		}
+		n, err := f.MetaInt(weights.KeyHeldOutEpisodes)
+		if err != nil {
+			t.Fatal(err)
+		}
+		t.Logf("%s: %.2f against the expert's %.2f (%.1f%%) over %d episodes", name, score, expert, 100*score/expert, n)
+		if n < 50 || !(expert > 0) || score < frac*expert {
+			t.Errorf("%s: held-out mean %.2f over %d episodes, want ≥ %.0f%% of the expert's %.2f over ≥ 50", name, score, n, 100*frac, expert)
+		}
 	}
 }
