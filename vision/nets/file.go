@@ -25,7 +25,7 @@ func Metadata(net Net) map[string]string {
 		"value_size": itoa(c.ValueSize), "queries": itoa(c.Queries), "query_dim": itoa(c.QueryDim),
 		"hidden": itoa(c.Hidden), "token_hidden": itoa(c.TokenHidden),
 		"prev_action": strconv.FormatBool(c.PrevAction), "context": itoa(c.Context),
-		"centre": strconv.FormatBool(c.Centre),
+		"centre":      strconv.FormatBool(c.Centre),
 		"frame_width": itoa(g.Width), "frame_height": itoa(g.Height), "channels": itoa(g.Channels),
 		"patch_w": itoa(g.PatchW), "patch_h": itoa(g.PatchH), "stride_x": itoa(g.StrideX), "stride_y": itoa(g.StrideY),
 		"edge": g.Edge.String(), "fill": strconv.FormatFloat(float64(g.Fill), 'g', -1, 32),
