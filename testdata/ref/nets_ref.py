@@ -140,13 +140,16 @@ def forward_seq(cfg, action, t, seq):
                     parts.append(torch.tensor(step["prev"]))
             rows.append(torch.cat(parts))
         X = torch.stack(rows)
+        px = D * k
+        if cfg["centre"]:
+            # The set's mean row is subtracted from every row's pixel part.
+            X = torch.cat([X[:, :px] - X[:, :px].mean(dim=0), X[:, px:]], dim=1)
         if k > 1:
             frame = {}
             for i in range(n):
                 if cellof[i] >= 0:
                     frame[cellof[i]] = x[i]
             past = [frame] + past[: k - 2]
-        px = D * k
         fam = cfg["family"]
         if fam in ("attention", "posattention"):
             h = X
@@ -176,7 +179,8 @@ def forward_seq(cfg, action, t, seq):
 
 def config(**kw):
     c = {"family": "attention", "key_size": 0, "key_hidden": 0, "value": "", "value_size": 0, "queries": 0,
-         "query_dim": 0, "hidden": 0, "token_hidden": 0, "prev_action": False, "context": 1}
+         "query_dim": 0, "hidden": 0, "token_hidden": 0, "prev_action": False, "context": 1,
+         "centre": False}
     c.update(kw)
     return c
 
@@ -191,6 +195,12 @@ CASES = [
                                           query_dim=8, hidden=10, prev_action=True), CONT, 2, 4, 2),
     ("meanpool-prev", config(family="meanpool", hidden=10, token_hidden=12, prev_action=True), DISC, 2, 0, 0),
     ("meanpool-context2-dropped", config(family="meanpool", hidden=8, token_hidden=9, context=2), CONT, 3, 5, 1),
+    # Cases added later go last, so that the ones above keep their inputs.
+    ("attention-centre-context2-dropped", config(key_size=6, value="linear", value_size=4, queries=5, query_dim=4,
+                                                 hidden=8, context=2, prev_action=True, centre=True), DISC, 3, 4, 1),
+    ("posattention-centre", config(family="posattention", key_size=8, value="identity", queries=4, query_dim=6,
+                                   hidden=9, centre=True), CONT, 2, 0, 0),
+    ("meanpool-centre", config(family="meanpool", hidden=8, token_hidden=9, centre=True), CONT, 2, 3, 0),
 ]
 
 

@@ -31,6 +31,7 @@ type refFile struct {
 			TokenHidden int    `json:"token_hidden"`
 			PrevAction  bool   `json:"prev_action"`
 			Context     int    `json:"context"`
+			Centre      bool   `json:"centre"`
 		} `json:"config"`
 		Grid struct {
 			Width, Height, Patch int
@@ -76,8 +77,9 @@ func checkRef(t *testing.T, data []byte) {
 	for _, c := range rf.Cases {
 		cf := c.Config
 		cfg := Config{Family: cf.Family, KeySize: cf.KeySize, KeyHidden: cf.KeyHidden, Value: cf.Value, ValueSize: cf.ValueSize,
-			Queries: cf.Queries, QueryDim: cf.QueryDim, Hidden: cf.Hidden, TokenHidden: cf.TokenHidden, PrevAction: cf.PrevAction, Context: cf.Context}
+			Queries: cf.Queries, QueryDim: cf.QueryDim, Hidden: cf.Hidden, TokenHidden: cf.TokenHidden, PrevAction: cf.PrevAction, Context: cf.Context, Centre: cf.Centre}
 		seen[cf.Family] = true
+		seen["centre"] = seen["centre"] || cf.Centre
 		g, err := patch.NewGrid(patch.GridConfig{Width: c.Grid.Width, Height: c.Grid.Height, PatchW: c.Grid.Patch})
 		if err != nil {
 			t.Fatal(err)
@@ -133,6 +135,9 @@ func checkRef(t *testing.T, data []byte) {
 			}
 		}
 		t.Logf("%s: worst |Go − torch| %.2g over %d steps", c.Name, worst, len(c.Steps))
+	}
+	if !seen["centre"] {
+		t.Errorf("reference file has no case with centring")
 	}
 	for _, fam := range []string{Attention, PosAttention, MeanPool} {
 		if !seen[fam] {
