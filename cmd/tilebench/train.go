@@ -64,7 +64,7 @@ func runTrain(ctx *runContext, args []string) error {
 	keyHidden := fs.Int("key-hidden", 0, "attention: hidden tanh layer of this width in the key function (default 0: linear keys)")
 	ctxFrames := fs.Int("context", 0, "frames each token carries (temporal context k; default 1)")
 	prevAction := fs.Bool("prev-action", false, "give the policy the previous action")
-	centre := fs.Bool("centre", false, "subtract the token set's mean token from every token before the policy reads it")
+	centre := fs.Bool("centre", true, "subtract the token set's mean token from every token before the policy reads it (--centre=false turns it off)")
 	lr := fs.Float64("lr", 0, "learning rate (default: clone 3e-3, es 0.01)")
 	batch := fs.Int("batch", 0, "clone: minibatch size (default 64)")
 	epochs := fs.Int("epochs", 0, "clone: epochs over the aggregated data per round (default 2)")

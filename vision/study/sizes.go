@@ -127,7 +127,7 @@ func TrainPolicies(ctx context.Context, p *Plan, dir string, opt TrainOptions) e
 			return fmt.Errorf("train: %w", err)
 		}
 		t, err := train.New(train.Config{Game: p.Def.Game, Variation: p.Def.Variation, Patch: s,
-			Net: nets.Config{Family: p.Def.Policy.Family}, Method: opt.Method, Budget: each, Workers: opt.Workers,
+			Net: nets.Config{Family: p.Def.Policy.Family, Centre: true}, Method: opt.Method, Budget: each, Workers: opt.Workers,
 			Seed: p.PolicySeed(s)})
 		if err != nil {
 			return fmt.Errorf("train patch %d: %w", s, err)
