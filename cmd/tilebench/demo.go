@@ -6,6 +6,8 @@ import (
 	"html"
 	"io"
 	"path/filepath"
+	"strconv"
+	"strings"
 	"time"
 
 	"tilebench/internal/atomicfile"
@@ -14,27 +16,36 @@ import (
 )
 
 func init() {
-	register(&command{name: "demo", summary: "run a small patch-size study and a stress study on the built-in driving game; write the reports", run: runDemo})
+	register(&command{name: "demo", summary: "run a small patch-size study and stress studies on the built-in games; write the reports", run: runDemo})
 }
 
 const demoUsage = `demo [--out DIR]
 
-Runs, on the built-in driving game and 2 cores in about a minute or two:
-a patch-size study (patch 4, 8, 16; clean and under random occlusion and
+Runs, on 2 cores in about a minute: on the built-in driving game a
+patch-size study (patch 4, 8, 16; clean and under random occlusion and
 scrambling) and a stress study of the patch-8 policy (random occlusion
-0 to 0.75 and a block, each with and without a full scramble). Uses the
+0 to 0.75 and a block, each with and without a full scramble), and the
+same stress study of the patch-7 policy on the paddle game. Uses the
 reference policies in testdata/policies when they are there, untrained
 networks otherwise (the report says which). Writes DIR/index.html with
-links to DIR/sizes/report.html and DIR/stress/report.html and prints the
-paths. Running it again on the same DIR re-makes the reports.
+links to DIR/sizes/report.html, DIR/stress/report.html and
+DIR/paddle-stress/report.html and prints the paths. Running it again on the same DIR re-makes the reports.
 
   tilebench demo --out tilebench-demo
 
 options:`
 
-// demoStudies returns the two studies of the demo.
-func demoStudies(refDir string, episodes int) (sizes, stress study.Definition) {
-	sizes = study.Definition{Name: "demo: patch sizes", Kind: "sizes", Game: "drive", Episodes: episodes, Seed: 1,
+// demoStudy is one study of the demo: its folder under --out, its title
+// and its definition.
+type demoStudy struct {
+	dir, title string
+	def        study.Definition
+}
+
+// demoStudies returns the studies of the demo: a patch-size and a stress
+// study on drive, and a stress study on paddle.
+func demoStudies(refDir string, episodes int) []demoStudy {
+	sizes := study.Definition{Name: "demo: patch sizes", Kind: "sizes", Game: "drive", Episodes: episodes, Seed: 1,
 		Patch:  study.Axis{"4,8,16"},
 		Policy: study.PolicyDef{Source: "fresh", Family: "attention"},
 		Axes:   study.Axes{Occlude: study.Axis{"none,random:0.5"}, Scramble: study.Axis{"none,full"}},
@@ -42,15 +53,22 @@ func demoStudies(refDir string, episodes int) (sizes, stress study.Definition) {
 	if t, ok := study.ReferencePolicies(refDir, "drive", "attention", []int{4, 8, 16}); ok {
 		sizes.Policy.Source = t
 	}
-	stress = study.Definition{Name: "demo: stress", Kind: "stress", Game: "drive", Episodes: episodes, Seed: 1,
-		Patch:  study.Axis{"8"},
-		Policy: study.PolicyDef{Source: "fresh", Family: "attention"},
-		Axes:   study.Axes{Occlude: study.Axis{"random:0:0.75:0.25,block:0.4"}, Scramble: study.Axis{"none,full"}},
-		Stats:  study.StatsDef{Resamples: 1000}}
-	if t, ok := study.ReferencePolicies(refDir, "drive", "attention", []int{8}); ok {
-		stress.Policy.Source = study.PolicyPath(t, 8)
+	stress := func(name, game string, p int) study.Definition {
+		d := study.Definition{Name: name, Kind: "stress", Game: game, Episodes: episodes, Seed: 1,
+			Patch:  study.Axis{strconv.Itoa(p)},
+			Policy: study.PolicyDef{Source: "fresh", Family: "attention"},
+			Axes:   study.Axes{Occlude: study.Axis{"random:0:0.75:0.25,block:0.4"}, Scramble: study.Axis{"none,full"}},
+			Stats:  study.StatsDef{Resamples: 1000}}
+		if t, ok := study.ReferencePolicies(refDir, game, "attention", []int{p}); ok {
+			d.Policy.Source = study.PolicyPath(t, p)
+		}
+		return d
 	}
-	return sizes, stress
+	return []demoStudy{
+		{"sizes", "Patch-size study", sizes},
+		{"stress", "Stress study", stress("demo: stress", "drive", 8)},
+		{"paddle-stress", "Stress study", stress("demo: paddle stress", "paddle", 7)},
+	}
 }
 
 func runDemo(ctx *runContext, args []string) error {
@@ -70,49 +88,48 @@ func runDemo(ctx *runContext, args []string) error {
 		return usagef("demo: --episodes %d: want 1..1000", *episodes)
 	}
 	start := time.Now()
-	sizesDef, stressDef := demoStudies(*refDir, *episodes)
-	sizesDef.Workers, stressDef.Workers = *workers, *workers
-	sp, err := study.NewPlan(sizesDef)
-	if err != nil {
-		return err
-	}
-	tp, err := study.NewPlan(stressDef)
-	if err != nil {
-		return err
+	studies := demoStudies(*refDir, *episodes)
+	plans := make([]*study.Plan, len(studies))
+	for i := range studies {
+		studies[i].def.Workers = *workers
+		p, err := study.NewPlan(studies[i].def)
+		if err != nil {
+			return err
+		}
+		if err := study.CheckDir(p, filepath.Join(*out, studies[i].dir), true, study.Shard{}); err != nil {
+			return fmt.Errorf("%w (demo reuses its own folders only)", err)
+		}
+		plans[i] = p
 	}
 	sctx, stop := interruptible()
 	defer stop()
-	sizesDir, stressDir := filepath.Join(*out, "sizes"), filepath.Join(*out, "stress")
-	for _, dir := range []string{sizesDir, stressDir} {
-		p := sp
-		if dir == stressDir {
-			p = tp
-		}
-		if err := study.CheckDir(p, dir, true, study.Shard{}); err != nil {
-			return fmt.Errorf("%w (demo reuses its own folders only)", err)
-		}
-	}
 	cmd := commandLine(append([]string{"demo"}, args...))
-	if _, err := runPlan(sctx, ctx, sp, sizesDir, true, study.Shard{}, cmd, "demo: patch sizes"); err != nil {
-		return err
-	}
-	if err := study.FinishSizes(sp, sizesDir); err != nil {
-		return err
-	}
-	if _, err := runPlan(sctx, ctx, tp, stressDir, true, study.Shard{}, cmd, "demo: stress"); err != nil {
-		return err
-	}
-	if err := study.WriteReport(stressDir); err != nil {
-		return err
+	var reports []string
+	untrained := false
+	for i, st := range studies {
+		p, dir := plans[i], filepath.Join(*out, st.dir)
+		if _, err := runPlan(sctx, ctx, p, dir, true, study.Shard{}, cmd, st.def.Name); err != nil {
+			return err
+		}
+		var err error
+		if st.def.Kind == "sizes" {
+			err = study.FinishSizes(p, dir)
+		} else {
+			err = study.WriteReport(dir)
+		}
+		if err != nil {
+			return err
+		}
+		reports = append(reports, filepath.Join(dir, "report.html"))
+		untrained = untrained || p.Def.Policy.Source == "fresh"
 	}
 	index := filepath.Join(*out, "index.html")
-	if err := writeDemoIndex(index, sp, tp); err != nil {
+	if err := writeDemoIndex(index, studies, plans); err != nil {
 		return err
 	}
 	if *asJSON {
 		b, err := json.MarshalIndent(map[string]any{"format": 1, "index": index,
-			"reports": []string{filepath.Join(sizesDir, "report.html"), filepath.Join(stressDir, "report.html")},
-			"seconds": time.Since(start).Seconds()}, "", "  ")
+			"reports": reports, "seconds": time.Since(start).Seconds()}, "", "  ")
 		if err != nil {
 			return err
 		}
@@ -120,30 +137,34 @@ func runDemo(ctx *runContext, args []string) error {
 		return nil
 	}
 	fmt.Fprintf(ctx.stdout, "demo finished in %s\n", time.Since(start).Round(time.Second))
-	if sp.Def.Policy.Source == "fresh" {
-		fmt.Fprintln(ctx.stdout, "note: no reference policies found, the demo used untrained networks")
+	if untrained {
+		fmt.Fprintln(ctx.stdout, "note: some reference policies were not found, the demo used untrained networks for them")
 	}
-	fmt.Fprintf(ctx.stdout, "report: %s\n", filepath.Join(sizesDir, "report.html"))
-	fmt.Fprintf(ctx.stdout, "report: %s\n", filepath.Join(stressDir, "report.html"))
+	for _, r := range reports {
+		fmt.Fprintf(ctx.stdout, "report: %s\n", r)
+	}
 	fmt.Fprintf(ctx.stdout, "open: %s\n", index)
 	return nil
 }
 
-func writeDemoIndex(path string, sp, tp *study.Plan) error {
+func writeDemoIndex(path string, studies []demoStudy, plans []*study.Plan) error {
 	return atomicfile.Write(path, func(w io.Writer) error {
+		var items strings.Builder
+		for i, st := range studies {
+			p := plans[i]
+			fmt.Fprintf(&items, "<li><a href=\"%s/report.html\">%s</a>: %s, %d cells × %d episodes, policy %s</li>\n",
+				html.EscapeString(st.dir), html.EscapeString(st.title), html.EscapeString(p.Def.Game), len(p.Cells), p.Def.Episodes,
+				html.EscapeString(p.Def.Policy.Source))
+		}
 		_, err := fmt.Fprintf(w, `<!doctype html>
 <html lang="en"><head><meta charset="utf-8"><title>tilebench demo</title>
 <style>body{font-family:system-ui,sans-serif;max-width:44em;margin:2em auto;padding:0 1em;color:#1d2330}a{color:#1f5fa8}.c{border-left:4px solid #b06a00;padding:.5em 1em;background:#fff6e8}</style></head>
 <body><h1>tilebench demo</h1>
 <ul>
-<li><a href="sizes/report.html">Patch-size study</a>: %s, %d cells × %d episodes, policy %s</li>
-<li><a href="stress/report.html">Stress study</a>: %s, %d cells × %d episodes, policy %s</li>
-</ul>
+%s</ul>
 <p class="c">%s</p>
 </body></html>
-`, html.EscapeString(sp.Def.Game), len(sp.Cells), sp.Def.Episodes, html.EscapeString(sp.Def.Policy.Source),
-			html.EscapeString(tp.Def.Game), len(tp.Cells), tp.Def.Episodes, html.EscapeString(tp.Def.Policy.Source),
-			html.EscapeString(report.Caution))
+`, items.String(), html.EscapeString(report.Caution))
 		return err
 	})
 }

@@ -11,14 +11,14 @@ func TestDemo(t *testing.T) {
 	// About half a minute on 2 busy cores: run in CI (CI set) or with
 	// TILEBENCH_LONG=1, not by default.
 	if testing.Short() || os.Getenv("CI") == "" && os.Getenv("TILEBENCH_LONG") != "1" {
-		t.Skip("runs two small studies; set TILEBENCH_LONG=1")
+		t.Skip("runs three small studies; set TILEBENCH_LONG=1")
 	}
 	out := filepath.Join(t.TempDir(), "demo")
 	code, stdout, stderr := runCLI(t, "", "demo", "--out", out, "--episodes", "1")
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, stderr)
 	}
-	for _, f := range []string{"index.html", "sizes/report.html", "stress/report.html", "sizes/costs.json"} {
+	for _, f := range []string{"index.html", "sizes/report.html", "stress/report.html", "paddle-stress/report.html", "sizes/costs.json"} {
 		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
 			t.Fatal(err)
 		}
