@@ -21,6 +21,21 @@ func BenchmarkAttentionActDefault(b *testing.B) {
 	}
 }
 
+// BenchmarkAttentionActCentre is the default step with the token set
+// centred first (Config.Centre): one more pass over the 144×192 inputs.
+func BenchmarkAttentionActCentre(b *testing.B) {
+	g := testGrid(b, 96, 96, 8)
+	n := mustNew(b, Config{Centre: true}, g, contSpace, 1)
+	obs := RandomObservation(g, contSpace, 2)
+	a := make([]float64, 3)
+	b.ReportAllocs()
+	for b.Loop() {
+		if err := n.Act(obs, a); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
+
 // BenchmarkAttentionActPlain is the same step on the plain reference
 // kernels.
 func BenchmarkAttentionActPlain(b *testing.B) {
@@ -52,7 +67,7 @@ func BenchmarkForwardBackward(b *testing.B) {
 // Act and a training step allocate nothing once the buffers exist.
 func TestNoAllocationsPerStep(t *testing.T) {
 	g := testGrid(t, 96, 96, 8)
-	for _, cfg := range []Config{{}, {Family: PosAttention, PrevAction: true, Context: 2}, {Family: MeanPool}, {Family: MLP}, {KeyHidden: 8, Value: "identity"}} {
+	for _, cfg := range []Config{{}, {Family: PosAttention, PrevAction: true, Context: 2}, {Family: MeanPool}, {Family: MLP}, {KeyHidden: 8, Value: "identity"}, {Centre: true}, {Family: MeanPool, Centre: true, Context: 2}} {
 		n := mustNew(t, cfg, g, contSpace, 1)
 		obs := RandomObservation(g, contSpace, 2)
 		a := make([]float64, 3)

@@ -75,9 +75,9 @@ func Estimate(cfg Config, grid *patch.Grid, space games.ActionSpace) (Cost, erro
 		layers = append(layers, LayerCost{Name: "input rows", Kind: "input", Activations: N * int64(in.din)})
 	}
 	if in.centre {
-		// Sums and subtractions only: no products, so no FLOPs in this
-		// model (as for tanh).
-		layers = append(layers, LayerCost{Name: "centre", Kind: "centre", Activations: int64(in.pixels())})
+		// Two products: the mean (1×N by N×px) and the rank-1 update
+		// that subtracts it (N×1 by 1×px).
+		layers = append(layers, LayerCost{Name: "centre", Kind: "centre", FLOPs: 4 * N * int64(in.pixels()), Activations: int64(in.pixels())})
 	}
 	din, px := int64(in.din), int64(in.pixels())
 	H := int64(cfg.Hidden)

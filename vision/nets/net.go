@@ -295,7 +295,7 @@ type inputs struct {
 	discrete      bool
 	centre        bool
 	mean          []float32 // centre: the set's mean row (pixel part)
-	acc           []float64 // centre: its sums
+	coef          []float32 // centre: 1/n, then −1, per token
 	cells         int
 	buf           []float32
 	hist          []float32 // (k−1) slots × cells × d
@@ -328,7 +328,7 @@ func (in *inputs) alloc() {
 	}
 	if in.centre {
 		in.mean = make([]float32, in.d*in.k)
-		in.acc = make([]float64, in.d*in.k)
+		in.coef = make([]float32, in.capacity)
 	}
 	in.cellOf = make([]int, in.capacity)
 }
@@ -434,31 +434,28 @@ func (in *inputs) build(obs *vision.Observation, g *patch.Grid) ([]float32, int,
 }
 
 // centreRows subtracts, column by column, the mean over the n rows of x
-// from the pixel part of every row (Config.Centre). The sums are kept in
-// float64: for tokens of 8-bit pixels (float32(b)/255) they are exact, so
-// the mean does not depend on the token order at all.
+// from the pixel part of every row (Config.Centre), with two matrix
+// products through the kernel table: mean = (1/n)·1ᵀ·X, then X −= 1·mean.
+// The sums are float32 in token order, so reordering the tokens moves
+// the result by float32 rounding only.
 func (in *inputs) centreRows(x []float32, n int) {
 	if n == 0 {
 		return
 	}
 	w := in.d * in.k
-	acc := in.acc[:w]
-	clear(acc)
-	for i := 0; i < n; i++ {
-		for j, v := range x[i*in.din : i*in.din+w] {
-			acc[j] += float64(v)
-		}
+	in.coef = grow(in.coef, n)
+	c := in.coef[:n]
+	inv := 1 / float32(n)
+	for i := range c {
+		c[i] = inv
 	}
 	m := in.mean[:w]
-	for j, s := range acc {
-		m[j] = float32(s / float64(n))
+	clear(m)
+	kern.nn(1, n, w, c, n, x, in.din, m, w)
+	for i := range c {
+		c[i] = -1
 	}
-	for i := 0; i < n; i++ {
-		row := x[i*in.din : i*in.din+w]
-		for j, v := range m {
-			row[j] -= v
-		}
-	}
+	kern.nn(n, 1, w, c, 1, m, w, x, in.din)
 }
 
 // head is the small MLP every family ends with: Linear → tanh → Linear,
