@@ -70,6 +70,7 @@ func runTrain(ctx *runContext, args []string) error {
 	epochs := fs.Int("epochs", 0, "clone: epochs over the aggregated data per round (default 2)")
 	perRound := fs.Int("episodes-per-round", 0, "clone: episodes collected per DAgger round (default 4)")
 	patience := fs.Int("patience", 0, "stop after this many validations without improvement (default 4; -1 never)")
+	minIters := fs.Int("min-iters", 0, "early stopping waits for this many iterations (default: clone 12, es and cmaes 0; -1 none)")
 	pairs := fs.Int("pairs", 0, "es: antithetic pairs per generation (default 16)")
 	sigma := fs.Float64("sigma", 0, "es/cmaes: noise / initial step size (default es 0.05, cmaes 0.1)")
 	decay := fs.Float64("weight-decay", 0.005, "es: L2 weight decay")
@@ -106,7 +107,7 @@ func runTrain(ctx *runContext, args []string) error {
 		}
 		cfg := train.Config{
 			Game: *game, Variation: *variation, Patch: *patchSize, Method: *method, Seed: *seed,
-			Iters: *iters, Budget: *budget, Workers: *workers, Patience: *patience, FitnessEpisodes: *fitEps, ValEpisodes: *valEps,
+			Iters: *iters, Budget: *budget, Workers: *workers, Patience: *patience, MinIters: *minIters, FitnessEpisodes: *fitEps, ValEpisodes: *valEps,
 			Net: nets.Config{Family: *family, KeySize: *keySize, Queries: *queries, Hidden: *hidden, PrevAction: *prevAction,
 				ValueSize: *valueSize, KeyHidden: *keyHidden, Context: *ctxFrames, Centre: *centre},
 			Augment: patch.Spec{Occlude: *occlude, Fill: *fill, Scramble: *scramble, NoiseTokens: *noiseTok},

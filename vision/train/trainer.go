@@ -96,6 +96,12 @@ type Config struct {
 	// Patience stops when the validation score has not improved for this
 	// many validations (early stopping). 0 means 4; negative disables it.
 	Patience int
+	// MinIters is the number of iterations before early stopping may
+	// stop a run: behaviour cloning often plateaus for its first DAgger
+	// rounds (on paddle, at the never-catching level for up to about 8)
+	// before the student starts to learn. 0 means 12 for clone and none
+	// for cmaes and es; negative means none.
+	MinIters int
 	// Workers is the number of goroutines. 0 means runtime.GOMAXPROCS(0).
 	Workers int
 	// ValEvery validates every ValEvery iterations. 0 means 1 for clone,
@@ -133,6 +139,9 @@ func (c Config) withDefaults() Config {
 		c.Budget = 5 * time.Minute
 	}
 	def(&c.Patience, 4)
+	if c.Method == Clone {
+		def(&c.MinIters, 12)
+	}
 	def(&c.Workers, runtime.GOMAXPROCS(0))
 	if c.Method == Clone {
 		def(&c.ValEvery, 1)
@@ -150,6 +159,13 @@ func (c Config) withDefaults() Config {
 	c.CMA.Seed = patch.DeriveSeed(c.Seed, patch.StreamKey("cmaes"))
 	c.CMA.MaxEvals = 0
 	return c
+}
+
+// earlyStop reports whether st, after a validation, ends the run by
+// early stopping: Patience validations without improvement, and at least
+// MinIters iterations done.
+func (c Config) earlyStop(st state) bool {
+	return c.Patience > 0 && st.Stale >= c.Patience && st.Iter >= c.MinIters
 }
 
 // setup is the resolved, fixed part of a run.
@@ -449,7 +465,7 @@ func (t *Trainer) Run(ctx context.Context, onIter func(Progress), every int, che
 			return "iterations"
 		case elapsed() >= t.cfg.Budget:
 			return "budget"
-		case t.cfg.Patience > 0 && t.st.Stale >= t.cfg.Patience:
+		case t.cfg.earlyStop(t.st):
 			return "early-stop"
 		}
 		return ""
