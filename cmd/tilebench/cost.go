@@ -62,7 +62,7 @@ func runCost(ctx *runContext, args []string) error {
 	tokenHidden := fs.Int("token-hidden", 0, "width of meanpool's per-token layer (0 = default 32)")
 	context := fs.Int("context", 0, "frames of temporal context per token (0 or 1 = current frame only)")
 	prev := fs.Bool("prev-action", false, "give the policy the previous action")
-	centre := fs.Bool("centre", false, "subtract the token set's mean token from every token")
+	centre := fs.Bool("centre", true, "subtract the token set's mean token from every token, as tilebench train does by default (--centre=false: off)")
 	reps := fs.Int("reps", 15, "latency samples per patch size (median reported); 0 skips the latency measurement")
 	steps := fs.Int("steps", 20, "policy steps per latency sample")
 	layers := fs.Bool("layers", false, "also print the cost of every layer")
