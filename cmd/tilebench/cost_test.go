@@ -42,7 +42,8 @@ func TestCostTableAndJSON(t *testing.T) {
 	if res.Format != 1 || res.Family != "meanpool" || len(res.Sizes) != 2 {
 		t.Fatalf("summary %+v", res)
 	}
-	// The figures are the cost model's for the paddle game's frame.
+	// The figures are the cost model's for the paddle game's frame, with
+	// centring (the default, as tilebench train makes policies).
 	g, err := games.New("paddle", games.Options{})
 	if err != nil {
 		t.Fatal(err)
@@ -52,7 +53,7 @@ func TestCostTableAndJSON(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	c, err := nets.Estimate(nets.Config{Family: "meanpool"}, grid, sp.Action)
+	c, err := nets.Estimate(nets.Config{Family: "meanpool", Centre: true}, grid, sp.Action)
 	if err != nil {
 		t.Fatal(err)
 	}
