@@ -29,7 +29,8 @@ same stress study of the patch-7 policy on the paddle game. Uses the
 reference policies in testdata/policies when they are there, untrained
 networks otherwise (the report says which). Writes DIR/index.html with
 links to DIR/sizes/report.html, DIR/stress/report.html and
-DIR/paddle-stress/report.html and prints the paths. Running it again on the same DIR re-makes the reports.
+DIR/paddle-stress/report.html and prints the paths. Running it again on
+the same DIR re-makes the reports.
 
   tilebench demo --out tilebench-demo
 
