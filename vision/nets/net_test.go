@@ -390,6 +390,7 @@ func TestLoadRejects(t *testing.T) {
 		{"nometa", func(f *weights.File) { delete(f.Metadata, "patch_w") }, "patch_w"},
 		{"format", func(f *weights.File) { f.Metadata["format"] = "7" }, "format"},
 		{"bounds", func(f *weights.File) { f.Metadata["action_low"] = "[1,2]" }, "bounds"},
+		{"centre", func(f *weights.File) { f.Metadata["centre"] = "maybe" }, `"centre" = "maybe"`},
 	}
 	for _, c := range cases {
 		f, err := ToFile(n, nil)
@@ -501,6 +502,16 @@ func TestCentre(t *testing.T) {
 		}
 		if !back.Config().Centre {
 			t.Errorf("%s: centre lost in the weights file", fam)
+		}
+		// A file written before the key existed loads uncentred.
+		f, err := ToFile(cent, nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		delete(f.Metadata, "centre")
+		old, err := FromFile(f)
+		if err != nil || old.Config().Centre {
+			t.Errorf("%s: file without \"centre\": %v, centre %v", fam, err, err == nil && old.Config().Centre)
 		}
 	}
 }
