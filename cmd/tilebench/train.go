@@ -69,7 +69,7 @@ func runTrain(ctx *runContext, args []string) error {
 	batch := fs.Int("batch", 0, "clone: minibatch size (default 64)")
 	epochs := fs.Int("epochs", 0, "clone: epochs over the aggregated data per round (default 2)")
 	perRound := fs.Int("episodes-per-round", 0, "clone: episodes collected per DAgger round (default 4)")
-	patience := fs.Int("patience", 0, "stop after this many validations without improvement (default 4; -1 never)")
+	patience := fs.Int("patience", 0, "stop after this many validations without improvement (default: clone 8, es and cmaes 4; -1 never)")
 	minIters := fs.Int("min-iters", 0, "early stopping waits for this many iterations (default: clone 12, es and cmaes 0; -1 none)")
 	pairs := fs.Int("pairs", 0, "es: antithetic pairs per generation (default 16)")
 	sigma := fs.Float64("sigma", 0, "es/cmaes: noise / initial step size (default es 0.05, cmaes 0.1)")

@@ -94,7 +94,10 @@ type Config struct {
 	// training time (summed across resumed runs). 0 means 5 minutes.
 	Budget time.Duration
 	// Patience stops when the validation score has not improved for this
-	// many validations (early stopping). 0 means 4; negative disables it.
+	// many validations (early stopping). 0 means 8 for clone (its
+	// validation score, over a few episodes, is noisy from round to round;
+	// the best weights are kept anyway) and 4 for cmaes and es; negative
+	// disables it.
 	Patience int
 	// MinIters is the number of iterations before early stopping may
 	// stop a run: behaviour cloning often plateaus for its first DAgger
@@ -138,10 +141,11 @@ func (c Config) withDefaults() Config {
 	if c.Budget == 0 {
 		c.Budget = 5 * time.Minute
 	}
-	def(&c.Patience, 4)
 	if c.Method == Clone {
+		def(&c.Patience, 8)
 		def(&c.MinIters, 12)
 	}
+	def(&c.Patience, 4)
 	def(&c.Workers, runtime.GOMAXPROCS(0))
 	if c.Method == Clone {
 		def(&c.ValEvery, 1)

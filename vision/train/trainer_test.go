@@ -215,12 +215,13 @@ func TestSampleLossDoesNotAllocate(t *testing.T) {
 
 // Early stopping waits for MinIters iterations (12 rounds by default for
 // behaviour cloning, none for ES), then stops after Patience validations
-// without improvement; a negative Patience never stops.
+// without improvement (8 for cloning, 4 for ES); a negative Patience
+// never stops.
 func TestEarlyStopRule(t *testing.T) {
 	clone := Config{Method: Clone}.withDefaults()
 	es := Config{Method: ESm}.withDefaults()
-	if clone.Patience != 4 || clone.MinIters != 12 || es.MinIters != 0 {
-		t.Fatalf("defaults: clone patience %d, min iters %d; es min iters %d", clone.Patience, clone.MinIters, es.MinIters)
+	if clone.Patience != 8 || clone.MinIters != 12 || es.Patience != 4 || es.MinIters != 0 {
+		t.Fatalf("defaults: clone patience %d, min iters %d; es %d, %d", clone.Patience, clone.MinIters, es.Patience, es.MinIters)
 	}
 	for _, c := range []struct {
 		cfg         Config
@@ -229,12 +230,12 @@ func TestEarlyStopRule(t *testing.T) {
 	}{
 		{clone, 5, 5, false},   // still warming up
 		{clone, 11, 11, false}, // one round short
-		{clone, 12, 4, true},
-		{clone, 12, 3, false},
+		{clone, 12, 8, true},
+		{clone, 12, 7, false},
 		{es, 20, 4, true},
 		{es, 3, 3, false},
 		{Config{Method: Clone, Patience: -1}.withDefaults(), 100, 100, false},
-		{Config{Method: Clone, MinIters: -1}.withDefaults(), 4, 4, true},
+		{Config{Method: Clone, MinIters: -1}.withDefaults(), 8, 8, true},
 	} {
 		if got := c.cfg.earlyStop(state{Iter: c.iter, Stale: c.stale}); got != c.want {
 			t.Errorf("%s patience %d min %d, iter %d stale %d: stop %v, want %v", c.cfg.Method, c.cfg.Patience, c.cfg.MinIters, c.iter, c.stale, got, c.want)
