@@ -135,6 +135,8 @@ func breaksData() *Data {
 		{Axis: "random occlusion ratio (patch 4, scramble full)", Break: stats.Break{Reached: true, Severity: 0.5, Threshold: 0.5, Max: 0.75}},
 		{Axis: "block occlusion ratio", Context: "patch 16", Break: stats.Break{Reached: true, Severity: 0.2, Threshold: 0.5, Max: 0.4}},
 		{Axis: "random occlusion ratio (patch 8)", Break: stats.Break{Reached: true, Severity: 0.75, Threshold: 0.3, Max: 0.75}},
+		// Broken at severity 0: the occlusion in its context alone did it.
+		{Axis: "scrambled fraction (patch 8, occlude random:0.5)", Break: stats.Break{Reached: true, Severity: 0, Threshold: 0.5, Max: 1}},
 	}
 	d.Findings = []KV{{"f1", "v1"}, {"f2", "v2"}, {"f3", "v3"}, {"f4", "v4"}, {"f5", "v5"}}
 	return d
@@ -158,11 +160,13 @@ func TestBreakTable(t *testing.T) {
 		t.Error("a card per breaking point is still drawn")
 	}
 	rows := brkRow.FindAllStringSubmatch(s, -1)
-	want := [][5]string{ // class, axis, context, pill, value: earliest break first, held last
+	want := [][5]string{ // class, axis, context, pill, value: earliest break first, held next,
+		// broken by the context alone last
 		{"broke", "block occlusion ratio", "patch 16", "bad", "0.2"},
 		{"broke", "random occlusion ratio", "patch 4, scramble full", "bad", "0.5"},
 		{"broke", "random occlusion ratio", "patch 8", "bad", "0.75"},
 		{"held", "scrambled fraction", "patch 8", "good", "not reached"},
+		{"broke", "scrambled fraction", "patch 8, occlude random:0.5", "bad", "0"},
 	}
 	if len(rows) != len(want) {
 		t.Fatalf("%d rows in the breaking-point table, want %d", len(rows), len(want))
@@ -172,6 +176,9 @@ func TestBreakTable(t *testing.T) {
 		if got != w {
 			t.Errorf("row %d: %q, want %q", i+1, got, w)
 		}
+	}
+	if !strings.Contains(s, `0</span> <span class="fine">broken by the context alone</span>`) {
+		t.Error("the row broken at severity 0 does not say its context broke it")
 	}
 	// The row whose threshold differs from the others says so.
 	if !strings.Contains(s, `0.75</span> <span class="fine">threshold 0.3</span>`) {

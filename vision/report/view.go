@@ -83,11 +83,26 @@ func splitContext(s string) (axis, context string) {
 }
 
 // buildBreaks fills the breaking-point table: the earliest breaks first
-// (ascending severity), then the axes that held, in the order given.
+// (ascending severity), then the axes that held, in the order given, and
+// last the rows whose context alone had already broken the policy at the
+// axis's first severity (they say nothing about the axis itself).
 func (v *view) buildBreaks(bs []Break) {
 	sorted := slices.Clone(bs)
+	preBroken := func(b Break) bool {
+		ctx := b.Context
+		if ctx == "" {
+			_, ctx = splitContext(b.Axis)
+		}
+		// Severity 0 is every axis's identity (no stress on that axis).
+		return b.Break.AtStart() && b.Break.Min == 0 && ctx != ""
+	}
 	slices.SortStableFunc(sorted, func(a, b Break) int {
-		switch {
+		switch pa, pb := preBroken(a), preBroken(b); {
+		case pa != pb:
+			if pa {
+				return 1
+			}
+			return -1
 		case a.Break.Reached && b.Break.Reached:
 			return cmp.Compare(a.Break.Severity, b.Break.Severity)
 		case a.Break.Reached:
@@ -128,7 +143,11 @@ func (v *view) buildBreaks(bs []Break) {
 			bv.Axis, bv.Context = splitContext(b.Axis)
 		}
 		var qual []string
-		if b.Break.Reached {
+		if preBroken(b) {
+			bv.Big = num(b.Break.Severity)
+			qual = append(qual, "broken by the context alone")
+			bv.Text = fmt.Sprintf("%s: retention already below %s there, from the context alone", num(b.Break.Severity), num(th))
+		} else if b.Break.Reached {
 			bv.Big = num(b.Break.Severity)
 			bv.Text = fmt.Sprintf("%s (retention below %s)", num(b.Break.Severity), num(th))
 		} else {

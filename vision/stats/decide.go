@@ -36,7 +36,14 @@ type Break struct {
 	Threshold float64
 	// Max is the largest severity measured (so "not reached up to Max").
 	Max float64
+	// Min is the smallest severity measured. A break at Min means the
+	// retention was already below Threshold there: in a context with
+	// other stress applied, that context alone broke the policy.
+	Min float64
 }
+
+// AtStart reports whether the break is at the smallest severity measured.
+func (b Break) AtStart() bool { return b.Reached && b.Severity == b.Min }
 
 // String returns the severity ("0.3") or "not reached (≤ 0.9)".
 func (b Break) String() string {
@@ -72,7 +79,7 @@ func BreakingPoint(levels []Level, threshold float64) (Break, error) {
 		}
 	}
 	slices.SortStableFunc(ls, func(a, b Level) int { return cmp.Compare(a.Severity, b.Severity) })
-	br := Break{Severity: math.NaN(), Threshold: threshold, Max: ls[len(ls)-1].Severity}
+	br := Break{Severity: math.NaN(), Threshold: threshold, Max: ls[len(ls)-1].Severity, Min: ls[0].Severity}
 	for _, l := range ls {
 		if l.Retention.Value < threshold {
 			br.Reached, br.Severity = true, l.Severity

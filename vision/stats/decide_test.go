@@ -61,8 +61,12 @@ func TestBreakingPoint(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !b.Reached || b.Severity != 0.4 || b.Threshold != 0.5 || b.String() != "0.4" {
-		t.Fatalf("break %+v (%s), want 0.4 at threshold 0.5", b, b)
+	if !b.Reached || b.Severity != 0.4 || b.Threshold != 0.5 || b.String() != "0.4" || b.Min != 0 || b.AtStart() {
+		t.Fatalf("break %+v (%s), want 0.4 at threshold 0.5, not at the start", b, b)
+	}
+	// Below the threshold at the smallest severity already.
+	if b, _ := BreakingPoint([]Level{{0.5, ret(0.2)}, {0.25, ret(0.4)}}, 0); !b.AtStart() || b.Severity != 0.25 || b.Min != 0.25 {
+		t.Fatalf("break %+v: want at the start, 0.25", b)
 	}
 	b, _ = BreakingPoint(levels, 0.25)
 	if b.Reached || !math.IsNaN(b.Severity) || b.Max != 0.8 || !strings.Contains(b.String(), "not reached") {
