@@ -48,9 +48,13 @@ func Intercept(b Ball, r float64) (x, steps float64) {
 // Act writes the action: for the discrete game left (0), stay (1) or
 // right (2) towards the ball's x, staying when within half a step's move;
 // for the analog game the velocity that reaches it, clamped to [−1,1].
-func (e *Expert) Act(dst []float64) {
-	g := e.g
-	dx := g.ball.X - g.paddleX
+func (e *Expert) Act(dst []float64) { e.g.steerTowards(e.g.ball.X, dst) }
+
+// steerTowards writes the action that moves the paddle's centre towards
+// x: discrete left/stay/right with a dead zone of half a step's move, or
+// the analog velocity that reaches it, clamped to [−1,1].
+func (g *Game) steerTowards(x float64, dst []float64) {
+	dx := x - g.paddleX
 	sp := g.cfg.PaddleSpeed
 	if g.cfg.Analog {
 		dst[0] = math.Max(-1, math.Min(1, dx/sp))

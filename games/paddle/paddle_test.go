@@ -367,15 +367,7 @@ func TestTrackerMatchesInterceptPlanner(t *testing.T) {
 		if b.Y+g.cfg.BallRadius <= PaddleY {
 			target, _ = Intercept(b, g.cfg.BallRadius)
 		}
-		dx, sp := target-g.paddleX, g.cfg.PaddleSpeed
-		switch {
-		case dx > sp/2:
-			dst[0] = 2
-		case dx < -sp/2:
-			dst[0] = 0
-		default:
-			dst[0] = 1
-		}
+		g.steerTowards(target, dst)
 	}
 	mean := func(act func([]float64)) float64 {
 		a := make([]float64, 1)
