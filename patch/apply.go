@@ -166,6 +166,11 @@ func newPipeline(g *Grid, spec Spec) (*Pipeline, error) {
 	x.cells = make([]Pos, N)
 	setGridPos(g, x.cells)
 	x.maskIdx = make([]int, 0, N)
+	if len(pr.corr) > 0 {
+		if p.corr, err = newCorrState(g, pr.corr); err != nil {
+			return nil, err
+		}
+	}
 	p.reset(0)
 	return p, nil
 }
@@ -223,6 +228,9 @@ func (p *Pipeline) reset(seed uint64) {
 	x := &p.x
 	x.seed = seed
 	x.valid = false
+	if p.corr != nil {
+		p.corr.reset(p)
+	}
 	g := p.g
 	switch x.pr.occ {
 	case occBlock, occSweep:
@@ -562,6 +570,10 @@ func (p *Pipeline) apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 		}
 		if rec.Params.Contrast == 0 {
 			rec.Params.Contrast = 1
+		}
+		rec.Offset = [2]int{}
+		if p.corr != nil && p.corr.hasShift {
+			rec.Offset = p.corr.frameOffset(p, t)
 		}
 	}
 	return nil

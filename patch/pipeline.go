@@ -1,6 +1,7 @@
 package patch
 
 import (
+	"fmt"
 	"image"
 	"math/rand/v2"
 )
@@ -98,6 +99,14 @@ type Spec struct {
 	Contrast   float64    `json:"contrast,omitempty"`
 	Shift      [3]float64 `json:"shift,omitzero"`
 	PixelNoise float64    `json:"pixel_noise,omitempty"`
+	// Corrupt is a comma list of frame corruptions applied to the frame,
+	// in pixels, before it is tokenized (Pipeline.TokenizeFrame), in the
+	// order written: blur:S, motionblur:L[:ANGLE], resolution:F, jpeg:Q,
+	// gamma:G, sharpen:S, saltpepper:R, dead:R, shift:DX[:DY][:MODE],
+	// shake:A[:MODE], rotate:DEGREES, scale:S; each also as KIND:s1 to
+	// KIND:s5, a severity level. See corrupt.go for each kind, its
+	// severity table and what fills uncovered pixels. "" or "none": none.
+	Corrupt string `json:"corrupt,omitempty"`
 }
 
 // Pipeline applies a Spec to token sets, step after step, drawing all its
@@ -112,14 +121,18 @@ type Spec struct {
 //  5. noise tokens are appended, then duplicates of the remaining real
 //     tokens.
 //
-// A Pipeline allocates nothing per step; one Pipeline serves one
-// goroutine.
+// Frame corruptions (Spec.Corrupt) come before all of these: they act on
+// the frame, so a caller tokenizes through TokenizeFrame.
+//
+// A Pipeline allocates nothing per step (a JPEG corruption excepted: the
+// standard library's codec allocates); one Pipeline serves one goroutine.
 type Pipeline struct {
 	g    *Grid
 	spec Spec
 	x    pipeState
 	pcg  *rand.PCG
 	rng  *rand.Rand
+	corr *corrState // nil without frame corruptions
 }
 
 // NewPipeline checks spec against g and builds the pipeline. A mask file
@@ -141,6 +154,42 @@ func (p *Pipeline) Reset(seed uint64) { p.reset(seed) }
 // order of calls.
 func (p *Pipeline) Apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 	return p.apply(t, src, dst, rec)
+}
+
+// TokenizeFrame tokenizes img, the frame of step t, with tok, after
+// applying the spec's frame corruptions to a copy of it (in buffers the
+// pipeline owns; img is not changed). Without corruptions it is
+// tok.Tokenize(img, dst). tok's grid must have the pipeline grid's source
+// size. Random corruptions (saltpepper, shake; dead per sequence) draw
+// from the seed given to Reset, so the result depends only on that seed,
+// t and img.
+func (p *Pipeline) TokenizeFrame(t int, tok *Tokenizer, img image.Image, dst *TokenSet) error {
+	if p.corr == nil {
+		return tok.Tokenize(img, dst)
+	}
+	f, err := p.CorruptFrame(t, img)
+	if err != nil {
+		return err
+	}
+	return tok.Tokenize(f, dst)
+}
+
+// CorruptFrame returns img (of the grid's source size) with the spec's
+// frame corruptions for step t applied, in a frame the pipeline owns that
+// stays valid until the next call. Without corruptions it returns a copy
+// of img.
+func (p *Pipeline) CorruptFrame(t int, img image.Image) (*image.RGBA, error) {
+	if t < 0 {
+		return nil, fmt.Errorf("corrupt: step %d is negative", t)
+	}
+	if p.corr == nil {
+		s, err := newCorrState(p.g, nil)
+		if err != nil {
+			return nil, err
+		}
+		p.corr = s // no steps: CorruptFrame copies, Apply records nothing
+	}
+	return p.corr.run(p, t, img)
 }
 
 // FrameRecord is what the pipeline did to one frame: enough to invert the
@@ -173,6 +222,11 @@ type FrameRecord struct {
 	Epoch int `json:"epoch"`
 	// Params are the settings applied to this frame.
 	Params FrameParams `json:"params"`
+	// Offset is the translation (dx, dy) in pixels that the spec's shift
+	// and shake corruptions gave this frame (a pixel moved from (x, y) to
+	// (x+dx, y+dy)); shift:−dx:−dy undoes it (exactly with mode wrap).
+	// Zero, and left out, otherwise.
+	Offset [2]int `json:"offset,omitzero"`
 }
 
 // FrameParams are the numeric settings a pipeline applied to one frame.

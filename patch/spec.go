@@ -56,6 +56,8 @@ type parsedSpec struct {
 	maskPath string
 
 	fill fillKind
+
+	corr []Corruption // frame corruptions, in order
 }
 
 // parseRatio reads a plain decimal number ("0.25", ".5", "1") exactly and
@@ -210,6 +212,11 @@ func (s Spec) parse() (parsedSpec, error) {
 	if err := inRange(s.PixelNoise, 0, 1, "pixel noise"); err != nil {
 		return p, err
 	}
+	corr, err := ParseCorrupt(s.Corrupt)
+	if err != nil {
+		return p, err
+	}
+	p.corr = corr
 	return p, nil
 }
 
@@ -277,6 +284,9 @@ func (s Spec) String() string {
 	if s.PixelNoise != 0 {
 		word("pixel-noise", num(s.PixelNoise))
 	}
+	if s.Corrupt != "" && s.Corrupt != "none" {
+		word("corrupt", s.Corrupt)
+	}
 	if b.Len() == 0 {
 		return "none"
 	}
@@ -303,7 +313,7 @@ func quoteWord(v string) string {
 
 // ParseSpec reads a spec written by Spec.String ("none", or key=value
 // words: scramble, every, rotate, flip, occlude, fill, noise-tokens,
-// duplicates, brightness, contrast, shift=R,G,B, pixel-noise) and checks
+// duplicates, brightness, contrast, shift=R,G,B, pixel-noise, corrupt) and checks
 // it. A bare "rotate" or "flip" means true.
 func ParseSpec(line string) (Spec, error) {
 	var s Spec
@@ -373,6 +383,8 @@ func ParseSpec(line string) (Spec, error) {
 			s.PixelNoise, err = float(v)
 		case "shift":
 			s.Shift, err = ParseShift(v)
+		case "corrupt":
+			s.Corrupt = v
 		default:
 			return s, fmt.Errorf("transform spec: unknown key %q", k)
 		}
