@@ -396,14 +396,14 @@ func ExpandCorrupt(item string) ([]string, error) {
 	return out, nil
 }
 
-// CorruptInverse says, for one corruption, how to undo it: the list that
-// inverts it and whether that inverse is exact ("" when there is none).
-// Exact inverses: shift with mode wrap (shift back). Approximate: shift
-// and shake with fill or edge (the uncovered border is lost), rotate and
-// scale (interpolation; corners are lost), gamma (8-bit rounding). No
-// inverse: blur, motionblur, resolution, jpeg, sharpen (information is
-// removed), saltpepper and dead (the hit pixels are lost). Shake's offset
-// differs per frame: the manifest's frame records hold it (Offset).
+// CorruptInverse says, for one corruption, how to undo it: the
+// corruption list that inverts it, or "none (...)" with the reason, and
+// whether the inverse is exact. Exact: shift with mode wrap (shift back).
+// Approximate: shift and shake with fill or edge (the uncovered border is
+// lost), rotate and scale (interpolation; the corners are lost), gamma
+// (8-bit rounding). None: blur, motionblur, resolution, jpeg, sharpen
+// (detail is removed), saltpepper and dead (the hit pixels are lost).
+// Shake's offset differs per frame: each frame record holds it (Offset).
 func CorruptInverse(c Corruption) (inverse string, exact bool) {
 	num := func(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 	switch c.Kind {
@@ -411,13 +411,37 @@ func CorruptInverse(c Corruption) (inverse string, exact bool) {
 		inv := Corruption{Kind: "shift", A: -c.A, B: -c.B, Mode: c.Mode}
 		return inv.String(), c.Mode == ShiftWrap
 	case "shake":
-		return "shift:-DX:-DY per frame (frames[].offset)", c.Mode == ShiftWrap
+		return "shift:-DX:-DY:" + c.Mode.String() + " with (DX, DY) each frame's offset", c.Mode == ShiftWrap
 	case "rotate":
-		return "rotate:" + num(-c.A), false
+		return "rotate:" + num(-c.A) + " (approximate: interpolated, corners lost)", false
 	case "scale":
-		return "scale:" + num(1/c.A), false
+		return "scale:" + num(1/c.A) + " (approximate: interpolated, border lost)", false
 	case "gamma":
-		return "gamma:" + num(1/c.A), false
+		return "gamma:" + num(1/c.A) + " (approximate: 8-bit rounding)", false
+	case "saltpepper", "dead":
+		return "none (the hit pixels are lost)", false
 	}
-	return "", false
+	return "none (detail is removed)", false
+}
+
+// CorruptNote is how a manifest describes one frame corruption of its
+// spec and its inverse (see CorruptInverse).
+type CorruptNote struct {
+	Step    string `json:"step"`
+	Inverse string `json:"inverse"`
+	Exact   bool   `json:"exact"`
+}
+
+// corruptNotes describes the corruptions of a spec.
+func corruptNotes(s Spec) []CorruptNote {
+	cs, err := ParseCorrupt(s.Corrupt)
+	if err != nil {
+		return nil
+	}
+	var out []CorruptNote
+	for _, c := range cs {
+		inv, exact := CorruptInverse(c)
+		out = append(out, CorruptNote{Step: c.String(), Inverse: inv, Exact: exact})
+	}
+	return out
 }

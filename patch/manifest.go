@@ -53,6 +53,10 @@ type Manifest struct {
 	// reader ignores it).
 	Spec Spec   `json:"spec"`
 	Line string `json:"spec_line"`
+	// Corrupt says, for each frame corruption of the spec, how it can be
+	// undone (an exact inverse, an approximate one, or none and why); for
+	// people (a reader ignores it). Left out without corruptions.
+	Corrupt []CorruptNote `json:"corrupt,omitempty"`
 	// Seed is the seed given to Pipeline.Reset for the sequence.
 	Seed uint64 `json:"seed"`
 	// Frames holds one record per frame, in increasing Frame order.
@@ -64,7 +68,7 @@ type Manifest struct {
 // NewManifest starts a manifest for a sequence run by a pipeline on g with
 // spec, Reset to seed.
 func NewManifest(g *Grid, spec Spec, seed uint64) *Manifest {
-	return &Manifest{Format: ManifestFormat, Grid: gridJSON(g), Spec: spec, Line: spec.String(), Seed: seed, g: g}
+	return &Manifest{Format: ManifestFormat, Grid: gridJSON(g), Spec: spec, Line: spec.String(), Corrupt: corruptNotes(spec), Seed: seed, g: g}
 }
 
 // GridOf returns the manifest's grid.
@@ -196,6 +200,8 @@ func checkRecord(r *FrameRecord, N, capa int, spec Spec, pr parsedSpec, seen []b
 		return fmt.Errorf("%d orientations for %d tokens", len(r.Orient), n)
 	case r.Epoch < 0:
 		return fmt.Errorf("epoch %d is negative", r.Epoch)
+	case r.Offset != [2]int{} && !translates(pr):
+		return fmt.Errorf("offset %v but the spec neither shifts nor shakes the frame", r.Offset)
 	}
 	clear(seen)
 	for i, j := range r.Perm {
@@ -246,6 +252,16 @@ func checkRecord(r *FrameRecord, N, capa int, spec Spec, pr parsedSpec, seen []b
 		return fmt.Errorf("%d real tokens, want all %d", r.Real, N)
 	}
 	return nil
+}
+
+// translates reports whether a spec moves the frame (shift or shake).
+func translates(pr parsedSpec) bool {
+	for _, c := range pr.corr {
+		if c.Kind == "shift" || c.Kind == "shake" {
+			return true
+		}
+	}
+	return false
 }
 
 // NewPipeline rebuilds the pipeline that made m, Reset to m's seed, so

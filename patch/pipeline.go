@@ -164,7 +164,7 @@ func (p *Pipeline) Apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 // from the seed given to Reset, so the result depends only on that seed,
 // t and img.
 func (p *Pipeline) TokenizeFrame(t int, tok *Tokenizer, img image.Image, dst *TokenSet) error {
-	if p.corr == nil {
+	if p.corr == nil || len(p.corr.ops) == 0 {
 		return tok.Tokenize(img, dst)
 	}
 	f, err := p.CorruptFrame(t, img)
