@@ -38,6 +38,7 @@ type corrOp struct {
 	c Corruption
 	// blur, sharpen (σ) and resolution (down then up) weights.
 	hx, vy   axisWeights // blur: along x and y at full size; resolution: down
+	half     []float32   // blur: the normalised kernel k[0..r] (no edge)
 	ux, uy   axisWeights // resolution: up
 	sw, sh   int         // resolution: the small size
 	lut      [256]uint8  // gamma
@@ -100,6 +101,7 @@ func newCorrState(g *Grid, cs []Corruption) (*corrState, error) {
 		case "blur", "sharpen":
 			op.hx = gaussWeights(W, c.A)
 			op.vy = gaussWeights(H, c.A)
+			op.half = gaussHalf(c.A)
 			needF = true
 		case "resolution":
 			op.sw = max(1, int(math.Round(float64(W)*c.A)))
@@ -108,7 +110,7 @@ func newCorrState(g *Grid, cs []Corruption) (*corrState, error) {
 			op.vy = resampleWeights(op.sh, H, boxKernel, 0.5)
 			op.ux = resampleWeights(W, op.sw, linearKernel, 1)
 			op.uy = resampleWeights(H, op.sh, linearKernel, 1)
-			s.small = growF(s.small, op.sw*H*3)
+			s.small = growF(s.small, W*op.sh*3)
 			s.small2 = growF(s.small2, op.sw*op.sh*3)
 			needF = true
 		case "gamma":
@@ -403,20 +405,22 @@ func (s *corrState) run(p *Pipeline, t int, img image.Image) (*image.RGBA, error
 func (s *corrState) step(p *Pipeline, k int, op *corrOp, t int, cur, nxt *image.RGBA) (bool, error) {
 	W, H := s.w, s.h
 	switch op.c.Kind {
-	case "blur":
-		rgbaToF(cur.Pix, s.f0)
-		convolveY(s.f0, s.f1, W, H, &op.vy)
-		convolveXTo8(s.f1, nxt.Pix, W, H, W, &op.hx, nil)
-	case "sharpen":
-		rgbaToF(cur.Pix, s.f0)
-		convolveY(s.f0, s.f1, W, H, &op.vy)
-		convolveXTo8(s.f1, nxt.Pix, W, H, W, &op.hx, cur.Pix)
+	case "blur", "sharpen":
+		s.gaussBlur(op, cur.Pix)
+		if op.c.Kind == "blur" {
+			fTo8(s.f0, nxt.Pix)
+		} else {
+			sharpenTo8(cur.Pix, s.f0, nxt.Pix)
+		}
 	case "resolution":
+		// Along y first, as whole-row multiply-adds, so that the
+		// per-pixel passes along x run on the small height only.
 		rgbaToF(cur.Pix, s.f0)
-		convolveX(s.f0, s.small, W, H, op.sw, &op.hx)         // W×H → sw×H
-		convolveY(s.small, s.small2, op.sw, op.sh, &op.vy)    // sw×H → sw×sh
-		convolveY(s.small2, s.f1, op.sw, H, &op.uy)           // sw×sh → sw×H
-		convolveXTo8(s.f1, nxt.Pix, op.sw, H, W, &op.ux, nil) // sw×H → W×H
+		convolveYRows(s.f0, s.small, W, 0, op.sh, &op.vy)     // W×H → W×sh
+		convolveX(s.small, s.small2, W, op.sh, op.sw, &op.hx) // → sw×sh
+		convolveX(s.small2, s.small, op.sw, op.sh, W, &op.ux) // → W×sh
+		convolveYRows(s.small, s.f1, W, 0, H, &op.uy)         // → W×H
+		fTo8(s.f1, nxt.Pix)
 	case "gamma":
 		lut := &op.lut
 		pix := cur.Pix
@@ -576,6 +580,141 @@ func convolveX(src, dst []float32, sw, h, dw int, a *axisWeights) {
 			o := out[3*x : 3*x+3 : 3*x+3]
 			o[0], o[1], o[2] = r, g, b
 		}
+	}
+}
+
+// gaussHalf is imaging's Gaussian kernel for σ, normalised over its full
+// width 2r+1: k[0] is the centre, k[j] the weight at ±j.
+func gaussHalf(sigma float64) []float32 {
+	r := int(math.Ceil(sigma * 3))
+	k := make([]float64, r+1)
+	sum := 0.0
+	for i := range k {
+		k[i] = math.Exp(-float64(i*i) / (2 * sigma * sigma))
+		sum += k[i]
+		if i > 0 {
+			sum += k[i]
+		}
+	}
+	out := make([]float32, r+1)
+	for i := range k {
+		out[i] = float32(k[i] / sum)
+	}
+	return out
+}
+
+// gaussBlur blurs the RGB bytes of pix into s.f0 (float byte values):
+// along y into s.f1, then along x back into s.f0. The interior of each
+// pass (taps all inside the frame) runs as a few frame-long symmetric
+// multiply-adds, which measured about 2x faster than the per-pixel loop
+// of convolveX, and with AVX2 (corrupt_amd64.s, eight values an
+// instruction, bit for bit the same) about 4x faster again; the border
+// rows and columns, whose weights are renormalised, are redone with the
+// per-position weights.
+func (s *corrState) gaussBlur(op *corrOp, pix []uint8) {
+	W, H := s.w, s.h
+	r := len(op.half) - 1
+	rgbaToF(pix, s.f0)
+	rl := 3 * W
+	if H > 2*r {
+		symAxpy(s.f1, s.f0, r*rl, (H-r)*rl, rl, op.half)
+		// Border rows: renormalised weights.
+		for _, y := range [2][2]int{{0, r}, {H - r, H}} {
+			convolveYRows(s.f0, s.f1, W, y[0], y[1], &op.vy)
+		}
+	} else {
+		convolveYRows(s.f0, s.f1, W, 0, H, &op.vy)
+	}
+	if W > 2*r {
+		// Frame-long along x: values within r of a row's end read the
+		// neighbouring row; those pixels are redone below.
+		symAxpy(s.f0, s.f1, 3*r, W*H*3-3*r, 3, op.half)
+		for y := 0; y < H; y++ {
+			in := s.f1[y*rl : (y+1)*rl]
+			out := s.f0[y*rl : (y+1)*rl]
+			convolveXRange(in, out, 0, r, &op.hx)
+			convolveXRange(in, out, W-r, W, &op.hx)
+		}
+		// The first and last r pixels of the frame were not written.
+	} else {
+		for y := 0; y < H; y++ {
+			convolveXRange(s.f1[y*rl:(y+1)*rl], s.f0[y*rl:(y+1)*rl], 0, W, &op.hx)
+		}
+	}
+}
+
+// symAxpy sets dst[i] = k[0]·src[i] + Σ_j k[j]·(src[i−j·step] + src[i+j·step])
+// for i in [lo, hi).
+func symAxpy(dst, src []float32, lo, hi, step int, k []float32) {
+	d := dst[lo:hi]
+	scaleInto(d, src[lo:hi], k[0])
+	for j := 1; j < len(k); j++ {
+		axpyPair(d, src[lo-j*step:hi-j*step], src[lo+j*step:hi+j*step], k[j])
+	}
+}
+
+// axpyPairGo is the portable axpyPair.
+func axpyPairGo(d, a, b []float32, k float32) {
+	a, b = a[:len(d)], b[:len(d)]
+	for i := range d {
+		d[i] += float32(k * (a[i] + b[i]))
+	}
+}
+
+// scaleIntoGo is the portable scaleInto.
+func scaleIntoGo(d, c []float32, k float32) {
+	c = c[:len(d)]
+	for i := range d {
+		d[i] = float32(k * c[i])
+	}
+}
+
+// convolveYRows is convolveY for output rows [y0, y1) only.
+func convolveYRows(src, dst []float32, w, y0, y1 int, a *axisWeights) {
+	rl := 3 * w
+	for y := y0; y < y1; y++ {
+		out := dst[y*rl : (y+1)*rl : (y+1)*rl]
+		lo, n, off := int(a.lo[y]), int(a.n[y]), int(a.off[y])
+		ws := a.w[off : off+n]
+		clear(out)
+		for j := 0; j < n; j++ {
+			in := src[(lo+j)*rl : (lo+j+1)*rl]
+			in = in[:len(out)]
+			wj := ws[j]
+			for i := range out {
+				out[i] += float32(wj * in[i])
+			}
+		}
+	}
+}
+
+// convolveXRange resamples one row along x for output pixels [x0, x1).
+func convolveXRange(in, out []float32, x0, x1 int, a *axisWeights) {
+	for x := x0; x < x1; x++ {
+		lo, n, off := int(a.lo[x]), int(a.n[x]), int(a.off[x])
+		ws := a.w[off : off+n]
+		p := in[3*lo : 3*(lo+n)]
+		var r, g, b float32
+		for j, wj := range ws {
+			q := p[3*j : 3*j+3 : 3*j+3]
+			r += float32(wj * q[0])
+			g += float32(wj * q[1])
+			b += float32(wj * q[2])
+		}
+		o := out[3*x : 3*x+3 : 3*x+3]
+		o[0], o[1], o[2] = r, g, b
+	}
+}
+
+// sharpenTo8 writes imaging.Sharpen's 2·v − blur(v) (the blur rounded to
+// a byte first, as imaging subtracts its blurred image) into dst.
+func sharpenTo8(src []uint8, blur []float32, dst []uint8) {
+	n := len(blur) / 3
+	for i := 0; i < n; i++ {
+		s := src[4*i : 4*i+3 : 4*i+3]
+		b := blur[3*i : 3*i+3 : 3*i+3]
+		o := dst[4*i : 4*i+4 : 4*i+4]
+		o[0], o[1], o[2], o[3] = sharpByte(s[0], clamp32(b[0])), sharpByte(s[1], clamp32(b[1])), sharpByte(s[2], clamp32(b[2])), 255
 	}
 }
 

@@ -549,3 +549,21 @@ func TestCorruptManifest(t *testing.T) {
 		t.Fatalf("manifest with an offset and no shift: %v", err)
 	}
 }
+
+// The AVX2 multiply-adds of the blur give bit for bit the bytes of the
+// portable loops.
+func TestCorruptSIMDMatchesGo(t *testing.T) {
+	if !haveSIMD {
+		t.Skip("no AVX2 path on this machine or build")
+	}
+	ph := photoFrame(t)
+	for _, c := range []string{"blur:2", "blur:0.7", "sharpen:1.5"} {
+		fast := corruptOne(t, ph, c, 1, 0)
+		haveSIMD = false
+		slow := corruptOne(t, ph, c, 1, 0)
+		haveSIMD = true
+		if !slices.Equal(fast.Pix, slow.Pix) {
+			t.Errorf("%s: the AVX2 path differs from the portable one", c)
+		}
+	}
+}
