@@ -72,7 +72,7 @@ func (e *Episode) Run(gameSeed, pipeSeed uint64, hook StepHook) (Result, error) 
 	maxSteps := e.Game.Spec().MaxSteps
 	for t := 0; ; t++ {
 		e.Game.Render(e.frame)
-		if err := e.Tok.Tokenize(e.frame, e.clean); err != nil {
+		if err := e.Pipe.TokenizeFrame(t, e.Tok, e.frame, e.clean); err != nil {
 			return res, fmt.Errorf("step %d: %w", t, err)
 		}
 		var rec *patch.FrameRecord

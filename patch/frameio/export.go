@@ -10,7 +10,8 @@ import (
 )
 
 // Transform runs every frame of r through the pipeline and hands the
-// result to out: tokenize (on tok's grid) → p.Apply, recording into m
+// result to out: frame corruptions and tokenize (on tok's grid,
+// p.TokenizeFrame) → p.Apply, recording into m
 // (if not nil) → assemble into a frame of the grid's covered size
 // (OutW×OutH: the padded frame with edge pad, so the exported frame holds
 // the tokens exactly as a policy sees them, each token drawn at the cell
@@ -35,7 +36,7 @@ func Transform(r Reader, tok *patch.Tokenizer, p *patch.Pipeline, m *patch.Manif
 		if err != nil {
 			return t, err
 		}
-		if err := tok.Tokenize(img, src); err != nil {
+		if err := p.TokenizeFrame(t, tok, img, src); err != nil {
 			return t, fmt.Errorf("%s: frame %d: %w", name, t, err)
 		}
 		if err := p.Apply(t, src, dst, &rec); err != nil {

@@ -58,6 +58,11 @@ type Config struct {
 	// Seed drives the perturbations (patch.DeriveSeed with the frame and
 	// draw index). Default 0, a valid seed.
 	Seed uint64
+	// Corrupt, if not "", is a frame corruption list (patch.Spec.Corrupt,
+	// e.g. "shift:3:0:wrap"): the policy also acts on every frame
+	// corrupted by it, and Report.Corrupted holds the action change. Its
+	// random draws come from Seed and the frame.
+	Corrupt string
 	// Progress, if set, is called after every frame with the frames done
 	// and the total.
 	Progress func(done, total int)
@@ -143,6 +148,14 @@ type Report struct {
 	Scramble Stat `json:"scramble"`
 	Noised   Stat `json:"noise"`
 	Dropped  Stat `json:"drop"`
+	// Corrupt is Config.Corrupt in canonical spelling, and Corrupted the
+	// action change when the frame is corrupted by it (before
+	// tokenizing); both left out without Config.Corrupt. Not part of
+	// Pass: a whole-patch shift with wrap-around edges only moves tokens
+	// between cells, so a family that ignores positions keeps its action,
+	// while a shift by part of a patch changes what every token holds.
+	Corrupt   string `json:"corrupt,omitempty"`
+	Corrupted *Stat  `json:"corrupted,omitempty"`
 	// Tol is the permutation bound; Pass is false only for an invariant
 	// family whose permutation change exceeded it.
 	Tol  float64 `json:"tol"`
@@ -222,6 +235,16 @@ func Run(g games.Game, tok *patch.Tokenizer, pol vision.Policy, cfg Config) (*Re
 	if m.wantsPix {
 		m.seen = image.NewRGBA(image.Rect(0, 0, gr.OutW, gr.OutH))
 	}
+	canon := ""
+	if cfg.Corrupt != "" {
+		var err error
+		if canon, err = patch.CanonCorrupt(cfg.Corrupt); err != nil {
+			return nil, err
+		}
+		if m.corrPipe, err = patch.NewPipeline(gr, patch.Spec{Corrupt: canon}); err != nil {
+			return nil, err
+		}
+	}
 	frame := image.NewRGBA(image.Rect(0, 0, sp.Width, sp.Height))
 	var expert games.Expert
 	if w, ok := g.(games.WithExpert); ok {
@@ -241,6 +264,11 @@ func Run(g games.Game, tok *patch.Tokenizer, pol vision.Policy, cfg Config) (*Re
 			key := patch.DeriveSeed(cfg.Seed, uint64(si), uint64(fi))
 			if err := m.frame(key, step); err != nil {
 				return nil, fmt.Errorf("game seed %d, step %d: %w", seed, step, err)
+			}
+			if m.corrPipe != nil {
+				if err := m.corrupted(frame, key, step); err != nil {
+					return nil, fmt.Errorf("game seed %d, step %d: corrupt: %w", seed, step, err)
+				}
 			}
 			done++
 			if cfg.Progress != nil {
@@ -275,6 +303,10 @@ func Run(g games.Game, tok *patch.Tokenizer, pol vision.Policy, cfg Config) (*Re
 	if m.out != nil {
 		r.Compared = "output"
 	}
+	if m.corrPipe != nil {
+		st := m.corrupt.stat()
+		r.Corrupt, r.Corrupted = canon, &st
+	}
 	r.Pass = !info.Invariant || (r.Permute.Refused == 0 && r.Permute.Max <= cfg.Tol)
 	return r, nil
 }
@@ -299,6 +331,24 @@ type meter struct {
 	scramble acc
 	noise    acc
 	drop     acc
+	corrPipe *patch.Pipeline // Config.Corrupt, nil without
+	corrupt  acc
+}
+
+// corrupted measures the action change when frame (of step step) is
+// corrupted before it is tokenized, the corruption drawn from key.
+func (m *meter) corrupted(frame *image.RGBA, key uint64, step int) error {
+	m.corrPipe.Reset(patch.DeriveSeed(key, patch.StreamKey("verify.corrupt")))
+	if err := m.corrPipe.TokenizeFrame(step, m.tok, frame, m.work); err != nil {
+		return err
+	}
+	pseed := patch.DeriveSeed(key, patch.StreamKey("verify.policy"))
+	if err := m.actOn(m.work, step, pseed, m.act); err != nil {
+		m.corrupt.refuse(err)
+		return nil
+	}
+	m.corrupt.add(m.change(m.base, m.act))
+	return nil
 }
 
 // act runs the policy on ts, reset with seed, into dst.

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"tilebench/games"
+	_ "tilebench/games/all"
 	"tilebench/patch"
 	"tilebench/vision"
 	"tilebench/vision/nets"
@@ -306,5 +307,65 @@ func BenchmarkRun(b *testing.B) {
 		if _, err := Run(g, tok, &sumPolicy{}, cfg); err != nil {
 			b.Fatal(err)
 		}
+	}
+}
+
+// Frame corruptions on the driving game: for the invariant families a
+// shift by whole patches with wrap-around edges only moves tokens between
+// cells (patch's TestCorruptWholePatchShiftRelabels), so the action stays
+// within the permutation bound; a shift by part of a patch changes what
+// every token holds, and the action moves.
+func TestCorruptShiftOnInvariantFamilies(t *testing.T) {
+	g, err := games.New("drive", games.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sp := g.Spec()
+	p := 0
+	for _, c := range []int{8, 6, 4, 5, 3, 2} {
+		if sp.Width%c == 0 && sp.Height%c == 0 {
+			p = c
+			break
+		}
+	}
+	if p == 0 {
+		t.Skipf("no small patch size divides the %dx%d frame", sp.Width, sp.Height)
+	}
+	gr, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: p, Edge: patch.EdgeStrict})
+	if err != nil {
+		t.Fatal(err)
+	}
+	tok := patch.NewTokenizer(gr)
+	for _, fam := range nets.Families {
+		n, err := nets.New(nets.Config{Family: fam}, gr, sp.Action, 3)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !n.Info().Invariant {
+			continue
+		}
+		whole := fmt.Sprintf("shift:%d:%d:wrap", p, -2*p)
+		sub := fmt.Sprintf("shift:%d:0:wrap", p/2+1)
+		cfg := Config{Perms: 1, Seeds: []uint64{games.HeldOut(0)}, Frames: 3}
+		cfg.Corrupt = whole
+		rw, err := Run(g, tok, n, cfg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		cfg.Corrupt = sub
+		rs, err := Run(g, tok, n, cfg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if rw.Corrupted == nil || rw.Corrupt != whole || rw.Corrupted.Count != rw.Frames {
+			t.Fatalf("%s: report %+v", fam, rw)
+		}
+		if rw.Corrupted.Max > DefaultTol {
+			t.Errorf("%s: whole-patch shift %s moved the output by %g", fam, whole, rw.Corrupted.Max)
+		}
+		if rs.Corrupted.Max < 1e-4 {
+			t.Errorf("%s: sub-patch shift %s moved the output by only %g", fam, sub, rs.Corrupted.Max)
+		}
+		t.Logf("%s: whole-patch %s max %.2g, sub-patch %s max %.2g", fam, whole, rw.Corrupted.Max, sub, rs.Corrupted.Max)
 	}
 }

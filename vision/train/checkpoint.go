@@ -9,6 +9,7 @@ import (
 	"strings"
 
 	"tilebench/games"
+	"tilebench/patch"
 	"tilebench/vision/nets"
 	"tilebench/vision/stats"
 	"tilebench/vision/weights"
@@ -255,7 +256,10 @@ func (t *Trainer) rebuildData() error {
 	parts := make([]*dataset, len(t.st.Episodes))
 	err := t.parallel(len(parts), func(w, i int) error {
 		parts[i] = newDataset(t.s.grid, t.ds.adim, t.ds.ldim)
-		return t.envs[w].replay(t.st.Episodes[i].Seed, t.acts[offs[i]:offs[i+1]], t.cfg.Clone.Keep, parts[i])
+		// Episode i was collected with pipeline seed "clone-pipe" i
+		// (collect), which also draws its frame corruptions.
+		return t.envs[w].replay(t.st.Episodes[i].Seed, patch.DeriveSeed(t.cfg.Seed, patch.StreamKey("clone-pipe"), uint64(i)),
+			t.acts[offs[i]:offs[i+1]], t.cfg.Clone.Keep, parts[i])
 	})
 	if err != nil {
 		return err

@@ -118,8 +118,10 @@ func (e *env) record(ds *dataset, t int) {
 // rollout plays one DAgger episode (Ross, Gordon & Bagnell 2011): at each
 // step the expert labels the clean frame, and the action taken is the
 // expert's with probability beta, else the student's (acting on the
-// augmented tokens). Every keep-th frame is added to ds; every action
-// taken is appended to actions (as float32, for replay).
+// augmented tokens). Every keep-th frame is added to ds, as tokenized
+// after the pipeline's frame corruptions (Spec.Corrupt, drawn from
+// pipeSeed; the token transforms are drawn afresh per sample); every
+// action taken is appended to actions (as float32, for replay).
 func (e *env) rollout(gameSeed, pipeSeed, mixSeed uint64, beta float64, keep int, ds *dataset, actions []float32) ([]float32, float64, error) {
 	e.game.Reset(gameSeed)
 	e.pipe.Reset(pipeSeed)
@@ -130,7 +132,7 @@ func (e *env) rollout(gameSeed, pipeSeed, mixSeed uint64, beta float64, keep int
 	maxSteps := e.game.Spec().MaxSteps
 	for t := 0; ; t++ {
 		e.game.Render(e.frame)
-		if err := e.tok.Tokenize(e.frame, e.clean); err != nil {
+		if err := e.pipe.TokenizeFrame(t, e.tok, e.frame, e.clean); err != nil {
 			return actions, ret, err
 		}
 		if t%keep == 0 {
@@ -166,9 +168,11 @@ func (e *env) rollout(gameSeed, pipeSeed, mixSeed uint64, beta float64, keep int
 }
 
 // replay rebuilds the frames of a recorded episode from its actions
-// (games are deterministic), adding every keep-th frame to ds.
-func (e *env) replay(gameSeed uint64, actions []float32, keep int, ds *dataset) error {
+// (games are deterministic) and the pipeline seed it was collected with
+// (for its frame corruptions), adding every keep-th frame to ds.
+func (e *env) replay(gameSeed, pipeSeed uint64, actions []float32, keep int, ds *dataset) error {
 	e.game.Reset(gameSeed)
+	e.pipe.Reset(pipeSeed)
 	clear(e.prev)
 	dim := e.space.Dim()
 	if len(actions)%dim != 0 {
@@ -176,7 +180,7 @@ func (e *env) replay(gameSeed uint64, actions []float32, keep int, ds *dataset) 
 	}
 	for t := 0; t*dim < len(actions); t++ {
 		e.game.Render(e.frame)
-		if err := e.tok.Tokenize(e.frame, e.clean); err != nil {
+		if err := e.pipe.TokenizeFrame(t, e.tok, e.frame, e.clean); err != nil {
 			return err
 		}
 		if t%keep == 0 {
