@@ -44,7 +44,7 @@ type demoStudy struct {
 }
 
 // demoStudies returns the studies of the demo: a patch-size and a stress
-// study on drive, and a stress study on paddle.
+// study on drive (with a camera-shift axis), and a stress study on paddle.
 func demoStudies(refDir string, episodes int) []demoStudy {
 	sizes := study.Definition{Name: "demo: patch sizes", Kind: "sizes", Game: "drive", Episodes: episodes, Seed: 1,
 		Patch:  study.Axis{"4,8,16"},
@@ -65,9 +65,13 @@ func demoStudies(refDir string, episodes int) []demoStudy {
 		}
 		return d
 	}
+	drive := stress("demo: stress", "drive", 8)
+	// One camera corruption on drive: a shift by 3 px (severity 3), less
+	// than a patch, so every pixel lands in another token.
+	drive.Axes.Corrupt = study.Axis{"none,shift:s3"}
 	return []demoStudy{
 		{"sizes", "Patch-size study", sizes},
-		{"stress", "Stress study", stress("demo: stress", "drive", 8)},
+		{"stress", "Stress study", drive},
 		{"paddle-stress", "Stress study", stress("demo: paddle stress", "paddle", 7)},
 	}
 }

@@ -26,6 +26,10 @@ func TestDemo(t *testing.T) {
 			t.Fatalf("stdout %q does not print %s", stdout, f)
 		}
 	}
+	// The drive stress study has its camera-shift axis.
+	if b, err := os.ReadFile(filepath.Join(out, "stress", "report.html")); err != nil || !strings.Contains(string(b), "shift:s3") {
+		t.Fatalf("stress report does not show the shift:s3 corruption (%v)", err)
+	}
 	// Again on the same folder: nothing to play, the reports re-made.
 	code, _, stderr = runCLI(t, "", "demo", "--out", out, "--episodes", "1")
 	if code != 0 {

@@ -42,7 +42,7 @@ options:`
 // transformFlags are the options that describe a pipeline; --unscramble
 // takes its pipeline from the manifest and refuses them.
 var transformFlags = []string{"patch", "stride", "edge", "pad-value", "channels", "scramble", "every", "rotate", "flip",
-	"occlude", "fill", "noise-tokens", "duplicates", "brightness", "contrast", "shift", "pixel-noise", "seed"}
+	"occlude", "fill", "noise-tokens", "duplicates", "brightness", "contrast", "shift", "pixel-noise", "corrupt", "seed"}
 
 func init() {
 	register(&command{name: "export", summary: "write scrambled/occluded frame sequences (png, npy, gif, contact sheet) and their manifest", run: runExport})
@@ -95,6 +95,7 @@ func runExport(ctx *runContext, args []string) error {
 	contrast := fs.Float64("contrast", 1, "scale values about 0.5 by this factor (e.g. --contrast 1.5)")
 	shift := fs.String("shift", "", "per-channel shift R,G,B, each in [-1,1] (e.g. --shift 0.1,0,-0.1)")
 	pixelNoise := fs.Float64("pixel-noise", 0, "standard deviation of Gaussian noise added to every value (e.g. --pixel-noise 0.05)")
+	corrupt := fs.String("corrupt", "", corruptFlagHelp)
 	seed := fs.Uint64("seed", 1, "seed of every random draw; the same seed gives the same bytes (e.g. --seed 7)")
 	unscramble := fs.String("unscramble", "", "manifest.json of an earlier export: put the --in frames back in order (e.g. --unscramble OUT/manifest.json)")
 	crop := fs.Bool("crop-to-source", false, "with --unscramble, crop the padded frames back to the source size (e.g. --crop-to-source)")
@@ -169,7 +170,8 @@ func runExport(ctx *runContext, args []string) error {
 		g, spec = man.GridOf(), man.Spec
 	} else {
 		spec = patch.Spec{Scramble: *scramble, Every: *every, Rotate: *rotate, Flip: *flip, Occlude: *occlude, Fill: *fill,
-			NoiseTokens: *noiseTokens, Duplicates: *dups, Brightness: *brightness, Contrast: *contrast, PixelNoise: *pixelNoise}
+			NoiseTokens: *noiseTokens, Duplicates: *dups, Brightness: *brightness, Contrast: *contrast, PixelNoise: *pixelNoise,
+			Corrupt: *corrupt}
 		if spec.Contrast == 1 {
 			spec.Contrast = 0 // the Spec's spelling of "unchanged"
 		}

@@ -134,6 +134,7 @@ func runPlay(ctx *runContext, args []string) error {
 	variation := fs.String("variation", "", "game variation, names joined with + (e.g. --variation glacier+clutter)")
 	size := fs.String("size", "", "frame size WxH instead of the game's default (drive only) (e.g. --size 64x64)")
 	patchSz := fs.String("patch", "", "patch size N or WxH the frames are cut into; default a size that divides the frame (e.g. --patch 8)")
+	corrupt := fs.String("corrupt", "", corruptFlagHelp)
 	gifPath := fs.String("gif", "", "write the frames the policy saw, all episodes in a row, as an animated GIF (e.g. --gif play.gif)")
 	framesDir := fs.String("frames", "", "write the frames the policy saw as PNGs, DIR/episode-NNN/frame-NNNNN.png (e.g. --frames out/)")
 	fps := fs.Float64("fps", 20, "GIF frames a second, 1 to 100 (e.g. --fps 10)")
@@ -153,6 +154,9 @@ func runPlay(ctx *runContext, args []string) error {
 		return usagef("play: --fps %v: want 1 to 100", *fps)
 	case *seed > math.MaxUint64-uint64(*episodes):
 		return usagef("play: --seed %d: too large for %d episodes", *seed, *episodes)
+	}
+	if err := checkCorrupt("play", *corrupt); err != nil {
+		return err
 	}
 	opt := games.Options{Variation: *variation}
 	if *size != "" {
@@ -188,7 +192,7 @@ func runPlay(ctx *runContext, args []string) error {
 		return err
 	}
 	defer closePolicy(pol)
-	pipe, err := patch.NewPipeline(grid, patch.Spec{})
+	pipe, err := patch.NewPipeline(grid, patch.Spec{Corrupt: *corrupt})
 	if err != nil {
 		return fmt.Errorf("play: %w", err)
 	}

@@ -76,7 +76,7 @@ func runSizes(ctx *runContext, args []string) error {
 	}
 	d.Budget.Microseconds, d.Budget.MFLOP = *budgetUS, *budgetMF
 	noAxes := d.Axes.Occlude == nil && d.Axes.Scramble == nil && d.Axes.NoiseTokens == nil && d.Axes.PixelNoise == nil &&
-		d.Axes.Brightness == nil && d.Axes.Contrast == nil && d.Axes.Every == nil && d.Axes.Variations == nil
+		d.Axes.Brightness == nil && d.Axes.Contrast == nil && d.Axes.Every == nil && d.Axes.Variations == nil && d.Axes.Corrupt == nil
 	if noAxes {
 		fill := d.Axes.Fill
 		d.Axes = study.DefaultStressSet

@@ -45,6 +45,7 @@ type studyFlags struct {
 	config, name, game, variation, policy, family       *string
 	patch, occlude, fill, scramble, every, noise        *string
 	brightness, contrast, pixelNoise, variations, seeds *string
+	corrupt                                             *string
 	timeout                                             *string
 	episodes, workers, resamples, shards                *int
 	seed                                                *uint64
@@ -72,6 +73,7 @@ func addStudyFlags(fs *flag.FlagSet, defPolicy, defPatch string, defEpisodes int
 		brightness: fs.String("brightness", "", "`LIST` of brightness offsets, e.g. -0.2,0,0.2"),
 		contrast:   fs.String("contrast", "", "`LIST` of contrast factors, e.g. 0.5,1"),
 		pixelNoise: fs.String("pixel-noise", "", "`LIST` of Gaussian pixel noise σ, e.g. 0:0.2:0.05"),
+		corrupt:    fs.String("corrupt", "", "`LIST` of frame corruptions (docs/studies.md), each none, KIND:VALUE, KIND:sN, KIND:sA:sB or KIND:START:STOP:STEP, several in one cell joined by +; e.g. blur:s1:s5,jpeg:40,shift:3:0"),
 		variations: fs.String("variations", "", "`LIST` of game variations (held-out palettes), e.g. default,dusk"),
 		seeds:      fs.String("seeds", "", "game seed `RANGE`: held-out (default), train, or START:COUNT"),
 		episodes:   fs.Int("episodes", defEpisodes, "episodes per cell"),
@@ -125,6 +127,7 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	useAxis("brightness", &d.Axes.Brightness, *sf.brightness)
 	useAxis("contrast", &d.Axes.Contrast, *sf.contrast)
 	useAxis("pixel-noise", &d.Axes.PixelNoise, *sf.pixelNoise)
+	useAxis("corrupt", &d.Axes.Corrupt, *sf.corrupt)
 	useAxis("variations", &d.Axes.Variations, *sf.variations)
 	if set["episodes"] || *sf.config == "" {
 		d.Episodes = *sf.episodes

@@ -46,6 +46,7 @@ func runTrain(ctx *runContext, args []string) error {
 	fill := fs.String("fill", "", "what occluded tokens become: black, mean, noise or drop (default black)")
 	scramble := fs.String("scramble", "", "train-time scrambling: full, partial:F or local:K (default none)")
 	noiseTok := fs.Int("noise-tokens", 0, "train-time extra tokens of uniform noise")
+	corrupt := fs.String("corrupt", "", "train-time frame corruptions, one list, e.g. blur:1,jpeg:40 or shake:s2 (docs/studies.md; default none)")
 	budget := fs.Duration("budget", 5*time.Minute, "training time budget, e.g. 90s, 5m (stops at the next iteration boundary)")
 	iters := fs.Int("iters", 0, "stop after this many iterations (DAgger rounds or generations); 0 = until the budget or early stop. Use it for reproducible runs")
 	seed := fs.Uint64("seed", 1, "seed of the initial weights and of every random stream")
@@ -102,6 +103,9 @@ func runTrain(ctx *runContext, args []string) error {
 		if *game == "" {
 			return usagef("train: --game is required (drive or paddle)")
 		}
+		if err := checkCorrupt("train", *corrupt); err != nil {
+			return err
+		}
 		if *patchSize <= 0 {
 			return usagef("train: --patch %d: want a positive size", *patchSize)
 		}
@@ -110,7 +114,7 @@ func runTrain(ctx *runContext, args []string) error {
 			Iters: *iters, Budget: *budget, Workers: *workers, Patience: *patience, MinIters: *minIters, FitnessEpisodes: *fitEps, ValEpisodes: *valEps,
 			Net: nets.Config{Family: *family, KeySize: *keySize, Queries: *queries, Hidden: *hidden, PrevAction: *prevAction,
 				ValueSize: *valueSize, KeyHidden: *keyHidden, Context: *ctxFrames, Centre: *centre},
-			Augment: patch.Spec{Occlude: *occlude, Fill: *fill, Scramble: *scramble, NoiseTokens: *noiseTok},
+			Augment: patch.Spec{Occlude: *occlude, Fill: *fill, Scramble: *scramble, NoiseTokens: *noiseTok, Corrupt: *corrupt},
 			Clone:   train.CloneConfig{LR: *lr, Batch: *batch, Epochs: *epochs, EpisodesPerRound: *perRound},
 			ES:      train.ESConfig{Pairs: *pairs, Sigma: *sigma, LR: *lr, WeightDecay: *decay},
 			CMA:     train.CMAConfig{Population: *popSize, Sigma: *sigma},

@@ -26,6 +26,8 @@ clean tokens and then on each of --perms random draws of:
   scramble  cell contents moved to other cells (positions stay put)
   noise     --noise tokens of uniform noise added
   drop      --drop tokens removed
+  corrupt   with --corrupt LIST, the frame corrupted before it is cut
+            (once per frame; e.g. shift:8:0:wrap moves whole patches)
 
 and the largest and mean absolute change of the action are reported (for a
 discrete game: 1 when the choice changed, 0 when not). A family declared
@@ -73,6 +75,7 @@ func runVerify(ctx *runContext, args []string) error {
 	patchSz := fs.String("patch", "", "patch size N or WxH for a family name or an external policy; default a size that divides the frame (e.g. --patch 8)")
 	initSeed := fs.Uint64("init-seed", 1, "parameter seed of an untrained family network (e.g. --init-seed 7)")
 	seed := fs.Uint64("seed", 0, "seed of the perturbations (e.g. --seed 3)")
+	corrupt := fs.String("corrupt", "", "also measure the action change when frames are corrupted before tokenizing, one list as for export (e.g. --corrupt shift:3:0:wrap)")
 	asJSON := fs.Bool("json", false, "print a machine-readable report (\"format\": 1) (e.g. --json)")
 	ext := addExternalFlags(fs)
 	if err := parseFlags(fs, args); err != nil {
@@ -93,6 +96,9 @@ func runVerify(ctx *runContext, args []string) error {
 		return usagef("verify: --frames %d: want 1 to 1000", *frames)
 	case *noise < 0 || *noise > 100000 || *drop < 0:
 		return usagef("verify: --noise %d --drop %d: want counts ≥ 0 (noise at most 100000)", *noise, *drop)
+	}
+	if err := checkCorrupt("verify", *corrupt); err != nil {
+		return err
 	}
 	g, err := games.New(*game, games.Options{Variation: *variation})
 	if err != nil {
@@ -136,7 +142,7 @@ func runVerify(ctx *runContext, args []string) error {
 		}
 		pol = n
 	}
-	cfg := invariance.Config{Perms: *perms, Frames: *frames, Noise: *noise, Drop: *drop, Seed: *seed}
+	cfg := invariance.Config{Perms: *perms, Frames: *frames, Noise: *noise, Drop: *drop, Seed: *seed, Corrupt: *corrupt}
 	for i := 0; i < *seeds; i++ {
 		cfg.Seeds = append(cfg.Seeds, games.HeldOut(i))
 	}
@@ -201,6 +207,9 @@ func printVerify(w io.Writer, r *invariance.Report, policy string, grid *patch.G
 	row("scramble (cell contents)", r.Scramble)
 	row(fmt.Sprintf("noise (+%d tokens)", r.Noise), r.Noised)
 	row(fmt.Sprintf("drop (-%d tokens)", r.Drop), r.Dropped)
+	if r.Corrupted != nil {
+		row("corrupt "+r.Corrupt, *r.Corrupted)
+	}
 	for _, s := range []invariance.Stat{r.Noised, r.Dropped} {
 		if s.Refused > 0 {
 			fmt.Fprintf(w, "refused: %s\n", s.Reason)

@@ -265,6 +265,43 @@ var axes = []axis{
 	{name: "contrast change", sev: func(c Cell) (string, float64, bool, bool) {
 		return "abs", math.Abs(c.Contrast - 1), c.Contrast == 1, true
 	}, zero: func(c Cell) Cell { c.Contrast = 1; return c }},
+	{name: "corruption", sev: corruptSeverity, zero: func(c Cell) Cell { c.Corrupt = ""; return c }},
+}
+
+// corruptSeverity places a cell with one frame corruption on its curve:
+// the kind with its severity level (KIND:sN), or the kind with a
+// parameter that grows with the harm: σ, length, rate, amplitude, pixels
+// or degrees as written, 1/F for resolution, 100−Q for JPEG, |ln G| for
+// gamma and |ln S| for scale. Lists of several corruptions are on no
+// curve.
+func corruptSeverity(c Cell) (string, float64, bool, bool) {
+	if !c.corrupted() {
+		return "", 0, true, true
+	}
+	cs, err := patch.ParseCorrupt(c.Corrupt)
+	if err != nil || len(cs) != 1 {
+		return "", 0, false, false
+	}
+	k := cs[0]
+	if k.Level > 0 {
+		return k.Kind + " severity", float64(k.Level), false, true
+	}
+	switch k.Kind {
+	case "resolution":
+		return "resolution 1/F", 1 / k.A, false, true
+	case "jpeg":
+		return "jpeg 100−Q", 100 - k.A, false, true
+	case "gamma":
+		return "gamma |ln G|", math.Abs(math.Log(k.A)), false, true
+	case "scale":
+		return "scale |ln S|", math.Abs(math.Log(k.A)), false, true
+	case "shift":
+		return "shift px", math.Max(math.Abs(k.A), math.Abs(k.B)), false, true
+	case "rotate":
+		return "rotate degrees", math.Abs(k.A), false, true
+	}
+	return k.Kind + " " + map[string]string{"blur": "σ", "sharpen": "σ", "motionblur": "length", "saltpepper": "rate",
+		"dead": "rate", "shake": "amplitude"}[k.Kind], k.A, false, true
 }
 
 func axisName(a axis, kind string) string {
@@ -275,6 +312,8 @@ func axisName(a axis, kind string) string {
 		return "scrambled fraction"
 	case a.name == "scramble" && kind == "local":
 		return "local scramble radius"
+	case a.name == "corruption":
+		return "corrupt " + kind
 	}
 	return a.name
 }
@@ -548,6 +587,9 @@ func cellID(i int, c Cell, base string) string {
 	if c.PixelNoise != 0 {
 		id += "/pixel_noise=" + fnum(c.PixelNoise)
 	}
+	if c.corrupted() {
+		id += "/corrupt=" + c.Corrupt
+	}
 	if c.Clean() && c.Variation == base {
 		id += "/clean"
 	}
@@ -589,7 +631,7 @@ func primaryAxis(c Cell) (string, string, float64) {
 }
 
 func cellParams(c Cell) []report.KV {
-	return []report.KV{
+	kv := []report.KV{
 		{Key: "patch", Value: strconv.Itoa(c.Patch)},
 		{Key: "variation", Value: variationName(c.Variation)},
 		{Key: "occlude", Value: c.Occlude},
@@ -601,6 +643,10 @@ func cellParams(c Cell) []report.KV {
 		{Key: "contrast", Value: fnum(c.Contrast)},
 		{Key: "pixel_noise", Value: fnum(c.PixelNoise)},
 	}
+	if c.corrupted() {
+		kv = append(kv, report.KV{Key: "corrupt", Value: c.Corrupt})
+	}
+	return kv
 }
 
 func (a *Analysis) costSection(rd *report.Data) {

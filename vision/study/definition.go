@@ -93,6 +93,11 @@ type Axes struct {
 	Contrast Axis `toml:"contrast" json:"contrast"`
 	// PixelNoise lists standard deviations of Gaussian pixel noise. Default 0.
 	PixelNoise Axis `toml:"pixel_noise" json:"pixel_noise"`
+	// Corrupt lists frame corruptions (patch.Spec.Corrupt): none,
+	// KIND:VALUE, KIND:sN (a severity 1..5), the ranges KIND:sA:sB and
+	// KIND:START:STOP:STEP, and several corruptions of one cell joined
+	// with '+' (blur:1+jpeg:40); see patch.ExpandCorrupt. Default none.
+	Corrupt Axis `toml:"corrupt" json:"corrupt,omitempty"`
 	// Variations lists game variations (held-out palettes, ...). Default:
 	// the study's Variation only. Use "default" for the game's default.
 	Variations Axis `toml:"variations" json:"variations"`

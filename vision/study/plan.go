@@ -168,13 +168,28 @@ type Cell struct {
 	Brightness float64 `json:"brightness"`
 	Contrast   float64 `json:"contrast"`
 	PixelNoise float64 `json:"pixel_noise"`
+	// Corrupt is the frame corruption list in canonical spelling
+	// (patch.CanonCorrupt); "" or "none" for none.
+	Corrupt string `json:"corrupt,omitempty"`
 }
+
+// corrupted reports whether the cell corrupts frames.
+func (c Cell) corrupted() bool { return c.Corrupt != "" && c.Corrupt != "none" }
 
 // Key is the cell's canonical description, which also keys its seeds.
 func (c Cell) Key() string {
 	return fmt.Sprintf("patch=%d variation=%s occlude=%s fill=%s scramble=%s every=%d noise_tokens=%d brightness=%s contrast=%s pixel_noise=%s",
 		c.Patch, c.Variation, c.Occlude, c.Fill, c.Scramble, c.Every, c.NoiseTokens,
-		fnum(c.Brightness), fnum(c.Contrast), fnum(c.PixelNoise))
+		fnum(c.Brightness), fnum(c.Contrast), fnum(c.PixelNoise)) + c.corruptKey()
+}
+
+// corruptKey is the corruption part of Key: empty without one, so that
+// the keys (and seeds) of cells from before corruptions existed stay.
+func (c Cell) corruptKey() string {
+	if !c.corrupted() {
+		return ""
+	}
+	return " corrupt=" + c.Corrupt
 }
 
 // Label is a short description of what is done to the input, "clean" for
@@ -206,6 +221,9 @@ func (c Cell) Label() string {
 	if c.PixelNoise != 0 {
 		parts = append(parts, "pixel noise "+fnum(c.PixelNoise))
 	}
+	if c.corrupted() {
+		parts = append(parts, "corrupt "+c.Corrupt)
+	}
 	if len(parts) == 0 {
 		return "clean"
 	}
@@ -215,7 +233,7 @@ func (c Cell) Label() string {
 // Clean reports whether the cell applies no transform.
 func (c Cell) Clean() bool {
 	return c.Occlude == "none" && c.Scramble == "none" && c.NoiseTokens == 0 &&
-		c.Brightness == 0 && c.Contrast == 1 && c.PixelNoise == 0
+		c.Brightness == 0 && c.Contrast == 1 && c.PixelNoise == 0 && !c.corrupted()
 }
 
 // Spec is the pipeline specification of the cell.
@@ -224,6 +242,9 @@ func (c Cell) Spec() patch.Spec {
 		NoiseTokens: c.NoiseTokens, Brightness: c.Brightness, PixelNoise: c.PixelNoise}
 	if c.Contrast != 1 {
 		s.Contrast = c.Contrast
+	}
+	if c.corrupted() {
+		s.Corrupt = c.Corrupt
 	}
 	return s
 }
@@ -299,8 +320,12 @@ func (d *Definition) Cells() ([]Cell, error) {
 	if err != nil {
 		return nil, fieldErr("axes.pixel_noise", err)
 	}
+	corr, err := corruptValues(d.Axes.Corrupt)
+	if err != nil {
+		return nil, fieldErr("axes.corrupt", err)
+	}
 	total := 1
-	for _, n := range []int{len(ps), len(vars), len(occ), len(scr), len(every), len(noise), len(bright), len(contrast), len(pnoise)} {
+	for _, n := range []int{len(ps), len(vars), len(occ), len(scr), len(every), len(noise), len(bright), len(contrast), len(pnoise), len(corr)} {
 		total *= n
 		if total > MaxRangeValues {
 			return nil, fieldErr("axes", fmt.Errorf("more than %d cells", MaxRangeValues))
@@ -326,8 +351,10 @@ func (d *Definition) Cells() ([]Cell, error) {
 							for _, b := range bright {
 								for _, ct := range contrast {
 									for _, pn := range pnoise {
-										add(Cell{Patch: p, Variation: v, Occlude: o, Fill: d.Axes.Fill, Scramble: s, Every: e,
-											NoiseTokens: n, Brightness: b, Contrast: ct, PixelNoise: pn})
+										for _, cr := range corr {
+											add(Cell{Patch: p, Variation: v, Occlude: o, Fill: d.Axes.Fill, Scramble: s, Every: e,
+												NoiseTokens: n, Brightness: b, Contrast: ct, PixelNoise: pn, Corrupt: cr})
+										}
 									}
 								}
 							}
@@ -341,6 +368,33 @@ func (d *Definition) Cells() ([]Cell, error) {
 		add(Cell{Patch: p, Variation: d.Variation, Occlude: "none", Fill: d.Axes.Fill, Scramble: "none", Contrast: 1})
 	}
 	return cells, nil
+}
+
+// corruptValues expands the corruption axis (patch.ExpandCorrupt on each
+// comma-separated item); "none" is kept as "".
+func corruptValues(a Axis) ([]string, error) {
+	if len(a) == 0 {
+		return []string{""}, nil
+	}
+	var out []string
+	for _, list := range a {
+		for _, item := range strings.Split(list, ",") {
+			vals, err := patch.ExpandCorrupt(item)
+			if err != nil {
+				return nil, err
+			}
+			for _, v := range vals {
+				if v == "none" {
+					v = ""
+				}
+				out = append(out, v)
+			}
+			if len(out) > MaxRangeValues {
+				return nil, fmt.Errorf("more than %d values", MaxRangeValues)
+			}
+		}
+	}
+	return out, nil
 }
 
 func canonOcclude(s string) (string, error) {

@@ -1,0 +1,15 @@
+package main
+
+import "tilebench/patch"
+
+// corruptFlagHelp is the help of --corrupt where one list is taken
+// (export, play, train, verify); stress and sizes take a swept list.
+const corruptFlagHelp = "frame corruptions before tokenizing, a comma list applied in order: blur:S, motionblur:L[:ANGLE], resolution:F, jpeg:Q, gamma:G, sharpen:S, saltpepper:R, dead:R, shift:DX[:DY][:fill|wrap|edge], shake:A, rotate:DEG, scale:S, or KIND:s1..s5 (docs/export.md) (e.g. --corrupt blur:s2,jpeg:40)"
+
+// checkCorrupt reads a --corrupt value as a usage error of cmd.
+func checkCorrupt(cmd, v string) error {
+	if err := (patch.Spec{Corrupt: v}).Check(); err != nil {
+		return usagef("%s: --corrupt: %v", cmd, err)
+	}
+	return nil
+}
