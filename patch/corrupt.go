@@ -109,7 +109,12 @@ type Corruption struct {
 
 // String writes c in the spelling ParseCorrupt reads.
 func (c Corruption) String() string {
-	num := func(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
+	num := func(v float64) string {
+		if v == 0 {
+			v = 0 // no negative zero
+		}
+		return strconv.FormatFloat(v, 'g', -1, 64)
+	}
 	var b strings.Builder
 	b.WriteString(c.Kind)
 	b.WriteByte(':')

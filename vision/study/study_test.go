@@ -416,3 +416,55 @@ func TestShardFromEnv(t *testing.T) {
 		}
 	}
 }
+
+// The corruption axis: its ranges expand to canonical corruption lists,
+// cells without a corruption keep the keys (and so the seeds) they had
+// before the axis existed, and the analysis draws one curve per kind.
+func TestCorruptAxis(t *testing.T) {
+	d := Definition{Name: "c", Episodes: 5, Seed: 4, Patch: Axis{"8"},
+		Axes:  Axes{Corrupt: Axis{"blur:s1:s3", "jpeg:40:80:40,shift:3:0+blur:1,none"}},
+		Stats: StatsDef{Resamples: 100}}
+	p, err := NewPlan(d)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got []string
+	for _, c := range p.Cells {
+		got = append(got, c.Corrupt)
+		if c.Corrupt == "" && strings.Contains(c.Key(), "corrupt") {
+			t.Fatalf("uncorrupted cell key %q mentions corrupt", c.Key())
+		}
+		if c.Corrupt != "" && (c.Clean() || c.Spec().Corrupt != c.Corrupt || !strings.Contains(c.Label(), c.Corrupt)) {
+			t.Fatalf("cell %+v: clean %v spec %+v label %q", c, c.Clean(), c.Spec(), c.Label())
+		}
+	}
+	want := []string{"blur:s1", "blur:s2", "blur:s3", "jpeg:40", "jpeg:80", "shift:3:0,blur:1", ""}
+	if strings.Join(got, "|") != strings.Join(want, "|") {
+		t.Fatalf("cells %q, want %q", got, want)
+	}
+	if k := (Cell{Patch: 8, Occlude: "none", Fill: "black", Scramble: "none", Contrast: 1}).Key(); k !=
+		"patch=8 variation= occlude=none fill=black scramble=none every=0 noise_tokens=0 brightness=0 contrast=1 pixel_noise=0" {
+		t.Fatalf("clean key changed: %q", k)
+	}
+	dir := t.TempDir()
+	runStudy(t, p, dir, Options{Workers: 2})
+	a, err := Analyze(dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	axes := map[string]int{}
+	for _, cv := range a.Curves {
+		axes[cv.Axis] = len(cv.Cells)
+	}
+	// Each curve holds the clean reference and its cells; the two-step
+	// list is on none.
+	if axes["corrupt blur severity"] != 4 || axes["corrupt jpeg 100−Q"] != 3 || len(axes) != 2 {
+		t.Fatalf("curves %v", axes)
+	}
+	for _, bad := range []string{"blur:s0:s2", "fog:1", "blur:3:1:1", "jpeg:0"} {
+		d.Axes.Corrupt = Axis{bad}
+		if _, err := NewPlan(d); err == nil || !strings.Contains(err.Error(), "axes.corrupt") {
+			t.Errorf("axis %q: error %v", bad, err)
+		}
+	}
+}
