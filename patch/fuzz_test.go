@@ -2,6 +2,7 @@ package patch
 
 import (
 	"bytes"
+	"image"
 	"strings"
 	"testing"
 )
@@ -16,6 +17,10 @@ func FuzzParseSpec(f *testing.F) {
 		"occlude=bands:0.25:v fill=drop noise-tokens=3 duplicates=2",
 		"occlude=block:1 fill=mean brightness=-0.2 contrast=1.5 shift=0.1,0,-0.1 pixel-noise=0.05",
 		`occlude="mask:a b.png"`, "scramble=partial:1.5", "every=-1", "shift=1,2", "occlude=random:.5",
+		"corrupt=blur:2,jpeg:40,shift:3:0,shake:2,rotate:3,scale:0.95,resolution:0.5,gamma:1.5,sharpen:1,saltpepper:0.01,motionblur:5:30",
+		"corrupt=blur:s3", "corrupt=shift:s2:wrap,dead:s1", "corrupt=shift:-20:7:edge", "corrupt=resolution:0.01",
+		"corrupt=blur:", "corrupt=blur:s6", "corrupt=fog:1", "corrupt=shift:1:2:3", "corrupt=motionblur:64:-360",
+		"scramble=full corrupt=shake:4:wrap", "corrupt=,", "corrupt=none",
 	} {
 		f.Add(s)
 	}
@@ -59,6 +64,48 @@ func FuzzParseSpec(f *testing.F) {
 		for step := 0; step < 3; step++ {
 			if err := p.Apply(step, src, dst, &rec); err != nil {
 				t.Fatal(err)
+			}
+			// Frame corruptions run on any accepted list and keep the
+			// frame's size.
+			f, err := p.CorruptFrame(step, fuzzFrame)
+			if err != nil || f.Rect != fuzzFrame.Rect {
+				t.Fatalf("%q: corrupt frame %v: %v", s.Corrupt, f.Rect, err)
+			}
+			if err := p.TokenizeFrame(step, NewTokenizer(g), fuzzFrame, src); err != nil {
+				t.Fatal(err)
+			}
+		}
+	})
+}
+
+// fuzzFrame is a 12x8 frame for FuzzParseSpec's corruptions.
+var fuzzFrame = func() *image.RGBA {
+	im := image.NewRGBA(image.Rect(0, 0, 12, 8))
+	for i := range im.Pix {
+		im.Pix[i] = uint8(i * 37)
+	}
+	return im
+}()
+
+// FuzzExpandCorrupt: ExpandCorrupt never panics, errors are one line, and
+// every value it gives is a canonical corruption list.
+func FuzzExpandCorrupt(f *testing.F) {
+	for _, s := range []string{"none", "blur:s1:s5", "blur:0:3:1", "jpeg:20:60:20", "shift:3:0+blur:1", "rotate:-2:2:0.5",
+		"blur:s3:s1", "blur:0:1e9:1e-9", "shift:0:16:8", "motionblur:5:30", "fog:0:1:1", "+", ""} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, item string) {
+		vals, err := ExpandCorrupt(item)
+		if err != nil {
+			if strings.Contains(err.Error(), "\n") {
+				t.Fatalf("error not one line: %q", err)
+			}
+			return
+		}
+		for _, v := range vals {
+			c, err := CanonCorrupt(v)
+			if err != nil || c != v {
+				t.Fatalf("%q gave %q, which reads back as %q (%v)", item, v, c, err)
 			}
 		}
 	})
