@@ -165,15 +165,16 @@ func clampByte(x float64) uint8 {
 	return 0
 }
 
-// clamp32 is clampByte for float32 values.
+// clamp32 is clampByte for float32 values (NaN gives 0).
 func clamp32(x float32) uint8 {
-	if !(x > 0) {
+	x += 0.5
+	if !(x >= 1) {
 		return 0
 	}
-	if x >= 254.5 {
+	if x >= 255 {
 		return 255
 	}
-	return uint8(x + 0.5)
+	return uint8(x)
 }
 
 // gaussWeights are imaging.Blur's weights along an axis of length n:
@@ -419,8 +420,7 @@ func (s *corrState) step(p *Pipeline, k int, op *corrOp, t int, cur, nxt *image.
 		convolveYRows(s.f0, s.small, W, 0, op.sh, &op.vy)     // W×H → W×sh
 		convolveX(s.small, s.small2, W, op.sh, op.sw, &op.hx) // → sw×sh
 		convolveX(s.small2, s.small, op.sw, op.sh, W, &op.ux) // → W×sh
-		convolveYRows(s.small, s.f1, W, 0, H, &op.uy)         // → W×H
-		fTo8(s.f1, nxt.Pix)
+		convolveYTo8(s.small, nxt.Pix, W, H, &op.uy)          // → W×H bytes
 	case "gamma":
 		lut := &op.lut
 		pix := cur.Pix
@@ -560,6 +560,49 @@ func convolveY(src, dst []float32, w, h int, a *axisWeights) {
 	}
 }
 
+// convolveYTo8 is convolveY writing rounded bytes into an RGBA frame of
+// w×h: each output value sums its few taps in a register (one or two for
+// a bilinear up-scale), instead of a float frame and a conversion pass.
+func convolveYTo8(src []float32, pix []uint8, w, h int, a *axisWeights) {
+	rl := 3 * w
+	for y := 0; y < h; y++ {
+		lo, n, off := int(a.lo[y]), int(a.n[y]), int(a.off[y])
+		ws := a.w[off : off+n]
+		out := pix[y*4*w : (y+1)*4*w]
+		r0 := src[lo*rl : (lo+1)*rl]
+		switch n {
+		case 1:
+			for x := 0; x < w; x++ {
+				q := r0[3*x : 3*x+3 : 3*x+3]
+				o := out[4*x : 4*x+4 : 4*x+4]
+				o[0], o[1], o[2], o[3] = clamp32(q[0]), clamp32(q[1]), clamp32(q[2]), 255
+			}
+		case 2:
+			r1 := src[(lo+1)*rl : (lo+2)*rl]
+			w0, w1 := ws[0], ws[1]
+			for x := 0; x < w; x++ {
+				p, q := r0[3*x:3*x+3:3*x+3], r1[3*x:3*x+3:3*x+3]
+				o := out[4*x : 4*x+4 : 4*x+4]
+				o[0] = clamp32(float32(w0*p[0]) + float32(w1*q[0]))
+				o[1] = clamp32(float32(w0*p[1]) + float32(w1*q[1]))
+				o[2] = clamp32(float32(w0*p[2]) + float32(w1*q[2]))
+				o[3] = 255
+			}
+		default:
+			for i := 0; i < rl; i++ {
+				var v float32
+				for j, wj := range ws {
+					v += float32(wj * src[(lo+j)*rl+i])
+				}
+				out[i/3*4+i%3] = clamp32(v)
+				if i%3 == 2 {
+					out[i/3*4+3] = 255
+				}
+			}
+		}
+	}
+}
+
 // convolveX resamples along x: src is sw columns × h rows, dst dw
 // columns × h rows.
 func convolveX(src, dst []float32, sw, h, dw int, a *axisWeights) {
@@ -568,6 +611,15 @@ func convolveX(src, dst []float32, sw, h, dw int, a *axisWeights) {
 		out := dst[y*3*dw : (y+1)*3*dw]
 		for x := 0; x < dw; x++ {
 			lo, n, off := int(a.lo[x]), int(a.n[x]), int(a.off[x])
+			o := out[3*x : 3*x+3 : 3*x+3]
+			if n == 2 { // bilinear, and the box of a halving: the common case
+				w0, w1 := a.w[off], a.w[off+1]
+				p := in[3*lo : 3*lo+6 : 3*lo+6]
+				o[0] = float32(w0*p[0]) + float32(w1*p[3])
+				o[1] = float32(w0*p[1]) + float32(w1*p[4])
+				o[2] = float32(w0*p[2]) + float32(w1*p[5])
+				continue
+			}
 			ws := a.w[off : off+n]
 			p := in[3*lo : 3*(lo+n)]
 			var r, g, b float32
@@ -577,7 +629,6 @@ func convolveX(src, dst []float32, sw, h, dw int, a *axisWeights) {
 				g += float32(wj * q[1])
 				b += float32(wj * q[2])
 			}
-			o := out[3*x : 3*x+3 : 3*x+3]
 			o[0], o[1], o[2] = r, g, b
 		}
 	}
