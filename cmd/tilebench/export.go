@@ -15,7 +15,8 @@ import (
 
 const exportUsage = `export --in FRAMES --out DIR [options]
 
-Cuts each frame into patches, runs the transform pipeline on the tokens
+Cuts each frame into patches (after --corrupt's camera and image
+corruptions, if any), runs the transform pipeline on the tokens
 (scramble, occlude, extra tokens, photometric shifts) and writes the frames
 as the policy sees them, with a manifest that inverts or replays every
 transform. With --unscramble it reads frames it exported before and puts
