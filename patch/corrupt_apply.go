@@ -535,32 +535,7 @@ func fTo8(f []float32, pix []uint8) {
 	}
 }
 
-// convolveY resamples along y: src has w columns (3 floats each) and the
-// rows a.lo indexes; dst gets h rows of w columns. Each output row is a
-// weighted sum of whole input rows (a row-long multiply-add per tap).
-func convolveY(src, dst []float32, w, h int, a *axisWeights) {
-	rl := 3 * w
-	for y := 0; y < h; y++ {
-		out := dst[y*rl : (y+1)*rl : (y+1)*rl]
-		lo, n, off := int(a.lo[y]), int(a.n[y]), int(a.off[y])
-		ws := a.w[off : off+n]
-		in := src[lo*rl : (lo+1)*rl]
-		w0 := ws[0]
-		for i := range out {
-			out[i] = float32(w0 * in[i])
-		}
-		for j := 1; j < n; j++ {
-			in := src[(lo+j)*rl : (lo+j+1)*rl]
-			in = in[:len(out)]
-			wj := ws[j]
-			for i := range out {
-				out[i] += float32(wj * in[i])
-			}
-		}
-	}
-}
-
-// convolveYTo8 is convolveY writing rounded bytes into an RGBA frame of
+// convolveYTo8 is convolveYRows writing rounded bytes into an RGBA frame of
 // w×h: each output value sums its few taps in a register (one or two for
 // a bilinear up-scale), instead of a float frame and a conversion pass.
 func convolveYTo8(src []float32, pix []uint8, w, h int, a *axisWeights) {
@@ -720,7 +695,9 @@ func scaleIntoGo(d, c []float32, k float32) {
 	}
 }
 
-// convolveYRows is convolveY for output rows [y0, y1) only.
+// convolveYRows resamples along y for output rows [y0, y1): src has w
+// columns (3 floats each) and the rows a.lo indexes. Each output row is a
+// weighted sum of whole input rows (a row-long multiply-add per tap).
 func convolveYRows(src, dst []float32, w, y0, y1 int, a *axisWeights) {
 	rl := 3 * w
 	for y := y0; y < y1; y++ {
@@ -766,39 +743,6 @@ func sharpenTo8(src []uint8, blur []float32, dst []uint8) {
 		b := blur[3*i : 3*i+3 : 3*i+3]
 		o := dst[4*i : 4*i+4 : 4*i+4]
 		o[0], o[1], o[2], o[3] = sharpByte(s[0], clamp32(b[0])), sharpByte(s[1], clamp32(b[1])), sharpByte(s[2], clamp32(b[2])), 255
-	}
-}
-
-// convolveXTo8 is convolveX writing rounded bytes into an RGBA frame of
-// dw×h. With sharpen (the frame the blur was taken of) it writes
-// 2·v − blur(v) instead, as imaging.Sharpen does.
-func convolveXTo8(src []float32, pix []uint8, sw, h, dw int, a *axisWeights, sharpen []uint8) {
-	for y := 0; y < h; y++ {
-		in := src[y*3*sw : (y+1)*3*sw]
-		out := pix[y*4*dw : (y+1)*4*dw]
-		for x := 0; x < dw; x++ {
-			lo, n, off := int(a.lo[x]), int(a.n[x]), int(a.off[x])
-			ws := a.w[off : off+n]
-			p := in[3*lo : 3*(lo+n)]
-			var r, g, b float32
-			for j, wj := range ws {
-				q := p[3*j : 3*j+3 : 3*j+3]
-				r += float32(wj * q[0])
-				g += float32(wj * q[1])
-				b += float32(wj * q[2])
-			}
-			o := out[4*x : 4*x+4 : 4*x+4]
-			if sharpen != nil {
-				s := sharpen[y*4*dw+4*x : y*4*dw+4*x+3 : y*4*dw+4*x+3]
-				// imaging.Sharpen subtracts its rounded blur byte.
-				o[0] = sharpByte(s[0], clamp32(r))
-				o[1] = sharpByte(s[1], clamp32(g))
-				o[2] = sharpByte(s[2], clamp32(b))
-			} else {
-				o[0], o[1], o[2] = clamp32(r), clamp32(g), clamp32(b)
-			}
-			o[3] = 255
-		}
 	}
 }
 
