@@ -24,8 +24,13 @@ import (
 // (its Gaussian kernel and radius ⌈3σ⌉ with renormalisation at the edges,
 // its resampling weights for Box and Linear, its gamma table, its
 // 2·v − blur sharpening, its bilinear rotation sampling) on caller-owned
-// buffers; corrupt_test.go checks them against imaging's own output, and
-// BenchmarkCorruptBlurImaging measures the library call for the ratio.
+// buffers; corrupt_test.go checks them against imaging's own output.
+// Measured (TestCorruptSpeed, medians of single 96×96 frames on a shared
+// 2-core machine; imaging free to use both cores): imaging takes 4.5x
+// our time for Blur σ=2 (489 against 110 µs), 3.0x for Resize down and
+// back (234 against 79 µs, with the 100 µs target), 4.5x for Sharpen,
+// 4.7x for AdjustGamma and 2.6x for Rotate (which also enlarges the
+// canvas), and allocates 25 to 48 times a call.
 //
 // Floating-point products are rounded to float32 explicitly, so that no
 // compiler fuses them into a multiply-add: the bytes are the same on
@@ -632,11 +637,12 @@ func gaussHalf(sigma float64) []float32 {
 // gaussBlur blurs the RGB bytes of pix into s.f0 (float byte values):
 // along y into s.f1, then along x back into s.f0. The interior of each
 // pass (taps all inside the frame) runs as a few frame-long symmetric
-// multiply-adds, which measured about 2x faster than the per-pixel loop
-// of convolveX, and with AVX2 (corrupt_amd64.s, eight values an
-// instruction, bit for bit the same) about 4x faster again; the border
-// rows and columns, whose weights are renormalised, are redone with the
-// per-position weights.
+// multiply-adds, with AVX2 where the CPU has it (corrupt_amd64.s, eight
+// values an instruction, bit for bit the portable loop); the border rows
+// and columns, whose weights are renormalised, are redone with the
+// per-position weights. Measured on σ=2: about 260 µs a frame with the
+// per-pixel loop on both axes, 200 µs frame-long in portable Go, 105 µs
+// with AVX2.
 func (s *corrState) gaussBlur(op *corrOp, pix []uint8) {
 	W, H := s.w, s.h
 	r := len(op.half) - 1
