@@ -85,18 +85,16 @@ type corrState struct {
 	small    []float32   // resolution: the small frame, and its half-way plane
 	small2   []float32
 	padPix   []uint8 // (W·H+1)·4: frame plus one pad pixel, for rotate and scale
-	lastT    int
-	offset   [2]int // total shift of the last frame (shift + shake)
 	hasShift bool
 }
 
 // newCorrState builds the corruption state for frames of g's source size.
 func newCorrState(g *Grid, cs []Corruption) (*corrState, error) {
 	W, H := g.Width, g.Height
-	if W*H > 1<<26 {
+	if W*H > 1<<25 {
 		return nil, fmt.Errorf("corrupt: frames of %dx%d are too large", W, H)
 	}
-	s := &corrState{w: W, h: H, fill: to8(g.Fill), lastT: -1}
+	s := &corrState{w: W, h: H, fill: to8(g.Fill)}
 	s.a = image.NewRGBA(image.Rect(0, 0, W, H))
 	s.b = image.NewRGBA(image.Rect(0, 0, W, H))
 	needF := false
@@ -364,15 +362,22 @@ func (s *corrState) load(img image.Image, dst *image.RGBA) error {
 	if b.Dx() != s.w || b.Dy() != s.h {
 		return fmt.Errorf("corrupt: frame is %dx%d, grid wants %dx%d", b.Dx(), b.Dy(), s.w, s.h)
 	}
-	switch im := img.(type) {
-	case *image.RGBA:
+	rows := func(pix []uint8, stride, off int) error {
 		for y := 0; y < s.h; y++ {
-			o := im.PixOffset(b.Min.X, b.Min.Y+y)
-			if o < 0 || o+4*s.w > len(im.Pix) {
+			o := off + y*stride
+			if off < 0 || o+4*s.w > len(pix) {
 				return fmt.Errorf("corrupt: %T pixel buffer too short for a %dx%d frame", img, s.w, s.h)
 			}
-			copy(dst.Pix[y*dst.Stride:y*dst.Stride+4*s.w], im.Pix[o:o+4*s.w])
+			copy(dst.Pix[y*dst.Stride:y*dst.Stride+4*s.w], pix[o:o+4*s.w])
 		}
+		return nil
+	}
+	switch im := img.(type) {
+	case *image.RGBA:
+		return rows(im.Pix, im.Stride, im.PixOffset(b.Min.X, b.Min.Y))
+	case *image.NRGBA:
+		// The stored bytes, as the tokenizer reads an NRGBA frame.
+		return rows(im.Pix, im.Stride, im.PixOffset(b.Min.X, b.Min.Y))
 	case *image.YCbCr:
 		if len(im.Y) < im.YOffset(b.Max.X-1, b.Max.Y-1)+1 || len(im.Cb) < im.COffset(b.Max.X-1, b.Max.Y-1)+1 || len(im.Cr) < len(im.Cb) {
 			return fmt.Errorf("corrupt: YCbCr planes too short for a %dx%d frame", s.w, s.h)
@@ -391,7 +396,6 @@ func (s *corrState) run(p *Pipeline, t int, img image.Image) (*image.RGBA, error
 	if err := s.load(img, cur); err != nil {
 		return nil, err
 	}
-	s.offset = [2]int{}
 	for k := range s.ops {
 		op := &s.ops[k]
 		inPlace, err := s.step(p, k, op, t, cur, nxt)
@@ -402,7 +406,6 @@ func (s *corrState) run(p *Pipeline, t int, img image.Image) (*image.RGBA, error
 			cur, nxt = nxt, cur
 		}
 	}
-	s.lastT = t
 	return cur, nil
 }
 
@@ -481,14 +484,10 @@ func (s *corrState) step(p *Pipeline, k int, op *corrOp, t int, cur, nxt *image.
 		return true, nil
 	case "shift":
 		translate(cur, nxt, op.dx, op.dy, op.c.Mode, s.fill)
-		s.offset[0] += op.dx
-		s.offset[1] += op.dy
 	case "shake":
 		r := p.seedStream(keyCorrupt, uint64(k), uint64(t))
 		dx, dy := shakeOffset(r, int(op.c.A))
 		translate(cur, nxt, dx, dy, op.c.Mode, s.fill)
-		s.offset[0] += dx
-		s.offset[1] += dy
 	default:
 		return false, fmt.Errorf("corrupt: kind %q has no kernel", op.c.Kind)
 	}
@@ -497,7 +496,6 @@ func (s *corrState) step(p *Pipeline, k int, op *corrOp, t int, cur, nxt *image.
 
 // reset draws the per-sequence parts (dead pixels) for a new seed.
 func (s *corrState) reset(p *Pipeline) {
-	s.lastT = -1
 	for k := range s.ops {
 		op := &s.ops[k]
 		if op.c.Kind != "dead" {
@@ -513,7 +511,7 @@ func (s *corrState) reset(p *Pipeline) {
 	}
 }
 
-// shakeOffset returns shake step k's offset at step t (for the record).
+// shakeOffset draws a shake offset in [−a, a]² from r.
 func shakeOffset(r *rand.Rand, a int) (int, int) {
 	return r.IntN(2*a+1) - a, r.IntN(2*a+1) - a
 }

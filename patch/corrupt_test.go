@@ -567,3 +567,47 @@ func TestCorruptSIMDMatchesGo(t *testing.T) {
 		}
 	}
 }
+
+// The corruption stage reads every frame type as the tokenizer does: the
+// copy CorruptFrame starts from tokenizes to the same values as the frame
+// itself, for RGBA, NRGBA, grey, YCbCr and paletted frames.
+func TestCorruptReadsFramesAsTokenizer(t *testing.T) {
+	ph := photoFrame(t)
+	b := ph.Rect
+	nrgba := &image.NRGBA{Pix: slices.Clone(ph.Pix), Stride: ph.Stride, Rect: b}
+	gray := image.NewGray(b)
+	ycc := image.NewYCbCr(b, image.YCbCrSubsampleRatio420)
+	pal := image.NewPaletted(b, color.Palette{color.Black, color.RGBA{200, 30, 60, 255}, color.RGBA{10, 220, 90, 255}})
+	for y := 0; y < b.Dy(); y++ {
+		for x := 0; x < b.Dx(); x++ {
+			c := ph.RGBAAt(x, y)
+			gray.SetGray(x, y, color.Gray{c.G})
+			yy, cb, cr := color.RGBToYCbCr(c.R, c.G, c.B)
+			ycc.Y[ycc.YOffset(x, y)] = yy
+			ycc.Cb[ycc.COffset(x, y)], ycc.Cr[ycc.COffset(x, y)] = cb, cr
+			pal.SetColorIndex(x, y, uint8((x+y)%3))
+		}
+	}
+	g := mustGrid(t, GridConfig{Width: b.Dx(), Height: b.Dy(), PatchW: 8})
+	p, err := NewPipeline(g, Spec{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	tok := NewTokenizer(g)
+	for _, img := range []image.Image{ph, nrgba, gray, ycc, pal} {
+		want, got := NewTokenSet(g.N(), g.D()), NewTokenSet(g.N(), g.D())
+		if err := tok.Tokenize(img, want); err != nil {
+			t.Fatal(err)
+		}
+		f, err := p.CorruptFrame(0, img)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := tok.Tokenize(f, got); err != nil {
+			t.Fatal(err)
+		}
+		if !slices.Equal(want.Data, got.Data) {
+			t.Errorf("%T: the corruption stage's copy tokenizes differently", img)
+		}
+	}
+}
