@@ -145,3 +145,40 @@ func BenchmarkEpisodePaddleExpert(b *testing.B) {
 	}
 	b.ReportMetric(float64(steps)/b.Elapsed().Seconds(), "steps/s")
 }
+
+// The episode loop corrupts each frame before it is cut: with a shift of
+// the frame, the frame the policy sees is the raw frame moved, and the
+// record holds the offset.
+func TestEpisodeCorruptsFrames(t *testing.T) {
+	e := newPaddleEpisode(t, patch.Spec{Corrupt: "shift:7:0:wrap"}, nil)
+	checked := 0
+	_, err := e.Run(games.HeldOut(2), 3, func(tt int, raw *image.RGBA, obs *vision.Observation, rec *patch.FrameRecord, _ []float64) {
+		if tt%20 != 0 {
+			return
+		}
+		if rec.Offset != [2]int{7, 0} {
+			t.Fatalf("step %d: offset %v", tt, rec.Offset)
+		}
+		w, h := raw.Rect.Dx(), raw.Rect.Dy()
+		moved := 0
+		for y := 0; y < h; y++ {
+			for x := 0; x < w; x++ {
+				got := obs.Frame.RGBAAt(x, y)
+				want := raw.RGBAAt((x-7+w)%w, y)
+				if got != want {
+					t.Fatalf("step %d: seen pixel (%d,%d) = %v, raw pixel %d to its left %v", tt, x, y, got, 7, want)
+				}
+				if got != raw.RGBAAt(x, y) {
+					moved++
+				}
+			}
+		}
+		if moved == 0 {
+			t.Fatalf("step %d: the seen frame equals the raw one", tt)
+		}
+		checked++
+	})
+	if err != nil || checked == 0 {
+		t.Fatal(err, checked)
+	}
+}
