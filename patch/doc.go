@@ -19,6 +19,9 @@
 //     Pipeline (NewPipeline, Reset, Apply) runs them step by step in the
 //     order photometric → occlude → scramble (+ rotate/flip) → drop →
 //     noise tokens → duplicates, filling a FrameRecord per step.
+//   - Frame corruptions (Spec.Corrupt, ParseCorrupt, ExpandCorrupt; see
+//     corrupt.go for every kind and its severity table) act on the pixels
+//     before a frame is cut: Pipeline.TokenizeFrame and CorruptFrame.
 //   - Manifest (NewManifest, Append, WriteFile, ReadManifest) stores the
 //     records as versioned JSON ("format": 1); FrameRecord.Unscramble and
 //     Manifest.Unscramble invert a scramble exactly; Manifest.NewPipeline
