@@ -253,7 +253,7 @@ func fnum(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 
 // Cells lists the study's cells in their fixed order: patch size, then
 // variation, occlusion, scramble, schedule, noise tokens, brightness,
-// contrast and pixel noise, the last varying fastest. Cells that do the
+// contrast, pixel noise and corruption, the last varying fastest. Cells that do the
 // same thing are listed once (a schedule without a scramble, a zero
 // ratio); for every patch size a clean cell on the study's variation is
 // added at the end if the axes hold none, so that every cell has a
