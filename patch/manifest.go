@@ -432,6 +432,18 @@ func readMaskFile(g *Grid, path string) ([]bool, error) {
 		return nil, fmt.Errorf("occlude mask: %w", err)
 	}
 	defer f.Close()
+	// The header first: a mask of another size than the frames (however
+	// large its header says it is) is refused before any pixel is decoded.
+	cfg, err := png.DecodeConfig(f)
+	if err != nil {
+		return nil, fmt.Errorf("occlude mask %s: not a readable PNG: %v", path, err)
+	}
+	if cfg.Width != g.Width || cfg.Height != g.Height {
+		return nil, fmt.Errorf("occlude mask %s: mask is %dx%d, frames are %dx%d", path, cfg.Width, cfg.Height, g.Width, g.Height)
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		return nil, fmt.Errorf("occlude mask %s: %w", path, err)
+	}
 	img, err := png.Decode(f)
 	if err != nil {
 		return nil, fmt.Errorf("occlude mask %s: not a readable PNG: %v", path, err)

@@ -107,6 +107,7 @@ func runExport(ctx *runContext, args []string) error {
 	sheetScale := fs.Int("sheet-scale", 2, "contact sheet pixel enlargement, 1 to 8 (e.g. --sheet-scale 3)")
 	sheetGrid := fs.Bool("sheet-grid", false, "draw the patch grid on the contact sheet (e.g. --sheet-grid)")
 	asJSON := fs.Bool("json", false, "print a machine-readable summary (\"format\": 1) on stdout (e.g. --json)")
+	maxPixels := fs.Int("max-pixels", frameio.MaxFramePixels, "pixel budget: the largest frame (width·height) read, checked from each file's header before decoding (e.g. --max-pixels 100000000)")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -135,12 +136,14 @@ func runExport(ctx *runContext, args []string) error {
 		return usagef("export: --channels %d: want 1 or 3", *channels)
 	case math.IsNaN(*padValue) || *padValue < 0 || *padValue > 1:
 		return usagef("export: --pad-value %v: want a number in [0,1]", *padValue)
+	case *maxPixels < 1 || *maxPixels > frameio.MaxSide*frameio.MaxSide:
+		return usagef("export: --max-pixels %d: want 1 to %d", *maxPixels, frameio.MaxSide*frameio.MaxSide)
 	}
 	formats, err := frameio.ParseFormats(*as)
 	if err != nil {
 		return usagef("export: --as: %v", err)
 	}
-	opt := frameio.Options{Frames: *nframes, Stdin: ctx.stdin}
+	opt := frameio.Options{Frames: *nframes, Stdin: ctx.stdin, MaxPixels: *maxPixels}
 	if *size != "" {
 		if opt.Width, opt.Height, err = patch.ParseSize(*size); err != nil {
 			return usagef("export: --size: %v", err)

@@ -24,23 +24,30 @@ type gifReader struct {
 	bg     color.RGBA
 }
 
-func openGIF(path string) (Reader, error) {
+func openGIF(path string, maxPixels int) (Reader, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("input %s: %w", path, unwrapPath(err))
 	}
 	defer f.Close()
-	return readGIF(path, f)
+	return readGIF(path, f, maxPixels)
 }
 
 // readGIF decodes a whole GIF from r (image/gif decodes all frames at
-// once), refusing absurd screen sizes before decoding the frames.
-func readGIF(name string, r io.ReadSeeker) (*gifReader, error) {
+// once), refusing a screen over the pixel budget, or frames that hold
+// more than 4·maxPixels pixels together, before decoding any frame.
+func readGIF(name string, r io.ReadSeeker, maxPixels int) (*gifReader, error) {
 	cfg, err := gif.DecodeConfig(r)
 	if err != nil {
 		return nil, fmt.Errorf("input %s: %w", name, err)
 	}
-	if err := checkSize(cfg.Width, cfg.Height); err != nil {
+	if err := checkBudget(cfg.Width, cfg.Height, maxPixels); err != nil {
+		return nil, fmt.Errorf("input %s: %w", name, err)
+	}
+	if _, err := r.Seek(0, io.SeekStart); err != nil {
+		return nil, fmt.Errorf("input %s: %w", name, err)
+	}
+	if err := checkGIFBudget(r, maxPixels); err != nil {
 		return nil, fmt.Errorf("input %s: %w", name, err)
 	}
 	if _, err := r.Seek(0, io.SeekStart); err != nil {

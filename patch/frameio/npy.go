@@ -19,7 +19,8 @@ const (
 	MaxNPYHeader = 65535
 	// MaxSide is the largest frame width or height accepted.
 	MaxSide = 16384
-	// MaxFramePixels is the largest frame area (width·height) accepted.
+	// MaxFramePixels is the default pixel budget: the largest frame area
+	// (width·height) accepted unless Options.MaxPixels says otherwise.
 	MaxFramePixels = 1 << 25
 	// MaxFrames is the largest frame count accepted.
 	MaxFrames = 1 << 24
@@ -54,7 +55,9 @@ func (s Shape) FrameBytes() int { return s.Height * s.Width * s.Channels }
 //
 // and refuses anything else, or sizes beyond MaxSide, MaxFramePixels and
 // MaxFrames, or empty axes.
-func ShapeOf(dims []int) (Shape, error) {
+func ShapeOf(dims []int) (Shape, error) { return shapeOf(dims, MaxFramePixels) }
+
+func shapeOf(dims []int, maxPixels int) (Shape, error) {
 	s := Shape{Dims: dims}
 	switch {
 	case len(dims) == 4:
@@ -73,8 +76,9 @@ func ShapeOf(dims []int) (Shape, error) {
 		return Shape{}, fmt.Errorf("shape %s: holds no pixels", fmtDims(dims))
 	case s.Frames > MaxFrames:
 		return Shape{}, fmt.Errorf("shape %s: more than %d frames", fmtDims(dims), MaxFrames)
-	case s.Height > MaxSide || s.Width > MaxSide || s.Height*s.Width > MaxFramePixels:
-		return Shape{}, fmt.Errorf("shape %s: frames larger than the %d-pixel side / %d-pixel area limit", fmtDims(dims), MaxSide, MaxFramePixels)
+	}
+	if err := checkBudget(s.Width, s.Height, maxPixels); err != nil {
+		return Shape{}, fmt.Errorf("shape %s: %w", fmtDims(dims), err)
 	}
 	return s, nil
 }
@@ -371,11 +375,15 @@ type NPYReader struct {
 // remaining length (an *os.File, a *bytes.Reader, ...), a data size that
 // does not match the shape is refused at once.
 func NewNPYReader(r io.Reader, name string) (*NPYReader, error) {
+	return newNPYReader(r, name, MaxFramePixels)
+}
+
+func newNPYReader(r io.Reader, name string, maxPixels int) (*NPYReader, error) {
 	dims, _, err := ReadNPYHeader(r)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
-	s, err := ShapeOf(dims)
+	s, err := shapeOf(dims, maxPixels)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}

@@ -320,6 +320,10 @@ func FuzzReadNPY(f *testing.F) {
 	}
 	f.Add(npyWithDict("{'descr': '|u1', 'fortran_order': False, 'shape': (1, 1, 1, 3), }"))
 	f.Add(npyWithDict("{\"shape\": (1,1,3,), \"fortran_order\": False, \"descr\": \"<u1\"}"))
+	// Crafted headers that claim huge arrays over a few bytes of data.
+	f.Add(npyWithDict("{'descr': '|u1', 'fortran_order': False, 'shape': (1, 100000, 100000, 3), }"))
+	f.Add(npyWithDict("{'descr': '|u1', 'fortran_order': False, 'shape': (16777216, 8192, 4096, 1), }"))
+	f.Add(npyWithDict("{'descr': '|u1', 'fortran_order': False, 'shape': (2, 20000, 20000), }"))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		r, err := NewNPYReader(bytes.NewReader(data), "fuzz.npy")
 		if err != nil {

@@ -51,6 +51,13 @@ type Options struct {
 	Frames int
 	// Stdin is what "-" reads raw RGB24 frames from (default os.Stdin).
 	Stdin io.Reader
+	// MaxPixels is the pixel budget: the largest frame area
+	// (width·height) read from any input, checked from each file's
+	// header before its pixels are decoded (default MaxFramePixels,
+	// 2^25 ≈ 33.5 million pixels; an animated GIF, decoded whole, may
+	// hold 4·MaxPixels pixels over all its frames). Sides stay limited
+	// to MaxSide.
+	MaxPixels int
 }
 
 // Open opens the frame sequence in:
@@ -80,26 +87,26 @@ func Open(in string, opt Options) (Reader, error) {
 		if src == nil {
 			src = os.Stdin
 		}
-		return NewRawReader(io.NopCloser(src), "stdin", opt.Width, opt.Height)
+		return newRawReader(io.NopCloser(src), "stdin", opt.Width, opt.Height, opt.budget())
 	}
 	st, err := os.Stat(in)
 	if err != nil {
 		return nil, fmt.Errorf("input %s: %w", in, unwrapPath(err))
 	}
 	if st.IsDir() {
-		return openDir(in)
+		return openDir(in, opt.budget())
 	}
 	switch strings.ToLower(filepath.Ext(in)) {
 	case ".png", ".jpg", ".jpeg":
-		return newFileList(in, []string{in})
+		return newFileList(in, []string{in}, opt.budget())
 	case ".gif":
-		return openGIF(in)
+		return openGIF(in, opt.budget())
 	case ".npy":
 		f, err := os.Open(in)
 		if err != nil {
 			return nil, fmt.Errorf("input %s: %w", in, unwrapPath(err))
 		}
-		r, err := NewNPYReader(f, in)
+		r, err := newNPYReader(f, in, opt.budget())
 		if err != nil {
 			f.Close()
 			return nil, err
@@ -111,7 +118,7 @@ func Open(in string, opt Options) (Reader, error) {
 		if err != nil {
 			return nil, fmt.Errorf("input %s: %w", in, unwrapPath(err))
 		}
-		r, err := NewRawReader(f, in, opt.Width, opt.Height)
+		r, err := newRawReader(f, in, opt.Width, opt.Height, opt.budget())
 		if err != nil {
 			f.Close()
 		}
@@ -158,7 +165,7 @@ func frameExt(name string) bool {
 // openDir lists the frame files of dir (hidden files and other
 // extensions are ignored) in natural order. When some are named
 // frame-NNNNN.png (an export's sequence), only those are read.
-func openDir(dir string) (Reader, error) {
+func openDir(dir string, maxPixels int) (Reader, error) {
 	ents, err := os.ReadDir(dir)
 	if err != nil {
 		return nil, fmt.Errorf("input %s: %w", dir, unwrapPath(err))
@@ -189,10 +196,12 @@ func openDir(dir string) (Reader, error) {
 	for i, n := range names {
 		paths[i] = filepath.Join(dir, n)
 	}
-	return newFileList(dir, paths)
+	return newFileList(dir, paths, maxPixels)
 }
 
-// fileList reads image files one after another.
+// fileList reads image files one after another. Every file's header is
+// read before its pixels: a frame of another size than the first (and so
+// one over the pixel budget the first passed) is refused undecoded.
 type fileList struct {
 	info  Info
 	paths []string
@@ -200,7 +209,7 @@ type fileList struct {
 	frame *image.RGBA
 }
 
-func newFileList(name string, paths []string) (*fileList, error) {
+func newFileList(name string, paths []string, maxPixels int) (*fileList, error) {
 	f, err := os.Open(paths[0])
 	if err != nil {
 		return nil, fmt.Errorf("frame %s: %w", paths[0], unwrapPath(err))
@@ -210,7 +219,7 @@ func newFileList(name string, paths []string) (*fileList, error) {
 	if err != nil {
 		return nil, fmt.Errorf("frame %s: %w", paths[0], err)
 	}
-	if err := checkSize(cfg.Width, cfg.Height); err != nil {
+	if err := checkBudget(cfg.Width, cfg.Height, maxPixels); err != nil {
 		return nil, fmt.Errorf("frame %s: %w", paths[0], err)
 	}
 	return &fileList{
@@ -219,16 +228,8 @@ func newFileList(name string, paths []string) (*fileList, error) {
 	}, nil
 }
 
-// checkSize applies MaxSide and MaxFramePixels.
-func checkSize(w, h int) error {
-	if w <= 0 || h <= 0 {
-		return fmt.Errorf("frame size %dx%d holds no pixels", w, h)
-	}
-	if w > MaxSide || h > MaxSide || w*h > MaxFramePixels {
-		return fmt.Errorf("frame size %dx%d is over the %d-pixel side / %d-pixel area limit", w, h, MaxSide, MaxFramePixels)
-	}
-	return nil
-}
+// checkSize applies MaxSide and the default pixel budget.
+func checkSize(w, h int) error { return checkBudget(w, h, MaxFramePixels) }
 
 func (l *fileList) Info() Info { return l.info }
 
@@ -241,16 +242,17 @@ func (l *fileList) Next() (*image.RGBA, error) {
 	if err != nil {
 		return nil, fmt.Errorf("frame %s: %w", path, unwrapPath(err))
 	}
-	img, _, err := image.Decode(f)
+	img, err := decodeSized(f, l.info.Width, l.info.Height)
 	f.Close()
 	if err != nil {
+		var sz sizeError
+		if errors.As(err, &sz) {
+			return nil, fmt.Errorf("frame %s is %dx%d, but %s is %dx%d: all frames must have one size",
+				path, sz.w, sz.h, l.paths[0], l.info.Width, l.info.Height)
+		}
 		return nil, fmt.Errorf("frame %s: %w", path, err)
 	}
 	b := img.Bounds()
-	if b.Dx() != l.info.Width || b.Dy() != l.info.Height {
-		return nil, fmt.Errorf("frame %s is %dx%d, but %s is %dx%d: all frames must have one size",
-			path, b.Dx(), b.Dy(), l.paths[0], l.info.Width, l.info.Height)
-	}
 	if l.frame == nil {
 		l.frame = image.NewRGBA(image.Rect(0, 0, l.info.Width, l.info.Height))
 	}
@@ -283,10 +285,14 @@ type RawReader struct {
 // NewRawReader reads width×height RGB24 frames from r until its end; a
 // trailing partial frame is an error, and so is an empty stream.
 func NewRawReader(r io.ReadCloser, name string, width, height int) (*RawReader, error) {
+	return newRawReader(r, name, width, height, MaxFramePixels)
+}
+
+func newRawReader(r io.ReadCloser, name string, width, height, maxPixels int) (*RawReader, error) {
 	if width == 0 && height == 0 {
 		return nil, fmt.Errorf("%s: raw RGB24 input needs the frame size (--size WxH)", name)
 	}
-	if err := checkSize(width, height); err != nil {
+	if err := checkBudget(width, height, maxPixels); err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
 	return &RawReader{name: name, r: r, info: Info{Name: name, Width: width, Height: height, Channels: 3, Frames: -1}}, nil
@@ -320,3 +326,32 @@ func (r *RawReader) Next() (*image.RGBA, error) {
 
 // Close closes the stream.
 func (r *RawReader) Close() error { return r.r.Close() }
+
+// sizeError says a file's header gives another size than wanted.
+type sizeError struct{ w, h int }
+
+func (e sizeError) Error() string { return fmt.Sprintf("image is %dx%d", e.w, e.h) }
+
+// decodeSized reads the header of the image in f and decodes its pixels
+// only when it is w×h; otherwise it returns a sizeError, having
+// allocated nothing for the pixels.
+func decodeSized(f io.ReadSeeker, w, h int) (image.Image, error) {
+	cfg, _, err := image.DecodeConfig(f)
+	if err != nil {
+		return nil, err
+	}
+	if cfg.Width != w || cfg.Height != h {
+		return nil, sizeError{cfg.Width, cfg.Height}
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		return nil, err
+	}
+	img, _, err := image.Decode(f)
+	if err != nil {
+		return nil, err
+	}
+	if b := img.Bounds(); b.Dx() != w || b.Dy() != h {
+		return nil, sizeError{b.Dx(), b.Dy()}
+	}
+	return img, nil
+}

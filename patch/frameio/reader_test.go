@@ -425,8 +425,14 @@ func FuzzReadGIF(f *testing.F) {
 	b.Reset()
 	gif.EncodeAll(&b, g)
 	f.Add(b.Bytes())
+	// Crafted headers: a screen of 65535×65535, and many frames that
+	// together pass the budget the fuzz function gives.
+	huge := append([]byte(nil), b.Bytes()...)
+	huge[6], huge[7], huge[8], huge[9] = 0xff, 0xff, 0xff, 0xff
+	f.Add(huge)
+	f.Add(manyFrameGIF(400, 16, 16))
 	f.Fuzz(func(t *testing.T, data []byte) {
-		gr, err := readGIF("fuzz.gif", bytes.NewReader(data))
+		gr, err := readGIF("fuzz.gif", bytes.NewReader(data), 1<<16)
 		if err != nil {
 			return
 		}
