@@ -16,6 +16,7 @@ import (
 // policy (--policy exec:... or tcp://...); see docs/policy-protocol.md.
 type externalOptions struct {
 	timeout time.Duration
+	start   time.Duration
 	obs     string
 	dtype   string
 	clamp   bool
@@ -26,6 +27,7 @@ type externalOptions struct {
 func addExternalFlags(fs *flag.FlagSet) *externalOptions {
 	o := &externalOptions{}
 	fs.DurationVar(&o.timeout, "policy-timeout", 5*time.Second, "external policy: longest wait for one step's reply (e.g. --policy-timeout 10s)")
+	fs.DurationVar(&o.start, "policy-start-timeout", 30*time.Second, "external policy: longest wait for it to start and answer the handshake (e.g. --policy-start-timeout 2m)")
 	fs.StringVar(&o.obs, "policy-obs", remote.ObsFrame, "external policy: what it is sent, frame (reassembled frame) or tokens (token set with grid cells) (e.g. --policy-obs tokens)")
 	fs.StringVar(&o.dtype, "policy-dtype", remote.Uint8, "external policy: observation values as uint8 (0..255) or float32 (0..1) (e.g. --policy-dtype float32)")
 	fs.BoolVar(&o.clamp, "policy-clamp", false, "external policy: clamp out-of-bounds continuous actions instead of failing (e.g. --policy-clamp)")
@@ -41,11 +43,13 @@ func isExternal(name string) bool { return remote.IsTarget(name) }
 // nil for the defaults. Spelling errors of the target are usage errors.
 func openExternal(target string, g games.Game, grid *patch.Grid, o *externalOptions) (vision.Policy, error) {
 	if o == nil {
-		o = &externalOptions{timeout: 5 * time.Second, obs: remote.ObsFrame, dtype: remote.Uint8}
+		o = &externalOptions{timeout: 5 * time.Second, start: 30 * time.Second, obs: remote.ObsFrame, dtype: remote.Uint8}
 	}
 	switch {
 	case o.timeout <= 0:
 		return nil, usagef("--policy-timeout %v: want a positive duration", o.timeout)
+	case o.start <= 0:
+		return nil, usagef("--policy-start-timeout %v: want a positive duration", o.start)
 	case o.obs != remote.ObsFrame && o.obs != remote.ObsTokens:
 		return nil, usagef("--policy-obs %q: want %s or %s", o.obs, remote.ObsFrame, remote.ObsTokens)
 	case o.dtype != remote.Uint8 && o.dtype != remote.Float32:
@@ -60,7 +64,7 @@ func openExternal(target string, g games.Game, grid *patch.Grid, o *externalOpti
 	}
 	p, err := remote.Open(target, remote.Config{
 		Game: g.Spec(), Grid: grid, Obs: o.obs, Dtype: o.dtype,
-		StepTimeout: o.timeout, Clamp: o.clamp, LogDir: o.logDir,
+		StepTimeout: o.timeout, HandshakeTimeout: o.start, Clamp: o.clamp, LogDir: o.logDir,
 	})
 	if err != nil {
 		return nil, err

@@ -47,6 +47,7 @@ type studyFlags struct {
 	brightness, contrast, pixelNoise, variations, seeds *string
 	corrupt                                             *string
 	timeout                                             *string
+	startTO                                             *string
 	episodes, workers, resamples, shards                *int
 	seed                                                *uint64
 	threshold                                           *float64
@@ -64,6 +65,7 @@ func addStudyFlags(fs *flag.FlagSet, defPolicy, defPatch string, defEpisodes int
 		policy:     fs.String("policy", defPolicy, "the policy: expert (scripted, reads game state), fresh (untrained --family), a weights `FILE` ({patch} is replaced by each patch size), exec:COMMAND ARGS or tcp://HOST:PORT"),
 		family:     fs.String("family", "attention", "network `FAMILY` for --policy fresh and for training: attention, posattention, mlp, meanpool"),
 		timeout:    fs.String("policy-timeout", "", "per-step timeout of an external policy, e.g. 5s (default: the protocol's)"),
+		startTO:    fs.String("policy-start-timeout", "", "longest wait for an external policy to start and answer the handshake, e.g. 2m (default 30s)"),
 		patch:      fs.String("patch", defPatch, "patch `SIZES` in pixels, a list, e.g. 4,8,16 or 4:16:4"),
 		occlude:    fs.String("occlude", "", "occlusion `LIST`: none, random:R, block:R, bands:R, sweep:R, mask:FILE.png; e.g. random:0:0.9:0.1,block:0.3"),
 		fill:       fs.String("fill", "", "what occluded tokens become: black (default), mean, noise or drop"),
@@ -117,6 +119,7 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	useStr("policy", &d.Policy.Source, *sf.policy)
 	useStr("family", &d.Policy.Family, *sf.family)
 	useStr("policy-timeout", &d.Policy.Timeout, *sf.timeout)
+	useStr("policy-start-timeout", &d.Policy.StartTimeout, *sf.startTO)
 	useStr("fill", &d.Axes.Fill, *sf.fill)
 	useStr("seeds", &d.Seeds, *sf.seeds)
 	useAxis("patch", &d.Patch, *sf.patch)

@@ -68,11 +68,11 @@ func (e *FaultError) Error() string {
 	fmt.Fprintf(&b, "policy %s: ", e.Policy)
 	switch {
 	case e.Phase == "step":
-		fmt.Fprintf(&b, "episode %d step %d: ", e.Episode, e.Step)
-	case e.Phase == "handshake":
-		b.WriteString("handshake: ")
+		// The episode is not numbered here: the session's count from 0
+		// is not the caller's, which wraps this message with its own.
+		fmt.Fprintf(&b, "step %d: ", e.Step)
 	default:
-		fmt.Fprintf(&b, "episode %d %s: ", e.Episode, e.Phase)
+		fmt.Fprintf(&b, "%s: ", e.Phase)
 	}
 	fmt.Fprintf(&b, "%s: %s", e.Kind, e.Detail)
 	if e.Stderr != "" {

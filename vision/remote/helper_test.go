@@ -48,6 +48,9 @@ func helperTarget(t testing.TB) string {
 }
 
 func runHelper(mode string) int {
+	if code, ok := lifecycleHelper(mode); ok {
+		return code
+	}
 	switch {
 	case mode == "echo":
 		err := Serve(os.Stdin, os.Stdout, zeroPolicy{}, ServeOptions{Name: "echo"})

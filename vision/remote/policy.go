@@ -42,8 +42,8 @@ type Config struct {
 	// StepTimeout bounds each step's round trip. Default 5 s.
 	StepTimeout time.Duration
 	// HandshakeTimeout bounds connecting, starting the process and the
-	// handshake. Default 30 s (a Python policy may import a large
-	// framework first).
+	// handshake (the start timeout, --policy-start-timeout). Default 30 s
+	// (a Python policy may import a large framework first).
 	HandshakeTimeout time.Duration
 	// Clamp clips continuous actions into the bounds instead of treating
 	// an out-of-bounds value as a fault. Default false.
@@ -163,6 +163,7 @@ type Policy struct {
 	tail    *tailWriter
 	logPath string
 	logFile *os.File
+	life    lifecycle
 
 	frameShape [3]int
 	dim        int
@@ -237,7 +238,7 @@ func (p *Policy) startChild(argv []string) error {
 	}
 	cmd := exec.Command(argv[0], argv[1:]...)
 	cmd.Stdin, cmd.Stdout = inR, outW
-	cmd.SysProcAttr = &syscall.SysProcAttr{Setpgid: true}
+	cmd.SysProcAttr = childAttr()
 	cmd.Env = append(os.Environ(),
 		"TILEBENCH_PROTOCOL="+strconv.Itoa(Version),
 		"TILEBENCH_GAME="+p.cfg.Game.Name,
@@ -259,17 +260,29 @@ func (p *Policy) startChild(argv []string) error {
 			return fmt.Errorf("policy %s: log folder: %w", p.target, err)
 		}
 	}
-	cmd.Stderr = stderr
-	cmd.WaitDelay = 2 * time.Second
+	errR, errW, err := os.Pipe()
+	if err != nil {
+		inR.Close()
+		inW.Close()
+		outR.Close()
+		outW.Close()
+		return fmt.Errorf("policy %s: %w", p.target, err)
+	}
+	cmd.Stderr = errW // an *os.File: cmd.Wait returns when the child exits
 	if err := cmd.Start(); err != nil {
 		inR.Close()
 		inW.Close()
 		outR.Close()
 		outW.Close()
+		errR.Close()
+		errW.Close()
 		return fmt.Errorf("policy %s: start: %w", p.target, err)
 	}
 	inR.Close()
 	outW.Close()
+	errW.Close()
+	p.life.startGuard(cmd.Process.Pid)
+	p.life.copyStderr(errR, stderr)
 	if p.cfg.LogDir != "" {
 		name := p.cfg.LogName
 		if name == "" {
@@ -284,14 +297,11 @@ func (p *Policy) startChild(argv []string) error {
 	}
 	p.cmd = cmd
 	p.exited = make(chan struct{})
-	go func() {
-		p.waitErr = cmd.Wait()
-		close(p.exited)
-	}()
 	p.w, p.rd = inW, outR
 	p.r = bufio.NewReaderSize(outR, MaxLine)
 	p.pipe = inW
-	p.closer = append(p.closer, inW, outR)
+	p.closer = append(p.closer, inW, outR, errR)
+	go p.watch(cmd, inW, outR)
 	return nil
 }
 
@@ -360,6 +370,7 @@ func (p *Policy) exitStatus() string {
 // kill ends the child's whole process group and closes the transport.
 func (p *Policy) kill() {
 	if p.cmd != nil && p.cmd.Process != nil {
+		p.life.stopGuard()
 		syscall.Kill(-p.cmd.Process.Pid, syscall.SIGKILL)
 		select {
 		case <-p.exited:
@@ -379,14 +390,16 @@ func (p *Policy) kill() {
 
 // readLine reads one header line before deadline.
 func (p *Policy) readLine(phase string, step int, deadline time.Time, timeout time.Duration) ([]byte, *FaultError) {
-	p.rd.SetReadDeadline(deadline)
+	p.setReadDeadline(deadline)
 	line, err := p.r.ReadSlice('\n')
 	if err != nil {
 		switch {
 		case errors.Is(err, bufio.ErrBufferFull):
 			return nil, p.newFault(phase, step, TooLarge, "reply header longer than %d bytes", MaxLine)
+		case errors.Is(err, os.ErrDeadlineExceeded) && p.childGone():
+			return nil, p.newFault(phase, step, Crash, "policy process exited before it replied")
 		case errors.Is(err, os.ErrDeadlineExceeded):
-			return nil, p.newFault(phase, step, Timeout, "no reply within %v", timeout)
+			return nil, p.newFault(phase, step, Timeout, "no reply within %v%s", timeout, timeoutHint(phase))
 		case errors.Is(err, io.EOF) || errors.Is(err, os.ErrClosed) || errors.Is(err, net.ErrClosed):
 			if len(line) > 0 {
 				return nil, p.newFault(phase, step, Crash, "output ended inside a reply")
@@ -400,10 +413,13 @@ func (p *Policy) readLine(phase string, step int, deadline time.Time, timeout ti
 }
 
 func (p *Policy) write(phase string, step int, b []byte, deadline time.Time, timeout time.Duration) *FaultError {
-	p.w.SetWriteDeadline(deadline)
+	p.setWriteDeadline(deadline)
 	if _, err := p.w.Write(b); err != nil {
+		if errors.Is(err, os.ErrDeadlineExceeded) && p.childGone() {
+			return p.newFault(phase, step, Crash, "policy process exited before it read its input")
+		}
 		if errors.Is(err, os.ErrDeadlineExceeded) {
-			return p.newFault(phase, step, Timeout, "policy did not read its input within %v", timeout)
+			return p.newFault(phase, step, Timeout, "policy did not read its input within %v%s", timeout, timeoutHint(phase))
 		}
 		return p.newFault(phase, step, IO, "write: %v", err)
 	}

@@ -67,6 +67,9 @@ type PolicyDef struct {
 	// Timeout is the per-step timeout of an external policy, as a Go
 	// duration ("5s"). "" means the protocol's default.
 	Timeout string `toml:"timeout" json:"timeout,omitempty"`
+	// StartTimeout bounds starting an external policy and its handshake,
+	// as a Go duration ("2m"). "" means the protocol's default (30 s).
+	StartTimeout string `toml:"start_timeout" json:"start_timeout,omitempty"`
 }
 
 // Axes are the transforms a study sweeps. Each is a list in the range

@@ -70,6 +70,11 @@ func (d *Definition) Normalize() error {
 	if d.Policy.Family == "" {
 		d.Policy.Family = "attention"
 	}
+	if d.Policy.StartTimeout != "" {
+		if t, err := time.ParseDuration(d.Policy.StartTimeout); err != nil || t <= 0 {
+			return fieldErr("policy.start_timeout", fmt.Errorf("%q: want a positive duration such as 30s", d.Policy.StartTimeout))
+		}
+	}
 	if d.Policy.Timeout != "" {
 		if t, err := time.ParseDuration(d.Policy.Timeout); err != nil || t <= 0 {
 			return fieldErr("policy.timeout", fmt.Errorf("%q: want a positive duration such as 5s", d.Policy.Timeout))

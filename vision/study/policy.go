@@ -18,14 +18,21 @@ import (
 
 // external opens an external policy over the protocol of vision/remote
 // (docs/policy-protocol.md), keeping its stderr in logDir.
-func external(source string, timeout string, g games.Game, grid *patch.Grid, logDir string) (vision.Policy, error) {
+func external(source string, def PolicyDef, g games.Game, grid *patch.Grid, logDir string) (vision.Policy, error) {
 	cfg := remote.Config{Game: g.Spec(), Grid: grid, LogDir: logDir}
-	if timeout != "" {
-		d, err := time.ParseDuration(timeout)
+	if def.Timeout != "" {
+		d, err := time.ParseDuration(def.Timeout)
 		if err != nil {
-			return nil, fmt.Errorf("policy timeout %q: %w", timeout, err)
+			return nil, fmt.Errorf("policy timeout %q: %w", def.Timeout, err)
 		}
 		cfg.StepTimeout = d
+	}
+	if def.StartTimeout != "" {
+		d, err := time.ParseDuration(def.StartTimeout)
+		if err != nil {
+			return nil, fmt.Errorf("policy start timeout %q: %w", def.StartTimeout, err)
+		}
+		cfg.HandshakeTimeout = d
 	}
 	if logDir != "" {
 		if err := os.MkdirAll(logDir, 0o755); err != nil {
@@ -60,7 +67,7 @@ func Policies(p *Plan, logDir string) PolicyFunc {
 		case src == "fresh":
 			return nets.New(nets.Config{Family: def.Family}, grid, g.Spec().Action, p.PolicySeed(ps))
 		case remote.IsTarget(src):
-			return external(src, def.Timeout, g, grid, logDir)
+			return external(src, def, g, grid, logDir)
 		}
 		path := PolicyPath(src, ps)
 		mu.Lock()
