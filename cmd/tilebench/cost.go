@@ -73,8 +73,8 @@ func runCost(ctx *runContext, args []string) error {
 	if fs.NArg() > 0 {
 		return usagef("cost: unexpected argument %q", fs.Arg(0))
 	}
-	if *reps < 0 || *steps < 1 {
-		return usagef("cost: --reps %d --steps %d: want reps ≥ 0 and steps ≥ 1", *reps, *steps)
+	if *reps < 0 || *steps < 1 || *reps > nets.MaxLatencySamples || *steps > nets.MaxLatencySteps {
+		return usagef("cost: --reps %d --steps %d: want reps 0..%d and steps 1..%d", *reps, *steps, nets.MaxLatencySamples, nets.MaxLatencySteps)
 	}
 	e, err := patch.ParseEdge(*edge)
 	if err != nil {

@@ -10,6 +10,7 @@ import (
 	"io"
 	"os"
 	"sort"
+	"strconv"
 	"strings"
 )
 
@@ -64,13 +65,40 @@ func newFlags(ctx *runContext, name, usage string) *flag.FlagSet {
 // parseFlags parses args into fs, turning flag errors into usage errors.
 // It returns errHelp when -h or -help was given (after printing usage).
 func parseFlags(fs *flag.FlagSet, args []string) error {
-	if err := fs.Parse(args); err != nil {
+	// The flag package prints the usage on every parse error; only -help
+	// should (a bad value gets one line, from finish).
+	usage := fs.Usage
+	fs.Usage = func() {}
+	err := fs.Parse(args)
+	fs.Usage = usage
+	if err != nil {
 		if errors.Is(err, flag.ErrHelp) {
-			return errHelp // the flag package has printed the usage already
+			usage()
+			return errHelp
 		}
 		return usageError{err}
 	}
 	return nil
+}
+
+// refuseZero is a usage error when one of the named flags was given as 0
+// (or 0.0): for those flags 0 stands for "the default", which a user who
+// typed 0 did not mean.
+func refuseZero(fs *flag.FlagSet, names ...string) error {
+	var err error
+	fs.Visit(func(f *flag.Flag) {
+		if err != nil {
+			return
+		}
+		for _, n := range names {
+			if f.Name == n {
+				if v, perr := strconv.ParseFloat(f.Value.String(), 64); perr == nil && v == 0 {
+					err = usagef("--%s 0: want a positive value (leave the flag out for the default)", n)
+				}
+			}
+		}
+	})
+	return err
 }
 
 // errHelp ends a command successfully after its help was printed.

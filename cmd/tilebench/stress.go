@@ -48,6 +48,7 @@ type studyFlags struct {
 	corrupt                                             *string
 	timeout                                             *string
 	startTO                                             *string
+	forceWorkers                                        *bool
 	episodes, workers, resamples, shards                *int
 	seed                                                *uint64
 	threshold                                           *float64
@@ -57,37 +58,38 @@ type studyFlags struct {
 
 func addStudyFlags(fs *flag.FlagSet, defPolicy, defPatch string, defEpisodes int) *studyFlags {
 	return &studyFlags{
-		fs:         fs,
-		config:     fs.String("config", "", "read the study from a TOML `FILE` (see examples/study.toml); flags given as well override it"),
-		name:       fs.String("name", "", "study `NAME` shown in the report (default \"study\")"),
-		game:       fs.String("game", "drive", "built-in `GAME`: drive or paddle"),
-		variation:  fs.String("variation", "", "game `VARIATION` the clean score is measured on (default: the game's default)"),
-		policy:     fs.String("policy", defPolicy, "the policy: expert (scripted, reads game state), fresh (untrained --family), a weights `FILE` ({patch} is replaced by each patch size), exec:COMMAND ARGS or tcp://HOST:PORT"),
-		family:     fs.String("family", "attention", "network `FAMILY` for --policy fresh and for training: attention, posattention, mlp, meanpool"),
-		timeout:    fs.String("policy-timeout", "", "per-step timeout of an external policy, e.g. 5s (default: the protocol's)"),
-		startTO:    fs.String("policy-start-timeout", "", "longest wait for an external policy to start and answer the handshake, e.g. 2m (default 30s)"),
-		patch:      fs.String("patch", defPatch, "patch `SIZES` in pixels, a list, e.g. 4,8,16 or 4:16:4"),
-		occlude:    fs.String("occlude", "", "occlusion `LIST`: none, random:R, block:R, bands:R, sweep:R, mask:FILE.png; e.g. random:0:0.9:0.1,block:0.3"),
-		fill:       fs.String("fill", "", "what occluded tokens become: black (default), mean, noise or drop"),
-		scramble:   fs.String("scramble", "", "scramble `LIST`: none, full, partial:F, local:K; e.g. none,full"),
-		every:      fs.String("every", "", "scramble schedule `LIST`: 0 = one permutation per episode, T = a new one every T steps; e.g. 0,10,100"),
-		noise:      fs.String("noise-tokens", "", "`LIST` of numbers of added noise tokens, e.g. 0,16,64"),
-		brightness: fs.String("brightness", "", "`LIST` of brightness offsets, e.g. -0.2,0,0.2"),
-		contrast:   fs.String("contrast", "", "`LIST` of contrast factors, e.g. 0.5,1"),
-		pixelNoise: fs.String("pixel-noise", "", "`LIST` of Gaussian pixel noise σ, e.g. 0:0.2:0.05"),
-		corrupt:    fs.String("corrupt", "", "`LIST` of frame corruptions (docs/studies.md), each none, KIND:VALUE, KIND:sN, KIND:sA:sB or KIND:START:STOP:STEP, several in one cell joined by +; e.g. blur:s1:s5,jpeg:40,shift:3:0"),
-		variations: fs.String("variations", "", "`LIST` of game variations (held-out palettes), e.g. default,dusk"),
-		seeds:      fs.String("seeds", "", "game seed `RANGE`: held-out (default), train, or START:COUNT"),
-		episodes:   fs.Int("episodes", defEpisodes, "episodes per cell"),
-		seed:       fs.Uint64("seed", 0, "study seed; every episode's seeds derive from it (docs/studies.md)"),
-		workers:    fs.Int("workers", 0, "parallel workers (0: one per core); results do not depend on it"),
-		resamples:  fs.Int("resamples", 0, "bootstrap resamples (default 2000)"),
-		threshold:  fs.Float64("threshold", 0, "retention below which an axis counts as broken (default 0.5)"),
-		out:        fs.String("out", "", "study `DIR` (required): results, report, strips"),
-		resume:     fs.Bool("resume", false, "continue the study in --out: keep finished episodes, retry failed ones"),
-		shard:      fs.String("shard", "", "run only shard `i/n` of the study (0 ≤ i < n); default from SLURM_ARRAY_TASK_ID/SLURM_ARRAY_TASK_COUNT or JOB_COMPLETION_INDEX with --shards"),
-		shards:     fs.Int("shards", 0, "number of shards when the index comes from JOB_COMPLETION_INDEX (a Kubernetes indexed Job's completions)"),
-		asJSON:     fs.Bool("json", false, "print a machine-readable summary"),
+		fs:           fs,
+		config:       fs.String("config", "", "read the study from a TOML `FILE` (see examples/study.toml); flags given as well override it"),
+		name:         fs.String("name", "", "study `NAME` shown in the report (default \"study\")"),
+		game:         fs.String("game", "drive", "built-in `GAME`: drive or paddle"),
+		variation:    fs.String("variation", "", "game `VARIATION` the clean score is measured on (default: the game's default)"),
+		policy:       fs.String("policy", defPolicy, "the policy: expert (scripted, reads game state), fresh (untrained --family), a weights `FILE` ({patch} is replaced by each patch size), exec:COMMAND ARGS or tcp://HOST:PORT"),
+		family:       fs.String("family", "attention", "network `FAMILY` for --policy fresh and for training: attention, posattention, mlp, meanpool"),
+		timeout:      fs.String("policy-timeout", "", "per-step timeout of an external policy, e.g. 5s (default: the protocol's)"),
+		startTO:      fs.String("policy-start-timeout", "", "longest wait for an external policy to start and answer the handshake, e.g. 2m (default 30s)"),
+		patch:        fs.String("patch", defPatch, "patch `SIZES` in pixels, a list, e.g. 4,8,16 or 4:16:4"),
+		occlude:      fs.String("occlude", "", "occlusion `LIST`: none, random:R, block:R, bands:R, sweep:R, mask:FILE.png; e.g. random:0:0.9:0.1,block:0.3"),
+		fill:         fs.String("fill", "", "what occluded tokens become: black (default), mean, noise or drop"),
+		scramble:     fs.String("scramble", "", "scramble `LIST`: none, full, partial:F, local:K; e.g. none,full"),
+		every:        fs.String("every", "", "scramble schedule `LIST`: 0 = one permutation per episode, T = a new one every T steps; e.g. 0,10,100"),
+		noise:        fs.String("noise-tokens", "", "`LIST` of numbers of added noise tokens, e.g. 0,16,64"),
+		brightness:   fs.String("brightness", "", "`LIST` of brightness offsets, e.g. -0.2,0,0.2"),
+		contrast:     fs.String("contrast", "", "`LIST` of contrast factors, e.g. 0.5,1"),
+		pixelNoise:   fs.String("pixel-noise", "", "`LIST` of Gaussian pixel noise σ, e.g. 0:0.2:0.05"),
+		corrupt:      fs.String("corrupt", "", "`LIST` of frame corruptions (docs/studies.md), each none, KIND:VALUE, KIND:sN, KIND:sA:sB or KIND:START:STOP:STEP, several in one cell joined by +; e.g. blur:s1:s5,jpeg:40,shift:3:0"),
+		variations:   fs.String("variations", "", "`LIST` of game variations (held-out palettes), e.g. default,dusk"),
+		seeds:        fs.String("seeds", "", "game seed `RANGE`: held-out (default), train, or START:COUNT"),
+		episodes:     fs.Int("episodes", defEpisodes, "episodes per cell"),
+		seed:         fs.Uint64("seed", 0, "study seed; every episode's seeds derive from it (docs/studies.md)"),
+		workers:      fs.Int("workers", 0, "parallel workers (0: one per core); results do not depend on it"),
+		forceWorkers: fs.Bool("force-workers", false, "accept --workers above 4 per core"),
+		resamples:    fs.Int("resamples", 0, "bootstrap resamples (default 2000)"),
+		threshold:    fs.Float64("threshold", 0, "retention below which an axis counts as broken (default 0.5)"),
+		out:          fs.String("out", "", "study `DIR` (required): results, report, strips"),
+		resume:       fs.Bool("resume", false, "continue the study in --out: keep finished episodes, retry failed ones"),
+		shard:        fs.String("shard", "", "run only shard `i/n` of the study (0 ≤ i < n); default from SLURM_ARRAY_TASK_ID/SLURM_ARRAY_TASK_COUNT or JOB_COMPLETION_INDEX with --shards"),
+		shards:       fs.Int("shards", 0, "number of shards when the index comes from JOB_COMPLETION_INDEX (a Kubernetes indexed Job's completions)"),
+		asJSON:       fs.Bool("json", false, "print a machine-readable summary"),
 	}
 }
 
@@ -140,6 +142,12 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	}
 	if set["workers"] || *sf.config == "" {
 		d.Workers = *sf.workers
+	}
+	if set["force-workers"] {
+		d.ForceWorkers = *sf.forceWorkers
+	}
+	if err := refuseZero(sf.fs, "resamples", "threshold"); err != nil {
+		return nil, err
 	}
 	if set["resamples"] {
 		d.Stats.Resamples = *sf.resamples

@@ -78,7 +78,12 @@ func runTrain(ctx *runContext, args []string) error {
 	popSize := fs.Int("population", 0, "cmaes: population λ (default 4+⌊3 ln n⌋)")
 	fitEps := fs.Int("fitness-episodes", 0, "es/cmaes: episodes per fitness evaluation (default 2)")
 	valEps := fs.Int("val-episodes", 0, "validation episodes for early stopping, on training seeds set aside (default 8)")
+	forceWorkers := fs.Bool("force-workers", false, "accept --workers above 4 per core")
 	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if err := refuseZero(fs, "lr", "batch", "epochs", "episodes-per-round", "pairs", "sigma", "population", "fitness-episodes",
+		"val-episodes", "key-size", "queries", "hidden", "value-size"); err != nil {
 		return err
 	}
 	if fs.NArg() > 0 {
@@ -111,7 +116,7 @@ func runTrain(ctx *runContext, args []string) error {
 		}
 		cfg := train.Config{
 			Game: *game, Variation: *variation, Patch: *patchSize, Method: *method, Seed: *seed,
-			Iters: *iters, Budget: *budget, Workers: *workers, Patience: *patience, MinIters: *minIters, FitnessEpisodes: *fitEps, ValEpisodes: *valEps,
+			Iters: *iters, Budget: *budget, Workers: *workers, ForceWorkers: *forceWorkers, Patience: *patience, MinIters: *minIters, FitnessEpisodes: *fitEps, ValEpisodes: *valEps,
 			Net: nets.Config{Family: *family, KeySize: *keySize, Queries: *queries, Hidden: *hidden, PrevAction: *prevAction,
 				ValueSize: *valueSize, KeyHidden: *keyHidden, Context: *ctxFrames, Centre: *centre},
 			Augment: patch.Spec{Occlude: *occlude, Fill: *fill, Scramble: *scramble, NoiseTokens: *noiseTok, Corrupt: *corrupt},

@@ -113,6 +113,22 @@ func (c Config) Resolved() Config {
 	return c
 }
 
+// Validate checks c as given, before defaults: a negative width, count
+// or context is refused (no default stands for it; 0 is the default),
+// then the resolved config must be in range (see the Limits).
+func (c Config) Validate() error {
+	for _, f := range []struct {
+		name string
+		v    int
+	}{{"key size", c.KeySize}, {"key hidden", c.KeyHidden}, {"value size", c.ValueSize}, {"queries", c.Queries},
+		{"query dim", c.QueryDim}, {"hidden", c.Hidden}, {"token hidden", c.TokenHidden}, {"context", c.Context}, {"capacity", c.Capacity}} {
+		if f.v < 0 {
+			return fmt.Errorf("%s %d: want 0 (the default) or more", f.name, f.v)
+		}
+	}
+	return c.Resolved().check()
+}
+
 // check validates a resolved config.
 func (c Config) check() error {
 	switch c.Family {

@@ -1,7 +1,6 @@
 package nets
 
 import (
-	"errors"
 	"fmt"
 	"slices"
 	"time"
@@ -128,12 +127,20 @@ func Estimate(cfg Config, grid *patch.Grid, space games.ActionSpace) (Cost, erro
 	return cost, nil
 }
 
+// Bounds of MeasureLatency: a median of 1000 samples is as good as it
+// gets on a noisy machine, and 100000 steps of the largest family take
+// minutes.
+const (
+	MaxLatencySamples = 1000
+	MaxLatencySteps   = 100000
+)
+
 // MeasureLatency runs n.Act on obs samples·steps times (after one warm-up
 // sample) and returns the median over the samples of the mean time per
-// step.
+// step. samples is 1..MaxLatencySamples, steps 1..MaxLatencySteps.
 func MeasureLatency(n Net, obs *vision.Observation, samples, steps int) (time.Duration, error) {
-	if samples < 1 || steps < 1 {
-		return 0, errors.New("latency: want at least one sample of one step")
+	if samples < 1 || steps < 1 || samples > MaxLatencySamples || steps > MaxLatencySteps {
+		return 0, fmt.Errorf("latency: %d samples of %d steps: want 1..%d samples of 1..%d steps", samples, steps, MaxLatencySamples, MaxLatencySteps)
 	}
 	action := make([]float64, n.Space().Dim())
 	times := make([]time.Duration, 0, samples)

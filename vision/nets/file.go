@@ -183,6 +183,14 @@ func describe(f *weights.File) (Config, *patch.Grid, games.ActionSpace, error) {
 		if *e.dst, err = f.MetaInt(e.key); err != nil {
 			return cfg, nil, space, err
 		}
+		// The file states the geometry it was trained on: a 0 here
+		// would silently take patch.NewGrid's default instead.
+		if *e.dst < 1 {
+			return cfg, nil, space, fmt.Errorf("weights metadata %q = %d: want at least 1", e.key, *e.dst)
+		}
+	}
+	if gc.Channels != 1 && gc.Channels != 3 {
+		return cfg, nil, space, fmt.Errorf("weights metadata \"channels\" = %d: want 1 or 3", gc.Channels)
 	}
 	es, err := f.Meta("edge")
 	if err != nil {

@@ -119,10 +119,10 @@ func plan(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
 	if grid == nil {
 		return nil, errors.New("new policy: no patch grid")
 	}
-	cfg = cfg.Resolved()
-	if err := cfg.check(); err != nil {
-		return nil, fmt.Errorf("new %s policy: %w", cfg.Family, err)
+	if err := cfg.Validate(); err != nil {
+		return nil, fmt.Errorf("new %s policy: %w", cfg.Resolved().Family, err)
 	}
+	cfg = cfg.Resolved()
 	if err := checkSpace(space); err != nil {
 		return nil, fmt.Errorf("new %s policy: %w", cfg.Family, err)
 	}

@@ -37,7 +37,10 @@ type Definition struct {
 	Seeds string `toml:"seeds" json:"seeds"`
 	// Workers is the number of parallel workers; 0 means one per core.
 	// It never changes results and is not part of the study's identity.
+	// At most vision.MaxWorkers() unless ForceWorkers is set.
 	Workers int `toml:"workers" json:"-"`
+	// ForceWorkers accepts a Workers count above vision.MaxWorkers().
+	ForceWorkers bool `toml:"force_workers" json:"-"`
 	// Policy says what plays.
 	Policy PolicyDef `toml:"policy" json:"policy"`
 	// Patch lists the patch sizes (square, in pixels). Default 8.
@@ -226,6 +229,9 @@ func Parse(data []byte) (*Definition, error) {
 	if und := md.Undecoded(); len(und) > 0 {
 		k := und[0]
 		return nil, fmt.Errorf("line %d: unknown key %q", keyLine(data, k), k.String())
+	}
+	if err := explicitValues(data, md, &d); err != nil {
+		return nil, err
 	}
 	if err := d.Normalize(); err != nil {
 		var fe *FieldError

@@ -13,6 +13,7 @@ import (
 
 	"tilebench/games"
 	"tilebench/patch"
+	"tilebench/vision"
 )
 
 // Defaults used by Normalize.
@@ -61,8 +62,8 @@ func (d *Definition) Normalize() error {
 	if _, _, err := seedRange(d.Seeds, d.Episodes); err != nil {
 		return fieldErr("seeds", err)
 	}
-	if d.Workers < 0 {
-		return fieldErr("workers", fmt.Errorf("%d: want 0 (one per core) or more", d.Workers))
+	if err := vision.CheckWorkers(d.Workers, d.ForceWorkers); err != nil {
+		return fieldErr("workers", err)
 	}
 	if d.Policy.Source == "" {
 		d.Policy.Source = "expert"
@@ -84,7 +85,13 @@ func (d *Definition) Normalize() error {
 		return fieldErr("policy.family", fmt.Errorf("%q is not a family name", d.Policy.Family))
 	}
 	if len(d.Patch) == 0 {
-		d.Patch = Axis{strconv.Itoa(DefaultPatch)}
+		// A single weights file plays at its own patch size
+		// (docs/studies.md); anything else at DefaultPatch.
+		if ps, ok := PatchOfPolicy(d.Policy.Source); ok {
+			d.Patch = Axis{strconv.Itoa(ps)}
+		} else {
+			d.Patch = Axis{strconv.Itoa(DefaultPatch)}
+		}
 	}
 	if d.Axes.Fill == "" {
 		d.Axes.Fill = "black"

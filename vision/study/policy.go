@@ -14,6 +14,7 @@ import (
 	"tilebench/vision"
 	"tilebench/vision/nets"
 	"tilebench/vision/remote"
+	"tilebench/vision/weights"
 )
 
 // external opens an external policy over the protocol of vision/remote
@@ -106,6 +107,9 @@ func CheckGeometry(path string, n nets.Net, sp games.Spec, grid *patch.Grid) err
 	if a.Kind != b.Kind || a.Dim() != b.Dim() || a.Choices() != b.Choices() {
 		return fmt.Errorf("%s: weights are for a %s action space of %d values, game %s takes %s actions of %d", path, a.Kind, a.Dim(), sp.Name, b.Kind, b.Dim())
 	}
+	if g, ok := weightsGame(path); ok && g != sp.Name {
+		return fmt.Errorf("%s: weights were trained on game %s, this run plays %s", path, g, sp.Name)
+	}
 	return nil
 }
 
@@ -133,4 +137,15 @@ func PatchOfPolicy(source string) (int, bool) {
 		return 0, false
 	}
 	return g.PatchW, true
+}
+
+// weightsGame returns the game a weights file says it was trained on
+// (metadata key weights.KeyGame), when the file can be read and says so.
+func weightsGame(path string) (string, bool) {
+	f, err := weights.ReadFile(path)
+	if err != nil {
+		return "", false
+	}
+	g, ok := f.Metadata[weights.KeyGame]
+	return g, ok && g != ""
 }

@@ -105,8 +105,11 @@ type Config struct {
 	// before the student starts to learn. 0 means 12 for clone and none
 	// for cmaes and es; negative means none.
 	MinIters int
-	// Workers is the number of goroutines. 0 means runtime.GOMAXPROCS(0).
+	// Workers is the number of goroutines. 0 means runtime.GOMAXPROCS(0);
+	// at most vision.MaxWorkers() unless ForceWorkers is set.
 	Workers int
+	// ForceWorkers accepts a Workers count above vision.MaxWorkers().
+	ForceWorkers bool `json:"-"`
 	// ValEvery validates every ValEvery iterations. 0 means 1 for clone,
 	// 5 for cmaes and es.
 	ValEvery int
@@ -260,6 +263,9 @@ type Trainer struct {
 
 // New checks cfg and builds a trainer.
 func New(cfg Config) (*Trainer, error) {
+	if err := cfg.Validate(); err != nil {
+		return nil, err
+	}
 	cfg = cfg.withDefaults()
 	switch cfg.Method {
 	case Clone, CMAES, ESm:

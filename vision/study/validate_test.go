@@ -1,0 +1,94 @@
+package study
+
+import (
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"tilebench/games"
+	"tilebench/vision"
+	"tilebench/vision/nets"
+	"tilebench/vision/weights"
+)
+
+// A study file that states 0 for a key whose 0 means "the default", or a
+// negative seed, is refused by line and key; it used to take the default
+// silently (0) or wrap the seed to 2^64−1.
+func TestParseExplicitValues(t *testing.T) {
+	for _, c := range []struct{ toml, want string }{
+		{"episodes = 0\n", `line 1: key "episodes": 0: want 1..1000000`},
+		{"name = \"x\"\n[stats]\nresamples = 0\n", `line 3: key "stats.resamples": 0: want 100..1000000`},
+		{"[stats]\nconfidence = 0.0\n", `key "stats.confidence": 0`},
+		{"[stats]\nthreshold = 0.0\n", `key "stats.threshold": 0`},
+		{"seed = -1\n", `line 1: key "seed": -1: want 0 or more`},
+		{"workers = 100000000\n", `key "workers": 100000000 workers: at most`},
+		{"workers = -3\n", `key "workers": -3 workers`},
+	} {
+		_, err := Parse([]byte(c.toml))
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%q: %v, want %q", c.toml, err, c.want)
+		}
+	}
+	// Left out, each takes its default; forced, many workers are taken.
+	d, err := Parse([]byte("seed = 7\n"))
+	if err != nil || d.Episodes != DefaultEpisodes || d.Stats.Resamples != DefaultResamples || d.Seed != 7 {
+		t.Fatalf("defaults: %+v, %v", d, err)
+	}
+	if d, err := Parse([]byte("workers = 100000000\nforce_workers = true\n")); err != nil || d.Workers != 100000000 {
+		t.Fatalf("forced workers: %v", err)
+	}
+	if vision.MaxWorkers() < vision.WorkersPerCore {
+		t.Fatalf("MaxWorkers %d", vision.MaxWorkers())
+	}
+}
+
+// A study with one weights file and no patch key plays at the file's
+// patch size, as docs/studies.md says, whether it comes from a file or
+// from the flags; it used to take patch 8 from a file.
+func TestPatchFromWeightsFile(t *testing.T) {
+	src := filepath.Join("..", "..", "testdata", "policies", "paddle-attention-p12.safetensors")
+	d, err := Parse([]byte("game = \"paddle\"\n[policy]\nsource = '" + src + "'\n"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(d.Patch) != 1 || d.Patch[0] != "12" {
+		t.Fatalf("patch %v, want the file's 12", d.Patch)
+	}
+	d, err = Parse([]byte("game = \"paddle\"\npatch = 4\n[policy]\nsource = '" + src + "'\n"))
+	if err != nil || d.Patch[0] != "4" {
+		t.Fatalf("a patch key still wins: %v %v", d.Patch, err)
+	}
+}
+
+// A weights file that says it was trained on another game is refused
+// when played, even when its geometry happens to fit; it used to load
+// and play.
+func TestWeightsGameMismatch(t *testing.T) {
+	src := filepath.Join("..", "..", "testdata", "policies", "paddle-attention-p12.safetensors")
+	f, err := weights.ReadFile(src)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f.Metadata[weights.KeyGame] != "paddle" {
+		t.Fatalf("fixture says game %q", f.Metadata[weights.KeyGame])
+	}
+	n, err := nets.FromFile(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	g, err := games.New("paddle", games.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := CheckGeometry(src, n, g.Spec(), n.Grid()); err != nil {
+		t.Fatalf("own game: %v", err)
+	}
+	f.SetMeta(weights.KeyGame, "drive")
+	other := filepath.Join(t.TempDir(), "w.safetensors")
+	if err := weights.WriteFile(other, f); err != nil {
+		t.Fatal(err)
+	}
+	if err := CheckGeometry(other, n, g.Spec(), n.Grid()); err == nil || !strings.Contains(err.Error(), "trained on game drive, this run plays paddle") {
+		t.Fatalf("game mismatch: %v", err)
+	}
+}
