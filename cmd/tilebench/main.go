@@ -12,6 +12,8 @@ import (
 	"sort"
 	"strconv"
 	"strings"
+
+	"tilebench/internal/atomicfile"
 )
 
 // command is one subcommand. Each lives in a file of its own and registers
@@ -101,6 +103,36 @@ func refuseZero(fs *flag.FlagSet, names ...string) error {
 	return err
 }
 
+// checkOutputs checks, before any work, that file (if given) can be
+// written and that dir (if given) is or can become a writable folder.
+func checkOutputs(file, dir string) error {
+	if file != "" {
+		if err := atomicfile.CheckFile(file); err != nil {
+			return err
+		}
+	}
+	if dir != "" {
+		return atomicfile.CheckDir(dir)
+	}
+	return nil
+}
+
+// exitError ends a command with its own exit status (after the work
+// was done and its outcome printed).
+type exitError struct {
+	code int
+	err  error
+}
+
+func (e exitError) Error() string { return e.err.Error() }
+func (e exitError) Unwrap() error { return e.err }
+
+// ExitFailedEpisodes is the exit status of a study (stress, sizes) that
+// finished with failed episodes, and of merge with --allow-partial when
+// episodes are missing or failed: the outputs are written, but the
+// numbers rest on fewer episodes than asked for.
+const ExitFailedEpisodes = 3
+
 // errHelp ends a command successfully after its help was printed.
 var errHelp = errors.New("help printed")
 
@@ -138,6 +170,10 @@ func finish(ctx *runContext, err error) int {
 	var u usageError
 	if errors.As(err, &u) {
 		return 2
+	}
+	var x exitError
+	if errors.As(err, &x) {
+		return x.code
 	}
 	return 1
 }

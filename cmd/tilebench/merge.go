@@ -26,6 +26,7 @@ options:`
 func runMerge(ctx *runContext, args []string) error {
 	fs := newFlags(ctx, "merge", mergeUsage)
 	asJSON := fs.Bool("json", false, "print a machine-readable summary")
+	partial := fs.Bool("allow-partial", false, "merge even when episodes are missing (a shard not given or not finished); exit status 3 then")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -33,9 +34,13 @@ func runMerge(ctx *runContext, args []string) error {
 		return usagef("merge: want OUT and at least one study folder")
 	}
 	out := fs.Arg(0)
-	mo, err := study.Merge(out, fs.Args()[1:], true)
+	mo, err := study.MergeWith(out, fs.Args()[1:], study.MergeOptions{WriteReport: true, AllowPartial: *partial})
 	if err != nil {
 		return err
+	}
+	var status error
+	if mo.Missing > 0 || mo.Failed > 0 {
+		status = exitError{ExitFailedEpisodes, fmt.Errorf("merged with %d episodes missing and %d failed", mo.Missing, mo.Failed)}
 	}
 	rep := filepath.Join(out, "report.html")
 	if *asJSON {
@@ -45,12 +50,12 @@ func runMerge(ctx *runContext, args []string) error {
 			return err
 		}
 		fmt.Fprintln(ctx.stdout, string(b))
-		return nil
+		return status
 	}
 	fmt.Fprintf(ctx.stdout, "merged %d episodes into %s (%d missing, %d failed)\n", mo.Episodes, out, mo.Missing, mo.Failed)
 	if mo.Missing > 0 {
 		fmt.Fprintf(ctx.stdout, "some shards are incomplete: finish them with --resume and merge again\n")
 	}
 	fmt.Fprintf(ctx.stdout, "report: %s\n", rep)
-	return nil
+	return status
 }

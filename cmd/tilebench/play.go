@@ -158,6 +158,9 @@ func runPlay(ctx *runContext, args []string) error {
 	if err := checkCorrupt("play", *corrupt); err != nil {
 		return err
 	}
+	if err := checkOutputs(*gifPath, *framesDir); err != nil {
+		return usagef("play: %v", err)
+	}
 	opt := games.Options{Variation: *variation}
 	if *size != "" {
 		w, h, err := patch.ParseSize(*size)

@@ -158,7 +158,7 @@ func runSizesStudy(ctx *runContext, p *study.Plan, sf *studyFlags, shard study.S
 	if !*sf.asJSON {
 		printRecommendation(ctx, dir)
 	}
-	return nil
+	return failedEpisodes(out, dir)
 }
 
 // runPlan runs a study without its report, with a progress bar.

@@ -34,6 +34,9 @@ START:STOP:STEP (inclusive), KIND, KIND:VALUE or KIND:START:STOP:STEP
     --episodes 30 --out stress-drive
 
 A study interrupted by Ctrl-C, SIGTERM or a kill continues with --resume.
+Exit status: 0 all episodes recorded, 1 runtime failure, 2 usage error,
+3 finished with failed episodes (the report is written; retry them with
+--resume).
 On a cluster, --shard i/n runs one part (or set by a Slurm job array or a
 Kubernetes indexed Job, see examples/); "tilebench merge" joins the parts.
 
@@ -230,7 +233,20 @@ func runStudyCLI(ctx *runContext, p *study.Plan, sf *studyFlags, args []string, 
 	if err := study.WriteReport(dir); err != nil {
 		return err
 	}
-	return printOutcome(ctx, p, dir, shard, out, *sf.asJSON)
+	if err := printOutcome(ctx, p, dir, shard, out, *sf.asJSON); err != nil {
+		return err
+	}
+	return failedEpisodes(out, dir)
+}
+
+// failedEpisodes is the exitError of a study run that left failed
+// episodes (exit status ExitFailedEpisodes), or nil.
+func failedEpisodes(out *study.Outcome, dir string) error {
+	if out.Failed == 0 {
+		return nil
+	}
+	return exitError{ExitFailedEpisodes, fmt.Errorf("%d of %d episodes failed (see %s, field \"failure\"); retry them with --resume",
+		out.Failed, out.Total, filepath.Join(dir, study.ResultsFile))}
 }
 
 func shardUnits(p *study.Plan, s study.Shard) int {

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	_ "tilebench/games/all" // register the built-in games
+	"tilebench/internal/atomicfile"
 	"tilebench/patch"
 	"tilebench/vision/nets"
 	"tilebench/vision/train"
@@ -97,6 +98,11 @@ func runTrain(ctx *runContext, args []string) error {
 	}
 	if *ckpt == "" {
 		*ckpt = *out + ".ckpt"
+	}
+	for _, f := range []string{*out, *ckpt} {
+		if err := atomicfile.CheckFile(f); err != nil {
+			return usagef("train: %v", err)
+		}
 	}
 	var tr *train.Trainer
 	var err error

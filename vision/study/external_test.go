@@ -17,6 +17,9 @@ import (
 // helper-process pattern of os/exec's tests). In "crash" mode it exits
 // with status 3 at step 17 of every episode whose seed is divisible by 3.
 func TestMain(m *testing.M) {
+	if dir := os.Getenv(killRunEnv); dir != "" {
+		os.Exit(killRunHelper(dir))
+	}
 	if mode := os.Getenv("STUDY_FAKE_POLICY"); mode != "" {
 		err := remote.Serve(os.Stdin, os.Stdout, &fakeRemote{crash: mode == "crash"}, remote.ServeOptions{Name: "fake"})
 		if err != nil {

@@ -19,12 +19,31 @@ type MergeOutcome struct {
 	Episodes, Missing, Failed int
 }
 
-// Merge combines the folders of one study's shards (or of partial runs)
-// into out: study.json without the shard, results.jsonl in canonical
-// order — byte-identical to an unsharded run's —, timing.jsonl, the strips
-// and the report. Folders of different studies are an error, as is an
-// out that already holds anything; nothing is written then.
+// MergeOptions are the settings of MergeWith.
+type MergeOptions struct {
+	// WriteReport also writes the merged study's report.
+	WriteReport bool
+	// AllowPartial merges even when the folders together miss episodes
+	// of the study (a shard not given, or not finished); by default that
+	// is an error and nothing is written.
+	AllowPartial bool
+}
+
+// Merge is MergeWith with AllowPartial set: folders that miss episodes
+// are merged, and MergeOutcome.Missing counts what is missing.
 func Merge(out string, dirs []string, writeReport bool) (*MergeOutcome, error) {
+	return MergeWith(out, dirs, MergeOptions{WriteReport: writeReport, AllowPartial: true})
+}
+
+// MergeWith combines the folders of one study's shards (or of partial
+// runs) into out: study.json without the shard, results.jsonl in
+// canonical order — byte-identical to an unsharded run's —, timing.jsonl,
+// the strips and the report. Folders of different studies are an error,
+// as is an out that already holds anything, and (unless
+// opt.AllowPartial) folders that together miss episodes of the study;
+// nothing is written then.
+func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, error) {
+	writeReport := opt.WriteReport
 	if len(dirs) == 0 {
 		return nil, errors.New("merge: no study folders given")
 	}
@@ -92,6 +111,10 @@ func Merge(out string, dirs []string, writeReport bool) (*MergeOutcome, error) {
 	SortRecords(merged)
 	mo.Episodes = len(merged)
 	mo.Missing = p.Units() - len(merged)
+	if mo.Missing > 0 && !opt.AllowPartial {
+		return nil, fmt.Errorf("merge: the %d folders hold %d of the study's %d episodes (%d missing: a shard not given or not finished); finish it with --resume, or merge anyway with --allow-partial",
+			len(dirs), mo.Episodes, p.Units(), mo.Missing)
+	}
 
 	if err := os.MkdirAll(out, 0o755); err != nil {
 		return nil, fmt.Errorf("merge: %w", err)

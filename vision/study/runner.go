@@ -231,6 +231,11 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	if _, err := rf.Seek(validEnd, io.SeekStart); err != nil {
 		return nil, fmt.Errorf("results: %w", err)
 	}
+	// Timing lines are written before their records: drop those whose
+	// record a kill kept from being written (the episode is played again).
+	if err := reconcileTimings(opt.Dir, old); err != nil {
+		return nil, err
+	}
 	tf, err := os.OpenFile(filepath.Join(opt.Dir, TimingFile), os.O_WRONLY|os.O_CREATE|os.O_APPEND, 0o644)
 	if err != nil {
 		return nil, fmt.Errorf("open timing: %w", err)
@@ -272,6 +277,22 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		if writeErr != nil {
 			continue
 		}
+		// The timing line first, then the record, each synced: a kill
+		// between them leaves a timing line without its record, which
+		// the next run drops (reconcileTimings) before playing the
+		// episode again, so that both are recorded or both redone.
+		tb, err := jsonLine(f.timing)
+		if err == nil {
+			_, err = tf.Write(tb)
+		}
+		if err == nil {
+			err = tf.Sync()
+		}
+		if err != nil {
+			writeErr = fmt.Errorf("write timing: %w", err)
+			cancelRun()
+			continue
+		}
 		b, err := EncodeRecord(&f.rec)
 		if err == nil {
 			_, err = rf.Write(b)
@@ -283,9 +304,6 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 			writeErr = fmt.Errorf("write results: %w", err)
 			cancelRun()
 			continue
-		}
-		if tb, err := jsonLine(f.timing); err == nil {
-			tf.Write(tb)
 		}
 		out.Ran++
 		out.Steps += f.rec.Steps
@@ -344,6 +362,9 @@ func prepareDir(p *Plan, opt Options) error {
 	}
 	si, err := ReadStudy(opt.Dir)
 	if err != nil {
+		if _, serr := os.Stat(filepath.Join(opt.Dir, StudyFile)); serr == nil {
+			return fmt.Errorf("%s: %s is corrupt (%v); nothing changed", opt.Dir, StudyFile, err)
+		}
 		return fmt.Errorf("%s is not empty and holds no study; choose another --out", opt.Dir)
 	}
 	if !opt.Resume {
