@@ -5,6 +5,7 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+	"time"
 )
 
 // A study whose every episode failed writes its report but exits with
@@ -76,5 +77,41 @@ func TestOutputPathsCheckedFirst(t *testing.T) {
 	}
 	if _, err := os.Stat(dir + ".ckpt"); err == nil {
 		t.Fatal("a checkpoint was left beside the folder")
+	}
+}
+
+// --policy-start-timeout bounds the handshake, and its message names the
+// flag; the handshake used to wait 30 s whatever the flags said.
+func TestPolicyStartTimeoutFlag(t *testing.T) {
+	dir := t.TempDir()
+	pol := filepath.Join(dir, "silent.sh")
+	os.WriteFile(pol, []byte("sleep 30\n"), 0o755)
+	start := time.Now()
+	code, _, stderr := runCLI(t, "", "play", "--game", "paddle", "--policy", "exec:sh "+pol, "--policy-start-timeout", "300ms")
+	if el := time.Since(start); code != 1 || el > 5*time.Second {
+		t.Fatalf("exit %d after %v: %q", code, el, stderr)
+	}
+	oneLine(t, stderr, "no reply within 300ms (the start timeout: raise it with --policy-start-timeout)")
+	code, _, stderr = runCLI(t, "", "play", "--game", "paddle", "--policy", "exec:sh "+pol, "--policy-start-timeout", "0s")
+	if code != 2 {
+		t.Fatalf("--policy-start-timeout 0s: exit %d %q", code, stderr)
+	}
+}
+
+// A study file without a patch key and with one weights file plays at the
+// file's patch size through --config, as docs/studies.md says.
+func TestConfigTakesWeightsPatch(t *testing.T) {
+	dir := t.TempDir()
+	src, _ := filepath.Abs(filepath.Join("..", "..", "testdata", "policies", "paddle-attention-p12.safetensors"))
+	cfg := filepath.Join(dir, "s.toml")
+	os.WriteFile(cfg, []byte("game = \"paddle\"\nepisodes = 1\n[policy]\nsource = '"+src+"'\n[stats]\nresamples = 200\n"), 0o644)
+	out := filepath.Join(dir, "s")
+	code, stdout, stderr := runCLI(t, "", "stress", "--config", cfg, "--out", out)
+	if code != 0 {
+		t.Fatalf("exit %d: %q %q", code, stdout, stderr)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "study.json"))
+	if err != nil || !strings.Contains(string(b), `"patch": [`) && !strings.Contains(string(b), `"patch":[`) || !strings.Contains(string(b), `"12"`) {
+		t.Fatalf("study.json does not record patch 12: %v %.300s", err, b)
 	}
 }
