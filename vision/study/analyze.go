@@ -7,6 +7,7 @@ import (
 	"image"
 	"image/draw"
 	"image/png"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -774,6 +775,9 @@ type StripMeta struct {
 	Width, Height, Gap int
 }
 
+// maxStripPixels bounds the strip images read back for the report.
+const maxStripPixels = 1 << 25
+
 func loadStrip(dir string, cell int) (image.Image, *StripMeta) {
 	base := filepath.Join(dir, StripsDir, fmt.Sprintf("cell-%04d", cell))
 	data, err := os.ReadFile(base + ".json")
@@ -789,6 +793,14 @@ func loadStrip(dir string, cell int) (image.Image, *StripMeta) {
 		return nil, nil
 	}
 	defer f.Close()
+	// The header first: a strip is a few frames wide, so anything near
+	// the pixel budget of a frame folder is not one of ours.
+	if cfg, err := png.DecodeConfig(f); err != nil || int64(cfg.Width)*int64(cfg.Height) > maxStripPixels {
+		return nil, nil
+	}
+	if _, err := f.Seek(0, io.SeekStart); err != nil {
+		return nil, nil
+	}
 	img, err := png.Decode(f)
 	if err != nil {
 		return nil, nil

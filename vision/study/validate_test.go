@@ -1,7 +1,14 @@
 package study
 
 import (
+	"bytes"
+	"encoding/binary"
+	"hash/crc32"
+	"image"
+	"image/png"
+	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -90,5 +97,35 @@ func TestWeightsGameMismatch(t *testing.T) {
 	}
 	if err := CheckGeometry(other, n, g.Spec(), n.Grid()); err == nil || !strings.Contains(err.Error(), "trained on game drive, this run plays paddle") {
 		t.Fatalf("game mismatch: %v", err)
+	}
+}
+
+// A strip image whose header claims a huge size is skipped from its
+// header, with next to nothing allocated, and the report still builds.
+func TestCraftedStripSkipped(t *testing.T) {
+	p := testPlan(t)
+	dir := t.TempDir()
+	runStudy(t, p, dir, Options{Workers: 2})
+	// A real PNG with its IHDR size patched to 30000×30000 (CRC redone).
+	var b bytes.Buffer
+	png.Encode(&b, image.NewGray(image.Rect(0, 0, 1, 1)))
+	data := b.Bytes()
+	binary.BigEndian.PutUint32(data[16:], 30000)
+	binary.BigEndian.PutUint32(data[20:], 30000)
+	binary.BigEndian.PutUint32(data[29:], crc32.ChecksumIEEE(data[12:29]))
+	os.WriteFile(filepath.Join(dir, StripsDir, "cell-0000.png"), data, 0o644)
+	var m0, m1 runtime.MemStats
+	runtime.GC()
+	runtime.ReadMemStats(&m0)
+	img, _ := loadStrip(dir, 0)
+	runtime.ReadMemStats(&m1)
+	if img != nil {
+		t.Fatal("crafted strip loaded")
+	}
+	if n := m1.TotalAlloc - m0.TotalAlloc; n > 4<<20 {
+		t.Fatalf("%d bytes allocated for a crafted strip", n)
+	}
+	if err := WriteReport(dir); err != nil {
+		t.Fatalf("report with a crafted strip: %v", err)
 	}
 }
