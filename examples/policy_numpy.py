@@ -8,7 +8,16 @@ PyTorch or JAX forward pass); the rest is the protocol
 (docs/policy-protocol.md).
 
 As shipped it plays the paddle game with the same hand rule as
-policy_stdlib.py: move the paddle towards the ball.
+policy_stdlib.py: move the paddle towards the ball. On recorded frames
+("tilebench probe", game "recording") it answers with a plain rule of
+the picture's brightness: how much brighter the left half is than the
+right, and the top than the bottom (a choice: the brightest vertical
+stripe). Both rules keep no state, so it offers batches ("batch": 64 in
+ready, docs/policy-protocol.md): a batch message carries up to 64 frames
+and is answered in one reply, computed on all frames at once.
+
+    tilebench probe --in frames.npy --action-space continuous:2 \
+        --policy 'exec:python3 examples/policy_numpy.py' --scramble none,full --out probe
 
     tilebench play --game paddle --policy 'exec:python3 examples/policy_numpy.py'
 
@@ -29,6 +38,7 @@ import numpy as np
 PROTOCOL = 1
 MAX_LINE = 65536
 PADDLE_ROW = 76  # the paddle's row in the 84x84 paddle field
+BATCH = 64  # observations per batch message offered in ready (--batch N; 0: none)
 
 
 def log(*args):
@@ -66,6 +76,20 @@ class Observation:
         self.stride = tuple(tk["stride"])
         self.dim = tk["dim"]
 
+    def size(self, n):
+        """Payload bytes of one observation (n tokens for obs tokens)."""
+        item = np.dtype(self.dtype).itemsize
+        if self.kind == "frame":
+            return int(np.prod(self.frame_shape)) * item
+        return n * self.dim * item + 4 * n
+
+    def raw(self, payloads, k):
+        """The k frames as one (k, h, w, c) uint8 array, when they came as
+        uint8 frames; else None."""
+        if self.kind != "frame" or self.dtype != np.uint8:
+            return None
+        return np.frombuffer(b"".join(payloads), dtype=np.uint8).reshape((k,) + self.frame_shape)
+
     def decode(self, header, payload):
         """Returns (frame, tokens, cells); frame is rebuilt from tokens."""
         scale = 255.0 if self.dtype == np.uint8 else 1.0
@@ -89,9 +113,43 @@ class Observation:
         return frame, tokens, cells
 
 
+def brightness_rule(frames, action):
+    """The rule for recorded frames, on a (k, h, w, c) uint8 array: one
+    action per frame. Sums are exact integers, so a frame gets the same
+    action alone or in a batch."""
+    k, h, w, _ = frames.shape
+    x = frames.astype(np.int64)
+    if action["kind"] == "discrete":
+        n = len(action["names"])
+        cut = w // n
+        stripes = [x[:, :, i * cut:(i + 1) * cut].sum(axis=(1, 2, 3)) for i in range(n)]
+        return [[int(c)] for c in np.argmax(np.stack(stripes, axis=1), axis=1)]
+    hw, hh = w // 2, h // 2
+    full = 255.0 * hw * h * frames.shape[3]
+    lr = (x[:, :, :hw].sum(axis=(1, 2, 3)) - x[:, :, hw:2 * hw].sum(axis=(1, 2, 3))) / full
+    full = 255.0 * hh * w * frames.shape[3]
+    tb = (x[:, :hh].sum(axis=(1, 2, 3)) - x[:, hh:2 * hh].sum(axis=(1, 2, 3))) / full
+    lo, hi = action["low"], action["high"]
+    out = []
+    for i in range(k):
+        a = [4.0 * float(lr[i]), 4.0 * float(tb[i])] + [0.0] * (action["dim"] - 2)
+        out.append([min(max(v, lo[j]), hi[j]) for j, v in enumerate(a[:action["dim"]])])
+    return out
+
+
 class Policy:
     def __init__(self, hello):
         self.action = hello["action"]
+        self.recording = hello["game"] == "recording"
+
+    def act_batch(self, frames, raw, prevs):
+        """frames: decoded observations; raw: (k, h, w, c) uint8 frames
+        when the payload is uint8 frames, else None."""
+        if self.recording:
+            if raw is None:
+                raw = np.stack([np.rint(f * 255).astype(np.uint8) for f, _, _ in frames])
+            return brightness_rule(raw, self.action)
+        return [self.act(f, t, c, p) for (f, t, c), p in zip(frames, prevs)]
 
     def reset(self, seed):
         self.rng = np.random.default_rng(seed)
@@ -122,13 +180,18 @@ def session(inp, out):
     if hello.get("protocol") != PROTOCOL:
         send(out, {"msg": "refuse", "reason": "speaks protocol %d only" % PROTOCOL})
         return 0
-    if hello["game"] != "paddle" or hello["frame"][2] != 3 or hello["frame"][0] <= PADDLE_ROW:
+    recording = hello["game"] == "recording"
+    if not recording and (hello["game"] != "paddle" or hello["frame"][2] != 3 or hello["frame"][0] <= PADDLE_ROW):
         send(out, {"msg": "refuse", "reason": "the hand rule needs the paddle game in RGB"})
         return 0
     obs = Observation(hello)
     policy = Policy(hello)
     policy.reset(0)
-    send(out, {"msg": "ready", "protocol": PROTOCOL, "name": "numpy hand rule"})
+    ready = {"msg": "ready", "protocol": PROTOCOL, "name": "numpy brightness rule" if recording else "numpy hand rule"}
+    if BATCH > 1:
+        ready["batch"] = BATCH  # both rules keep no state between frames
+    send(out, ready)
+    dim = hello["action"]["dim"]
     while True:
         header, payload = read_message(inp)
         if header is None or header["msg"] == "bye":
@@ -137,9 +200,22 @@ def session(inp, out):
         if kind == "start":
             policy.reset(header["seed"])
         elif kind == "step":
-            frame, tokens, cells = obs.decode(header, payload)
-            action = policy.act(frame, tokens, cells, header.get("prev"))
+            decoded = obs.decode(header, payload)
+            action = policy.act_batch([decoded], obs.raw([payload], 1), [header.get("prev")])[0]
             send(out, {"msg": "action", "t": header["t"], "action": action})
+        elif kind == "batch":
+            k = header["count"]
+            parts, off = [], 0
+            for i in range(k):
+                size = obs.size(header["n"][i] if "n" in header else 0)
+                parts.append(payload[off:off + size])
+                off += size
+            frames = [obs.decode({"n": header["n"][i]} if "n" in header else {}, parts[i]) for i in range(k)]
+            prev = header.get("prev", [0] * (k * dim))
+            prevs = [prev[i * dim:(i + 1) * dim] for i in range(k)]
+            actions = policy.act_batch(frames, obs.raw(parts, k), prevs)
+            flat = [v for a in actions for v in a]
+            send(out, {"msg": "actions", "t": header["t"][0], "count": k, "action": flat})
         elif kind == "end":
             log("episode", header.get("episode"), "return", header.get("return"))
 
@@ -164,11 +240,15 @@ def serve(address, sessions):
 
 
 def main(argv):
+    global BATCH
+    if argv[:1] == ["--batch"] and len(argv) >= 2:
+        BATCH = int(argv[1])
+        argv = argv[2:]
     if argv[:1] == ["--listen"] and len(argv) in (2, 4):
         sessions = int(argv[3]) if len(argv) == 4 and argv[2] == "--sessions" else 0
         return serve(argv[1], sessions)
     if argv:
-        log("usage: policy_numpy.py [--listen HOST:PORT [--sessions N]]")
+        log("usage: policy_numpy.py [--batch N] [--listen HOST:PORT [--sessions N]]")
         return 2
     return session(sys.stdin.buffer, sys.stdout.buffer)
 
