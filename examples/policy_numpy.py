@@ -83,13 +83,6 @@ class Observation:
             return int(np.prod(self.frame_shape)) * item
         return n * self.dim * item + 4 * n
 
-    def raw(self, payloads, k):
-        """The k frames as one (k, h, w, c) uint8 array, when they came as
-        uint8 frames; else None."""
-        if self.kind != "frame" or self.dtype != np.uint8:
-            return None
-        return np.frombuffer(b"".join(payloads), dtype=np.uint8).reshape((k,) + self.frame_shape)
-
     def decode(self, header, payload):
         """Returns (frame, tokens, cells); frame is rebuilt from tokens."""
         scale = 255.0 if self.dtype == np.uint8 else 1.0
@@ -115,25 +108,25 @@ class Observation:
 
 def brightness_rule(frames, action):
     """The rule for recorded frames, on a (k, h, w, c) uint8 array: one
-    action per frame. Sums are exact integers, so a frame gets the same
-    action alone or in a batch."""
-    k, h, w, _ = frames.shape
-    x = frames.astype(np.int64)
+    action per frame, from every 8th pixel in each direction. Sums are
+    exact integers, so a frame gets the same action alone or in a batch."""
+    k, h, w, c = frames.shape
+    x = frames[:, ::8, ::8].astype(np.int32)  # a small copy: fast sums
+    rows = x.sum(axis=(2, 3))  # (k, h/8)
+    cols = x.sum(axis=(1, 3))  # (k, w/8)
     if action["kind"] == "discrete":
         n = len(action["names"])
-        cut = w // n
-        stripes = [x[:, :, i * cut:(i + 1) * cut].sum(axis=(1, 2, 3)) for i in range(n)]
-        return [[int(c)] for c in np.argmax(np.stack(stripes, axis=1), axis=1)]
-    hw, hh = w // 2, h // 2
-    full = 255.0 * hw * h * frames.shape[3]
-    lr = (x[:, :, :hw].sum(axis=(1, 2, 3)) - x[:, :, hw:2 * hw].sum(axis=(1, 2, 3))) / full
-    full = 255.0 * hh * w * frames.shape[3]
-    tb = (x[:, :hh].sum(axis=(1, 2, 3)) - x[:, hh:2 * hh].sum(axis=(1, 2, 3))) / full
-    lo, hi = action["low"], action["high"]
+        cut = max(1, cols.shape[1] // n)
+        stripes = np.stack([cols[:, i * cut:(i + 1) * cut].sum(axis=1) for i in range(n)], axis=1)
+        return [[int(v)] for v in np.argmax(stripes, axis=1)]
+    hw, hh = cols.shape[1] // 2, rows.shape[1] // 2
+    lr = (cols[:, :hw].sum(axis=1) - cols[:, hw:2 * hw].sum(axis=1)) / (255.0 * max(1, hw * rows.shape[1] * c))
+    tb = (rows[:, :hh].sum(axis=1) - rows[:, hh:2 * hh].sum(axis=1)) / (255.0 * max(1, hh * cols.shape[1] * c))
+    lo, hi, dim = action["low"], action["high"], action["dim"]
     out = []
     for i in range(k):
-        a = [4.0 * float(lr[i]), 4.0 * float(tb[i])] + [0.0] * (action["dim"] - 2)
-        out.append([min(max(v, lo[j]), hi[j]) for j, v in enumerate(a[:action["dim"]])])
+        a = ([4.0 * float(lr[i]), 4.0 * float(tb[i])] + [0.0] * dim)[:dim]
+        out.append([min(max(v, lo[j]), hi[j]) for j, v in enumerate(a)])
     return out
 
 
@@ -142,14 +135,24 @@ class Policy:
         self.action = hello["action"]
         self.recording = hello["game"] == "recording"
 
-    def act_batch(self, frames, raw, prevs):
-        """frames: decoded observations; raw: (k, h, w, c) uint8 frames
-        when the payload is uint8 frames, else None."""
-        if self.recording:
-            if raw is None:
-                raw = np.stack([np.rint(f * 255).astype(np.uint8) for f, _, _ in frames])
+    def act_batch(self, obs, header, payload, k, dim):
+        """The actions for the k observations of one step or batch
+        message (header and payload as received)."""
+        if self.recording and obs.kind == "frame" and obs.dtype == np.uint8:
+            raw = np.frombuffer(payload, dtype=np.uint8).reshape((k,) + obs.frame_shape)
             return brightness_rule(raw, self.action)
-        return [self.act(f, t, c, p) for (f, t, c), p in zip(frames, prevs)]
+        ns = header.get("n") if k > 1 or header["msg"] == "batch" else [header.get("n", 0)]
+        prev = header.get("prev") or [0] * (k * dim)
+        decoded, off = [], 0
+        for i in range(k):
+            n = ns[i] if ns else 0
+            size = obs.size(n)
+            decoded.append(obs.decode({"n": n}, payload[off:off + size]))
+            off += size
+        if self.recording:
+            raw = np.stack([np.rint(f * 255).astype(np.uint8) for f, _, _ in decoded])
+            return brightness_rule(raw, self.action)
+        return [self.act(f, t, c, prev[i * dim:(i + 1) * dim]) for i, (f, t, c) in enumerate(decoded)]
 
     def reset(self, seed):
         self.rng = np.random.default_rng(seed)
@@ -200,22 +203,11 @@ def session(inp, out):
         if kind == "start":
             policy.reset(header["seed"])
         elif kind == "step":
-            decoded = obs.decode(header, payload)
-            action = policy.act_batch([decoded], obs.raw([payload], 1), [header.get("prev")])[0]
+            action = policy.act_batch(obs, header, payload, 1, dim)[0]
             send(out, {"msg": "action", "t": header["t"], "action": action})
         elif kind == "batch":
-            k = header["count"]
-            parts, off = [], 0
-            for i in range(k):
-                size = obs.size(header["n"][i] if "n" in header else 0)
-                parts.append(payload[off:off + size])
-                off += size
-            frames = [obs.decode({"n": header["n"][i]} if "n" in header else {}, parts[i]) for i in range(k)]
-            prev = header.get("prev", [0] * (k * dim))
-            prevs = [prev[i * dim:(i + 1) * dim] for i in range(k)]
-            actions = policy.act_batch(frames, obs.raw(parts, k), prevs)
-            flat = [v for a in actions for v in a]
-            send(out, {"msg": "actions", "t": header["t"][0], "count": k, "action": flat})
+            flat = [v for a in policy.act_batch(obs, header, payload, header["count"], dim) for v in a]
+            send(out, {"msg": "actions", "t": header["t"][0], "count": header["count"], "action": flat})
         elif kind == "end":
             log("episode", header.get("episode"), "return", header.get("return"))
 

@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
 )
 
 // Random is a frame sequence whose frames can be read in any order, by
@@ -208,36 +209,23 @@ func (a *fileAt) ReadFrameAt(i int, dst *image.RGBA) error {
 		return err
 	}
 	w, h, c := a.info.Width, a.info.Height, a.channels
-	fb := int64(w * h * c)
-	// The frame's bytes go into the tail of dst.Pix, which expandRow then
-	// widens in place from the front (RGBA needs at least as many bytes
-	// and the write position never passes the read position).
-	buf := dst.Pix[len(dst.Pix)-int(fb):]
-	if _, err := a.f.ReadAt(buf, a.offset+int64(i)*fb); err != nil {
+	fb := w * h * c
+	bp := rowPool.Get().(*[]byte)
+	if cap(*bp) < fb {
+		*bp = make([]byte, fb)
+	}
+	buf := (*bp)[:fb]
+	defer rowPool.Put(bp)
+	if _, err := a.f.ReadAt(buf, a.offset+int64(i)*int64(fb)); err != nil {
 		return fmt.Errorf("%s: frame %d of %d: %w", a.info.Name, i, a.info.Frames, noEOF(err))
 	}
-	widenInPlace(dst.Pix, len(dst.Pix)-int(fb), c)
+	expandRow(dst.Pix[:4*w*h], buf, c) // rows are back to back in both
 	return nil
 }
 
-// widenInPlace expands channel-c bytes stored at pix[from:] into opaque
-// RGBA from pix[0:]. Going front to back is safe: pixel k is read at
-// from+k·c and written at 4k ≤ from+k·c, since from = (4-c)·pixels.
-func widenInPlace(pix []byte, from, c int) {
-	n := (len(pix) - from) / c
-	for k := 0; k < n; k++ {
-		s := from + k*c
-		var r, g, b byte
-		if c == 3 {
-			r, g, b = pix[s], pix[s+1], pix[s+2]
-		} else {
-			r = pix[s]
-			g, b = r, r
-		}
-		o := 4 * k
-		pix[o], pix[o+1], pix[o+2], pix[o+3] = r, g, b, 255
-	}
-}
+// rowPool holds frame-sized read buffers, so that concurrent
+// ReadFrameAt calls allocate nothing in steady state.
+var rowPool = sync.Pool{New: func() any { return new([]byte) }}
 
 func (a *fileAt) Close() error {
 	err := a.f.Close()

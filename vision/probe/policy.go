@@ -26,6 +26,13 @@ type Batcher interface {
 	ActBatch(obs []*vision.Observation, actions [][]float64) error
 }
 
+// FrameOnly is a policy that reads only Observation.Frame, never the
+// tokens (an external policy sent frames), so clean frames need not be
+// tokenized for it.
+type FrameOnly interface {
+	FrameOnly() bool
+}
+
 // PolicyFunc makes one worker's policy for one patch size and its grid.
 type PolicyFunc func(patchSize int, grid *patch.Grid) (vision.Policy, error)
 

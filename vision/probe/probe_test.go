@@ -15,6 +15,7 @@ import (
 	"testing"
 
 	"tilebench/games"
+	"tilebench/patch"
 	"tilebench/patch/frameio"
 	"tilebench/vision/nets"
 	"tilebench/vision/study"
@@ -368,5 +369,35 @@ func TestParseActionSpace(t *testing.T) {
 		if _, err := ParseActionSpace(s); err == nil {
 			t.Errorf("%q: no error", s)
 		}
+	}
+}
+
+// TestCleanReassembly backs the runner's shortcut: on a grid that covers
+// the frame exactly, the clean tokens reassemble into the frame byte for
+// byte (uint8 → float32 v/255 → round(v·255) is the identity on 0..255).
+func TestCleanReassembly(t *testing.T) {
+	grid, err := patch.NewGrid(patch.GridConfig{Width: 40, Height: 24, PatchW: 8})
+	if err != nil {
+		t.Fatal(err)
+	}
+	img := image.NewRGBA(image.Rect(0, 0, 40, 24))
+	r := patch.NewRand(5)
+	for i := range img.Pix {
+		img.Pix[i] = uint8(r.IntN(256))
+		if i%4 == 3 {
+			img.Pix[i] = 255
+		}
+	}
+	tok := patch.NewTokenizer(grid)
+	ts := patch.NewTokenSet(grid.N(), grid.D())
+	if err := tok.Tokenize(img, ts); err != nil {
+		t.Fatal(err)
+	}
+	back := image.NewRGBA(img.Rect)
+	if err := tok.Assemble(ts, back); err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(back.Pix, img.Pix) {
+		t.Fatal("clean tokens do not reassemble into the frame")
 	}
 }

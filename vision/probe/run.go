@@ -96,9 +96,13 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	if in := src.Info(); in.Width != p.Input.Width || in.Height != p.Input.Height || in.Frames != p.Input.Frames {
 		return nil, fmt.Errorf("%s: now %dx%d with %d frames, the probe was planned on %dx%d with %d", in.Name, in.Width, in.Height, in.Frames, p.Input.Width, p.Input.Height, p.Input.Frames)
 	}
-	if err := preflight(p, opt.Policy); err != nil {
+	// The policies preflight opened serve the first worker that needs
+	// them (an external policy may take seconds to start).
+	sp, err := preflight(p, opt.Policy)
+	if err != nil {
 		return nil, err
 	}
+	defer sp.close()
 	if err := os.MkdirAll(opt.Dir, 0o755); err != nil {
 		return nil, fmt.Errorf("probe folder: %w", err)
 	}
@@ -166,7 +170,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			w := &worker{p: p, src: src, policy: opt.Policy, runners: map[int]*runner{}}
+			w := &worker{p: p, src: src, policy: sp.take(opt.Policy), runners: map[int]*runner{}}
 			defer w.close()
 			for u := range jobs {
 				if runCtx.Err() != nil {
@@ -273,33 +277,63 @@ func prepareDir(p *Plan, opt Options) error {
 	return nil
 }
 
+// spares holds policies opened by preflight until a worker takes them.
+type spares struct {
+	mu  sync.Mutex
+	pol map[int]vision.Policy
+}
+
+// take wraps pf so that a spare policy of the patch size is used first.
+func (s *spares) take(pf PolicyFunc) PolicyFunc {
+	return func(ps int, grid *patch.Grid) (vision.Policy, error) {
+		s.mu.Lock()
+		pol, ok := s.pol[ps]
+		delete(s.pol, ps)
+		s.mu.Unlock()
+		if ok {
+			return pol, nil
+		}
+		return pf(ps, grid)
+	}
+}
+
+// close closes the spares no worker took.
+func (s *spares) close() {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	for ps, pol := range s.pol {
+		if cl, ok := pol.(interface{ Close() error }); ok {
+			cl.Close()
+		}
+		delete(s.pol, ps)
+	}
+}
+
 // preflight builds every cell's pipeline and one policy per patch size
 // before anything is written.
-func preflight(p *Plan, pf PolicyFunc) error {
-	seen := map[int]bool{}
+func preflight(p *Plan, pf PolicyFunc) (*spares, error) {
+	sp := &spares{pol: map[int]vision.Policy{}}
 	for _, c := range p.Cells {
 		grid, err := p.grid(c.Patch)
 		if err != nil {
-			return err
+			sp.close()
+			return nil, err
 		}
 		if _, err := patch.NewPipeline(grid, c.Spec()); err != nil {
-			return fmt.Errorf("cell %s: %w", c.Label(), err)
+			sp.close()
+			return nil, fmt.Errorf("cell %s: %w", c.Label(), err)
 		}
-		if seen[c.Patch] {
+		if _, ok := sp.pol[c.Patch]; ok {
 			continue
 		}
-		seen[c.Patch] = true
 		pol, err := pf(c.Patch, grid)
 		if err != nil {
-			return fmt.Errorf("policy for patch %d: %w", c.Patch, err)
+			sp.close()
+			return nil, fmt.Errorf("policy for patch %d: %w", c.Patch, err)
 		}
-		if cl, ok := pol.(interface{ Close() error }); ok {
-			if err := cl.Close(); err != nil {
-				return fmt.Errorf("policy for patch %d: %w", c.Patch, err)
-			}
-		}
+		sp.pol[c.Patch] = pol
 	}
-	return nil
+	return sp, nil
 }
 
 func (p *Plan) grid(ps int) (*patch.Grid, error) {
@@ -386,6 +420,10 @@ type runner struct {
 	pol    vision.Policy
 	batch  Batcher
 	wants  bool
+	// exact: the grid covers the frame exactly, so the clean tokens
+	// reassemble into the frame itself (no assembly needed); frameOnly:
+	// the policy reads only the frame (no tokenizing either).
+	exact, frameOnly bool
 	raw    *image.RGBA
 	slots  []slot
 	obs    []*vision.Observation
@@ -407,6 +445,11 @@ func newRunner(p *Plan, src frameio.Random, ps int, pf PolicyFunc) (*runner, err
 	r := &runner{p: p, src: src, grid: grid, tok: patch.NewTokenizer(grid), pol: pol, wants: pol.Info().WantsFrame}
 	if cl, ok := pol.(interface{ Close() error }); ok {
 		r.closer = cl.Close
+	}
+	r.exact = grid.OutW == p.Width && grid.OutH == p.Height && grid.Width == p.Width && grid.Height == p.Height &&
+		grid.StrideX == grid.PatchW && grid.StrideY == grid.PatchH
+	if fo, ok := pol.(FrameOnly); ok && r.exact && r.wants {
+		r.frameOnly = fo.FrameOnly()
 	}
 	B := 1
 	if b, ok := pol.(Batcher); ok && !p.Config.NoBatch && b.BatchSize() > 1 {
@@ -461,35 +504,43 @@ func (r *runner) close() {
 func (r *runner) load(s *slot, start, t int, pipe *patch.Pipeline) error {
 	p := r.p
 	i := start + t
-	if err := r.src.ReadFrameAt(i, r.raw); err != nil {
+	if p.Width != p.Input.Width || p.Height != p.Input.Height {
+		if err := r.src.ReadFrameAt(i, r.raw); err != nil {
+			return err
+		}
+		// Triangle (bilinear) filter, imaging.Linear; it allocates the
+		// result (a library should offer a destination; this one does not).
+		rs := imaging.Resize(r.raw, p.Width, p.Height, imaging.Linear)
+		copy(s.frame.Pix, rs.Pix) // opaque: NRGBA and RGBA bytes agree
+	} else if err := r.src.ReadFrameAt(i, s.frame); err != nil {
 		return err
-	}
-	if s.frame != r.raw {
-		if p.Width != p.Input.Width || p.Height != p.Input.Height {
-			// Triangle (bilinear) filter, imaging.Linear.
-			rs := imaging.Resize(r.raw, p.Width, p.Height, imaging.Linear)
-			copy(s.frame.Pix, rs.Pix) // opaque: NRGBA and RGBA bytes agree
-		} else {
-			copy(s.frame.Pix, r.raw.Pix)
-		}
-	}
-	if err := r.tok.Tokenize(s.frame, s.clean); err != nil {
-		return fmt.Errorf("frame %d: %w", i, err)
-	}
-	s.obs.Tokens = s.clean
-	if pipe != nil {
-		if err := pipe.Apply(t, s.clean, s.tokens, nil); err != nil {
-			return fmt.Errorf("frame %d: %w", i, err)
-		}
-		s.obs.Tokens = s.tokens
 	}
 	s.obs.Step = t
 	s.obs.Frame = nil
-	if r.wants {
-		if err := r.tok.Assemble(s.obs.Tokens, s.seen); err != nil {
+	s.obs.Tokens = s.clean
+	if pipe == nil && r.frameOnly {
+		// The clean frame is what a frame-only policy sees: no tokens.
+		s.obs.Frame = s.frame
+	} else {
+		if err := r.tok.Tokenize(s.frame, s.clean); err != nil {
 			return fmt.Errorf("frame %d: %w", i, err)
 		}
-		s.obs.Frame = s.seen
+		if pipe != nil {
+			if err := pipe.Apply(t, s.clean, s.tokens, nil); err != nil {
+				return fmt.Errorf("frame %d: %w", i, err)
+			}
+			s.obs.Tokens = s.tokens
+		}
+		if r.wants {
+			if pipe == nil && r.exact {
+				s.obs.Frame = s.frame // clean tokens reassemble into the frame
+			} else {
+				if err := r.tok.Assemble(s.obs.Tokens, s.seen); err != nil {
+					return fmt.Errorf("frame %d: %w", i, err)
+				}
+				s.obs.Frame = s.seen
+			}
+		}
 	}
 	s.obs.PrevAction = r.zeros
 	if a := p.actions; a != nil && t > 0 {
@@ -561,6 +612,11 @@ func (r *runner) unit(rec *Record, pipe *patch.Pipeline) error {
 		rec.Channel = make([]float64, dim)
 	}
 	var top []Moved
+	if rec.Params.Clean() {
+		// The identity transform: the second pass sees the clean input
+		// again and measures how reproducible the policy is.
+		pipe = nil
+	}
 	if err := r.pass(sq, rec.PolicySeed, pipe, rec.PipeSeed, func(t int, a []float64) {
 		c := clean[t*dim : (t+1)*dim]
 		d := distance(a, c, disc)

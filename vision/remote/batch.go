@@ -174,3 +174,7 @@ func (p *Policy) checkBatch(obs []*vision.Observation, actions [][]float64) erro
 	}
 	return nil
 }
+
+// FrameOnly reports whether the session sends frames (obs "frame"): the
+// policy then never reads an observation's tokens.
+func (p *Policy) FrameOnly() bool { return p.cfg.Obs == ObsFrame }
