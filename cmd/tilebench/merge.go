@@ -33,6 +33,9 @@ func runMerge(ctx *runContext, args []string) error {
 		return usagef("merge: want OUT and at least one study folder")
 	}
 	out := fs.Arg(0)
+	if isProbeDir(fs.Arg(1)) { // probe shards (probe.go)
+		return runProbeMerge(ctx, append([]string{"--out", out}, fs.Args()[1:]...))
+	}
 	mo, err := study.Merge(out, fs.Args()[1:], true)
 	if err != nil {
 		return err

@@ -37,7 +37,8 @@ examples:
     --policy testdata/policies/drive-attention-p8.safetensors --out probe-ref
 
 A probe stopped by Ctrl-C or a kill continues with --resume; --shard i/n
-runs one part and "tilebench probe merge" joins the parts (docs/probe.md).
+runs one part and "tilebench probe merge" (or "tilebench merge") joins the
+parts (docs/probe.md).
 
 options:`
 
@@ -178,4 +179,10 @@ func runProbeMerge(ctx *runContext, args []string) error {
 		fmt.Fprintf(ctx.stdout, "the report covers the units present; run the missing shards and merge again\n")
 	}
 	return nil
+}
+
+// isProbeDir reports whether dir holds a probe (for "tilebench merge").
+func isProbeDir(dir string) bool {
+	_, err := os.Stat(filepath.Join(dir, probe.ProbeFile))
+	return err == nil
 }

@@ -73,6 +73,14 @@ func TestProbeCLI(t *testing.T) {
 	if string(a) != string(b) {
 		t.Error("merged shards differ from the whole run")
 	}
+	// "tilebench merge" recognises probe folders too.
+	m2 := filepath.Join(t.TempDir(), "m2")
+	if code, _, stderr = runCLI(t, "", append([]string{"merge", m2}, dirs...)...); code != 0 {
+		t.Fatalf("merge: %s", stderr)
+	}
+	if c, _ := os.ReadFile(filepath.Join(m2, "results.jsonl")); string(c) != string(a) {
+		t.Error("tilebench merge of probe shards differs from the whole run")
+	}
 }
 
 // TestProbeMemory probes a 100,000-frame 96×96×3 recording (a sparse
