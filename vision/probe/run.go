@@ -88,7 +88,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	if opt.Policy == nil {
 		opt.Policy = Policies(p, filepath.Join(opt.Dir, LogsDir))
 	}
-	src, err := frameio.OpenRandom(p.Config.In, frameio.Options{Width: p.Config.RawWidth, Height: p.Config.RawHeight})
+	src, err := openSource(p)
 	if err != nil {
 		return nil, err
 	}
@@ -246,6 +246,11 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		}
 	}
 	return out, nil
+}
+
+// openSource opens the plan's recording for reading in any order.
+func openSource(p *Plan) (frameio.Random, error) {
+	return frameio.OpenRandom(p.Config.In, frameio.Options{Width: p.Config.RawWidth, Height: p.Config.RawHeight})
 }
 
 // prepareDir refuses a folder that holds something else than this probe.
