@@ -418,24 +418,24 @@ type slot struct {
 
 // runner runs the clean and transformed passes of one patch size.
 type runner struct {
-	p      *Plan
-	src    frameio.Random
-	grid   *patch.Grid
-	tok    *patch.Tokenizer
-	pol    vision.Policy
-	batch  Batcher
-	wants  bool
+	p     *Plan
+	src   frameio.Random
+	grid  *patch.Grid
+	tok   *patch.Tokenizer
+	pol   vision.Policy
+	batch Batcher
+	wants bool
 	// exact: the grid covers the frame exactly, so the clean tokens
 	// reassemble into the frame itself (no assembly needed); frameOnly:
 	// the policy reads only the frame (no tokenizing either).
 	exact, frameOnly bool
-	raw    *image.RGBA
-	slots  []slot
-	obs    []*vision.Observation
-	acts   [][]float64
-	zeros  []float64
-	clean  []float64 // the clean pass's actions, frames×dim
-	closer func() error
+	raw              *image.RGBA
+	slots            []slot
+	obs              []*vision.Observation
+	acts             [][]float64
+	zeros            []float64
+	clean            []float64 // the clean pass's actions, frames×dim
+	closer           func() error
 }
 
 func newRunner(p *Plan, src frameio.Random, ps int, pf PolicyFunc) (*runner, error) {
