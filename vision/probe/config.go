@@ -226,6 +226,9 @@ func NewPlan(cfg Config) (*Plan, error) {
 	if len(cfg.Axes.Variations) > 0 {
 		return nil, errors.New("a probe has no game: variations do not apply")
 	}
+	if cfg.In == "-" {
+		return nil, errors.New("stdin: a probe reads the recording once per cell; save the raw frames to a .rgb file and give --in FILE.rgb --size WxH")
+	}
 	if _, err := os.Stat(cfg.In); err == nil {
 		if abs, err := filepath.Abs(cfg.In); err == nil {
 			cfg.In = abs
@@ -237,9 +240,6 @@ func NewPlan(cfg Config) (*Plan, error) {
 	}
 	info := src.Info()
 	src.Close()
-	if cfg.In == "-" {
-		return nil, errors.New("stdin: a probe reads the recording once per cell; save it to a .rgb file first")
-	}
 	p := &Plan{Config: cfg, Input: info, Width: info.Width, Height: info.Height}
 	if cfg.Episodes != "" {
 		p.Sequences, err = ReadSequences(cfg.Episodes, info.Frames)

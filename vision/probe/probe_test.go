@@ -401,3 +401,50 @@ func TestCleanReassembly(t *testing.T) {
 		t.Fatal("clean tokens do not reassemble into the frame")
 	}
 }
+
+// TestResize: frames of another size are scaled to the policy's with
+// --resize, a weights file's size is enforced, and raw RGB24 files work.
+func TestResize(t *testing.T) {
+	dir := t.TempDir()
+	rec := recording(t, dir, 10, 50, 30)
+	p := plan(t, Config{In: rec, Policy: "fresh", ActionSpace: "continuous:2", Resize: "40x24",
+		Axes: study.Axes{Occlude: study.Axis{"block:0.5"}}, Resamples: 100})
+	if p.Width != 40 || p.Height != 24 {
+		t.Fatalf("policy frame %dx%d, want 40x24", p.Width, p.Height)
+	}
+	out := filepath.Join(dir, "o")
+	runProbe(t, p, Options{Dir: out, Workers: 1})
+	if !bytes.Contains(read(t, filepath.Join(out, "report.html")), []byte("data:image/png")) {
+		t.Error("no strip frames in the report")
+	}
+	pos := filepath.Join("..", "..", "testdata", "policies", "drive-posattention-p8.safetensors")
+	n, err := nets.Load(pos)
+	if err != nil {
+		t.Fatal(err)
+	}
+	g := n.Grid()
+	if _, err := NewPlan(Config{In: rec, Policy: pos, Resize: "40x24"}); err == nil || !strings.Contains(err.Error(), fmt.Sprintf("%dx%d", g.Width, g.Height)) {
+		t.Errorf("resize to another size than the weights': %v", err)
+	}
+	pw := plan(t, Config{In: rec, Policy: pos, Resize: fmt.Sprintf("%dx%d", g.Width, g.Height), Resamples: 100})
+	runProbe(t, pw, Options{Dir: filepath.Join(dir, "w"), Workers: 1, NoReport: true})
+	// The same frames as raw RGB24.
+	src, _ := frameio.Builtin("drift", 6, 16, 12)
+	frames, _ := frameio.ReadAll(src)
+	var raw []byte
+	for _, f := range frames {
+		for i := 0; i < len(f.Pix); i += 4 {
+			raw = append(raw, f.Pix[i], f.Pix[i+1], f.Pix[i+2])
+		}
+	}
+	rgb := filepath.Join(dir, "f.rgb")
+	os.WriteFile(rgb, raw, 0o644)
+	pr := plan(t, Config{In: rgb, RawWidth: 16, RawHeight: 12, Policy: "fresh", ActionSpace: "discrete:3", Resamples: 100})
+	if pr.Input.Frames != 6 {
+		t.Fatalf("raw input: %d frames", pr.Input.Frames)
+	}
+	runProbe(t, pr, Options{Dir: filepath.Join(dir, "r"), Workers: 1, NoReport: true})
+	if _, err := NewPlan(Config{In: "-", Policy: "fresh", ActionSpace: "discrete:3"}); err == nil || !strings.Contains(err.Error(), ".rgb") {
+		t.Errorf("stdin: %v", err)
+	}
+}
