@@ -229,6 +229,9 @@ func parseSequences(data string, frames int) ([]Sequence, error) {
 			continue
 		}
 		cols := splitCols(line)
+		if len(cols) == 0 {
+			return nil, fmt.Errorf("line %d: %q holds no value", ln+1, line)
+		}
 		if first {
 			first = false
 			if _, err := strconv.Atoi(cols[0]); err != nil || len(cols) > 1 {
