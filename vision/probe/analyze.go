@@ -560,12 +560,14 @@ func reportData(p *Plan, s *Summary, recs []Record, src frameio.Random, command 
 	}
 	if worst >= 0 {
 		c := s.Cells[worst]
-		d.Findings = append(d.Findings, report.KV{Key: "largest mean drift", Value: fmt.Sprintf("%s [%s, %s] under %s", ff(c.Drift.Value), ff(c.Drift.Lo), ff(c.Drift.Hi), c.Label)})
+		d.Findings = append(d.Findings, report.KV{Key: "largest mean drift, under " + c.Label,
+			Value: stats.Estimate{Value: c.Drift.Value, Lo: c.Drift.Lo, Hi: c.Drift.Hi}.String()})
 		d.Findings = append(d.Findings, report.KV{Key: "frames whose action held there", Value: fmt.Sprintf("%.1f%% [%.1f, %.1f]", 100*c.Held.Value, 100*c.Held.WilsonLo, 100*c.Held.WilsonHi)})
 	}
 	for _, c := range s.Cells {
 		if c.Axis == "clean" && c.CleanError != nil {
-			d.Findings = append(d.Findings, report.KV{Key: "clean error vs recorded", Value: fmt.Sprintf("%s [%s, %s]", ff(c.CleanError.Value), ff(c.CleanError.Lo), ff(c.CleanError.Hi))})
+			d.Findings = append(d.Findings, report.KV{Key: "clean error vs recorded",
+				Value: stats.Estimate{Value: c.CleanError.Value, Lo: c.CleanError.Lo, Hi: c.CleanError.Hi}.String()})
 			break
 		}
 	}
@@ -579,7 +581,9 @@ func reportData(p *Plan, s *Summary, recs []Record, src frameio.Random, command 
 		}
 		cv, ok := byAxis[k.axis]
 		if !ok {
-			cv = &report.Curves{Title: "Drift against " + k.axis, XLabel: k.axis + " severity", YLabel: "mean drift", Threshold: s.Threshold}
+			// No Threshold on the chart: report.Curves draws it as a
+			// retention floor ("first below"); drift breaks above it.
+			cv = &report.Curves{Title: "Drift against " + k.axis + " (breaks above " + ff(s.Threshold) + ")", XLabel: k.axis + " severity", YLabel: "mean drift"}
 			byAxis[k.axis] = cv
 			order = append(order, k.axis)
 		}

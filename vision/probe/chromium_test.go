@@ -41,7 +41,7 @@ func TestRefChromium(t *testing.T) {
 	runProbe(t, p, Options{Dir: out, Workers: 2})
 	page := filepath.Join(out, report.HTMLFile)
 	html := read(t, page)
-	for _, want := range []string{report.Caution, "What the policy saw", "Drift against occlusion", "Where it breaks", "sequences"} {
+	for _, want := range []string{report.Caution, "What the policy saw", "Drift against occlusion (", "Where it breaks", "sequences"} {
 		if !bytes.Contains(html, []byte(want)) {
 			t.Errorf("report.html lacks %q", want)
 		}
