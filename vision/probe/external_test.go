@@ -131,3 +131,26 @@ while True:
 		t.Errorf("failed %d, first failure %q", o.Failed, o.FirstFailure)
 	}
 }
+
+// TestPolicyThatRefuses: a policy that refuses the session stops the
+// probe before anything is written; the folder made for it goes again.
+func TestPolicyThatRefuses(t *testing.T) {
+	reftest.Need(t)
+	dir := t.TempDir()
+	rec := recording(t, dir, 4, 16, 16)
+	script := filepath.Join(dir, "no.py")
+	os.WriteFile(script, []byte(`import json, sys
+json.loads(sys.stdin.buffer.readline())
+sys.stdout.write(json.dumps({"msg": "refuse", "reason": "trained on another robot"}) + "\n")
+sys.stdout.flush()
+`), 0o644)
+	p := plan(t, Config{In: rec, Policy: "exec:" + reftest.Python + " " + script, ActionSpace: "continuous:2", Resamples: 100})
+	out := filepath.Join(dir, "out")
+	_, err := Run(context.Background(), p, Options{Dir: out, Workers: 1})
+	if err == nil || !strings.Contains(err.Error(), "another robot") {
+		t.Fatalf("refusing policy: %v", err)
+	}
+	if _, err := os.Stat(out); err == nil {
+		t.Error("the output folder was left behind")
+	}
+}

@@ -85,6 +85,16 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	if err := prepareDir(p, opt); err != nil {
 		return nil, err
 	}
+	// An external policy's log folder is made inside Dir when it starts;
+	// if the probe cannot start, a Dir made only for it goes again.
+	_, statErr := os.Stat(opt.Dir)
+	made := errors.Is(statErr, os.ErrNotExist)
+	started := false
+	defer func() {
+		if made && !started {
+			os.RemoveAll(opt.Dir)
+		}
+	}()
 	if opt.Policy == nil {
 		opt.Policy = Policies(p, filepath.Join(opt.Dir, LogsDir))
 	}
@@ -106,6 +116,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	if err := os.MkdirAll(opt.Dir, 0o755); err != nil {
 		return nil, fmt.Errorf("probe folder: %w", err)
 	}
+	started = true
 	if _, err := os.Stat(filepath.Join(opt.Dir, ProbeFile)); errors.Is(err, os.ErrNotExist) {
 		in := &Info{Format: 1, Plan: *p, Command: opt.Command}
 		if !opt.Shard.Whole() {
@@ -256,11 +267,20 @@ func openSource(p *Plan) (frameio.Random, error) {
 // prepareDir refuses a folder that holds something else than this probe.
 func prepareDir(p *Plan, opt Options) error {
 	entries, err := os.ReadDir(opt.Dir)
-	if errors.Is(err, os.ErrNotExist) || (err == nil && len(entries) == 0) {
+	if errors.Is(err, os.ErrNotExist) {
 		return nil
 	}
 	if err != nil {
 		return fmt.Errorf("probe folder: %w", err)
+	}
+	others := 0
+	for _, e := range entries {
+		if e.Name() != LogsDir { // external policies' stderr, kept from a start that failed
+			others++
+		}
+	}
+	if others == 0 {
+		return nil
 	}
 	in, err := ReadInfo(opt.Dir)
 	if err != nil {
