@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"tilebench/games"
+	"tilebench/internal/reftest"
 	"tilebench/patch"
 	"tilebench/vision"
 )
@@ -252,4 +253,68 @@ func FuzzServeBatch(f *testing.F) {
 		in := append(append([]byte(nil), hello...), rest...)
 		Serve(strings.NewReader(string(in)), io.Discard, zeroPolicy{}, ServeOptions{Batch: 4})
 	})
+}
+
+// TestRefExampleBatches: both Python examples answer batch messages with
+// exactly the actions they give one step at a time, on frames of the
+// paddle game (its own frame size, whatever it is).
+func TestRefExampleBatches(t *testing.T) {
+	reftest.Need(t, "numpy")
+	g, err := games.New("paddle", games.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	sp := g.Spec()
+	grid, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: 4})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var obs []*vision.Observation
+	g.Reset(games.HeldOut(0))
+	r := patch.NewRand(3)
+	for i := 0; i < 40; i++ {
+		f := image.NewRGBA(image.Rect(0, 0, sp.Width, sp.Height))
+		g.Render(f)
+		obs = append(obs, &vision.Observation{Frame: f, Grid: grid, Step: i, PrevAction: make([]float64, sp.Action.Dim())})
+		a := []float64{float64(r.IntN(max(1, sp.Action.Choices())))}
+		if sp.Action.Kind != games.Discrete {
+			a = make([]float64, sp.Action.Dim())
+		}
+		if st, err := g.Step(a); err != nil || st.Done {
+			break
+		}
+	}
+	for _, script := range []string{"policy_stdlib.py", "policy_numpy.py"} {
+		mk := examplePolicy(t, script, ObsFrame, Uint8)
+		one, bat := mk(sp, grid).(*Policy), mk(sp, grid).(*Policy)
+		if bat.BatchSize() < 2 {
+			t.Fatalf("%s offers no batches", script)
+		}
+		one.Reset(1)
+		bat.Reset(1)
+		dim := sp.Action.Dim()
+		for i := 0; i < len(obs); i += bat.BatchSize() {
+			j := min(i+bat.BatchSize(), len(obs))
+			got := make([][]float64, j-i)
+			for k := range got {
+				got[k] = make([]float64, dim)
+			}
+			if err := bat.ActBatch(obs[i:j], got); err != nil {
+				t.Fatalf("%s: %v", script, err)
+			}
+			for k, o := range obs[i:j] {
+				want := make([]float64, dim)
+				if err := one.Act(o, want); err != nil {
+					t.Fatalf("%s: %v", script, err)
+				}
+				for d := range want {
+					if want[d] != got[k][d] {
+						t.Errorf("%s step %d: batched %v, one at a time %v", script, o.Step, got[k], want)
+					}
+				}
+			}
+		}
+		one.Close()
+		bat.Close()
+	}
 }
