@@ -68,6 +68,7 @@ func runProbe(ctx *runContext, args []string) error {
 	brightness := fs.String("brightness", "", "`LIST` of brightness offsets")
 	contrast := fs.String("contrast", "", "`LIST` of contrast factors")
 	pixelNoise := fs.String("pixel-noise", "", "`LIST` of Gaussian pixel noise σ")
+	corrupt := fs.String("corrupt", "", "`LIST` of frame corruptions (docs/studies.md), e.g. blur:s1:s5,jpeg:40")
 	fs.Uint64Var(&c.Seed, "seed", 0, "probe seed; every seed derives from it")
 	fs.IntVar(&c.Resamples, "resamples", 0, "bootstrap resamples (default 2000)")
 	fs.Float64Var(&c.Threshold, "threshold", 0, "drift past which an axis counts as broken (default 0.1: L2 action change, or share of changed choices)")
@@ -98,6 +99,7 @@ func runProbe(ctx *runContext, args []string) error {
 	c.Axes.Occlude, c.Axes.Scramble, c.Axes.Every = study.ParseAxis(*occlude), study.ParseAxis(*scramble), study.ParseAxis(*every)
 	c.Axes.NoiseTokens, c.Axes.Brightness = study.ParseAxis(*noise), study.ParseAxis(*brightness)
 	c.Axes.Contrast, c.Axes.PixelNoise = study.ParseAxis(*contrast), study.ParseAxis(*pixelNoise)
+	c.Axes.Corrupt = study.ParseAxis(*corrupt)
 	var sh study.Shard
 	if *shard != "" {
 		s, err := study.ParseShard(*shard)

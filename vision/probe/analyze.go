@@ -171,6 +171,16 @@ func place(c study.Cell) (axis, kind string, sev float64) {
 	if c.PixelNoise != 0 {
 		on = append(on, ax{"pixel noise", "sigma", c.PixelNoise})
 	}
+	if c.Corrupt != "" && c.Corrupt != "none" {
+		// One corruption KIND:VALUE is an axis of its kind; a chain
+		// (a+b) or a severity spelling is combined.
+		k, v, _ := strings.Cut(c.Corrupt, ":")
+		if sev, err := strconv.ParseFloat(v, 64); err == nil && !strings.Contains(c.Corrupt, "+") {
+			on = append(on, ax{"corruption", k, sev})
+		} else {
+			on = append(on, ax{"corruption", c.Corrupt, 1})
+		}
+	}
 	switch len(on) {
 	case 0:
 		return "clean", "", 0
@@ -746,11 +756,11 @@ func seenFrame(p *Plan, src frameio.Random, grid *patch.Grid, pipe *patch.Pipeli
 	}
 	tok := patch.NewTokenizer(grid)
 	clean := patch.NewTokenSet(grid.N(), grid.D())
-	if err := tok.Tokenize(frame, clean); err != nil {
+	pipe.Reset(r.PipeSeed)
+	if err := pipe.TokenizeFrame(t, tok, frame, clean); err != nil {
 		return nil, err
 	}
 	out := patch.NewTokenSet(pipe.Capacity(), grid.D())
-	pipe.Reset(r.PipeSeed)
 	if err := pipe.Apply(t, clean, out, nil); err != nil {
 		return nil, err
 	}

@@ -448,3 +448,27 @@ func TestResize(t *testing.T) {
 		t.Errorf("stdin: %v", err)
 	}
 }
+
+// TestCorruption: the frame corruptions of a study (blur, JPEG, ...) are
+// probe axes too, applied to the frame before it is cut.
+func TestCorruption(t *testing.T) {
+	dir := t.TempDir()
+	rec := recording(t, dir, 8, 48, 32)
+	p := plan(t, Config{In: rec, Policy: "fresh", Family: "mlp", ActionSpace: "continuous:2",
+		Axes: study.Axes{Corrupt: study.Axis{"blur:1,jpeg:40"}}, Resamples: 100})
+	out := filepath.Join(dir, "o")
+	runProbe(t, p, Options{Dir: out, Workers: 2})
+	s := summary(t, out)
+	n := 0
+	for _, c := range s.Cells {
+		if c.Axis == "corruption" {
+			n++
+			if !(c.Drift.Value > 0) {
+				t.Errorf("%s: no drift", c.Label)
+			}
+		}
+	}
+	if n != 2 {
+		t.Errorf("%d corruption cells, want 2", n)
+	}
+}

@@ -547,7 +547,12 @@ func (r *runner) load(s *slot, start, t int, pipe *patch.Pipeline) error {
 		// The clean frame is what a frame-only policy sees: no tokens.
 		s.obs.Frame = s.frame
 	} else {
-		if err := r.tok.Tokenize(s.frame, s.clean); err != nil {
+		if pipe != nil {
+			// Frame corruptions (if the cell has any) come first.
+			if err := pipe.TokenizeFrame(t, r.tok, s.frame, s.clean); err != nil {
+				return fmt.Errorf("frame %d: %w", i, err)
+			}
+		} else if err := r.tok.Tokenize(s.frame, s.clean); err != nil {
 			return fmt.Errorf("frame %d: %w", i, err)
 		}
 		if pipe != nil {
