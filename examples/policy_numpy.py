@@ -8,7 +8,16 @@ PyTorch or JAX forward pass); the rest is the protocol
 (docs/policy-protocol.md).
 
 As shipped it plays the paddle game with the same hand rule as
-policy_stdlib.py: move the paddle towards the ball.
+policy_stdlib.py: move the paddle towards the ball. On recorded frames
+("tilebench probe", game "recording") it answers with a plain rule of
+the picture's brightness: how much brighter the left half is than the
+right, and the top than the bottom (a choice: the brightest vertical
+stripe). Both rules keep no state, so it offers batches ("batch": 64 in
+ready, docs/policy-protocol.md): a batch message carries up to 64 frames
+and is answered in one reply, computed on all frames at once.
+
+    tilebench probe --in frames.npy --action-space continuous:2 \
+        --policy 'exec:python3 examples/policy_numpy.py' --scramble none,full --out probe
 
     tilebench play --game paddle --policy 'exec:python3 examples/policy_numpy.py'
 
@@ -29,6 +38,7 @@ import numpy as np
 PROTOCOL = 1
 MAX_LINE = 65536
 PADDLE_ROW = 76  # the paddle's row in the 84x84 paddle field
+BATCH = 64  # observations per batch message offered in ready (--batch N; 0: none)
 
 
 def log(*args):
@@ -66,6 +76,13 @@ class Observation:
         self.stride = tuple(tk["stride"])
         self.dim = tk["dim"]
 
+    def size(self, n):
+        """Payload bytes of one observation (n tokens for obs tokens)."""
+        item = np.dtype(self.dtype).itemsize
+        if self.kind == "frame":
+            return int(np.prod(self.frame_shape)) * item
+        return n * self.dim * item + 4 * n
+
     def decode(self, header, payload):
         """Returns (frame, tokens, cells); frame is rebuilt from tokens."""
         scale = 255.0 if self.dtype == np.uint8 else 1.0
@@ -89,9 +106,53 @@ class Observation:
         return frame, tokens, cells
 
 
+def brightness_rule(frames, action):
+    """The rule for recorded frames, on a (k, h, w, c) uint8 array: one
+    action per frame, from every 8th pixel in each direction. Sums are
+    exact integers, so a frame gets the same action alone or in a batch."""
+    k, h, w, c = frames.shape
+    x = frames[:, ::8, ::8].astype(np.int32)  # a small copy: fast sums
+    rows = x.sum(axis=(2, 3))  # (k, h/8)
+    cols = x.sum(axis=(1, 3))  # (k, w/8)
+    if action["kind"] == "discrete":
+        n = len(action["names"])
+        cut = max(1, cols.shape[1] // n)
+        stripes = np.stack([cols[:, i * cut:(i + 1) * cut].sum(axis=1) for i in range(n)], axis=1)
+        return [[int(v)] for v in np.argmax(stripes, axis=1)]
+    hw, hh = cols.shape[1] // 2, rows.shape[1] // 2
+    lr = (cols[:, :hw].sum(axis=1) - cols[:, hw:2 * hw].sum(axis=1)) / (255.0 * max(1, hw * rows.shape[1] * c))
+    tb = (rows[:, :hh].sum(axis=1) - rows[:, hh:2 * hh].sum(axis=1)) / (255.0 * max(1, hh * cols.shape[1] * c))
+    lo, hi, dim = action["low"], action["high"], action["dim"]
+    out = []
+    for i in range(k):
+        a = ([4.0 * float(lr[i]), 4.0 * float(tb[i])] + [0.0] * dim)[:dim]
+        out.append([min(max(v, lo[j]), hi[j]) for j, v in enumerate(a)])
+    return out
+
+
 class Policy:
     def __init__(self, hello):
         self.action = hello["action"]
+        self.recording = hello["game"] == "recording"
+
+    def act_batch(self, obs, header, payload, k, dim):
+        """The actions for the k observations of one step or batch
+        message (header and payload as received)."""
+        if self.recording and obs.kind == "frame" and obs.dtype == np.uint8:
+            raw = np.frombuffer(payload, dtype=np.uint8).reshape((k,) + obs.frame_shape)
+            return brightness_rule(raw, self.action)
+        ns = header.get("n") if k > 1 or header["msg"] == "batch" else [header.get("n", 0)]
+        prev = header.get("prev") or [0] * (k * dim)
+        decoded, off = [], 0
+        for i in range(k):
+            n = ns[i] if ns else 0
+            size = obs.size(n)
+            decoded.append(obs.decode({"n": n}, payload[off:off + size]))
+            off += size
+        if self.recording:
+            raw = np.stack([np.rint(f * 255).astype(np.uint8) for f, _, _ in decoded])
+            return brightness_rule(raw, self.action)
+        return [self.act(f, t, c, prev[i * dim:(i + 1) * dim]) for i, (f, t, c) in enumerate(decoded)]
 
     def reset(self, seed):
         self.rng = np.random.default_rng(seed)
@@ -122,13 +183,18 @@ def session(inp, out):
     if hello.get("protocol") != PROTOCOL:
         send(out, {"msg": "refuse", "reason": "speaks protocol %d only" % PROTOCOL})
         return 0
-    if hello["game"] != "paddle" or hello["frame"][2] != 3 or hello["frame"][0] <= PADDLE_ROW:
+    recording = hello["game"] == "recording"
+    if not recording and (hello["game"] != "paddle" or hello["frame"][2] != 3 or hello["frame"][0] <= PADDLE_ROW):
         send(out, {"msg": "refuse", "reason": "the hand rule needs the paddle game in RGB"})
         return 0
     obs = Observation(hello)
     policy = Policy(hello)
     policy.reset(0)
-    send(out, {"msg": "ready", "protocol": PROTOCOL, "name": "numpy hand rule"})
+    ready = {"msg": "ready", "protocol": PROTOCOL, "name": "numpy brightness rule" if recording else "numpy hand rule"}
+    if BATCH > 1:
+        ready["batch"] = BATCH  # both rules keep no state between frames
+    send(out, ready)
+    dim = hello["action"]["dim"]
     while True:
         header, payload = read_message(inp)
         if header is None or header["msg"] == "bye":
@@ -137,9 +203,11 @@ def session(inp, out):
         if kind == "start":
             policy.reset(header["seed"])
         elif kind == "step":
-            frame, tokens, cells = obs.decode(header, payload)
-            action = policy.act(frame, tokens, cells, header.get("prev"))
+            action = policy.act_batch(obs, header, payload, 1, dim)[0]
             send(out, {"msg": "action", "t": header["t"], "action": action})
+        elif kind == "batch":
+            flat = [v for a in policy.act_batch(obs, header, payload, header["count"], dim) for v in a]
+            send(out, {"msg": "actions", "t": header["t"][0], "count": header["count"], "action": flat})
         elif kind == "end":
             log("episode", header.get("episode"), "return", header.get("return"))
 
@@ -164,11 +232,15 @@ def serve(address, sessions):
 
 
 def main(argv):
+    global BATCH
+    if argv[:1] == ["--batch"] and len(argv) >= 2:
+        BATCH = int(argv[1])
+        argv = argv[2:]
     if argv[:1] == ["--listen"] and len(argv) in (2, 4):
         sessions = int(argv[3]) if len(argv) == 4 and argv[2] == "--sessions" else 0
         return serve(argv[1], sessions)
     if argv:
-        log("usage: policy_numpy.py [--listen HOST:PORT [--sessions N]]")
+        log("usage: policy_numpy.py [--batch N] [--listen HOST:PORT [--sessions N]]")
         return 2
     return session(sys.stdin.buffer, sys.stdout.buffer)
 

@@ -15,6 +15,10 @@ Options:
     --lead N      aim N pixels ahead of the ball's motion (default 0)
     --deadzone D  stay when the paddle is within D pixels of the ball (default 2)
 
+Without --lead the rule keeps no state from frame to frame, so it offers
+batches of up to 32 frames in one message ("batch" in ready; see
+docs/policy-protocol.md, "Batches").
+
 Logs go to stderr; stdout carries protocol messages only.
 """
 import json
@@ -136,7 +140,11 @@ def main(argv):
                        hello["game"], hello["obs"], hello["dtype"], hello["frame"])})
         return 0
     policy = HandRule(hello, lead, deadzone)
-    send(out, {"msg": "ready", "protocol": PROTOCOL, "name": "stdlib hand rule"})
+    ready = {"msg": "ready", "protocol": PROTOCOL, "name": "stdlib hand rule"}
+    if lead == 0:
+        ready["batch"] = 32  # stateless: the last ball is only used to lead
+    send(out, ready)
+    size = hello["frame"][0] * hello["frame"][1] * hello["frame"][2]
     while True:
         header, payload = read_message(inp)
         if header is None or header["msg"] == "bye":
@@ -146,6 +154,12 @@ def main(argv):
             policy.reset()
         elif kind == "step":
             send(out, {"msg": "action", "t": header["t"], "action": policy.act(payload)})
+        elif kind == "batch":
+            k = header["count"]
+            flat = []
+            for i in range(k):
+                flat.extend(policy.act(payload[i * size:(i + 1) * size]))
+            send(out, {"msg": "actions", "t": header["t"][0], "count": k, "action": flat})
         elif kind == "end":
             log("episode", header.get("episode"), "return", header.get("return"))
 

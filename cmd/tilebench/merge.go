@@ -34,6 +34,9 @@ func runMerge(ctx *runContext, args []string) error {
 		return usagef("merge: want OUT and at least one study folder")
 	}
 	out := fs.Arg(0)
+	if isProbeDir(fs.Arg(1)) { // probe shards (probe.go)
+		return runProbeMerge(ctx, append([]string{"--out", out}, fs.Args()[1:]...))
+	}
 	mo, err := study.MergeWith(out, fs.Args()[1:], study.MergeOptions{WriteReport: true, AllowPartial: *partial})
 	if err != nil {
 		return err

@@ -177,6 +177,7 @@ type Policy struct {
 	seed       uint64
 	fault      *FaultError
 	closed     bool
+	batch      int // observations per batch message the policy offered (batch.go)
 }
 
 // Open starts (exec:) or connects to (tcp://) the policy named by target
@@ -494,6 +495,9 @@ func (p *Policy) handshake() error {
 	p.name = clipString(p.name)
 	if f := p.hdr.get("invariant"); f != nil && f.kind == kindBool && string(f.raw) == "true" {
 		p.invar = true
+	}
+	if f := p.readBatch(); f != nil {
+		return f
 	}
 	p.out = make([]byte, 0, h.Limits.MaxPayload+1024)
 	if p.pipe != nil {

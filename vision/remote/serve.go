@@ -23,6 +23,10 @@ type ServeOptions struct {
 	// Accept, if set, sees the hello message; a non-nil error refuses the
 	// session with the error's text as the reason.
 	Accept func(*Hello) error
+	// Batch, if above 1, is offered in the ready message: the policy is
+	// stateless and takes up to Batch observations in one batch message
+	// (serve_batch.go). Default 0: no batches.
+	Batch int
 }
 
 // Serve is the policy side of the protocol, for policies written in Go:
@@ -80,7 +84,11 @@ func Serve(r io.Reader, w io.Writer, pol vision.Policy, opt ServeOptions) error 
 	if name == "" {
 		name = info.Label
 	}
-	ready, _ := json.Marshal(map[string]any{"msg": "ready", "protocol": Version, "name": name, "invariant": info.Invariant})
+	readyMsg := map[string]any{"msg": "ready", "protocol": Version, "name": name, "invariant": info.Invariant}
+	if opt.Batch > 1 {
+		readyMsg["batch"] = min(opt.Batch, MaxBatch)
+	}
+	ready, _ := json.Marshal(readyMsg)
 	bw.Write(append(ready, '\n'))
 	if err := bw.Flush(); err != nil {
 		return fmt.Errorf("serve: %w", err)
@@ -112,6 +120,10 @@ func Serve(r io.Reader, w io.Writer, pol vision.Policy, opt ServeOptions) error 
 			if err := s.step(br, bw); err != nil {
 				return err
 			}
+		case s.hdr.isMsg("batch") && opt.Batch > 1:
+			if err := s.batch(br, bw); err != nil {
+				return err
+			}
 		case s.hdr.isMsg("start"):
 			seed, _, err := s.hdr.unsigned("seed")
 			if err != nil {
@@ -141,6 +153,7 @@ type server struct {
 	action  []float64
 	obs     vision.Observation
 	out     []byte
+	bs      batchState
 }
 
 func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
@@ -162,6 +175,35 @@ func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
 	if prev, ok, _ := s.hdr.floats("prev"); ok && len(prev) == len(s.prev) {
 		copy(s.prev, prev)
 	}
+	if err := s.decode(t, buf, count, cerr); err != nil {
+		return err
+	}
+	clear(s.action)
+	if err := s.pol.Act(&s.obs, s.action); err != nil {
+		b, _ := json.Marshal(map[string]string{"msg": "error", "reason": err.Error()})
+		bw.Write(append(b, '\n'))
+		bw.Flush()
+		return fmt.Errorf("serve: step %d: %w", t, err)
+	}
+	b := append(s.out[:0], `{"msg":"action","t":`...)
+	b = strconv.AppendInt(b, t, 10)
+	b = append(b, `,"action":[`...)
+	for i, v := range s.action {
+		if i > 0 {
+			b = append(b, ',')
+		}
+		b = appendJSONFloat(b, v)
+	}
+	b = append(b, "]}\n"...)
+	s.out = b
+	bw.Write(b)
+	return bw.Flush()
+}
+
+// decode builds s.obs for step t from its payload (count tokens for obs
+// tokens, cerr the error reading the count).
+func (s *server) decode(t int64, buf []byte, count int64, cerr error) error {
+	n := len(buf)
 	size := 1
 	if s.h.Dtype == Float32 {
 		size = 4
@@ -211,26 +253,7 @@ func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
 			s.tokens.N = s.grid.N()
 		}
 	}
-	clear(s.action)
-	if err := s.pol.Act(&s.obs, s.action); err != nil {
-		b, _ := json.Marshal(map[string]string{"msg": "error", "reason": err.Error()})
-		bw.Write(append(b, '\n'))
-		bw.Flush()
-		return fmt.Errorf("serve: step %d: %w", t, err)
-	}
-	b := append(s.out[:0], `{"msg":"action","t":`...)
-	b = strconv.AppendInt(b, t, 10)
-	b = append(b, `,"action":[`...)
-	for i, v := range s.action {
-		if i > 0 {
-			b = append(b, ',')
-		}
-		b = appendJSONFloat(b, v)
-	}
-	b = append(b, "]}\n"...)
-	s.out = b
-	bw.Write(b)
-	return bw.Flush()
+	return nil
 }
 
 // appendJSONFloat writes v exactly, and NaN/±Inf as the literals Python

@@ -53,6 +53,13 @@ type Data struct {
 	Cells []Cell
 	// Notes are free remarks shown at the end (before the caution).
 	Notes []string
+	// BreakRule, if set, replaces the sentence under the breaks table
+	// that states the breaking rule (for reports whose breaks are not
+	// retention thresholds, such as a probe's drift).
+	BreakRule string
+	// Units names what Run.Episodes counts in the masthead; "" means
+	// "episodes".
+	Units string
 }
 
 // KV is a labelled value.

@@ -39,6 +39,7 @@ type view struct {
 	Cells     []cellView
 	Nav       []navItem
 	Caution   string
+	Units     string
 	Glance    bool
 }
 
@@ -134,6 +135,9 @@ func (v *view) buildBreaks(bs []Break) {
 	if len(sorted) > 0 {
 		v.BreakRule = "Breaking point: the first measured severity whose retention falls below " + num(common) +
 			"; earliest first. Not reached: retention stayed at or above it up to the largest severity measured."
+	}
+	if v.Data.BreakRule != "" {
+		v.BreakRule = v.Data.BreakRule
 	}
 	for _, b := range sorted {
 		th := thOf(b)
@@ -262,7 +266,10 @@ func buildView(d *Data) (*view, error) {
 	if strings.TrimSpace(d.Title) == "" {
 		return nil, errors.New("report: the title is empty")
 	}
-	v := &view{Data: d, Caution: Caution, Episodes: d.Run.Episodes}
+	v := &view{Data: d, Caution: Caution, Episodes: d.Run.Episodes, Units: "episodes"}
+	if d.Units != "" {
+		v.Units = d.Units
+	}
 	if v.Episodes == 0 {
 		for _, c := range d.Cells {
 			v.Episodes += c.Episodes

@@ -68,3 +68,19 @@ func ExampleBootstrap_Retention() {
 	fmt.Printf("retention %.2f, interval inside (0.45, 0.55): %v\n", r.Value, r.Lo > 0.45 && r.Hi < 0.55)
 	// Output: retention 0.50, interval inside (0.45, 0.55): true
 }
+
+func ExampleWilson() {
+	// 81 successes in 263 trials (Newcombe 1998's first example), 95%.
+	lo, hi := stats.Wilson(81, 263, 1.959964)
+	fmt.Printf("%.4f %.4f\n", lo, hi)
+	// Output: 0.2553 0.3662
+}
+
+func ExampleBootstrap_SequenceMean() {
+	// Three short sequences: too few to resample whole, so the
+	// moving-block bootstrap runs over their frames.
+	seqs := stats.Sequences{{0, 0.1, 0.2}, {0.4, 0.3}, {0.1, 0.1, 0.2, 0.2}}
+	e, method, _ := stats.Bootstrap{Resamples: 1000, Seed: 1}.SequenceMean(seqs)
+	fmt.Printf("%.3f %s\n", e.Value, method)
+	// Output: 0.178 moving-block bootstrap
+}

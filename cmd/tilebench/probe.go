@@ -1,0 +1,190 @@
+package main
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+
+	"tilebench/vision/probe"
+	"tilebench/vision/study"
+)
+
+func init() {
+	register(&command{name: "probe", summary: "stress your own policy on your own recorded frames (no game): how far its action moves", run: runProbe})
+}
+
+const probeUsage = `probe --in FRAMES --policy POLICY [options] --out DIR
+       probe merge --out DIR SHARD_DIR...
+
+Runs the policy over every recorded sequence twice, clean and transformed
+(same policy seed), for every combination of the transform axes (a cell),
+and measures per frame how far the action moved; with --actions, also the
+error against the recorded actions. Writes DIR/results.jsonl (one line
+per sequence per cell), DIR/report.html, DIR/summary.md, DIR/cells.csv
+and DIR/summary.json. Lists take the range syntax of "tilebench stress".
+
+FRAMES: a folder of .png/.jpg frames, a .gif, a .npy (uint8 N×H×W×C or
+N×H×W) or a .rgb/.raw file (--size WxH). POLICY: a weights FILE
+({patch} is replaced by each patch size), fresh (untrained --family),
+exec:COMMAND ARGS or tcp://HOST:PORT (docs/policy-protocol.md).
+
+examples:
+  tilebench probe --in recorded.npy --policy 'exec:python3 my_policy.py' --action-space continuous:2 \
+    --patch 8 --occlude random:0:0.8:0.1,block:0.3 --scramble none,full --noise-tokens 0,16 --out probe-mine
+  tilebench probe --in frames/ --episodes episodes.csv --actions actions.npy \
+    --policy testdata/policies/drive-attention-p8.safetensors --out probe-ref
+
+A probe stopped by Ctrl-C or a kill continues with --resume; --shard i/n
+runs one part and "tilebench probe merge" (or "tilebench merge") joins the
+parts (docs/probe.md).
+
+options:`
+
+func runProbe(ctx *runContext, args []string) error {
+	if len(args) > 0 && args[0] == "merge" {
+		return runProbeMerge(ctx, args[1:])
+	}
+	fs := newFlags(ctx, "probe", probeUsage)
+	var c probe.Config
+	fs.StringVar(&c.In, "in", "", "recorded `FRAMES`: folder, .gif, .npy, .rgb/.raw")
+	size := fs.String("size", "", "frame size `WxH` of raw .rgb/.raw input")
+	fs.StringVar(&c.Episodes, "episodes", "", "sequence boundaries `FILE`: one start index per line, or a sequence column with one id per frame")
+	fs.StringVar(&c.Actions, "actions", "", "recorded actions `FILE.npy`, one row per frame (N or N×W)")
+	fs.StringVar(&c.Policy, "policy", "", "the policy: a weights `FILE`, fresh, exec:COMMAND ARGS or tcp://HOST:PORT")
+	fs.StringVar(&c.Family, "family", "attention", "network `FAMILY` of --policy fresh: attention, posattention, mlp, meanpool")
+	fs.StringVar(&c.ActionSpace, "action-space", "", "`SPACE` of a fresh or external policy: continuous:N, continuous:N:LOW:HIGH or discrete:K (default: from --actions)")
+	fs.StringVar(&c.Resize, "resize", "", "scale frames to `WxH` (the policy's frame size) with a triangle filter")
+	fs.StringVar(&c.Timeout, "policy-timeout", "", "per-step timeout of an external policy, e.g. 5s")
+	fs.StringVar(&c.Obs, "policy-obs", "", "what an external policy receives: frame (default) or tokens")
+	noBatch := fs.Bool("no-batch", false, "send one frame per message even to a policy that offers batches")
+	patchList := fs.String("patch", "", "patch `SIZES` in pixels (default: the weights file's, else 8)")
+	occlude := fs.String("occlude", "", "occlusion `LIST`, e.g. random:0:0.8:0.1,block:0.3")
+	fs.StringVar(&c.Axes.Fill, "fill", "", "what occluded tokens become: black (default), mean, noise or drop")
+	scramble := fs.String("scramble", "", "scramble `LIST`: none, full, partial:F, local:K")
+	every := fs.String("every", "", "scramble schedule `LIST`: 0 = one permutation per sequence, T = a new one every T frames")
+	noise := fs.String("noise-tokens", "", "`LIST` of numbers of added noise tokens")
+	brightness := fs.String("brightness", "", "`LIST` of brightness offsets")
+	contrast := fs.String("contrast", "", "`LIST` of contrast factors")
+	pixelNoise := fs.String("pixel-noise", "", "`LIST` of Gaussian pixel noise σ")
+	corrupt := fs.String("corrupt", "", "`LIST` of frame corruptions (docs/studies.md), e.g. blur:s1:s5,jpeg:40")
+	fs.Uint64Var(&c.Seed, "seed", 0, "probe seed; every seed derives from it")
+	fs.IntVar(&c.Resamples, "resamples", 0, "bootstrap resamples (default 2000)")
+	fs.Float64Var(&c.Threshold, "threshold", 0, "drift past which an axis counts as broken (default 0.1: L2 action change, or share of changed choices)")
+	fs.StringVar(&c.Name, "name", "", "probe `NAME` shown in the report")
+	workers := fs.Int("workers", 0, "parallel workers (0: one per core); results do not depend on it")
+	out := fs.String("out", "", "output folder `DIR`")
+	resume := fs.Bool("resume", false, "continue the probe already in --out")
+	shard := fs.String("shard", "", "run one part `i/n` of the probe")
+	asJSON := fs.Bool("json", false, "print the summary as JSON on stdout")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if fs.NArg() > 0 {
+		return usagef("probe: unexpected argument %q", fs.Arg(0))
+	}
+	if *out == "" {
+		return usagef("probe: --out DIR is required")
+	}
+	if *size != "" {
+		w, h, err := parseWxH(*size)
+		if err != nil {
+			return usagef("--size: %v", err)
+		}
+		c.RawWidth, c.RawHeight = w, h
+	}
+	c.NoBatch = *noBatch
+	c.Patch = study.ParseAxis(*patchList)
+	c.Axes.Occlude, c.Axes.Scramble, c.Axes.Every = study.ParseAxis(*occlude), study.ParseAxis(*scramble), study.ParseAxis(*every)
+	c.Axes.NoiseTokens, c.Axes.Brightness = study.ParseAxis(*noise), study.ParseAxis(*brightness)
+	c.Axes.Contrast, c.Axes.PixelNoise = study.ParseAxis(*contrast), study.ParseAxis(*pixelNoise)
+	c.Axes.Corrupt = study.ParseAxis(*corrupt)
+	var sh study.Shard
+	if *shard != "" {
+		s, err := study.ParseShard(*shard)
+		if err != nil {
+			return usagef("--%v", err)
+		}
+		sh = s
+	}
+	p, err := probe.NewPlan(c)
+	if err != nil {
+		return usageError{err}
+	}
+	bar := newProgress(ctx.stderr, 0, "probe")
+	sctx, stop := interruptible()
+	defer stop()
+	o, err := probe.Run(sctx, p, probe.Options{Dir: *out, Workers: *workers, Resume: *resume, Shard: sh,
+		Command: commandLine(append([]string{"probe"}, args...)),
+		Progress: func(done, total int) {
+			if bar.bar == nil && total > 0 {
+				bar = newProgress(ctx.stderr, total, "probe")
+			}
+			bar.Set(done)
+		}})
+	bar.Done()
+	if err != nil {
+		return err
+	}
+	if *asJSON {
+		in, err := probe.ReadInfo(*out)
+		if err != nil {
+			return err
+		}
+		all, _, err := probe.ReadResults(*out)
+		if err != nil {
+			return err
+		}
+		s, err := probe.Analyze(&in.Plan, all)
+		if err != nil {
+			return err
+		}
+		b, err := json.MarshalIndent(s, "", " ")
+		if err != nil {
+			return err
+		}
+		fmt.Fprintln(ctx.stdout, string(b))
+	} else {
+		fmt.Fprintf(ctx.stdout, "probe %s: %d units (%d kept, %d run, %d frames twice) in %.1fs; report %s\n",
+			p.Fingerprint, o.Total, o.Kept, o.Ran, o.Frames, o.Elapsed.Seconds(), filepath.Join(*out, "report.html"))
+	}
+	if o.Failed > 0 {
+		return fmt.Errorf("%d of %d units failed (first: %s); --resume retries them", o.Failed, o.Total, o.FirstFailure)
+	}
+	return nil
+}
+
+func parseWxH(s string) (int, int, error) {
+	var w, h int
+	if n, err := fmt.Sscanf(s, "%dx%d", &w, &h); err != nil || n != 2 || w <= 0 || h <= 0 {
+		return 0, 0, errors.New("want WxH, e.g. 160x120")
+	}
+	return w, h, nil
+}
+
+func runProbeMerge(ctx *runContext, args []string) error {
+	fs := newFlags(ctx, "probe merge", probeUsage)
+	out := fs.String("out", "", "output folder `DIR` (new or empty)")
+	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if *out == "" || fs.NArg() == 0 {
+		return usagef("probe merge: want --out DIR and the shard folders")
+	}
+	mo, err := probe.Merge(*out, fs.Args(), true)
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(ctx.stdout, "merged %d units into %s (%d missing, %d failed)\n", mo.Units, *out, mo.Missing, mo.Failed)
+	if _, err := os.Stat(filepath.Join(*out, "report.html")); err == nil && mo.Missing > 0 {
+		fmt.Fprintf(ctx.stdout, "the report covers the units present; run the missing shards and merge again\n")
+	}
+	return nil
+}
+
+// isProbeDir reports whether dir holds a probe (for "tilebench merge").
+func isProbeDir(dir string) bool {
+	_, err := os.Stat(filepath.Join(dir, probe.ProbeFile))
+	return err == nil
+}

@@ -1,0 +1,135 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"regexp"
+	"strconv"
+	"strings"
+	"testing"
+)
+
+func TestProbeCLI(t *testing.T) {
+	frames, _ := framesDir(t, 12, 40, 32)
+	out := filepath.Join(t.TempDir(), "p")
+	code, stdout, stderr := runCLI(t, "", "probe", "--in", frames, "--policy", "fresh", "--family", "meanpool",
+		"--action-space", "continuous:2", "--scramble", "none,full", "--occlude", "random:0:0.4:0.2", "--resamples", "200", "--out", out, "--json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	var s struct {
+		Format int `json:"format"`
+		Cells  []struct {
+			Label  string `json:"label"`
+			Frames int    `json:"frames"`
+		} `json:"cells"`
+		Caution string `json:"caution"`
+	}
+	if err := json.Unmarshal([]byte(stdout), &s); err != nil || s.Format != 1 || len(s.Cells) != 6 || s.Caution == "" {
+		t.Fatalf("--json: %v %+v\n%s", err, s, stdout)
+	}
+	for _, f := range []string{"results.jsonl", "report.html", "summary.md", "cells.csv", "summary.json", "probe.json"} {
+		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
+			t.Errorf("missing %s", f)
+		}
+	}
+	// A used folder without --resume: one line, exit 1, nothing changed.
+	code, _, stderr = runCLI(t, "", "probe", "--in", frames, "--policy", "fresh", "--action-space", "continuous:2", "--out", out)
+	if code != 1 || strings.Count(strings.TrimSpace(stderr), "\n") != 0 || !strings.Contains(stderr, "--resume") {
+		t.Errorf("reuse: exit %d %q", code, stderr)
+	}
+	bad := filepath.Join(t.TempDir(), "bad.csv")
+	os.WriteFile(bad, []byte("0\n8\n3\n"), 0o644)
+	out2 := filepath.Join(t.TempDir(), "q")
+	code, _, stderr = runCLI(t, "", "probe", "--in", frames, "--episodes", bad, "--policy", "fresh", "--action-space", "continuous:2", "--out", out2)
+	if code != 2 || !strings.Contains(stderr, "bad.csv: line 3") || strings.Count(strings.TrimSpace(stderr), "\n") != 0 {
+		t.Errorf("bad episodes: exit %d %q", code, stderr)
+	}
+	if _, err := os.Stat(out2); err == nil {
+		t.Error("bad input left an output folder")
+	}
+	// Shards and merge.
+	var dirs []string
+	for i := 0; i < 2; i++ {
+		d := filepath.Join(t.TempDir(), fmt.Sprint("s", i))
+		code, _, stderr = runCLI(t, "", "probe", "--in", frames, "--policy", "fresh", "--family", "meanpool",
+			"--action-space", "continuous:2", "--scramble", "none,full", "--occlude", "random:0:0.4:0.2", "--resamples", "200",
+			"--shard", fmt.Sprintf("%d/2", i), "--out", d)
+		if code != 0 {
+			t.Fatalf("shard %d: %s", i, stderr)
+		}
+		dirs = append(dirs, d)
+	}
+	m := filepath.Join(t.TempDir(), "m")
+	code, _, stderr = runCLI(t, "", append([]string{"probe", "merge", "--out", m}, dirs...)...)
+	if code != 0 {
+		t.Fatalf("merge: %s", stderr)
+	}
+	a, _ := os.ReadFile(filepath.Join(out, "results.jsonl"))
+	b, _ := os.ReadFile(filepath.Join(m, "results.jsonl"))
+	if string(a) != string(b) {
+		t.Error("merged shards differ from the whole run")
+	}
+	// "tilebench merge" recognises probe folders too.
+	m2 := filepath.Join(t.TempDir(), "m2")
+	if code, _, stderr = runCLI(t, "", append([]string{"merge", m2}, dirs...)...); code != 0 {
+		t.Fatalf("merge: %s", stderr)
+	}
+	if c, _ := os.ReadFile(filepath.Join(m2, "results.jsonl")); string(c) != string(a) {
+		t.Error("tilebench merge of probe shards differs from the whole run")
+	}
+}
+
+// TestProbeMemory probes a 100,000-frame 96×96×3 recording (a sparse
+// file of black frames, 2.7 GB apparent size) in a child process under
+// /usr/bin/time -v and wants its maximum resident set under 300 MB: the
+// recording is read a frame at a time, never loaded. Opt in with
+// TILEBENCH_MEMORY=1 (it takes a minute of CPU).
+func TestProbeMemory(t *testing.T) {
+	if os.Getenv("TILEBENCH_MEMORY") != "1" {
+		t.Skip("set TILEBENCH_MEMORY=1 to measure")
+	}
+	if _, err := os.Stat("/usr/bin/time"); err != nil {
+		t.Skip("no /usr/bin/time")
+	}
+	dir := t.TempDir()
+	bin := filepath.Join(dir, "tilebench")
+	if out, err := exec.Command("go", "build", "-o", bin, ".").CombinedOutput(); err != nil {
+		t.Fatalf("build: %v\n%s", err, out)
+	}
+	const n, w, h = 100000, 96, 96
+	rec := filepath.Join(dir, "rec.npy")
+	f, err := os.Create(rec)
+	if err != nil {
+		t.Fatal(err)
+	}
+	hdr := fmt.Sprintf("{'descr': '|u1', 'fortran_order': False, 'shape': (%d, %d, %d, 3), }", n, h, w)
+	for (10+len(hdr)+1)%64 != 0 {
+		hdr += " "
+	}
+	hdr += "\n"
+	f.Write(append([]byte("\x93NUMPY\x01\x00"), byte(len(hdr)), byte(len(hdr)>>8)))
+	f.Write([]byte(hdr))
+	if err := f.Truncate(int64(10+len(hdr)) + int64(n)*w*h*3); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	cmd := exec.Command("/usr/bin/time", "-v", bin, "probe", "--in", rec, "--policy", "fresh", "--family", "meanpool",
+		"--action-space", "continuous:2", "--scramble", "none,full", "--workers", "2", "--out", filepath.Join(dir, "out"))
+	out, err := cmd.CombinedOutput()
+	if err != nil {
+		t.Fatalf("probe: %v\n%s", err, out)
+	}
+	m := regexp.MustCompile(`Maximum resident set size \(kbytes\): (\d+)`).FindSubmatch(out)
+	if m == nil {
+		t.Fatalf("no resident set size in\n%s", out)
+	}
+	kb, _ := strconv.Atoi(string(m[1]))
+	t.Logf("probing %d frames of %dx%dx3 (2 cells): maximum resident set %d MB", n, w, h, kb/1024)
+	if kb > 300*1024 {
+		t.Errorf("maximum resident set %d MB, want under 300 MB", kb/1024)
+	}
+}
