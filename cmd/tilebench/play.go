@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"image"
 	"image/png"
@@ -108,7 +109,7 @@ func loadWeights(path string, g games.Game, grid *patch.Grid, patchGiven bool) (
 	if !patchGiven {
 		grid = n.Grid()
 	}
-	if err := study.CheckGeometry(path, n, g.Spec(), grid); err != nil {
+	if err := errors.Join(study.CheckGeometry(path, n, g.Spec(), grid), study.CheckGame(path, g.Spec())); err != nil {
 		return nil, nil, fmt.Errorf("play: %w", err)
 	}
 	return n, grid, nil

@@ -416,7 +416,15 @@ func (p *Policy) readLine(phase string, step int, deadline time.Time, timeout ti
 func (p *Policy) write(phase string, step int, b []byte, deadline time.Time, timeout time.Duration) *FaultError {
 	p.setWriteDeadline(deadline)
 	if _, err := p.w.Write(b); err != nil {
-		if errors.Is(err, os.ErrDeadlineExceeded) && p.childGone() {
+		if errors.Is(err, syscall.EPIPE) && p.cmd != nil {
+			// The read end is closed: the child has exited or is
+			// exiting. Give its exit a moment to be seen.
+			select {
+			case <-p.exited:
+			case <-time.After(time.Second):
+			}
+		}
+		if (errors.Is(err, os.ErrDeadlineExceeded) || errors.Is(err, syscall.EPIPE)) && p.childGone() {
 			return p.newFault(phase, step, Crash, "policy process exited before it read its input")
 		}
 		if errors.Is(err, os.ErrDeadlineExceeded) {

@@ -1,6 +1,7 @@
 package study
 
 import (
+	"errors"
 	"fmt"
 	"os"
 	"strconv"
@@ -80,7 +81,7 @@ func Policies(p *Plan, logDir string) PolicyFunc {
 			if err != nil {
 				return nil, err
 			}
-			if err := CheckGeometry(path, n, g.Spec(), grid); err != nil {
+			if err := errors.Join(CheckGeometry(path, n, g.Spec(), grid), CheckGame(path, g.Spec())); err != nil {
 				return nil, err
 			}
 			mu.Lock()
@@ -107,6 +108,13 @@ func CheckGeometry(path string, n nets.Net, sp games.Spec, grid *patch.Grid) err
 	if a.Kind != b.Kind || a.Dim() != b.Dim() || a.Choices() != b.Choices() {
 		return fmt.Errorf("%s: weights are for a %s action space of %d values, game %s takes %s actions of %d", path, a.Kind, a.Dim(), sp.Name, b.Kind, b.Dim())
 	}
+	return nil
+}
+
+// CheckGame refuses a weights file whose metadata names another game than
+// the one played. Files without the key pass; probing recorded frames, which
+// come from no built-in game, does not call it.
+func CheckGame(path string, sp games.Spec) error {
 	if g, ok := weightsGame(path); ok && g != sp.Name {
 		return fmt.Errorf("%s: weights were trained on game %s, this run plays %s", path, g, sp.Name)
 	}
