@@ -76,6 +76,7 @@ func (n *attnNet) Act(obs *vision.Observation, action []float64) error {
 }
 
 func (n *attnNet) Forward(obs *vision.Observation, out []float32) error {
+	n.att.have = false
 	if err := checkOut(out, n.hd.outDim); err != nil {
 		return err
 	}

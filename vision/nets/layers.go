@@ -118,6 +118,7 @@ type attention struct {
 	p, o       []float32 // m×n probabilities (see probs), m×dv output
 	inv        []float32 // 1 / row sums of the unnormalised softmax
 	normalized bool      // p holds P rather than e^(S − max S)
+	have       bool      // p and inv hold the weights of the last forward pass
 	kt         []float32 // d×n transposed keys
 	bt         []float32 // kernel scratch
 	dp         []float32
@@ -132,6 +133,7 @@ func (a *attention) forward(q, k []float32, ldk int, v []float32, ldv, n int) []
 	a.o = grow(a.o, a.m*a.dv)
 	clear(a.p)
 	clear(a.o)
+	a.have = false
 	if n == 0 {
 		return a.o
 	}
@@ -154,6 +156,7 @@ func (a *attention) forward(q, k []float32, ldk int, v []float32, ldv, n int) []
 		a.inv[i] = 1 / expRow(a.p[i*n:(i+1)*n])
 	}
 	a.normalized = false
+	a.have = true
 	kern.nn(a.m, n, a.dv, a.p, n, v, ldv, a.o, a.dv)
 	for i := 0; i < a.m; i++ {
 		row := a.o[i*a.dv : (i+1)*a.dv]

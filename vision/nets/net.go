@@ -109,7 +109,7 @@ func ready(n net) {
 		n.Backward(out)
 	}
 	c.ZeroGrads()
-	c.in.reset()
+	n.Reset(0)
 }
 
 // plan declares a net's layers and tensors without allocating its
