@@ -75,6 +75,7 @@ class Observation:
         self.patch = (tk["patch"][0], tk["patch"][1], tk["channels"])
         self.stride = tuple(tk["stride"])
         self.dim = tk["dim"]
+        self.rows, self.cols = tk["rows"], tk["cols"]
 
     def size(self, n):
         """Payload bytes of one observation (n tokens for obs tokens)."""
@@ -104,6 +105,22 @@ class Observation:
             y, x = r * self.stride[0], c * self.stride[1]
             frame[y:y + ph, x:x + pw] = tok[: self.frame_shape[0] - y, : self.frame_shape[1] - x]
         return frame, tokens, cells
+
+    def weights(self, frame, tokens):
+        """Optional weights for the action reply: how many bright pixels
+        (what the hand rule looks for) each token holds, per token as sent
+        (obs tokens) or per cell of the frame, row after row (obs frame)."""
+        if tokens is not None:
+            bright = np.all(tokens >= 200 / 255, axis=3)
+            return bright.reshape(len(tokens), -1).sum(axis=1).astype(float).tolist()
+        ph, pw, _ = self.patch
+        sy, sx = self.stride
+        bright = np.all(frame >= 200 / 255, axis=2)
+        out = []
+        for r in range(self.rows):
+            for c in range(self.cols):
+                out.append(float(bright[r * sy:r * sy + ph, c * sx:c * sx + pw].sum()))
+        return out
 
 
 def brightness_rule(frames, action):
@@ -137,7 +154,9 @@ class Policy:
 
     def act_batch(self, obs, header, payload, k, dim):
         """The actions for the k observations of one step or batch
-        message (header and payload as received)."""
+        message (header and payload as received). The last observation
+        decoded is kept in self.last (None if not decoded), for weights."""
+        self.last = None
         if self.recording and obs.kind == "frame" and obs.dtype == np.uint8:
             raw = np.frombuffer(payload, dtype=np.uint8).reshape((k,) + obs.frame_shape)
             return brightness_rule(raw, self.action)
@@ -149,6 +168,7 @@ class Policy:
             size = obs.size(n)
             decoded.append(obs.decode({"n": n}, payload[off:off + size]))
             off += size
+        self.last = decoded[-1]
         if self.recording:
             raw = np.stack([np.rint(f * 255).astype(np.uint8) for f, _, _ in decoded])
             return brightness_rule(raw, self.action)
@@ -204,7 +224,11 @@ def session(inp, out):
             policy.reset(header["seed"])
         elif kind == "step":
             action = policy.act_batch(obs, header, payload, 1, dim)[0]
-            send(out, {"msg": "action", "t": header["t"], "action": action})
+            reply = {"msg": "action", "t": header["t"], "action": action}
+            if policy.last is not None:
+                frame, tokens, _ = policy.last
+                reply["weights"] = obs.weights(frame, tokens)
+            send(out, reply)
         elif kind == "batch":
             flat = [v for a in policy.act_batch(obs, header, payload, header["count"], dim) for v in a]
             send(out, {"msg": "actions", "t": header["t"][0], "count": header["count"], "action": flat})

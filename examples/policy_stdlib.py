@@ -61,6 +61,7 @@ class HandRule:
     def __init__(self, hello, lead, deadzone):
         self.h, self.w, self.c = hello["frame"]
         self.action = hello["action"]
+        self.tokens = hello["tokens"]
         self.lead = lead
         self.deadzone = deadzone
         self.last_ball = None
@@ -72,16 +73,38 @@ class HandRule:
         """Mean x of the pixels bright in all channels above the paddle."""
         mask = frame[: PADDLE_ROW * self.w * 3].translate(BRIGHT)
         xs = []
+        self.ball_y = None
+        ys = []
         i = mask.find(b"\x01\x01\x01")
         while i >= 0:
             if i % 3 == 0:
                 xs.append((i // 3) % self.w)
+                ys.append((i // 3) // self.w)
                 i = mask.find(b"\x01\x01\x01", i + 3)
             else:
                 i = mask.find(b"\x01\x01\x01", i + 1)
         if not xs:
             return None
+        self.ball_y = sum(ys) / len(ys)
         return sum(xs) / len(xs)
+
+    def weights(self, ball, paddle):
+        """Optional per-cell weights for the action reply: what the rule
+        looked at (the ball's cell and the paddle's), one per cell of the
+        frame, row after row."""
+        tk = self.tokens
+        rows, cols = tk["rows"], tk["cols"]
+        sy, sx = tk["stride"]
+        w = [0.0] * (rows * cols)
+
+        def mark(x, y, v):
+            r, c = min(int(y) // sy, rows - 1), min(int(x) // sx, cols - 1)
+            w[r * cols + c] += v
+        if ball is not None:
+            mark(ball, self.ball_y, 1.0)
+        if paddle is not None:
+            mark(paddle, PADDLE_ROW, 0.5)
+        return w
 
     def paddle_x(self, frame):
         """Centre of the pixels on the paddle row far from the row's median."""
@@ -101,6 +124,7 @@ class HandRule:
         if ball is not None and self.last_ball is not None:
             target = ball + self.lead * (ball - self.last_ball)
         self.last_ball = ball
+        self.last_weights = self.weights(ball, paddle)
         if target is None or paddle is None:
             move = 0.0
         else:
@@ -153,7 +177,9 @@ def main(argv):
         if kind == "start":
             policy.reset()
         elif kind == "step":
-            send(out, {"msg": "action", "t": header["t"], "action": policy.act(payload)})
+            action = policy.act(payload)
+            send(out, {"msg": "action", "t": header["t"], "action": action,
+                       "weights": policy.last_weights})
         elif kind == "batch":
             k = header["count"]
             flat = []

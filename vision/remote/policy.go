@@ -178,6 +178,11 @@ type Policy struct {
 	fault      *FaultError
 	closed     bool
 	batch      int // observations per batch message the policy offered (batch.go)
+
+	// weights sent with the last action (weights.go)
+	wbuf, wtok []float32
+	nW         int
+	haveW      bool
 }
 
 // Open starts (exec:) or connects to (tcp://) the policy named by target
@@ -654,7 +659,10 @@ func (p *Policy) Act(obs *vision.Observation, action []float64) error {
 	if err != nil || !ok {
 		return p.newFault("step", step, Shape, "action must be an array of numbers")
 	}
-	return p.check(step, vals, action)
+	if err := p.check(step, vals, action); err != nil {
+		return err
+	}
+	return p.takeWeights(step, obs)
 }
 
 // check validates vals against the action space and copies them into

@@ -154,6 +154,7 @@ type server struct {
 	obs     vision.Observation
 	out     []byte
 	bs      batchState
+	wbuf    []float32 // weights of the served policy (weights.go)
 }
 
 func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
@@ -194,7 +195,7 @@ func (s *server) step(br *bufio.Reader, bw *bufio.Writer) error {
 		}
 		b = appendJSONFloat(b, v)
 	}
-	b = append(b, "]}\n"...)
+	b = append(s.appendWeights(append(b, ']')), "}\n"...)
 	s.out = b
 	bw.Write(b)
 	return bw.Flush()
