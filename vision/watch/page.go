@@ -29,7 +29,7 @@ type pageData struct {
 	Caution                           string
 }
 
-func cssColour(r, g, b uint8) string { return fmt.Sprintf("rgb(%d,%d,%d)", r, g, b) }
+func cssColour(r, g, b uint8) string { return fmt.Sprintf("#%02x%02x%02x", r, g, b) }
 
 func (v *Viewer) page(w http.ResponseWriter, r *http.Request) {
 	sp := v.cfg.Game.Spec()

@@ -233,6 +233,9 @@ func TestPageEscapesUserStrings(t *testing.T) {
 			t.Fatalf("page loads something from elsewhere (%q)", ext)
 		}
 	}
+	if strings.Contains(page, "ZgotmplZ") {
+		t.Fatal("the template refused a value (ZgotmplZ on the page)")
+	}
 	if csp := resp.Header.Get("Content-Security-Policy"); !strings.Contains(csp, "default-src 'none'") {
 		t.Fatalf("no content security policy: %q", csp)
 	}
