@@ -7,6 +7,7 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 
 	"tilebench/patch"
@@ -108,7 +109,11 @@ func runExport(ctx *runContext, args []string) error {
 	sheetGrid := fs.Bool("sheet-grid", false, "draw the patch grid on the contact sheet (e.g. --sheet-grid)")
 	asJSON := fs.Bool("json", false, "print a machine-readable summary (\"format\": 1) on stdout (e.g. --json)")
 	maxPixels := fs.Int("max-pixels", frameio.MaxFramePixels, "pixel budget: the largest frame (width·height) read, checked from each file's header before decoding (e.g. --max-pixels 100000000)")
+	ov := addOverlayFlags(fs, true)
 	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if err := ov.parse("export"); err != nil {
 		return err
 	}
 	set := map[string]bool{}
@@ -122,6 +127,8 @@ func runExport(ctx *runContext, args []string) error {
 		return usagef("export: --in is required (a folder, .gif, .npy, - or builtin:NAME)")
 	case *out == "":
 		return usagef("export: --out is required")
+	case ov.on() && *unscramble != "":
+		return usagef("export: --overlay does not go with --unscramble (no policy saw those frames)")
 	case *crop && *unscramble == "":
 		return usagef("export: --crop-to-source needs --unscramble")
 	case !(*fps >= 1 && *fps <= 100):
@@ -142,6 +149,9 @@ func runExport(ctx *runContext, args []string) error {
 	formats, err := frameio.ParseFormats(*as)
 	if err != nil {
 		return usagef("export: --as: %v", err)
+	}
+	if ov.on() && slices.Contains(formats, frameio.AsNPY) {
+		return usagef("export: --overlay draws on pictures; leave npy out of --as (the .npy holds what the policy saw, unmarked)")
 	}
 	opt := frameio.Options{Frames: *nframes, Stdin: ctx.stdin, MaxPixels: *maxPixels}
 	if *size != "" {
@@ -248,9 +258,12 @@ func runExport(ctx *runContext, args []string) error {
 
 	bar := newProgress(ctx.stderr, info.Frames, "export")
 	var n int
-	if p != nil {
+	switch {
+	case p != nil && ov.on():
+		n, err = runExportOverlay(ov, r, g, p, man, outs, bar.Set)
+	case p != nil:
 		n, err = frameio.Transform(r, patch.NewTokenizer(g), p, man, outs, bar.Set)
-	} else {
+	default:
 		n, err = frameio.Invert(r, man, *crop, outs, bar.Set)
 	}
 	bar.Done()

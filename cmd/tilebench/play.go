@@ -141,7 +141,11 @@ func runPlay(ctx *runContext, args []string) error {
 	fps := fs.Float64("fps", 20, "GIF frames a second, 1 to 100 (e.g. --fps 10)")
 	asJSON := fs.Bool("json", false, "print the episodes and summary as one JSON document (\"format\": 1) (e.g. --json)")
 	ext := addExternalFlags(fs)
+	ov := addOverlayFlags(fs, false)
 	if err := parseFlags(fs, args); err != nil {
+		return err
+	}
+	if err := ov.parse("play"); err != nil {
 		return err
 	}
 	switch {
@@ -196,6 +200,10 @@ func runPlay(ctx *runContext, args []string) error {
 		return err
 	}
 	defer closePolicy(pol)
+	paint, err := ov.newPainter("play", pol, *policy)
+	if err != nil {
+		return err
+	}
 	pipe, err := patch.NewPipeline(grid, patch.Spec{Corrupt: *corrupt})
 	if err != nil {
 		return fmt.Errorf("play: %w", err)
@@ -232,11 +240,15 @@ func runPlay(ctx *runContext, args []string) error {
 		}
 		if gw != nil || pngs != nil {
 			hook = func(t int, _ *image.RGBA, obs *vision.Observation, _ *patch.FrameRecord, _ []float64) {
+				frame := obs.Frame
+				if paint != nil {
+					frame = paint.seen(obs)
+				}
 				if hookErr == nil && gw != nil {
-					hookErr = gw.Add(obs.Frame)
+					hookErr = gw.Add(frame)
 				}
 				if hookErr == nil && pngs != nil {
-					hookErr = pngs.Add(t, obs.Frame)
+					hookErr = pngs.Add(t, frame)
 				}
 			}
 		}
