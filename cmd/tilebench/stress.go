@@ -55,7 +55,7 @@ type studyFlags struct {
 	episodes, workers, resamples, shards                *int
 	seed                                                *uint64
 	threshold                                           *float64
-	out, shard                                          *string
+	out, shard, overlay                                 *string
 	resume, asJSON                                      *bool
 }
 

@@ -223,3 +223,19 @@ func BenchmarkDraw96(b *testing.B) {
 		d.Draw(img, g, cells, Spec{Heat: true, Top: 5})
 	}
 }
+
+func TestLegend(t *testing.T) {
+	img := Legend(6)
+	if img.Rect.Dx() != 48 || img.Rect.Dy() != 15 {
+		t.Fatalf("legend is %v", img.Rect)
+	}
+	// Left end dimmed towards ink, right end amber-washed: the tint of
+	// weights 0 and 1 on grey (see TestHeatTint for the formula).
+	left, right := img.RGBAAt(1, 1), img.RGBAAt(46, 1)
+	if left.R >= LegendGrey.R || right.R <= LegendGrey.R || right.B >= LegendGrey.B {
+		t.Fatalf("ramp ends %v and %v on grey %v", left, right, LegendGrey)
+	}
+	if img.RGBAAt(21, 9) != Ink || img.RGBAAt(22, 10) != Ring {
+		t.Fatalf("outline sample: %v %v", img.RGBAAt(21, 9), img.RGBAAt(22, 10))
+	}
+}

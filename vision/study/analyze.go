@@ -773,6 +773,8 @@ type StripMeta struct {
 	Steps  []int `json:"steps"`
 	// Width and Height are the size of one column; Gap the border.
 	Width, Height, Gap int
+	// Overlay is the attention overlay drawn on the strip ("" none).
+	Overlay string `json:"overlay,omitempty"`
 }
 
 // maxStripPixels bounds the strip images read back for the report.
@@ -857,6 +859,7 @@ func (a *Analysis) stripSections(rd *report.Data, dir string) {
 			st.Frames = append(st.Frames, report.Frame{Label: fmt.Sprintf("%s, step %d", fmtG(cv.Severities[k]), m.Steps[col]), Image: stripFrame(img, m, col, 1)})
 		}
 		if len(st.Frames) > 0 {
+			addLegend(&st, dir, cv.Cells)
 			rd.Strips = append(rd.Strips, st)
 			shown++
 		}

@@ -54,6 +54,10 @@ type Definition struct {
 	// Strips lists the steps at which the frames the policy saw are kept
 	// for the report (episode 0 of every cell). Default 0, 50, 100, 200, 400.
 	Strips []int `toml:"strips" json:"strips"`
+	// Overlay, when set, draws the policy's attention on the strips:
+	// "attention", "top:K" or "attention+top:K" (vision/overlay). It is a
+	// picture option: the study's fingerprint does not include it.
+	Overlay string `toml:"overlay" json:"-"`
 }
 
 // PolicyDef names the policy of a study.

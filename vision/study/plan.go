@@ -14,6 +14,7 @@ import (
 	"tilebench/games"
 	"tilebench/patch"
 	"tilebench/vision"
+	"tilebench/vision/overlay"
 )
 
 // Defaults used by Normalize.
@@ -135,6 +136,9 @@ func (d *Definition) Normalize() error {
 	}
 	if len(d.Strips) > 16 {
 		return fieldErr("strips", fmt.Errorf("%d steps: at most 16", len(d.Strips)))
+	}
+	if _, err := overlay.Parse(d.Overlay); err != nil {
+		return fieldErr("overlay", err)
 	}
 	_, err := d.Cells()
 	return err

@@ -434,6 +434,7 @@ func worker(ctx context.Context, p *Plan, opt Options, w int, jobs <-chan unit, 
 			var strip *stripRecorder
 			if u.ep == 0 {
 				strip = newStripRecorder(p.Def.Strips)
+				strip.withOverlay(p.Def.Overlay, player)
 			}
 			res, err = safePlay(player, rec.GameSeed, rec.PipeSeed, strip.hook())
 			if err == nil && strip != nil {
@@ -496,6 +497,7 @@ type stripRecorder struct {
 	kept  []int
 	raw   []*image.RGBA
 	seen  []*image.RGBA
+	ov    *stripOverlay // nil: no overlay (overlay.go)
 }
 
 func newStripRecorder(steps []int) *stripRecorder {
@@ -506,9 +508,13 @@ func (s *stripRecorder) hook() vision.StepHook {
 	if s == nil || len(s.steps) == 0 {
 		return nil
 	}
-	return func(t int, raw *image.RGBA, obs *vision.Observation, _ *patch.FrameRecord, _ []float64) {
+	return func(t int, raw *image.RGBA, obs *vision.Observation, rec *patch.FrameRecord, _ []float64) {
 		for _, st := range s.steps {
 			if st == t {
+				if s.ov != nil {
+					s.keepOverlaid(t, raw, obs, rec)
+					return
+				}
 				s.kept = append(s.kept, t)
 				s.raw = append(s.raw, cloneRGBA(raw))
 				if obs.Frame != nil {
@@ -557,7 +563,7 @@ func (s *stripRecorder) write(path string) error {
 	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
 		return err
 	}
-	meta, err := jsonLine(StripMeta{Format: 1, Steps: s.kept, Width: cw, Height: ch, Gap: gap})
+	meta, err := jsonLine(StripMeta{Format: 1, Steps: s.kept, Width: cw, Height: ch, Gap: gap, Overlay: s.overlayName()})
 	if err != nil {
 		return err
 	}
