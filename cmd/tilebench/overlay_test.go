@@ -117,3 +117,29 @@ func TestPlayOverlayGIF(t *testing.T) {
 		t.Fatalf("%d ring pixels on the frame, want the outlines of 4 patches", ring)
 	}
 }
+
+func TestStressOverlayStrips(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "st")
+	code, _, stderr := runCLI(t, "", "stress", "--game", "paddle", "--policy", shippedPolicy("paddle-attention-p7.safetensors"),
+		"--occlude", "random:0,random:0.5", "--episodes", "1", "--resamples", "200", "--workers", "1", "--overlay", "top:2", "--out", out)
+	if code != 0 {
+		t.Fatalf("stress: %d %s", code, stderr)
+	}
+	meta, err := os.ReadFile(filepath.Join(out, "strips", "cell-0001.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(meta), `"overlay":"top:2"`) {
+		t.Fatalf("strip meta %s", meta)
+	}
+	page, err := os.ReadFile(filepath.Join(out, "report.html"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(string(page), "Overlay top:2") {
+		t.Fatal("the report does not explain the overlay")
+	}
+	if code, _, _ := runCLI(t, "", "stress", "--game", "paddle", "--overlay", "glow", "--out", filepath.Join(t.TempDir(), "x")); code != 2 {
+		t.Fatalf("a bad --overlay: exit %d, want 2", code)
+	}
+}

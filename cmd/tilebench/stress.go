@@ -93,6 +93,7 @@ func addStudyFlags(fs *flag.FlagSet, defPolicy, defPatch string, defEpisodes int
 		shard:        fs.String("shard", "", "run only shard `i/n` of the study (0 ≤ i < n); default from SLURM_ARRAY_TASK_ID/SLURM_ARRAY_TASK_COUNT or JOB_COMPLETION_INDEX with --shards"),
 		shards:       fs.Int("shards", 0, "number of shards when the index comes from JOB_COMPLETION_INDEX (a Kubernetes indexed Job's completions)"),
 		asJSON:       fs.Bool("json", false, "print a machine-readable summary"),
+		overlay:      fs.String("overlay", "", "draw the policy's attention on the report's strips: attention, top:K or attention+top:K"),
 	}
 }
 
@@ -127,6 +128,7 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	useStr("policy-start-timeout", &d.Policy.StartTimeout, *sf.startTO)
 	useStr("fill", &d.Axes.Fill, *sf.fill)
 	useStr("seeds", &d.Seeds, *sf.seeds)
+	useStr("overlay", &d.Overlay, *sf.overlay)
 	useAxis("patch", &d.Patch, *sf.patch)
 	useAxis("occlude", &d.Axes.Occlude, *sf.occlude)
 	useAxis("scramble", &d.Axes.Scramble, *sf.scramble)

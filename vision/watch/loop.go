@@ -72,10 +72,8 @@ type loop struct {
 	maxSteps int
 	started  bool
 	// encoding
-	buf  bytes.Buffer
 	enc  png.Encoder
 	pngs [4]bytes.Buffer
-	js   []byte
 }
 
 func newLoop(cfg *Config) (*loop, error) {
