@@ -369,9 +369,11 @@ func sampleInside(pix []uint32, ww int, out []byte, outStride, W, H int, st samp
 //
 //go:noinline
 func sampleRow(base unsafe.Pointer, stride uintptr, o unsafe.Pointer, n int, u, v, du, dv int32) {
-	for ; n > 0; n-- {
-		*(*uint32)(o) = *(*uint32)(unsafe.Add(base, uintptr(v>>16)*stride+uintptr(u>>16)*4))
-		o = unsafe.Add(o, 4)
+	// The output address is computed from o each time rather than
+	// advanced, so that no pointer ever points past the row's end (the
+	// race detector's pointer checks refuse that).
+	for i := 0; i < n; i++ {
+		*(*uint32)(unsafe.Add(o, 4*i)) = *(*uint32)(unsafe.Add(base, uintptr(v>>16)*stride+uintptr(u>>16)*4))
 		u += du
 		v += dv
 	}
