@@ -319,3 +319,25 @@ func TestRefBrowser(t *testing.T) {
 	f.Close()
 	t.Logf("screenshot kept at %s", shot)
 }
+
+// A hostile policy name is shown as text in a real browser: no markup it
+// holds runs.
+func TestRefBrowserHostileName(t *testing.T) {
+	b := startBrowser(t)
+	hostile := `<img src=x onerror="window.pwned=1"><script>window.pwned=2</script>`
+	r := start(t, Config{PolicyName: hostile, Spec: patch.Spec{Scramble: "full"}})
+	b.open(t, r.url)
+	b.waitFor(t, `document.getElementById("stepn").textContent`, func(v string) bool {
+		n, err := strconv.Atoi(v)
+		return err == nil && n >= 1
+	}, "frames")
+	if got := b.eval(t, `document.getElementById("policy").textContent`); got != hostile {
+		t.Fatalf("policy shown as %q", got)
+	}
+	if got := b.eval(t, `String(window.pwned)`); got != "undefined" {
+		t.Fatalf("injected markup ran: window.pwned = %s", got)
+	}
+	if got := b.eval(t, `document.getElementById("noweights").hidden ? "hidden" : "shown"`); got != "shown" {
+		t.Fatalf("the expert gives no weights, but the page does not say so (%s)", got)
+	}
+}
