@@ -86,6 +86,9 @@ func runWatch(ctx *runContext, args []string) error {
 	if err != nil {
 		return usagef("watch: --listen: %v", err)
 	}
+	if *listen != "" {
+		v.AllowHost(*listen) // the name the user gave, as the browser will send it
+	}
 	if warning != "" {
 		fmt.Fprintln(ctx.stderr, "tilebench: "+warning)
 	}

@@ -163,7 +163,12 @@ func urlHost(host string, bound net.Addr) string {
 // loop (a policy fault, say) or of the server.
 func (v *Viewer) Serve(ctx context.Context, ln net.Listener) error {
 	v.mu.Lock()
-	v.hosts = allowedHosts(ln.Addr())
+	if v.hosts == nil {
+		v.hosts = map[string]bool{}
+	}
+	for h := range allowedHosts(ln.Addr()) {
+		v.hosts[h] = true
+	}
 	v.addr = ln.Addr().String()
 	v.server = &http.Server{Handler: v.Handler(), ReadHeaderTimeout: 5 * time.Second}
 	srv := v.server
@@ -195,7 +200,8 @@ func (v *Viewer) Serve(ctx context.Context, ln net.Listener) error {
 }
 
 // allowedHosts lists the Host header values that name the bound address:
-// its IP and port, and for loopback also localhost.
+// its IP and port, for loopback also localhost, and for a wildcard
+// address every address of this machine's interfaces.
 func allowedHosts(a net.Addr) map[string]bool {
 	h := map[string]bool{}
 	tcp, ok := a.(*net.TCPAddr)
@@ -205,7 +211,16 @@ func allowedHosts(a net.Addr) map[string]bool {
 	}
 	port := strconv.Itoa(tcp.Port)
 	h[net.JoinHostPort(tcp.IP.String(), port)] = true
-	if tcp.IP.IsLoopback() {
+	if tcp.IP.IsUnspecified() {
+		if addrs, err := net.InterfaceAddrs(); err == nil {
+			for _, ad := range addrs {
+				if ipn, ok := ad.(*net.IPNet); ok {
+					h[net.JoinHostPort(ipn.IP.String(), port)] = true
+				}
+			}
+		}
+	}
+	if tcp.IP.IsLoopback() || tcp.IP.IsUnspecified() {
 		h[net.JoinHostPort("localhost", port)] = true
 		h[net.JoinHostPort("127.0.0.1", port)] = true
 		h[net.JoinHostPort("::1", port)] = true
@@ -214,7 +229,8 @@ func allowedHosts(a net.Addr) map[string]bool {
 }
 
 // AllowHost also accepts requests naming host (HOST:PORT), for a viewer
-// reached under a name of its own (say through an SSH tunnel).
+// reached under a name of its own (the name given to --listen, or a
+// tunnel's). Call it before Serve or while serving.
 func (v *Viewer) AllowHost(host string) {
 	v.mu.Lock()
 	defer v.mu.Unlock()

@@ -12,6 +12,7 @@ import (
 	"net/url"
 	"path/filepath"
 	"runtime"
+	"strconv"
 	"strings"
 	"sync"
 	"sync/atomic"
@@ -206,6 +207,44 @@ func TestGuardRefusesForeignHostAndOrigin(t *testing.T) {
 		resp.Body.Close()
 		if resp.StatusCode != c.want {
 			t.Errorf("%s %s Host %q Origin %q Sec-Fetch-Site %q: status %d, want %d", c.method, c.path, c.host, c.origin, c.site, resp.StatusCode, c.want)
+		}
+	}
+}
+
+// On a wildcard address (given explicitly) the machine's own addresses
+// and a name allowed by AllowHost pass the guard; others do not.
+func TestGuardOnWildcardAddress(t *testing.T) {
+	g, grid := paddle(t)
+	ex, _ := vision.NewExpertPolicy(g)
+	v, err := New(Config{Game: g, Grid: grid, Policy: ex})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ln, _, warn, err := Listen("0.0.0.0:0")
+	if err != nil {
+		t.Skipf("cannot listen on all interfaces: %v", err)
+	}
+	if warn == "" {
+		t.Fatal("no warning for a wildcard address")
+	}
+	v.AllowHost("viewer.example:1234")
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- v.Serve(ctx, ln) }()
+	defer func() { cancel(); <-done }()
+	port := strconv.Itoa(ln.Addr().(*net.TCPAddr).Port)
+	for host, want := range map[string]int{
+		"127.0.0.1:" + port: 200, "localhost:" + port: 200, "viewer.example:1234": 200, "evil.example:" + port: 403,
+	} {
+		req, _ := http.NewRequest("GET", "http://127.0.0.1:"+port+"/", nil)
+		req.Host = host
+		resp, err := http.DefaultClient.Do(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		resp.Body.Close()
+		if resp.StatusCode != want {
+			t.Errorf("Host %q: status %d, want %d", host, resp.StatusCode, want)
 		}
 	}
 }
