@@ -274,8 +274,13 @@ func (l *loop) publish(h *hub) error {
 // run plays until ctx is done or a step fails, at cfg.FPS steps a second
 // while running, one step per "step" command while paused.
 func (l *loop) run(ctx context.Context, cmds <-chan command, h *hub) error {
+	// Steps keep to a schedule, one every period: a step that comes late
+	// (the machine was busy) is made up at once, so the rate holds on
+	// average; after a long stall (or a pause) the schedule starts anew
+	// rather than rushing through the backlog.
 	period := time.Duration(float64(time.Second) / l.cfg.FPS)
-	tick := time.NewTicker(period)
+	due := time.Now().Add(period)
+	tick := time.NewTimer(period)
 	defer tick.Stop()
 	l.begin(l.cfg.Seed)
 	next := l.cfg.Seed
@@ -289,8 +294,13 @@ func (l *loop) run(ctx context.Context, cmds <-chan command, h *hub) error {
 		select {
 		case <-ctx.Done():
 			return ctx.Err()
-		case <-tick.C:
+		case now := <-tick.C:
 			doStep = !paused
+			due = due.Add(period)
+			if now.Sub(due) > 5*period || paused {
+				due = now.Add(period)
+			}
+			tick.Reset(max(0, time.Until(due)))
 		case <-resend.C:
 			if paused && l.snap.Step >= 0 {
 				if err := l.publish(h); err != nil {
