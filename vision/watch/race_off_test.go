@@ -1,0 +1,7 @@
+//go:build !race
+
+package watch
+
+// raceOn is true under the race detector, whose overhead makes rates
+// meaningless.
+const raceOn = false
