@@ -3,6 +3,7 @@ package main
 import (
 	"bufio"
 	"context"
+	"net"
 	"net/http"
 	"os"
 	"path/filepath"
@@ -15,6 +16,8 @@ import (
 	"time"
 
 	"tilebench/internal/reftest"
+	"tilebench/vision/nets"
+	"tilebench/vision/remote"
 )
 
 // syncBuffer is a bytes buffer safe to read while a command writes it.
@@ -158,5 +161,40 @@ func TestWatchStopEndsExternalProcessGroup(t *testing.T) {
 	}
 	if _, err := http.Get(url); err == nil {
 		t.Fatal("server still answering after Ctrl-C")
+	}
+}
+
+// A policy served over TCP (remote.Serve with the shipped p8 net) sends
+// its weights with each action; watch draws them.
+func TestWatchTCPPolicyWeights(t *testing.T) {
+	n, err := nets.Load(shippedPolicy("drive-attention-p8.safetensors"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	served := make(chan error, 1)
+	go func() {
+		c, err := ln.Accept()
+		if err != nil {
+			served <- err
+			return
+		}
+		defer c.Close()
+		served <- remote.Serve(c, c, n, remote.ServeOptions{Name: "p8 over tcp"})
+	}()
+	url, stop := startWatch(t, "--game", "drive", "--patch", "8", "--policy", "tcp://"+ln.Addr().String(),
+		"--policy-obs", "tokens", "--policy-dtype", "float32", "--scramble", "full")
+	if ev := firstEvent(t, url); !strings.Contains(ev, `"has_weights":true`) {
+		t.Fatalf("no weights over tcp: %.300s", ev)
+	}
+	if code := stop(); code != 0 {
+		t.Fatalf("exit %d", code)
+	}
+	if err := <-served; err != nil {
+		t.Fatalf("serve: %v", err)
 	}
 }
