@@ -50,6 +50,7 @@ func runWatch(ctx *runContext, args []string) error {
 	every := fs.Int("every", 0, "draw a new permutation every T steps; 0 draws one per episode (e.g. --every 10)")
 	occlude := fs.String("occlude", "none", "hide tokens: none, random:R, block:R, bands:R, sweep:R or mask:FILE.png; the page changes R live (e.g. --occlude random:0.3)")
 	fill := fs.String("fill", "black", "what an occluded token becomes: black, mean, noise or drop (e.g. --fill noise)")
+	corrupt := fs.String("corrupt", "", corruptFlagHelp)
 	fps := fs.Float64("fps", 20, "steps a second, 1 to 60 (e.g. --fps 10)")
 	ov := fs.String("overlay", "attention+top:3", "what the attention panels draw: attention, top:K or attention+top:K (e.g. --overlay top:5)")
 	listen := fs.String("listen", "", "address to serve on; default 127.0.0.1 on a free port. Another interface only when given here, with a warning (e.g. --listen 127.0.0.1:8080)")
@@ -69,7 +70,7 @@ func runWatch(ctx *runContext, args []string) error {
 	if err != nil {
 		return usagef("watch: --overlay: %v", err)
 	}
-	spec := patch.Spec{Scramble: *scramble, Every: *every, Occlude: *occlude, Fill: *fill}
+	spec := patch.Spec{Scramble: *scramble, Every: *every, Occlude: *occlude, Fill: *fill, Corrupt: *corrupt}
 	if err := spec.Check(); err != nil {
 		return usagef("watch: %v", err)
 	}

@@ -114,9 +114,9 @@ func TestWatchUsageErrors(t *testing.T) {
 
 func TestWatchServesWeightsPolicy(t *testing.T) {
 	url, stop := startWatch(t, "--game", "drive", "--policy", filepath.Join(reftest.Root(), "testdata", "policies", "drive-attention-p8.safetensors"),
-		"--occlude", "random:0.3")
+		"--occlude", "random:0.3", "--corrupt", "blur:s2")
 	ev := firstEvent(t, url)
-	if !strings.Contains(ev, `"has_weights":true`) || !strings.Contains(ev, "random:0.3") {
+	if !strings.Contains(ev, `"has_weights":true`) || !strings.Contains(ev, "random:0.3") || !strings.Contains(ev, "blur") {
 		t.Fatalf("event %.300s", ev)
 	}
 	if code := stop(); code != 0 {

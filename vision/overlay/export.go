@@ -49,7 +49,7 @@ func Export(r frameio.Reader, tok *patch.Tokenizer, p *patch.Pipeline, m *patch.
 		if err != nil {
 			return t, err
 		}
-		if err := tok.Tokenize(img, src); err != nil {
+		if err := p.TokenizeFrame(t, tok, img, src); err != nil {
 			return t, fmt.Errorf("%s: frame %d: %w", info.Name, t, err)
 		}
 		if err := p.Apply(t, src, dst, &rec); err != nil {

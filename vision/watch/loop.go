@@ -158,7 +158,7 @@ func (l *loop) step() error {
 	s := &l.snap
 	t := s.Step + 1
 	l.g.Render(s.Raw)
-	if err := l.tok.Tokenize(s.Raw, l.clean); err != nil {
+	if err := l.pipe.TokenizeFrame(t, l.tok, s.Raw, l.clean); err != nil {
 		return fmt.Errorf("step %d: %w", t, err)
 	}
 	if err := l.pipe.Apply(t, l.clean, l.tokens, &l.rec); err != nil {
