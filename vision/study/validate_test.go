@@ -95,7 +95,10 @@ func TestWeightsGameMismatch(t *testing.T) {
 	if err := weights.WriteFile(other, f); err != nil {
 		t.Fatal(err)
 	}
-	if err := CheckGeometry(other, n, g.Spec(), n.Grid()); err == nil || !strings.Contains(err.Error(), "trained on game drive, this run plays paddle") {
+	if err := CheckGeometry(other, n, g.Spec(), n.Grid()); err != nil {
+		t.Fatalf("geometry alone no longer checks the game: %v", err)
+	}
+	if err := CheckGame(other, g.Spec()); err == nil || !strings.Contains(err.Error(), "trained on game drive, this run plays paddle") {
 		t.Fatalf("game mismatch: %v", err)
 	}
 }
