@@ -63,7 +63,7 @@ func vary(name, doc, group string, edit func(*Config)) games.Variation[Config] {
 var Variations = games.VariationSet[Config]{
 	vary("glacier", "held-out palette: slate ground, lavender road, coral edges", "palette", func(c *Config) { c.Palette = Palettes[1] }),
 	vary("saffron", "held-out palette: ochre ground, deep teal road, cream edges", "palette", func(c *Config) { c.Palette = Palettes[2] }),
-	vary("nocturne", "held-out palette: indigo ground, rust road, gold edges", "palette", func(c *Config) { c.Palette = Palettes[3] }),
+	vary("ember", "held-out palette: indigo ground, rust road, gold edges", "palette", func(c *Config) { c.Palette = Palettes[3] }),
 	vary("narrow", "road 6.5 m wide instead of 9 m", "road", func(c *Config) { c.Track.Width = 6.5 }),
 	vary("broad", "road 12 m wide instead of 9 m", "road", func(c *Config) { c.Track.Width = 12 }),
 	vary("twisty", "wave-shaped circuits: 16 points bent into ovals, beans and peanuts, bends both ways", "circuit", func(c *Config) {

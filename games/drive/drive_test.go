@@ -384,7 +384,7 @@ func TestGoldenFrames(t *testing.T) {
 		{Variation: "", Seed: games.HeldOut(1), Steps: 200},
 		{Variation: "glacier+clutter", Seed: games.HeldOut(2), Steps: 150},
 		{Variation: "saffron+grain", Seed: games.HeldOut(3), Steps: 90},
-		{Variation: "nocturne+narrow", Seed: games.HeldOut(4), Steps: 300},
+		{Variation: "ember+narrow", Seed: games.HeldOut(4), Steps: 300},
 		{Variation: "broad+small", Seed: games.HeldOut(5), Steps: 60},
 		{Variation: "large", Seed: games.Train(6), Steps: 120},
 		{Variation: "twisty", Seed: games.HeldOut(7), Steps: 250},

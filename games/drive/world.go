@@ -51,7 +51,7 @@ var Palettes = []Palette{
 		Shapes: [3]color.RGBA{rgb(200, 70, 40), rgb(90, 60, 20), rgb(230, 190, 90)},
 	},
 	{
-		Name: "nocturne", Terrain: rgb(20, 18, 44), Texture: rgb(42, 36, 80),
+		Name: "ember", Terrain: rgb(20, 18, 44), Texture: rgb(42, 36, 80),
 		Road: rgb(140, 58, 44), Seam: rgb(166, 80, 60), Edge: rgb(234, 196, 106),
 		Body: rgb(236, 236, 240), Cabin: rgb(60, 200, 210),
 		Shapes: [3]color.RGBA{rgb(80, 60, 140), rgb(200, 90, 160), rgb(60, 110, 120)},

@@ -17,7 +17,7 @@ func grow(buf []float32, n int) []float32 {
 // b of length out.
 type linear struct {
 	in, out    int
-	woff, boff int // offsets of W and b in the net's flat parameters
+	woff, boff int // offsets of the weights and the bias in the net's flat parameters
 	w, b       []float32
 	gw, gb     []float32
 	needDX     bool // compute the input gradient in backward
