@@ -95,3 +95,7 @@ func (p *ExpertPolicy) Act(_ *Observation, action []float64) error {
 	p.expert.Act(action)
 	return nil
 }
+
+// Caution goes with every result that could lead someone to deploy a
+// policy on a vehicle or robot: reports, summaries and trained weights.
+const Caution = "Simulated robustness is not a safety certification; defer to the applicable safety standards, local regulations and licensed practice."

@@ -9,6 +9,7 @@ import (
 	"testing"
 
 	"tilebench/games"
+	"tilebench/vision/policies"
 )
 
 // --corrupt on export: the frames change, the manifest records the list
@@ -63,7 +64,7 @@ func TestVerifyCorruptShift(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	p := autoPatch(g.Spec().Width, g.Spec().Height)
+	p := policies.AutoPatch(g.Spec().Width, g.Spec().Height)
 	if g.Spec().Width%p != 0 || g.Spec().Height%p != 0 {
 		t.Skip("no default patch divides the frame")
 	}

@@ -3,16 +3,14 @@ package main
 import (
 	"encoding/json"
 	"fmt"
-	"html"
-	"io"
 	"path/filepath"
 	"strconv"
-	"strings"
 	"time"
 
-	"tilebench/internal/atomicfile"
+	"tilebench/vision/policies"
 	"tilebench/vision/report"
 	"tilebench/vision/study"
+	"tilebench/vision/study/runner"
 )
 
 func init() {
@@ -51,7 +49,7 @@ func demoStudies(refDir string, episodes int) []demoStudy {
 		Policy: study.PolicyDef{Source: "fresh", Family: "attention"},
 		Axes:   study.Axes{Occlude: study.Axis{"none,random:0.5"}, Scramble: study.Axis{"none,full"}},
 		Stats:  study.StatsDef{Resamples: 1000}}
-	if t, ok := study.ReferencePolicies(refDir, "drive", "attention", []int{4, 8, 16}); ok {
+	if t, ok := runner.ReferencePolicies(refDir, "drive", "attention", []int{4, 8, 16}); ok {
 		sizes.Policy.Source = t
 	}
 	stress := func(name, game string, p int) study.Definition {
@@ -60,8 +58,8 @@ func demoStudies(refDir string, episodes int) []demoStudy {
 			Policy: study.PolicyDef{Source: "fresh", Family: "attention"},
 			Axes:   study.Axes{Occlude: study.Axis{"random:0:0.75:0.25,block:0.4"}, Scramble: study.Axis{"none,full"}},
 			Stats:  study.StatsDef{Resamples: 1000}}
-		if t, ok := study.ReferencePolicies(refDir, game, "attention", []int{p}); ok {
-			d.Policy.Source = study.PolicyPath(t, p)
+		if t, ok := runner.ReferencePolicies(refDir, game, "attention", []int{p}); ok {
+			d.Policy.Source = policies.Expand(t, p)
 		}
 		return d
 	}
@@ -101,7 +99,7 @@ func runDemo(ctx *runContext, args []string) error {
 		if err != nil {
 			return err
 		}
-		if err := study.CheckDir(p, filepath.Join(*out, studies[i].dir), true, study.Shard{}); err != nil {
+		if err := runner.CheckDir(p, filepath.Join(*out, studies[i].dir), true, study.Shard{}); err != nil {
 			return fmt.Errorf("%w (demo reuses its own folders only)", err)
 		}
 		plans[i] = p
@@ -113,16 +111,8 @@ func runDemo(ctx *runContext, args []string) error {
 	untrained := false
 	for i, st := range studies {
 		p, dir := plans[i], filepath.Join(*out, st.dir)
-		if _, err := runPlan(sctx, ctx, p, dir, true, study.Shard{}, cmd, st.def.Name); err != nil {
-			return err
-		}
-		var err error
-		if st.def.Kind == "sizes" {
-			err = study.FinishSizes(p, dir)
-		} else {
-			err = study.WriteReport(dir)
-		}
-		if err != nil {
+		opt := runner.Options{Dir: dir, Workers: p.Def.Workers, Resume: true, Command: cmd}
+		if _, err := runWithProgress(sctx, ctx, p, opt, st.def.Name); err != nil {
 			return err
 		}
 		reports = append(reports, filepath.Join(dir, "report.html"))
@@ -152,24 +142,13 @@ func runDemo(ctx *runContext, args []string) error {
 	return nil
 }
 
+// writeDemoIndex writes the page that links to the demo's reports.
 func writeDemoIndex(path string, studies []demoStudy, plans []*study.Plan) error {
-	return atomicfile.Write(path, func(w io.Writer) error {
-		var items strings.Builder
-		for i, st := range studies {
-			p := plans[i]
-			fmt.Fprintf(&items, "<li><a href=\"%s/report.html\">%s</a>: %s, %d cells × %d episodes, policy %s</li>\n",
-				html.EscapeString(st.dir), html.EscapeString(st.title), html.EscapeString(p.Def.Game), len(p.Cells), p.Def.Episodes,
-				html.EscapeString(p.Def.Policy.Source))
-		}
-		_, err := fmt.Fprintf(w, `<!doctype html>
-<html lang="en"><head><meta charset="utf-8"><title>tilebench demo</title>
-<style>body{font-family:system-ui,sans-serif;max-width:44em;margin:2em auto;padding:0 1em;color:#1d2330}a{color:#1f5fa8}.c{border-left:4px solid #b06a00;padding:.5em 1em;background:#fff6e8}</style></head>
-<body><h1>tilebench demo</h1>
-<ul>
-%s</ul>
-<p class="c">%s</p>
-</body></html>
-`, items.String(), html.EscapeString(report.Caution))
-		return err
-	})
+	var entries []report.IndexEntry
+	for i, st := range studies {
+		p := plans[i]
+		entries = append(entries, report.IndexEntry{Href: st.dir + "/report.html", Title: st.title,
+			About: fmt.Sprintf("%s, %d cells × %d episodes, policy %s", p.Def.Game, len(p.Cells), p.Def.Episodes, p.Def.Policy.Source)})
+	}
+	return report.WriteIndex(path, "tilebench demo", entries)
 }

@@ -14,6 +14,7 @@ import (
 	"strings"
 
 	"tilebench/internal/atomicfile"
+	"tilebench/vision/policies"
 )
 
 // command is one subcommand. Each lives in a file of its own and registers
@@ -57,11 +58,64 @@ func newFlags(ctx *runContext, name, usage string) *flag.FlagSet {
 	fs.SetOutput(io.Discard)
 	fs.Usage = func() {
 		fmt.Fprintf(ctx.stdout, "usage: tilebench %s\n\n", usage)
-		fs.SetOutput(ctx.stdout)
-		fs.PrintDefaults()
-		fs.SetOutput(io.Discard)
+		printDefaults(ctx.stdout, fs)
 	}
 	return fs
+}
+
+// hidden holds the old spellings of options, kept working but not shown
+// in -help: flag set → old name → new name.
+var hidden = map[*flag.FlagSet]map[string]string{}
+
+// alias declares old as a hidden second name of the option new (already
+// declared on fs), so that command lines written before a rename work.
+func alias(fs *flag.FlagSet, old, new string) {
+	f := fs.Lookup(new)
+	fs.Var(f.Value, old, "old name of --"+new)
+	if hidden[fs] == nil {
+		hidden[fs] = map[string]string{}
+	}
+	hidden[fs][old] = new
+}
+
+// printDefaults is flag.PrintDefaults without the hidden aliases.
+func printDefaults(w io.Writer, fs *flag.FlagSet) {
+	fs.VisitAll(func(f *flag.Flag) {
+		if _, h := hidden[fs][f.Name]; h {
+			return
+		}
+		name, usage := flag.UnquoteUsage(f)
+		line := "  -" + f.Name
+		if name != "" {
+			line += " " + name
+		}
+		if len(line) <= 4 { // one-letter bool flags keep usage on the line
+			line += "\t"
+		} else {
+			line += "\n    \t"
+		}
+		line += strings.ReplaceAll(usage, "\n", "\n    \t")
+		if d := f.DefValue; d != "" && d != "0" && d != "false" && !isZeroDuration(d) {
+			if _, isString := f.Value.(interface{ IsBoolFlag() bool }); !isString && isStringFlag(f) {
+				line += fmt.Sprintf(" (default %q)", d)
+			} else {
+				line += fmt.Sprintf(" (default %v)", d)
+			}
+		}
+		fmt.Fprintln(w, line)
+	})
+}
+
+func isZeroDuration(d string) bool { return d == "0s" }
+
+// isStringFlag reports whether f holds a plain string (defaults quoted).
+func isStringFlag(f *flag.Flag) bool {
+	_, ok := f.Value.(flag.Getter)
+	if !ok {
+		return false
+	}
+	_, isStr := f.Value.(flag.Getter).Get().(string)
+	return isStr
 }
 
 // parseFlags parses args into fs, turning flag errors into usage errors.
@@ -168,7 +222,8 @@ func finish(ctx *runContext, err error) int {
 	msg := strings.ReplaceAll(err.Error(), "\n", " ")
 	fmt.Fprintf(ctx.stderr, "tilebench: %s\n", msg)
 	var u usageError
-	if errors.As(err, &u) {
+	var se *policies.SourceError
+	if errors.As(err, &u) || errors.As(err, &se) {
 		return 2
 	}
 	var x exitError

@@ -4,8 +4,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"path/filepath"
-
-	"tilebench/vision/study"
+	"tilebench/vision/study/runner"
 )
 
 func init() {
@@ -37,7 +36,7 @@ func runMerge(ctx *runContext, args []string) error {
 	if isProbeDir(fs.Arg(1)) { // probe shards (probe.go)
 		return runProbeMerge(ctx, append([]string{"--out", out}, fs.Args()[1:]...))
 	}
-	mo, err := study.MergeWith(out, fs.Args()[1:], study.MergeOptions{WriteReport: true, AllowPartial: *partial})
+	mo, err := runner.MergeWith(out, fs.Args()[1:], runner.MergeOptions{WriteReport: true, AllowPartial: *partial})
 	if err != nil {
 		return err
 	}

@@ -10,6 +10,7 @@ import (
 	"tilebench/vision"
 	"tilebench/vision/nets"
 	"tilebench/vision/overlay"
+	"tilebench/vision/policies"
 )
 
 // overlayFlags are --overlay (and, for export, the --policy whose
@@ -44,7 +45,7 @@ func (o *overlayFlags) parse(cmd string) error {
 			return usagef("%s: --overlay needs --policy FILE.safetensors (the policy whose attention is drawn)", cmd)
 		case !sp.On() && *o.policy != "":
 			return usagef("%s: --policy is used only with --overlay", cmd)
-		case sp.On() && !isWeightsFile(*o.policy):
+		case sp.On() && policies.Kind(*o.policy) != policies.KindFile:
 			return usagef("%s: --policy %q: export draws the attention of a weights file (.safetensors); use play or watch for other policies", cmd, *o.policy)
 		}
 	}

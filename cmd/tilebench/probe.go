@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 
+	"tilebench/vision/policies"
 	"tilebench/vision/probe"
 	"tilebench/vision/study"
 )
@@ -56,19 +57,12 @@ func runProbe(ctx *runContext, args []string) error {
 	fs.StringVar(&c.Family, "family", "attention", "network `FAMILY` of --policy fresh: attention, posattention, mlp, meanpool")
 	fs.StringVar(&c.ActionSpace, "action-space", "", "`SPACE` of a fresh or external policy: continuous:N, continuous:N:LOW:HIGH or discrete:K (default: from --actions)")
 	fs.StringVar(&c.Resize, "resize", "", "scale frames to `WxH` (the policy's frame size) with a triangle filter")
-	fs.StringVar(&c.Timeout, "policy-timeout", "", "per-step timeout of an external policy, e.g. 5s")
+	var timeout policies.DurationText
+	fs.Var(&timeout, "policy-timeout", "external policy: longest wait (a `DURATION`) for one step's reply (default 5s) (e.g. --policy-timeout 10s)")
 	fs.StringVar(&c.Obs, "policy-obs", "", "what an external policy receives: frame (default) or tokens")
 	noBatch := fs.Bool("no-batch", false, "send one frame per message even to a policy that offers batches")
 	patchList := fs.String("patch", "", "patch `SIZES` in pixels (default: the weights file's, else 8)")
-	occlude := fs.String("occlude", "", "occlusion `LIST`, e.g. random:0:0.8:0.1,block:0.3")
-	fs.StringVar(&c.Axes.Fill, "fill", "", "what occluded tokens become: black (default), mean, noise or drop")
-	scramble := fs.String("scramble", "", "scramble `LIST`: none, full, partial:F, local:K")
-	every := fs.String("every", "", "scramble schedule `LIST`: 0 = one permutation per sequence, T = a new one every T frames")
-	noise := fs.String("noise-tokens", "", "`LIST` of numbers of added noise tokens")
-	brightness := fs.String("brightness", "", "`LIST` of brightness offsets")
-	contrast := fs.String("contrast", "", "`LIST` of contrast factors")
-	pixelNoise := fs.String("pixel-noise", "", "`LIST` of Gaussian pixel noise σ")
-	corrupt := fs.String("corrupt", "", "`LIST` of frame corruptions (docs/studies.md), e.g. blur:s1:s5,jpeg:40")
+	tf := addSweepFlags(fs)
 	fs.Uint64Var(&c.Seed, "seed", 0, "probe seed; every seed derives from it")
 	fs.IntVar(&c.Resamples, "resamples", 0, "bootstrap resamples (default 2000)")
 	fs.Float64Var(&c.Threshold, "threshold", 0, "drift past which an axis counts as broken (default 0.1: L2 action change, or share of changed choices)")
@@ -96,10 +90,13 @@ func runProbe(ctx *runContext, args []string) error {
 	}
 	c.NoBatch = *noBatch
 	c.Patch = study.ParseAxis(*patchList)
-	c.Axes.Occlude, c.Axes.Scramble, c.Axes.Every = study.ParseAxis(*occlude), study.ParseAxis(*scramble), study.ParseAxis(*every)
-	c.Axes.NoiseTokens, c.Axes.Brightness = study.ParseAxis(*noise), study.ParseAxis(*brightness)
-	c.Axes.Contrast, c.Axes.PixelNoise = study.ParseAxis(*contrast), study.ParseAxis(*pixelNoise)
-	c.Axes.Corrupt = study.ParseAxis(*corrupt)
+	tf.apply(&c.Axes, true)
+	if timeout.Text != "" {
+		if timeout.D <= 0 {
+			return usagef("probe: --policy-timeout %s: want a positive duration such as 5s", timeout.Text)
+		}
+		c.Timeout = timeout.Text
+	}
 	var sh study.Shard
 	if *shard != "" {
 		s, err := study.ParseShard(*shard)

@@ -7,6 +7,7 @@ import (
 	"strconv"
 
 	"tilebench/vision/study"
+	"tilebench/vision/study/runner"
 )
 
 func init() {
@@ -48,7 +49,7 @@ func runReplay(ctx *runContext, args []string) error {
 	if *cell < 0 || *ep < 0 {
 		return usagef("replay: give --cell C and --episode E (both from 0)")
 	}
-	si, err := study.ReadStudy(dir)
+	si, err := study.ReadInfo(dir)
 	if err != nil {
 		return err
 	}
@@ -56,7 +57,7 @@ func runReplay(ctx *runContext, args []string) error {
 	if err != nil {
 		return err
 	}
-	fresh, rec, err := study.Replay(dir, *cell, *ep, study.DefaultEnv(p, filepath.Join(dir, study.LogsDir)))
+	fresh, rec, err := runner.Replay(dir, *cell, *ep, runner.DefaultEnv(p, filepath.Join(dir, study.LogsDir)))
 	if err != nil {
 		return err
 	}

@@ -3,8 +3,7 @@ package main
 import (
 	"fmt"
 	"path/filepath"
-
-	"tilebench/vision/study"
+	"tilebench/vision/study/analysis"
 )
 
 func init() {
@@ -30,7 +29,7 @@ func runReport(ctx *runContext, args []string) error {
 		return usagef("report: want one study folder DIR")
 	}
 	dir := fs.Arg(0)
-	if err := study.WriteReport(dir); err != nil {
+	if err := analysis.WriteReport(dir); err != nil {
 		return err
 	}
 	fmt.Fprintf(ctx.stdout, "report: %s\n", filepath.Join(dir, "report.html"))

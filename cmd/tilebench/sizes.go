@@ -1,14 +1,13 @@
 package main
 
 import (
-	"context"
 	"flag"
 	"fmt"
-	"path/filepath"
-	"strconv"
 	"time"
 
 	"tilebench/vision/study"
+	"tilebench/vision/study/analysis"
+	"tilebench/vision/study/runner"
 	"tilebench/vision/train"
 )
 
@@ -85,7 +84,7 @@ func runSizes(ctx *runContext, args []string) error {
 	if !set["policy"] && (*sf.config == "" || d.Policy.Source == "expert") {
 		switch {
 		case *trainM != "":
-			d.Policy.Source = study.TrainTemplate(*sf.out)
+			d.Policy.Source = runner.TrainTemplate(*sf.out)
 		default:
 			probe := *d
 			probe.Policy.Source = "fresh"
@@ -93,7 +92,7 @@ func runSizes(ctx *runContext, args []string) error {
 			if err != nil {
 				return usagef("%v", err)
 			}
-			if t, ok := study.ReferencePolicies(*refDir, d.Game, d.Policy.Family, pp.Patches()); ok {
+			if t, ok := runner.ReferencePolicies(*refDir, d.Game, d.Policy.Family, pp.Patches()); ok {
 				d.Policy.Source = t
 			} else {
 				d.Policy.Source = "fresh"
@@ -108,75 +107,19 @@ func runSizes(ctx *runContext, args []string) error {
 	if err != nil {
 		return usagef("%v", err)
 	}
-	shard, err := sf.shardOf()
-	if err != nil {
-		return err
+	if err := runner.CheckSizesPolicy(p); err != nil {
+		return fmt.Errorf("sizes: %w", err)
 	}
-	if *trainM != "" && !shard.Whole() {
-		return usagef("sizes: --train with shard %s would train different policies in every shard; train once (tilebench train), then run the shards with --policy FILE-p{patch}.safetensors", shard)
-	}
-	if err := study.CheckDir(p, *sf.out, *sf.resume, shard); err != nil {
-		return err
-	}
+	var tr *runner.TrainOptions
 	if *trainM != "" {
-		sctx, stop := interruptible()
-		bar := newProgress(ctx.stderr, len(p.Patches()), "training")
-		done := map[int]bool{}
-		err := study.TrainPolicies(sctx, p, *sf.out, study.TrainOptions{Method: *trainM, Budget: *trainB, Workers: d.Workers,
-			Progress: func(ps int, pr train.Progress) {
-				done[ps] = true
-				bar.Set(len(done) - 1)
-				bar.Describe("training patch " + strconv.Itoa(ps))
-			}})
-		bar.Done()
-		stop()
-		if err != nil {
-			return err
-		}
+		tr = &runner.TrainOptions{Method: *trainM, Budget: *trainB, Workers: d.Workers}
 	}
-	if err := runSizesStudy(ctx, p, sf, shard, append([]string{"sizes"}, args...)); err != nil {
-		return err
-	}
-	return nil
+	return runStudyCLI(ctx, p, sf, append([]string{"sizes"}, args...), tr)
 }
 
-// runSizesStudy runs the study, then measures costs and writes the report.
-func runSizesStudy(ctx *runContext, p *study.Plan, sf *studyFlags, shard study.Shard, args []string) error {
-	dir := *sf.out
-	sctx, stop := interruptible()
-	defer stop()
-	out, err := runPlan(sctx, ctx, p, dir, *sf.resume, shard, commandLine(args), "sizes")
-	if err != nil {
-		return err
-	}
-	if err := study.FinishSizes(p, dir); err != nil {
-		return err
-	}
-	if err := printOutcome(ctx, p, dir, shard, out, *sf.asJSON); err != nil {
-		return err
-	}
-	if !*sf.asJSON {
-		printRecommendation(ctx, dir)
-	}
-	return failedEpisodes(out, dir)
-}
-
-// runPlan runs a study without its report, with a progress bar.
-func runPlan(sctx context.Context, ctx *runContext, p *study.Plan, dir string, resume bool, shard study.Shard, command, what string) (*study.Outcome, error) {
-	bar := newProgress(ctx.stderr, shardUnits(p, shard), what)
-	out, err := study.Run(sctx, p, study.Options{
-		Dir: dir, Workers: p.Def.Workers, Resume: resume, Shard: shard,
-		Env:      study.DefaultEnv(p, filepath.Join(dir, study.LogsDir)),
-		Progress: func(done, total int) { bar.Set(done) },
-		Command:  command, NoReport: true,
-	})
-	bar.Done()
-	return out, err
-}
-
-func printRecommendation(ctx *runContext, dir string) {
-	a, err := study.Analyze(dir)
-	if err != nil || a.Choice == nil {
+// printRecommendation prints a sizes study's cost table and choice.
+func printRecommendation(ctx *runContext, a *analysis.Analysis) {
+	if a.Choice == nil {
 		return
 	}
 	for _, c := range a.Costs {

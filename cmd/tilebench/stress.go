@@ -12,7 +12,11 @@ import (
 	"strings"
 	"syscall"
 
+	"tilebench/vision/policies"
+	"tilebench/vision/remote"
 	"tilebench/vision/study"
+	"tilebench/vision/study/runner"
+	"tilebench/vision/train"
 )
 
 func init() {
@@ -33,10 +37,11 @@ START:STOP:STEP (inclusive), KIND, KIND:VALUE or KIND:START:STOP:STEP
     --occlude random:0:0.9:0.1,block:0.3 --scramble none,full --every 0,10,100 \
     --episodes 30 --out stress-drive
 
-A study interrupted by Ctrl-C, SIGTERM or a kill continues with --resume.
 Exit status: 0 all episodes recorded, 1 runtime failure, 2 usage error,
 3 finished with failed episodes (the report is written; retry them with
 --resume).
+
+A study interrupted by Ctrl-C, SIGTERM or a kill continues with --resume.
 On a cluster, --shard i/n runs one part (or set by a Slurm job array or a
 Kubernetes indexed Job, see examples/); "tilebench merge" joins the parts.
 
@@ -44,42 +49,27 @@ options:`
 
 // studyFlags are the flags shared by stress and sizes.
 type studyFlags struct {
-	fs                                                  *flag.FlagSet
-	config, name, game, variation, policy, family       *string
-	patch, occlude, fill, scramble, every, noise        *string
-	brightness, contrast, pixelNoise, variations, seeds *string
-	corrupt                                             *string
-	timeout                                             *string
-	startTO                                             *string
-	forceWorkers                                        *bool
-	episodes, workers, resamples, shards                *int
-	seed                                                *uint64
-	threshold                                           *float64
-	out, shard, overlay                                 *string
-	resume, asJSON                                      *bool
+	fs                                   *flag.FlagSet
+	config, name, game, variation        *string
+	family, patch, variations, seeds     *string
+	episodes, workers, resamples, shards *int
+	seed                                 *uint64
+	threshold                            *float64
+	out, shard, overlay                  *string
+	resume, asJSON, forceWorkers         *bool
+	pol                                  *policies.Flags
+	tf                                   *transformFlags
 }
 
 func addStudyFlags(fs *flag.FlagSet, defPolicy, defPatch string, defEpisodes int) *studyFlags {
-	return &studyFlags{
+	sf := &studyFlags{
 		fs:           fs,
 		config:       fs.String("config", "", "read the study from a TOML `FILE` (see examples/study.toml); flags given as well override it"),
 		name:         fs.String("name", "", "study `NAME` shown in the report (default \"study\")"),
 		game:         fs.String("game", "drive", "built-in `GAME`: drive or paddle"),
 		variation:    fs.String("variation", "", "game `VARIATION` the clean score is measured on (default: the game's default)"),
-		policy:       fs.String("policy", defPolicy, "the policy: expert (scripted, reads game state), fresh (untrained --family), a weights `FILE` ({patch} is replaced by each patch size), exec:COMMAND ARGS or tcp://HOST:PORT"),
 		family:       fs.String("family", "attention", "network `FAMILY` for --policy fresh and for training: attention, posattention, mlp, meanpool"),
-		timeout:      fs.String("policy-timeout", "", "per-step timeout of an external policy, e.g. 5s (default: the protocol's)"),
-		startTO:      fs.String("policy-start-timeout", "", "longest wait for an external policy to start and answer the handshake, e.g. 2m (default 30s)"),
 		patch:        fs.String("patch", defPatch, "patch `SIZES` in pixels, a list, e.g. 4,8,16 or 4:16:4"),
-		occlude:      fs.String("occlude", "", "occlusion `LIST`: none, random:R, block:R, bands:R, sweep:R, mask:FILE.png; e.g. random:0:0.9:0.1,block:0.3"),
-		fill:         fs.String("fill", "", "what occluded tokens become: black (default), mean, noise or drop"),
-		scramble:     fs.String("scramble", "", "scramble `LIST`: none, full, partial:F, local:K; e.g. none,full"),
-		every:        fs.String("every", "", "scramble schedule `LIST`: 0 = one permutation per episode, T = a new one every T steps; e.g. 0,10,100"),
-		noise:        fs.String("noise-tokens", "", "`LIST` of numbers of added noise tokens, e.g. 0,16,64"),
-		brightness:   fs.String("brightness", "", "`LIST` of brightness offsets, e.g. -0.2,0,0.2"),
-		contrast:     fs.String("contrast", "", "`LIST` of contrast factors, e.g. 0.5,1"),
-		pixelNoise:   fs.String("pixel-noise", "", "`LIST` of Gaussian pixel noise σ, e.g. 0:0.2:0.05"),
-		corrupt:      fs.String("corrupt", "", "`LIST` of frame corruptions (docs/studies.md), each none, KIND:VALUE, KIND:sN, KIND:sA:sB or KIND:START:STOP:STEP, several in one cell joined by +; e.g. blur:s1:s5,jpeg:40,shift:3:0"),
 		variations:   fs.String("variations", "", "`LIST` of game variations (held-out palettes), e.g. default,dusk"),
 		seeds:        fs.String("seeds", "", "game seed `RANGE`: held-out (default), train, or START:COUNT"),
 		episodes:     fs.Int("episodes", defEpisodes, "episodes per cell"),
@@ -95,6 +85,9 @@ func addStudyFlags(fs *flag.FlagSet, defPolicy, defPatch string, defEpisodes int
 		asJSON:       fs.Bool("json", false, "print a machine-readable summary"),
 		overlay:      fs.String("overlay", "", "draw the policy's attention on the report's strips: attention, top:K or attention+top:K"),
 	}
+	sf.pol = policies.AddFlags(fs, policies.FlagConfig{Default: defPolicy})
+	sf.tf = addSweepFlags(fs)
+	return sf
 }
 
 // definition builds the study from --config and the flags set.
@@ -106,46 +99,39 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 			return nil, usagef("%v", err)
 		}
 	}
-	set := map[string]bool{}
-	sf.fs.Visit(func(f *flag.Flag) { set[f.Name] = true })
-	useStr := func(name string, dst *string, v string) {
-		if set[name] || *sf.config == "" {
-			*dst = v
-		}
+	if _, err := sf.pol.Options(); err != nil {
+		return nil, err
 	}
-	useAxis := func(name string, dst *study.Axis, v string) {
-		if set[name] || (*sf.config == "" && v != "") {
-			*dst = study.ParseAxis(v)
+	set := setFlags(sf.fs)
+	all := *sf.config == ""
+	useStr := func(name string, dst *string, v string) {
+		if set[name] || all {
+			*dst = v
 		}
 	}
 	d.Kind = kind
 	useStr("name", &d.Name, *sf.name)
 	useStr("game", &d.Game, *sf.game)
 	useStr("variation", &d.Variation, *sf.variation)
-	useStr("policy", &d.Policy.Source, *sf.policy)
+	useStr("policy", &d.Policy.Source, sf.pol.Source)
 	useStr("family", &d.Policy.Family, *sf.family)
-	useStr("policy-timeout", &d.Policy.Timeout, *sf.timeout)
-	useStr("policy-start-timeout", &d.Policy.StartTimeout, *sf.startTO)
-	useStr("fill", &d.Axes.Fill, *sf.fill)
+	sf.policyOptions(&d.Policy, set)
 	useStr("seeds", &d.Seeds, *sf.seeds)
 	useStr("overlay", &d.Overlay, *sf.overlay)
-	useAxis("patch", &d.Patch, *sf.patch)
-	useAxis("occlude", &d.Axes.Occlude, *sf.occlude)
-	useAxis("scramble", &d.Axes.Scramble, *sf.scramble)
-	useAxis("every", &d.Axes.Every, *sf.every)
-	useAxis("noise-tokens", &d.Axes.NoiseTokens, *sf.noise)
-	useAxis("brightness", &d.Axes.Brightness, *sf.brightness)
-	useAxis("contrast", &d.Axes.Contrast, *sf.contrast)
-	useAxis("pixel-noise", &d.Axes.PixelNoise, *sf.pixelNoise)
-	useAxis("corrupt", &d.Axes.Corrupt, *sf.corrupt)
-	useAxis("variations", &d.Axes.Variations, *sf.variations)
-	if set["episodes"] || *sf.config == "" {
+	if set["patch"] || (all && *sf.patch != "") {
+		d.Patch = study.ParseAxis(*sf.patch)
+	}
+	if set["variations"] || (all && *sf.variations != "") {
+		d.Axes.Variations = study.ParseAxis(*sf.variations)
+	}
+	sf.tf.apply(&d.Axes, all)
+	if set["episodes"] || all {
 		d.Episodes = *sf.episodes
 	}
-	if set["seed"] || *sf.config == "" {
+	if set["seed"] || all {
 		d.Seed = *sf.seed
 	}
-	if set["workers"] || *sf.config == "" {
+	if set["workers"] || all {
 		d.Workers = *sf.workers
 	}
 	if set["force-workers"] {
@@ -165,7 +151,7 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	}
 	// A single weights file without --patch: take the patch size from it.
 	if !set["patch"] && len(d.Patch) == 0 {
-		if ps, ok := study.PatchOfPolicy(d.Policy.Source); ok {
+		if ps, ok := policies.PatchOf(d.Policy.Source); ok {
 			d.Patch = study.Axis{strconv.Itoa(ps)}
 		}
 	}
@@ -173,6 +159,34 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 		return nil, usagef("%v", err)
 	}
 	return d, nil
+}
+
+// policyOptions copies the --policy-* options given into the study's
+// policy. Only options given are recorded, so that a study without them
+// keeps its fingerprint.
+func (sf *studyFlags) policyOptions(p *study.PolicyDef, set map[string]bool) {
+	f := sf.pol
+	if set["policy-timeout"] {
+		p.Timeout = f.Timeout.Text
+	}
+	if set["policy-start-timeout"] {
+		p.StartTimeout = f.StartTimeout.Text
+	}
+	if set["policy-obs"] {
+		p.Obs = f.Obs
+		if p.Obs == remote.ObsFrame {
+			p.Obs = ""
+		}
+	}
+	if set["policy-dtype"] {
+		p.Dtype = f.Dtype
+		if p.Dtype == remote.Uint8 {
+			p.Dtype = ""
+		}
+	}
+	if set["policy-clamp"] {
+		p.Clamp = f.Clamp
+	}
 }
 
 // interruptible returns a context cancelled by the first Ctrl-C or
@@ -196,7 +210,7 @@ func (sf *studyFlags) shardOf() (study.Shard, error) {
 		}
 		return s, nil
 	}
-	s, _, err := study.ShardFromEnv(os.Getenv, *sf.shards)
+	s, _, err := runner.ShardFromEnv(os.Getenv, *sf.shards)
 	if err != nil {
 		return s, usagef("%v", err)
 	}
@@ -218,32 +232,40 @@ type studyJSON struct {
 	StepsPer float64 `json:"steps_per_second"`
 }
 
-// runStudy runs a planned study with a progress bar and signal handling,
-// and prints the outcome.
-func runStudyCLI(ctx *runContext, p *study.Plan, sf *studyFlags, args []string, what string) error {
+// runStudyCLI runs a planned study (runner.Run: train, play, resume,
+// analyse, report) with progress bars and signal handling, and prints the
+// outcome.
+func runStudyCLI(ctx *runContext, p *study.Plan, sf *studyFlags, args []string, tr *runner.TrainOptions) error {
 	shard, err := sf.shardOf()
 	if err != nil {
 		return err
 	}
-	dir := *sf.out
+	if tr != nil && !shard.Whole() {
+		return usagef("sizes: --train with shard %s would train different policies in every shard; train once (tilebench train), then run the shards with --policy FILE-p{patch}.safetensors", shard)
+	}
+	if err := runner.CheckDir(p, *sf.out, *sf.resume, shard); err != nil {
+		return err
+	}
 	sctx, stop := interruptible()
 	defer stop()
-	out, err := runPlan(sctx, ctx, p, dir, *sf.resume, shard, commandLine(args), what)
+	opt := runner.Options{Dir: *sf.out, Workers: p.Def.Workers, Resume: *sf.resume, Shard: shard,
+		LogDir: sf.pol.LogDir, Command: commandLine(args), Train: tr}
+	out, err := runWithProgress(sctx, ctx, p, opt, p.Def.Kind)
 	if err != nil {
 		return err
 	}
-	if err := study.WriteReport(dir); err != nil {
+	if err := printOutcome(ctx, p, *sf.out, shard, out, *sf.asJSON); err != nil {
 		return err
 	}
-	if err := printOutcome(ctx, p, dir, shard, out, *sf.asJSON); err != nil {
-		return err
+	if !*sf.asJSON && out.Analysis != nil {
+		printRecommendation(ctx, out.Analysis)
 	}
-	return failedEpisodes(out, dir)
+	return failedEpisodes(out, *sf.out)
 }
 
 // failedEpisodes is the exitError of a study run that left failed
 // episodes (exit status ExitFailedEpisodes), or nil.
-func failedEpisodes(out *study.Outcome, dir string) error {
+func failedEpisodes(out *runner.Outcome, dir string) error {
 	if out.Failed == 0 {
 		return nil
 	}
@@ -251,17 +273,42 @@ func failedEpisodes(out *study.Outcome, dir string) error {
 		out.Failed, out.Total, filepath.Join(dir, study.ResultsFile))}
 }
 
-func shardUnits(p *study.Plan, s study.Shard) int {
-	n := 0
-	for u := range p.Units() {
-		if s.Owns(u) {
-			n++
+// runWithProgress is runner.Run with a progress bar for the training (if
+// any) and one for the episodes.
+func runWithProgress(sctx context.Context, ctx *runContext, p *study.Plan, opt runner.Options, what string) (*runner.Outcome, error) {
+	var trainBar, bar *progress
+	if opt.Train != nil {
+		trainBar = newProgress(ctx.stderr, len(p.Patches()), "training")
+		done := map[int]bool{}
+		tr := *opt.Train
+		tr.Progress = func(ps int, _ train.Progress) {
+			done[ps] = true
+			trainBar.Set(len(done) - 1)
+			trainBar.Describe("training patch " + strconv.Itoa(ps))
 		}
+		opt.Train = &tr
 	}
-	return n
+	opt.Progress = func(done, total int) {
+		if bar == nil {
+			if trainBar != nil {
+				trainBar.Done()
+				trainBar = nil
+			}
+			bar = newProgress(ctx.stderr, total, what)
+		}
+		bar.Set(done)
+	}
+	out, err := runner.Run(sctx, p, opt)
+	if trainBar != nil {
+		trainBar.Done()
+	}
+	if bar != nil {
+		bar.Done()
+	}
+	return out, err
 }
 
-func printOutcome(ctx *runContext, p *study.Plan, dir string, shard study.Shard, out *study.Outcome, asJSON bool) error {
+func printOutcome(ctx *runContext, p *study.Plan, dir string, shard study.Shard, out *runner.Outcome, asJSON bool) error {
 	rep := filepath.Join(dir, "report.html")
 	sps := 0.0
 	if out.Elapsed > 0 {
@@ -320,5 +367,5 @@ func runStress(ctx *runContext, args []string) error {
 	if err != nil {
 		return usagef("%v", err)
 	}
-	return runStudyCLI(ctx, p, sf, append([]string{"stress"}, args...), "stress")
+	return runStudyCLI(ctx, p, sf, append([]string{"stress"}, args...), nil)
 }

@@ -4,8 +4,6 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
-	"os"
-	"slices"
 	"strings"
 
 	"tilebench/games"
@@ -13,9 +11,10 @@ import (
 	"tilebench/vision"
 	"tilebench/vision/invariance"
 	"tilebench/vision/nets"
+	"tilebench/vision/policies"
 )
 
-const verifyUsage = `verify --policy FILE|FAMILY|exec:...|tcp://... --game drive|paddle [--perms 100] [--json]
+const verifyUsage = `verify --policy SOURCE --game drive|paddle [--perms 100] [--json]
 
 Checks how a policy's action changes when the token set it sees is
 changed, on frames of a game played by the game's scripted expert (a few
@@ -36,10 +35,14 @@ ready message says "invariant": true) must stay within 1e-5 under
 permute, else verify exits with status 1 and the figure. For the other
 families the numbers measure sensitivity and are not a failure.
 
---policy takes a weights file (written by tilebench train), a family name
-(` + "attention, posattention, mlp, meanpool" + `: an untrained network with
-default hyper-parameters and seed --init-seed), or an external policy
-(docs/policy-protocol.md).
+The transform options (--occlude, --scramble, photometric shifts, ...)
+set a base transform applied to every frame first, so the figures say
+how the action moves under a stress the policy already faces.
+
+--policy takes every policy source (docs/policies.md): a weights file
+(written by tilebench train), a family name (` + "attention, posattention, mlp, meanpool" + `:
+an untrained network with default hyper-parameters and seed --init-seed),
+fresh, expert, or an external policy (docs/policy-protocol.md).
 
 examples:
   tilebench verify --policy attention --game paddle
@@ -59,131 +62,134 @@ type verifyOutput struct {
 	Policy    string `json:"policy"`
 	Variation string `json:"variation"`
 	Grid      string `json:"grid"`
+	Transform string `json:"transform,omitempty"`
 	Caution   string `json:"caution"`
 }
 
-func runVerify(ctx *runContext, args []string) error {
+// verifyFlags are verify's options.
+type verifyFlags struct {
+	game, variation, patch            *string
+	perms, seeds, frames, noise, drop *int
+	seed                              *uint64
+	asJSON                            *bool
+	pol                               *policies.Flags
+	tf                                *transformFlags
+	corrupt                           *string
+}
+
+func addVerifyFlags(ctx *runContext) (*verifyFlags, func([]string) error) {
 	fs := newFlags(ctx, "verify", verifyUsage)
-	policy := fs.String("policy", "", "weights file, family name or external policy (e.g. --policy attention)")
-	game := fs.String("game", "", "game the frames come from: "+strings.Join(games.Names(), " or ")+" (e.g. --game paddle)")
-	variation := fs.String("variation", "", "game variation, names joined with + (e.g. --variation orchid)")
-	perms := fs.Int("perms", 100, "random draws of each perturbation per frame, 1 to 100000 (e.g. --perms 200)")
-	seeds := fs.Int("seeds", 3, "expert rollouts frames are taken from (held-out seeds), 1 to 1000 (e.g. --seeds 5)")
-	frames := fs.Int("frames", 4, "frames taken from each rollout, 10 steps apart, 1 to 1000 (e.g. --frames 8)")
-	noise := fs.Int("noise", 0, "noise tokens added in the noise test; 0 = a tenth of the tokens (e.g. --noise 5)")
-	drop := fs.Int("drop", 0, "tokens removed in the drop test; 0 = a tenth of the tokens (e.g. --drop 5)")
-	patchSz := fs.String("patch", "", "patch size N or WxH for a family name or an external policy; default a size that divides the frame (e.g. --patch 8)")
-	initSeed := fs.Uint64("init-seed", 1, "parameter seed of an untrained family network (e.g. --init-seed 7)")
-	seed := fs.Uint64("seed", 0, "seed of the perturbations (e.g. --seed 3)")
-	corrupt := fs.String("corrupt", "", "also measure the action change when frames are corrupted before tokenizing, one list as for export (e.g. --corrupt shift:3:0:wrap)")
-	asJSON := fs.Bool("json", false, "print a machine-readable report (\"format\": 1) (e.g. --json)")
-	ext := addExternalFlags(fs)
-	if err := parseFlags(fs, args); err != nil {
-		return err
+	f := &verifyFlags{
+		game:      fs.String("game", "", "game the frames come from: "+strings.Join(games.Names(), " or ")+" (e.g. --game paddle)"),
+		variation: fs.String("variation", "", "game variation, names joined with + (e.g. --variation orchid)"),
+		perms:     fs.Int("perms", 100, "random draws of each perturbation per frame, 1 to 100000 (e.g. --perms 200)"),
+		seeds:     fs.Int("seeds", 3, "expert rollouts frames are taken from (held-out seeds), 1 to 1000 (e.g. --seeds 5)"),
+		frames:    fs.Int("frames", 4, "frames taken from each rollout, 10 steps apart, 1 to 1000 (e.g. --frames 8)"),
+		noise:     fs.Int("noise", 0, "noise tokens added in the noise test; 0 = a tenth of the tokens (e.g. --noise 5)"),
+		drop:      fs.Int("drop", 0, "tokens removed in the drop test; 0 = a tenth of the tokens (e.g. --drop 5)"),
+		patch:     fs.String("patch", "", "patch size N or WxH; default a weights file's own, else a size that divides the frame (e.g. --patch 8)"),
+		seed:      fs.Uint64("seed", 0, "seed of the perturbations (e.g. --seed 3)"),
+		asJSON:    fs.Bool("json", false, "print a machine-readable report (\"format\": 1) (e.g. --json)"),
 	}
+	f.pol = policies.AddFlags(fs, policies.FlagConfig{InitSeed: true})
+	// The base transform keeps one token per cell: noise tokens and
+	// duplicates are the noise test's business (--noise).
+	// --corrupt is a perturbation here, measured like the others.
+	f.tf = addTransformFlags(fs, patch.Spec{}, "noise-tokens", "duplicates", "corrupt")
+	f.corrupt = fs.String("corrupt", "", "also measure the action change when frames are corrupted before tokenizing, one list as for export (e.g. --corrupt shift:3:0:wrap)")
+	return f, func(args []string) error {
+		if err := parseFlags(fs, args); err != nil {
+			return err
+		}
+		if fs.NArg() > 0 {
+			return usagef("verify: unexpected argument %q (options go before, as --name value)", fs.Arg(0))
+		}
+		return nil
+	}
+}
+
+func (f *verifyFlags) check() error {
 	switch {
-	case fs.NArg() > 0:
-		return usagef("verify: unexpected argument %q (options go before, as --name value)", fs.Arg(0))
-	case *policy == "":
-		return usagef("verify: --policy is required (a weights file, %s, or exec:/tcp://)", strings.Join(nets.Families, ", "))
-	case *game == "":
+	case f.pol.Source == "":
+		return usagef("verify: --policy is required (a weights file, %s, expert, fresh, or exec:/tcp://)", strings.Join(nets.Families, ", "))
+	case *f.game == "":
 		return usagef("verify: --game is required (%s)", strings.Join(games.Names(), " or "))
-	case *perms < 1 || *perms > 100000:
-		return usagef("verify: --perms %d: want 1 to 100000", *perms)
-	case *seeds < 1 || *seeds > 1000:
-		return usagef("verify: --seeds %d: want 1 to 1000", *seeds)
-	case *frames < 1 || *frames > 1000:
-		return usagef("verify: --frames %d: want 1 to 1000", *frames)
-	case *noise < 0 || *noise > 100000 || *drop < 0:
-		return usagef("verify: --noise %d --drop %d: want counts ≥ 0 (noise at most 100000)", *noise, *drop)
+	case *f.perms < 1 || *f.perms > 100000:
+		return usagef("verify: --perms %d: want 1 to 100000", *f.perms)
+	case *f.seeds < 1 || *f.seeds > 1000:
+		return usagef("verify: --seeds %d: want 1 to 1000", *f.seeds)
+	case *f.frames < 1 || *f.frames > 1000:
+		return usagef("verify: --frames %d: want 1 to 1000", *f.frames)
+	case *f.noise < 0 || *f.noise > 100000 || *f.drop < 0:
+		return usagef("verify: --noise %d --drop %d: want counts ≥ 0 (noise at most 100000)", *f.noise, *f.drop)
 	}
-	if err := checkCorrupt("verify", *corrupt); err != nil {
+	return nil
+}
+
+func runVerify(ctx *runContext, args []string) error {
+	f, parse := addVerifyFlags(ctx)
+	if err := parse(args); err != nil {
 		return err
 	}
-	g, err := games.New(*game, games.Options{Variation: *variation})
+	if err := f.check(); err != nil {
+		return err
+	}
+	if err := checkCorrupt("verify", *f.corrupt); err != nil {
+		return err
+	}
+	spec, err := f.tf.Spec()
+	if err != nil {
+		return fmt.Errorf("verify: %w", err)
+	}
+	if spec.Fill == "drop" {
+		return usagef("verify: --fill drop: the base transform must keep one token per cell (the drop test is --drop)")
+	}
+	g, err := games.New(*f.game, games.Options{Variation: *f.variation})
 	if err != nil {
 		return usagef("verify: %v", err)
 	}
-	sp := g.Spec()
-	grid, err := verifyGrid(sp, *patchSz)
+	pol, grid, err := openPolicy(f.pol, g, *f.patch)
 	if err != nil {
-		return err
+		return fmt.Errorf("verify: %w", err)
 	}
-	var pol vision.Policy
-	switch {
-	case isExternal(*policy):
-		if pol, err = openExternal(*policy, g, grid, ext); err != nil {
-			return fmt.Errorf("verify: %w", err)
-		}
-		defer closePolicy(pol)
-	case slices.Contains(nets.Families, *policy):
-		n, err := nets.New(nets.Config{Family: *policy}, grid, sp.Action, *initSeed)
-		if err != nil {
+	defer policies.Close(pol)
+	cfg := invariance.Config{Perms: *f.perms, Frames: *f.frames, Noise: *f.noise, Drop: *f.drop, Seed: *f.seed, Corrupt: *f.corrupt}
+	if !spec.IsIdentity() {
+		if cfg.Pipe, err = patch.NewPipeline(grid, spec); err != nil {
 			return usagef("verify: %v", err)
 		}
-		pol = n
-	default:
-		if _, serr := os.Stat(*policy); serr != nil {
-			return usagef("verify: --policy %q: not a family (%s), not exec:/tcp://, and not a readable file", *policy, strings.Join(nets.Families, ", "))
-		}
-		if *patchSz != "" {
-			return usagef("verify: --patch applies to family names and external policies; a weights file brings its own")
-		}
-		n, err := nets.Load(*policy)
-		if err != nil {
-			return fmt.Errorf("verify: %w", err)
-		}
-		grid = n.Grid()
-		if grid.Width != sp.Width || grid.Height != sp.Height {
-			return fmt.Errorf("verify: %s expects %dx%d frames, game %s renders %dx%d", *policy, grid.Width, grid.Height, sp.Name, sp.Width, sp.Height)
-		}
-		if a := n.Space(); a.Kind != sp.Action.Kind || a.Dim() != sp.Action.Dim() || a.Choices() != sp.Action.Choices() {
-			return fmt.Errorf("verify: %s was built for %s actions of %d values, game %s takes %s actions of %d", *policy, a.Kind, a.Dim(), sp.Name, sp.Action.Kind, sp.Action.Dim())
-		}
-		pol = n
 	}
-	cfg := invariance.Config{Perms: *perms, Frames: *frames, Noise: *noise, Drop: *drop, Seed: *seed, Corrupt: *corrupt}
-	for i := 0; i < *seeds; i++ {
+	for i := 0; i < *f.seeds; i++ {
 		cfg.Seeds = append(cfg.Seeds, games.HeldOut(i))
 	}
-	prog := newProgress(ctx.stderr, *seeds**frames, "frames")
+	prog := newProgress(ctx.stderr, *f.seeds**f.frames, "frames")
 	cfg.Progress = func(done, _ int) { prog.Set(done) }
 	rep, err := invariance.Run(g, patch.NewTokenizer(grid), pol, cfg)
 	prog.Done()
 	if err != nil {
 		return fmt.Errorf("verify: %w", err)
 	}
-	if *asJSON {
-		out := verifyOutput{Report: rep, Command: "verify", Policy: *policy, Variation: sp.Variation, Grid: grid.String(), Caution: playCaution}
+	sp := g.Spec()
+	if *f.asJSON {
+		out := verifyOutput{Report: rep, Command: "verify", Policy: f.pol.Source, Variation: sp.Variation, Grid: grid.String(), Caution: vision.Caution}
+		if !spec.IsIdentity() {
+			out.Transform = spec.String()
+		}
 		enc := json.NewEncoder(ctx.stdout)
 		enc.SetIndent("", "  ")
 		if err := enc.Encode(out); err != nil {
 			return err
 		}
 	} else {
-		printVerify(ctx.stdout, rep, *policy, grid, sp.Action.Kind == games.Discrete)
+		printVerify(ctx.stdout, rep, f.pol.Source, grid, sp.Action.Kind == games.Discrete)
+		if !spec.IsIdentity() {
+			fmt.Fprintf(ctx.stdout, "base transform (before every perturbation): %s\n", spec)
+		}
 	}
 	if err := rep.Err(); err != nil {
 		return fmt.Errorf("verify: %w", err)
 	}
 	return nil
-}
-
-// verifyGrid is the grid for a family name or an external policy.
-func verifyGrid(sp games.Spec, patchSz string) (*patch.Grid, error) {
-	pw := autoPatch(sp.Width, sp.Height)
-	ph := pw
-	if patchSz != "" {
-		var err error
-		if pw, ph, err = patch.ParseSize(patchSz); err != nil {
-			return nil, usagef("verify: --patch: %v", err)
-		}
-	}
-	grid, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: pw, PatchH: ph})
-	if err != nil {
-		return nil, usagef("verify: --patch: %v", err)
-	}
-	return grid, nil
 }
 
 func printVerify(w io.Writer, r *invariance.Report, policy string, grid *patch.Grid, discrete bool) {
@@ -225,5 +231,5 @@ func printVerify(w io.Writer, r *invariance.Report, policy string, grid *patch.G
 	default:
 		fmt.Fprintf(w, "not declared permutation invariant: the figures above measure its sensitivity\n")
 	}
-	fmt.Fprintf(w, "caution: %s\n", playCaution)
+	fmt.Fprintf(w, "caution: %s\n", vision.Caution)
 }

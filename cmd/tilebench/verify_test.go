@@ -79,7 +79,7 @@ func TestVerifyWeightsFile(t *testing.T) {
 	}
 	// A paddle policy cannot verify on drive.
 	code, _, errs = runCLI(t, "", "verify", "--policy", path, "--game", "drive", "--perms", "1")
-	if code != 1 || !strings.Contains(errs, "expects 84x84 frames") {
+	if code != 1 || !strings.Contains(errs, "weights are for 84x84 frames") {
 		t.Fatalf("wrong game: exit %d %s", code, errs)
 	}
 	bad := filepath.Join(t.TempDir(), "bad.safetensors")

@@ -11,8 +11,8 @@ import (
 
 	"tilebench/games"
 	"tilebench/patch"
-	"tilebench/vision"
 	"tilebench/vision/overlay"
+	"tilebench/vision/policies"
 	"tilebench/vision/watch"
 )
 
@@ -41,20 +41,15 @@ var watchContext = func() (context.Context, context.CancelFunc) {
 func runWatch(ctx *runContext, args []string) error {
 	fs := newFlags(ctx, "watch", watchUsage)
 	game := fs.String("game", "", "game to play: "+strings.Join(games.Names(), " or ")+" (e.g. --game drive)")
-	policy := fs.String("policy", "expert", "policy: expert, a weights FILE.safetensors, or an external policy exec:COMMAND... / tcp://HOST:PORT (e.g. --policy drive-p8.safetensors)")
 	seed := fs.Uint64("seed", games.HeldOutSeedStart, "game seed of the first episode; the next ones count up (e.g. --seed 1000000)")
 	variation := fs.String("variation", "", "game variation, names joined with + (e.g. --variation glacier+clutter)")
 	size := fs.String("size", "", "frame size WxH instead of the game's default (drive only) (e.g. --size 64x64)")
 	patchSz := fs.String("patch", "", "patch size N or WxH; default the weights file's, else a size that divides the frame (e.g. --patch 8)")
-	scramble := fs.String("scramble", "none", "token order: none, full, partial:F or local:K (e.g. --scramble full)")
-	every := fs.Int("every", 0, "draw a new permutation every T steps; 0 draws one per episode (e.g. --every 10)")
-	occlude := fs.String("occlude", "none", "hide tokens: none, random:R, block:R, bands:R, sweep:R or mask:FILE.png; the page changes R live (e.g. --occlude random:0.3)")
-	fill := fs.String("fill", "black", "what an occluded token becomes: black, mean, noise or drop (e.g. --fill noise)")
-	corrupt := fs.String("corrupt", "", corruptFlagHelp)
+	pf := policies.AddFlags(fs, policies.FlagConfig{Default: policies.Expert, InitSeed: true})
+	tf := addTransformFlags(fs, patch.Spec{Scramble: "none", Occlude: "none", Fill: "black"})
 	fps := fs.Float64("fps", 20, "steps a second, 1 to 60 (e.g. --fps 10)")
 	ov := fs.String("overlay", "attention+top:3", "what the attention panels draw: attention, top:K or attention+top:K (e.g. --overlay top:5)")
 	listen := fs.String("listen", "", "address to serve on; default 127.0.0.1 on a free port. Another interface only when given here, with a warning (e.g. --listen 127.0.0.1:8080)")
-	ext := addExternalFlags(fs)
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
@@ -70,16 +65,20 @@ func runWatch(ctx *runContext, args []string) error {
 	if err != nil {
 		return usagef("watch: --overlay: %v", err)
 	}
-	spec := patch.Spec{Scramble: *scramble, Every: *every, Occlude: *occlude, Fill: *fill, Corrupt: *corrupt}
-	if err := spec.Check(); err != nil {
-		return usagef("watch: %v", err)
-	}
-	g, grid, pol, err := openWatchPolicy(*game, *variation, *size, *patchSz, *policy, ext)
+	spec, err := tf.Spec()
 	if err != nil {
-		return err
+		return fmt.Errorf("watch: %w", err)
 	}
-	defer closePolicy(pol)
-	v, err := watch.New(watch.Config{Game: g, Grid: grid, Policy: pol, PolicyName: *policy, Spec: spec, Seed: *seed, FPS: *fps, Overlay: ovSpec})
+	g, err := openGame(*game, *variation, *size)
+	if err != nil {
+		return fmt.Errorf("watch: %w", err)
+	}
+	pol, grid, err := openPolicy(pf, g, *patchSz)
+	if err != nil {
+		return fmt.Errorf("watch: %w", err)
+	}
+	defer policies.Close(pol)
+	v, err := watch.New(watch.Config{Game: g, Grid: grid, Policy: pol, PolicyName: pf.Source, Spec: spec, Seed: *seed, FPS: *fps, Overlay: ovSpec})
 	if err != nil {
 		return usageError{err}
 	}
@@ -93,49 +92,11 @@ func runWatch(ctx *runContext, args []string) error {
 	if warning != "" {
 		fmt.Fprintln(ctx.stderr, "tilebench: "+warning)
 	}
-	fmt.Fprintf(ctx.stdout, "watch: %s with %s at %s (Ctrl-C stops)\n", g.Spec().Name, *policy, url)
+	fmt.Fprintf(ctx.stdout, "watch: %s with %s at %s (Ctrl-C stops)\n", g.Spec().Name, pf.Source, url)
 	sctx, cancel := watchContext()
 	defer cancel()
 	if err := v.Serve(sctx, ln); err != nil && !errors.Is(err, context.Canceled) {
 		return fmt.Errorf("watch: %w", err)
 	}
 	return nil
-}
-
-// openWatchPolicy builds the game, the grid and the policy as play does.
-func openWatchPolicy(game, variation, size, patchSz, policy string, ext *externalOptions) (games.Game, *patch.Grid, vision.Policy, error) {
-	opt := games.Options{Variation: variation}
-	if size != "" {
-		w, h, err := patch.ParseSize(size)
-		if err != nil {
-			return nil, nil, nil, usagef("watch: --size: %v", err)
-		}
-		opt.Width, opt.Height = w, h
-	}
-	g, err := games.New(game, opt)
-	if err != nil {
-		return nil, nil, nil, usagef("watch: %v", err)
-	}
-	sp := g.Spec()
-	pw := autoPatch(sp.Width, sp.Height)
-	ph := pw
-	if patchSz != "" {
-		if pw, ph, err = patch.ParseSize(patchSz); err != nil {
-			return nil, nil, nil, usagef("watch: --patch: %v", err)
-		}
-	}
-	grid, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: pw, PatchH: ph})
-	if err != nil {
-		return nil, nil, nil, usagef("watch: --patch: %v", err)
-	}
-	var pol vision.Policy
-	if isWeightsFile(policy) {
-		pol, grid, err = loadWeights(policy, g, grid, patchSz != "")
-	} else {
-		pol, err = loadPolicy(policy, g, grid, ext)
-	}
-	if err != nil {
-		return nil, nil, nil, err
-	}
-	return g, grid, pol, nil
 }

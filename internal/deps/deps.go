@@ -6,7 +6,6 @@ package deps
 
 import (
 	_ "github.com/BurntSushi/toml"
-	_ "github.com/disintegration/imaging"
 	_ "github.com/google/shlex"
 	_ "github.com/schollz/progressbar/v3"
 	_ "golang.org/x/image/vector"

@@ -66,6 +66,13 @@ type Config struct {
 	// Progress, if set, is called after every frame with the frames done
 	// and the total.
 	Progress func(done, total int)
+	// Pipe, if set, transforms every frame's tokens before the
+	// measurement: the transformed set is the baseline the perturbations
+	// start from (how the policy's action moves under a stress it already
+	// faces). It must keep one token per cell: no drop fill, noise tokens
+	// or duplicates. It is reset at each rollout from
+	// DeriveSeed(Seed, rollout, StreamKey("verify.pipe")). Default none.
+	Pipe *patch.Pipeline
 }
 
 func (c Config) withDefaults(n int) Config {
@@ -246,6 +253,16 @@ func Run(g games.Game, tok *patch.Tokenizer, pol vision.Policy, cfg Config) (*Re
 		}
 	}
 	frame := image.NewRGBA(image.Rect(0, 0, sp.Width, sp.Height))
+	raw := m.clean
+	if cfg.Pipe != nil {
+		if cfg.Pipe.Grid() != gr && *cfg.Pipe.Grid() != *gr {
+			return nil, fmt.Errorf("transform pipeline: cut on %s, the tokens on %s", cfg.Pipe.Grid(), gr)
+		}
+		if cfg.Pipe.Capacity() != n || cfg.Pipe.Spec().Fill == "drop" {
+			return nil, fmt.Errorf("transform %s: verify needs one token per cell (no drop fill, noise tokens or duplicates)", cfg.Pipe.Spec())
+		}
+		raw = patch.NewTokenSet(n, d)
+	}
 	var expert games.Expert
 	if w, ok := g.(games.WithExpert); ok {
 		expert = w.Expert()
@@ -255,11 +272,19 @@ func Run(g games.Game, tok *patch.Tokenizer, pol vision.Policy, cfg Config) (*Re
 	for si, seed := range cfg.Seeds {
 		g.Reset(seed)
 		clear(m.prev)
+		if cfg.Pipe != nil {
+			cfg.Pipe.Reset(patch.DeriveSeed(cfg.Seed, uint64(si), patch.StreamKey("verify.pipe")))
+		}
 		step := 0
 		for fi := 0; fi < cfg.Frames; fi++ {
 			g.Render(frame)
-			if err := tok.Tokenize(frame, m.clean); err != nil {
+			if err := tok.Tokenize(frame, raw); err != nil {
 				return nil, fmt.Errorf("tokenize frame: %w", err)
+			}
+			if cfg.Pipe != nil {
+				if err := cfg.Pipe.Apply(step, raw, m.clean, nil); err != nil {
+					return nil, fmt.Errorf("transform frame: %w", err)
+				}
 			}
 			key := patch.DeriveSeed(cfg.Seed, uint64(si), uint64(fi))
 			if err := m.frame(key, step); err != nil {

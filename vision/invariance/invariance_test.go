@@ -369,3 +369,38 @@ func TestCorruptShiftOnInvariantFamilies(t *testing.T) {
 		t.Logf("%s: whole-patch %s max %.2g, sub-patch %s max %.2g", fam, whole, rw.Corrupted.Max, sub, rs.Corrupted.Max)
 	}
 }
+
+// With a base transform that hides every cell, scrambling moves black
+// cells among black cells: a position-weighted policy that scrambling
+// moves on clean frames does not move at all. A pipeline that changes the
+// token count is refused.
+func TestBasePipeline(t *testing.T) {
+	g, tok := setup(t, false)
+	pipe, err := patch.NewPipeline(tok.Grid(), patch.Spec{Occlude: "random:1", Fill: "black"})
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg := small
+	cfg.Pipe = pipe
+	r, err := Run(g, tok, &posPolicy{}, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	clean, err := Run(g, tok, &posPolicy{}, small)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if clean.Scramble.Max < 1e-3 || r.Scramble.Max != 0 {
+		t.Fatalf("scramble moved the action by %g on clean frames, %g on black ones (want > 0 and 0)", clean.Scramble.Max, r.Scramble.Max)
+	}
+	for _, s := range []patch.Spec{{NoiseTokens: 2}, {Occlude: "random:0.5", Fill: "drop"}} {
+		p, err := patch.NewPipeline(tok.Grid(), s)
+		if err != nil {
+			t.Fatal(err)
+		}
+		cfg.Pipe = p
+		if _, err := Run(g, tok, &posPolicy{}, cfg); err == nil || !strings.Contains(err.Error(), "one token per cell") {
+			t.Errorf("%s: %v", s, err)
+		}
+	}
+}

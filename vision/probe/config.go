@@ -17,6 +17,7 @@ import (
 	"tilebench/patch"
 	"tilebench/patch/frameio"
 	"tilebench/vision/nets"
+	"tilebench/vision/policies"
 	"tilebench/vision/remote"
 	"tilebench/vision/stats"
 	"tilebench/vision/study"
@@ -324,7 +325,7 @@ func (p *Plan) resolvePolicy() error {
 			if err != nil {
 				return fmt.Errorf("patch %q: want a whole number", s)
 			}
-			path := study.PolicyPath(cfg.Policy, ps)
+			path := policies.Expand(cfg.Policy, ps)
 			n, err := nets.Load(path)
 			if err != nil {
 				return err
@@ -338,7 +339,7 @@ func (p *Plan) resolvePolicy() error {
 				p.Width, p.Height, p.Space = g.Width, g.Height, ns
 			} else if g.Width != p.Width || g.Height != p.Height || ns.Kind != p.Space.Kind || ns.Dim != p.Space.Dim || ns.Choices != p.Space.Choices {
 				return fmt.Errorf("%s: weights are for %dx%d frames and %s actions of %d, %s for %dx%d and %s of %d", path, g.Width, g.Height, ns.Kind, ns.Dim,
-					study.PolicyPath(cfg.Policy, mustAtoi(sizes[0])), p.Width, p.Height, p.Space.Kind, p.Space.Dim)
+					policies.Expand(cfg.Policy, mustAtoi(sizes[0])), p.Width, p.Height, p.Space.Kind, p.Space.Dim)
 			}
 		}
 		if space != nil && (space.Kind != p.Space.Kind || space.Dim != p.Space.Dim || space.Choices != p.Space.Choices) {
@@ -441,7 +442,7 @@ func (p *Plan) fingerprint() error {
 	if !remote.IsTarget(p.Config.Policy) && p.Config.Policy != "fresh" {
 		sizes, _ := p.Config.Patch.Values("8")
 		for _, s := range sizes {
-			data, err := os.ReadFile(study.PolicyPath(p.Config.Policy, mustAtoi(s)))
+			data, err := os.ReadFile(policies.Expand(p.Config.Policy, mustAtoi(s)))
 			if err != nil {
 				return fmt.Errorf("policy: %w", err)
 			}

@@ -11,7 +11,7 @@ import (
 	"tilebench/vision"
 	"tilebench/vision/nets"
 	"tilebench/vision/remote"
-	"tilebench/vision/study"
+	"tilebench/vision/policies"
 )
 
 // GameName is what an external policy is told it plays in a probe (the
@@ -67,7 +67,7 @@ func Policies(p *Plan, logDir string) PolicyFunc {
 			}
 			return remote.Open(src, cfg)
 		}
-		path := study.PolicyPath(src, ps)
+		path := policies.Expand(src, ps)
 		mu.Lock()
 		defer mu.Unlock()
 		n, ok := loaded[path]
@@ -76,7 +76,7 @@ func Policies(p *Plan, logDir string) PolicyFunc {
 			if n, err = nets.Load(path); err != nil {
 				return nil, err
 			}
-			if err := study.CheckGeometry(path, n, spec, grid); err != nil {
+			if err := policies.CheckGeometry(path, n, spec, grid); err != nil {
 				return nil, err
 			}
 			loaded[path] = n

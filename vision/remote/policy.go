@@ -377,7 +377,7 @@ func (p *Policy) exitStatus() string {
 func (p *Policy) kill() {
 	if p.cmd != nil && p.cmd.Process != nil {
 		p.life.stopGuard()
-		syscall.Kill(-p.cmd.Process.Pid, syscall.SIGKILL)
+		killTree(p.cmd.Process)
 		select {
 		case <-p.exited:
 		case <-time.After(3 * time.Second):

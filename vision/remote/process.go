@@ -6,7 +6,6 @@ import (
 	"os/exec"
 	"strconv"
 	"sync/atomic"
-	"syscall"
 	"time"
 )
 
@@ -107,7 +106,7 @@ func (l *lifecycle) startGuard(pgid int) {
 	}
 	g := exec.Command("/bin/sh", "-c", `read x; kill -KILL -"$1" 2>/dev/null`, "tilebench-guard", strconv.Itoa(pgid))
 	g.Stdin = r
-	g.SysProcAttr = &syscall.SysProcAttr{Setpgid: true}
+	ownGroup(g)
 	if err := g.Start(); err != nil {
 		r.Close()
 		w.Close()

@@ -13,6 +13,7 @@ package report
 import (
 	"image"
 
+	"tilebench/vision"
 	"tilebench/vision/stats"
 )
 
@@ -249,5 +250,6 @@ type Cell struct {
 	Note string
 }
 
-// Caution is the safety caution every report carries.
-const Caution = "Simulated robustness is not a safety certification; defer to the applicable safety standards, local regulations and licensed practice."
+// Caution is the safety caution every report carries: vision.Caution,
+// the one text of it.
+const Caution = vision.Caution

@@ -8,7 +8,7 @@ import (
 	"slices"
 	"strconv"
 
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // Strata holds scores grouped by stratum: Strata[k] are the scores of
@@ -87,8 +87,8 @@ type Bootstrap struct {
 	// Level is the confidence level of the interval, in (0, 1); 0 means
 	// 0.95.
 	Level float64
-	// Seed seeds the resampling stream (patch.NewRand). Derive one seed per
-	// cell, e.g. patch.DeriveSeed(studySeed, patch.StreamKey("bootstrap"),
+	// Seed seeds the resampling stream (seeds.NewRand). Derive one seed per
+	// cell, e.g. seeds.DeriveSeed(studySeed, seeds.StreamKey("bootstrap"),
 	// cell), so that intervals do not depend on the order cells are done in.
 	Seed uint64
 }
@@ -154,7 +154,7 @@ func (b Bootstrap) CI(s Strata, st Statistic) (Estimate, error) {
 	e := Estimate{Value: st.inPlace(s.Pool()), Level: lv, Resamples: B}
 	sp := newSampler(s)
 	theta := make([]float64, B)
-	r := patch.NewRand(b.Seed)
+	r := seeds.NewRand(b.Seed)
 	for i := range theta {
 		sp.draw(r)
 		theta[i] = sp.stat(st)
@@ -197,7 +197,7 @@ func (b Bootstrap) Summarize(s Strata) (Summary, error) {
 	th := make([]float64, 3*B)
 	tMean, tMed, tIQM := th[:B], th[B:2*B], th[2*B:]
 	sp := newSampler(s)
-	r := patch.NewRand(b.Seed)
+	r := seeds.NewRand(b.Seed)
 	for i := 0; i < B; i++ {
 		sp.draw(r)
 		tMean[i], tMed[i], tIQM[i] = sp.mean(), sp.median(), sp.iqm()
@@ -269,7 +269,7 @@ func (b Bootstrap) twoSample(what, xn, yn string, x, y Strata, st Statistic,
 	e := Estimate{Value: f(sx, sy), Level: lv, Resamples: B}
 	spx, spy := newSampler(x), newSampler(y)
 	theta := make([]float64, B)
-	r := patch.NewRand(b.Seed)
+	r := seeds.NewRand(b.Seed)
 	for i := range theta {
 		spx.draw(r)
 		spy.draw(r)
@@ -311,7 +311,7 @@ func (b Bootstrap) ProbImprovementCI(x, y Strata) (Estimate, error) {
 	e := Estimate{Value: piSorted(x, y, xs, ys), Level: lv, Resamples: B}
 	ps := newPISampler(x, y)
 	theta := make([]float64, B)
-	r := patch.NewRand(b.Seed)
+	r := seeds.NewRand(b.Seed)
 	for i := range theta {
 		ps.draw(r)
 		theta[i] = ps.pi()

@@ -7,7 +7,7 @@ import (
 	"slices"
 	"strconv"
 
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // DefaultBreakThreshold is the retention below which an axis counts as
@@ -165,7 +165,7 @@ type Candidate struct {
 //     higher score, then lower index).
 type Recommender struct {
 	// Bootstrap sets resamples, level and seed of every interval. Candidate
-	// i's intervals use patch.DeriveSeed(Bootstrap.Seed, i, stream).
+	// i's intervals use seeds.DeriveSeed(Bootstrap.Seed, i, stream).
 	Bootstrap Bootstrap
 	// Statistic scores a candidate; zero value StatIQM.
 	Statistic Statistic
@@ -219,7 +219,7 @@ func (r Recommender) Recommend(cands []Candidate) (Choice, error) {
 			return Choice{}, fmt.Errorf("recommend: candidate %q has %d strata, %q has %d", c.Name, len(c.Scores), cands[0].Name, len(cands[0].Scores))
 		}
 		bs := r.Bootstrap
-		bs.Seed = patch.DeriveSeed(r.Bootstrap.Seed, uint64(i), patch.StreamKey("score"))
+		bs.Seed = seeds.DeriveSeed(r.Bootstrap.Seed, uint64(i), seeds.StreamKey("score"))
 		e, err := bs.CI(c.Scores, r.Statistic)
 		if err != nil {
 			return Choice{}, fmt.Errorf("recommend: candidate %q: %w", c.Name, err)
@@ -242,7 +242,7 @@ func (r Recommender) Recommend(cands []Candidate) (Choice, error) {
 			continue
 		}
 		bs := r.Bootstrap
-		bs.Seed = patch.DeriveSeed(r.Bootstrap.Seed, uint64(i), patch.StreamKey("pbest"))
+		bs.Seed = seeds.DeriveSeed(r.Bootstrap.Seed, uint64(i), seeds.StreamKey("pbest"))
 		p, err := bs.ProbImprovementCI(cands[ch.Best].Scores, c.Scores)
 		if err != nil {
 			return Choice{}, fmt.Errorf("recommend: candidate %q: %w", c.Name, err)

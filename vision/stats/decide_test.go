@@ -7,7 +7,7 @@ import (
 	"strings"
 	"testing"
 
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // Worked example, by hand: (1,5) (2,4) (3,7) (4,7) (5,9) (3,7 again)
@@ -29,7 +29,7 @@ func TestParetoFrontWorked(t *testing.T) {
 
 // Brute-force check of the definition on random point sets.
 func TestParetoFrontDefinition(t *testing.T) {
-	r := patch.NewRand(3)
+	r := seeds.NewRand(3)
 	for trial := 0; trial < 200; trial++ {
 		pts := make([]Point, 1+r.IntN(12))
 		for i := range pts {
@@ -110,7 +110,7 @@ func TestProbImprovementWorked(t *testing.T) {
 }
 
 func normals(seed uint64, k, n int, mu, sd float64) Strata {
-	r := patch.NewRand(seed)
+	r := seeds.NewRand(seed)
 	s := make(Strata, k)
 	for i := range s {
 		s[i] = make([]float64, n)

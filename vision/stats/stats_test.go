@@ -9,7 +9,7 @@ import (
 	"testing"
 
 	"tilebench/internal/reftest"
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // refData mirrors testdata/ref/bootstrap_ref.json (written by
@@ -202,7 +202,7 @@ func TestSamplerMatchesValues(t *testing.T) {
 		{{2.5, -1, 7}, {0, 0, 1, 8}, {4, 4, 4, 4, 4, 3}},         // 13 scores
 	} {
 		sp := newSampler(s)
-		r1, r2 := patch.NewRand(11), patch.NewRand(11)
+		r1, r2 := seeds.NewRand(11), seeds.NewRand(11)
 		buf := make([]float64, s.N())
 		for i := 0; i < 500; i++ {
 			sp.draw(r1)
@@ -230,7 +230,7 @@ func TestPISamplerMatchesValues(t *testing.T) {
 	if got := ps.pi(); math.Abs(got-want) > 1e-15 {
 		t.Fatalf("full: %v, want %v", got, want)
 	}
-	r1, r2 := patch.NewRand(5), patch.NewRand(5)
+	r1, r2 := seeds.NewRand(5), seeds.NewRand(5)
 	xs, ys := make([]float64, x.N()), make([]float64, y.N())
 	for i := 0; i < 500; i++ {
 		ps.draw(r1)

@@ -62,11 +62,12 @@ type Definition struct {
 
 // PolicyDef names the policy of a study.
 type PolicyDef struct {
-	// Source is "expert" (default: the game's scripted expert, which reads
-	// the game state, not pixels), "fresh" (an untrained network of
-	// Family), a weights file (the text "{patch}" in it is replaced by
-	// each patch size), "exec:COMMAND ARGS" or "tcp://HOST:PORT" (an
-	// external policy process).
+	// Source is a policy source in the grammar of vision/policies:
+	// "expert" (default: the game's scripted expert, which reads the game
+	// state, not pixels), "fresh" (an untrained network of Family), a
+	// family name, a weights file, "exec:COMMAND ARGS" or
+	// "tcp://HOST:PORT" (an external policy process); the text "{patch}"
+	// is replaced by each patch size.
 	Source string `toml:"source" json:"source"`
 	// Family is the network family for "fresh" policies and for training
 	// in a sizes study. Default "attention".
@@ -75,8 +76,17 @@ type PolicyDef struct {
 	// duration ("5s"). "" means the protocol's default.
 	Timeout string `toml:"timeout" json:"timeout,omitempty"`
 	// StartTimeout bounds starting an external policy and its handshake,
-	// as a Go duration ("2m"). "" means the protocol's default (30 s).
+	// as a Go duration. "" means the protocol's default (30s).
 	StartTimeout string `toml:"start_timeout" json:"start_timeout,omitempty"`
+	// Obs is what an external policy is sent: "frame" (default) or
+	// "tokens" (docs/policy-protocol.md).
+	Obs string `toml:"obs" json:"obs,omitempty"`
+	// Dtype is how an external policy's observation values are sent:
+	// "uint8" (default) or "float32".
+	Dtype string `toml:"dtype" json:"dtype,omitempty"`
+	// Clamp clips an external policy's out-of-bounds continuous actions
+	// instead of failing the episode. Default false.
+	Clamp bool `toml:"clamp" json:"clamp,omitempty"`
 }
 
 // Axes are the transforms a study sweeps. Each is a list in the range

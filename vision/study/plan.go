@@ -15,6 +15,7 @@ import (
 	"tilebench/patch"
 	"tilebench/vision"
 	"tilebench/vision/overlay"
+	"tilebench/vision/policies"
 )
 
 // Defaults used by Normalize.
@@ -82,13 +83,28 @@ func (d *Definition) Normalize() error {
 			return fieldErr("policy.timeout", fmt.Errorf("%q: want a positive duration such as 5s", d.Policy.Timeout))
 		}
 	}
+	if d.Policy.StartTimeout != "" {
+		if t, err := time.ParseDuration(d.Policy.StartTimeout); err != nil || t <= 0 {
+			return fieldErr("policy.start_timeout", fmt.Errorf("%q: want a positive duration such as 30s", d.Policy.StartTimeout))
+		}
+	}
+	switch d.Policy.Obs {
+	case "", "frame", "tokens":
+	default:
+		return fieldErr("policy.obs", fmt.Errorf("%q: want frame or tokens", d.Policy.Obs))
+	}
+	switch d.Policy.Dtype {
+	case "", "uint8", "float32":
+	default:
+		return fieldErr("policy.dtype", fmt.Errorf("%q: want uint8 or float32", d.Policy.Dtype))
+	}
 	if !isWord(d.Policy.Family) {
 		return fieldErr("policy.family", fmt.Errorf("%q is not a family name", d.Policy.Family))
 	}
 	if len(d.Patch) == 0 {
 		// A single weights file plays at its own patch size
 		// (docs/studies.md); anything else at DefaultPatch.
-		if ps, ok := PatchOfPolicy(d.Policy.Source); ok {
+		if ps, ok := policies.PatchOf(d.Policy.Source); ok {
 			d.Patch = Axis{strconv.Itoa(ps)}
 		} else {
 			d.Patch = Axis{strconv.Itoa(DefaultPatch)}
@@ -190,7 +206,8 @@ type Cell struct {
 }
 
 // corrupted reports whether the cell corrupts frames.
-func (c Cell) corrupted() bool { return c.Corrupt != "" && c.Corrupt != "none" }
+// Corrupted reports whether the cell applies a frame corruption.
+func (c Cell) Corrupted() bool { return c.Corrupt != "" && c.Corrupt != "none" }
 
 // Key is the cell's canonical description, which also keys its seeds.
 func (c Cell) Key() string {
@@ -202,7 +219,7 @@ func (c Cell) Key() string {
 // corruptKey is the corruption part of Key: empty without one, so that
 // the keys (and seeds) of cells from before corruptions existed stay.
 func (c Cell) corruptKey() string {
-	if !c.corrupted() {
+	if !c.Corrupted() {
 		return ""
 	}
 	return " corrupt=" + c.Corrupt
@@ -237,7 +254,7 @@ func (c Cell) Label() string {
 	if c.PixelNoise != 0 {
 		parts = append(parts, "pixel noise "+fnum(c.PixelNoise))
 	}
-	if c.corrupted() {
+	if c.Corrupted() {
 		parts = append(parts, "corrupt "+c.Corrupt)
 	}
 	if len(parts) == 0 {
@@ -249,7 +266,7 @@ func (c Cell) Label() string {
 // Clean reports whether the cell applies no transform.
 func (c Cell) Clean() bool {
 	return c.Occlude == "none" && c.Scramble == "none" && c.NoiseTokens == 0 &&
-		c.Brightness == 0 && c.Contrast == 1 && c.PixelNoise == 0 && !c.corrupted()
+		c.Brightness == 0 && c.Contrast == 1 && c.PixelNoise == 0 && !c.Corrupted()
 }
 
 // Spec is the pipeline specification of the cell.
@@ -259,7 +276,7 @@ func (c Cell) Spec() patch.Spec {
 	if c.Contrast != 1 {
 		s.Contrast = c.Contrast
 	}
-	if c.corrupted() {
+	if c.Corrupted() {
 		s.Corrupt = c.Corrupt
 	}
 	return s

@@ -16,7 +16,7 @@ import (
 
 // File names inside a study folder.
 const (
-	StudyFile   = "study.json"
+	InfoFile    = "study.json"
 	ResultsFile = "results.jsonl"
 	TimingFile  = "timing.jsonl"
 	StripsDir   = "strips"
@@ -63,9 +63,9 @@ type Timing struct {
 	StepsPerSecond float64 `json:"steps_per_second"`
 }
 
-// StudyInfo is the content of study.json: the study's identity and its
+// Info is the content of study.json: the study's identity and its
 // resolved plan.
-type StudyInfo struct {
+type Info struct {
 	Format      int        `json:"format"`
 	Fingerprint string     `json:"fingerprint"`
 	Definition  Definition `json:"definition"`
@@ -78,31 +78,31 @@ type StudyInfo struct {
 	Command string `json:"command,omitempty"`
 }
 
-// ReadStudy reads dir/study.json.
-func ReadStudy(dir string) (*StudyInfo, error) {
-	data, err := os.ReadFile(filepath.Join(dir, StudyFile))
+// ReadInfo reads dir/study.json.
+func ReadInfo(dir string) (*Info, error) {
+	data, err := os.ReadFile(filepath.Join(dir, InfoFile))
 	if err != nil {
 		if errors.Is(err, os.ErrNotExist) {
-			return nil, fmt.Errorf("%s holds no study (no %s)", dir, StudyFile)
+			return nil, fmt.Errorf("%s holds no study (no %s)", dir, InfoFile)
 		}
 		return nil, fmt.Errorf("read study: %w", err)
 	}
-	var si StudyInfo
+	var si Info
 	if err := json.Unmarshal(data, &si); err != nil {
-		return nil, fmt.Errorf("read %s: %w", filepath.Join(dir, StudyFile), err)
+		return nil, fmt.Errorf("read %s: %w", filepath.Join(dir, InfoFile), err)
 	}
 	if si.Format != 1 {
-		return nil, fmt.Errorf("read %s: format %d, want 1", filepath.Join(dir, StudyFile), si.Format)
+		return nil, fmt.Errorf("read %s: format %d, want 1", filepath.Join(dir, InfoFile), si.Format)
 	}
 	if si.Fingerprint == "" || len(si.Cells) == 0 || si.Episodes <= 0 {
-		return nil, fmt.Errorf("read %s: incomplete study description", filepath.Join(dir, StudyFile))
+		return nil, fmt.Errorf("read %s: incomplete study description", filepath.Join(dir, InfoFile))
 	}
 	return &si, nil
 }
 
 // Plan rebuilds the plan recorded in study.json and checks that it has
 // the recorded fingerprint.
-func (si *StudyInfo) Plan() (*Plan, error) {
+func (si *Info) Plan() (*Plan, error) {
 	p, err := NewPlan(si.Definition)
 	if err != nil {
 		return nil, fmt.Errorf("recorded study: %w", err)
@@ -113,12 +113,13 @@ func (si *StudyInfo) Plan() (*Plan, error) {
 	return p, nil
 }
 
-func writeStudy(dir string, si *StudyInfo) error {
+// WriteInfo writes dir/study.json.
+func WriteInfo(dir string, si *Info) error {
 	data, err := json.MarshalIndent(si, "", "  ")
 	if err != nil {
 		return fmt.Errorf("write study: %w", err)
 	}
-	return atomicfile.WriteBytes(filepath.Join(dir, StudyFile), append(data, '\n'))
+	return atomicfile.WriteBytes(filepath.Join(dir, InfoFile), append(data, '\n'))
 }
 
 // ReadResults reads the records of dir/results.jsonl. A last line cut

@@ -10,31 +10,31 @@ import (
 	"tilebench/internal/atomicfile"
 )
 
-// reconcileTimings rewrites dir/timing.jsonl (atomically, and only when
+// ReconcileTimings rewrites dir/timing.jsonl (atomically, and only when
 // something changes) to hold one line for each episode that recs holds a
 // record of: the last line written for it. Lines of episodes without a
 // record (a kill came between the two writes) and damaged lines are
 // dropped, so that an episode played again is timed once.
-func reconcileTimings(dir string, recs []Record) error {
+func ReconcileTimings(dir string, recs []Record) error {
 	path := filepath.Join(dir, TimingFile)
 	data, err := os.ReadFile(path)
 	if err != nil {
 		return nil // no timing yet
 	}
-	recorded := map[unit]bool{}
+	recorded := map[episodeKey]bool{}
 	for _, r := range recs {
-		recorded[unit{r.Cell, r.Episode}] = true
+		recorded[episodeKey{r.Cell, r.Episode}] = true
 	}
 	lines := bytes.SplitAfter(data, []byte("\n"))
-	last := map[unit]int{}
-	units := make([]unit, len(lines))
+	last := map[episodeKey]int{}
+	units := make([]episodeKey, len(lines))
 	ok := make([]bool, len(lines))
 	for i, ln := range lines {
 		var t Timing
 		if len(ln) == 0 || ln[len(ln)-1] != '\n' || json.Unmarshal(ln, &t) != nil || t.Format != 1 {
 			continue
 		}
-		u := unit{t.Cell, t.Episode}
+		u := episodeKey{t.Cell, t.Episode}
 		if !recorded[u] {
 			continue
 		}
@@ -59,3 +59,6 @@ func reconcileTimings(dir string, recs []Record) error {
 		return nil
 	})
 }
+
+// episodeKey names one episode of a study.
+type episodeKey struct{ cell, ep int }

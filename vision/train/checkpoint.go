@@ -10,6 +10,7 @@ import (
 
 	"tilebench/games"
 	"tilebench/patch"
+	"tilebench/vision"
 	"tilebench/vision/nets"
 	"tilebench/vision/stats"
 	"tilebench/vision/weights"
@@ -31,9 +32,6 @@ const (
 	keyCkptState  = "train.state"
 	keyAdamT      = "train.adam.t"
 )
-
-// Caution is written into every weights file and printed by the CLI.
-const Caution = "simulated robustness is not a safety certification; defer to the applicable safety standards, local regulations and licensed practice"
 
 func (t *Trainer) checkpointFile() (*weights.File, error) {
 	st := t.st
@@ -300,7 +298,7 @@ func (t *Trainer) WeightsMeta(res Result, heldOut, expert []float64) map[string]
 		weights.KeySeed:   strconv.FormatUint(t.cfg.Seed, 10),
 		"train_hyper":     jsonString(hyper),
 		"train_augment":   jsonString(t.cfg.Augment),
-		"caution":         Caution,
+		"caution":         vision.Caution,
 	}
 	if t.cfg.Variation != "" {
 		m["variation"] = t.cfg.Variation

@@ -1,6 +1,6 @@
 //go:build !unix
 
-package study
+package runner
 
 import "time"
 

@@ -1,4 +1,4 @@
-package study
+package analysis
 
 import (
 	"encoding/json"
@@ -20,6 +20,7 @@ import (
 	"tilebench/patch"
 	"tilebench/vision/report"
 	"tilebench/vision/stats"
+	"tilebench/vision/study"
 )
 
 // CostsFile holds the cost table of a sizes study.
@@ -68,7 +69,7 @@ func readCosts(dir string) ([]Cost, error) {
 
 // CellStats are the statistics of one cell.
 type CellStats struct {
-	Cell    Cell
+	Cell    study.Cell
 	Index   int
 	Returns []float64
 	// Episodes counts finished episodes, Failures the failed ones among
@@ -85,8 +86,8 @@ type CellStats struct {
 
 // Analysis is what the report shows, computed from recorded results only.
 type Analysis struct {
-	Info  *StudyInfo
-	Plan  *Plan
+	Info  *study.Info
+	Plan  *study.Plan
 	Cells []CellStats
 	// Curves group cells along one stress axis with all else fixed.
 	Curves []AxisCurve
@@ -122,7 +123,7 @@ func (a *Analysis) boot(c int, stream string) stats.Bootstrap {
 // Analyze reads a study folder and computes every statistic. Its result
 // depends only on study.json, results.jsonl and costs.json.
 func Analyze(dir string) (*Analysis, error) {
-	si, err := ReadStudy(dir)
+	si, err := study.ReadInfo(dir)
 	if err != nil {
 		return nil, err
 	}
@@ -130,19 +131,25 @@ func Analyze(dir string) (*Analysis, error) {
 	if err != nil {
 		return nil, err
 	}
-	recs, _, err := ReadResults(dir)
+	recs, _, err := study.ReadResults(dir)
 	if err != nil {
 		return nil, err
 	}
+	return FromRecords(dir, si, p, recs)
+}
+
+// FromRecords is Analyze on the records recs already read from dir (with
+// its study.json si and plan p), so that a run reads its results once.
+func FromRecords(dir string, si *study.Info, p *study.Plan, recs []study.Record) (*Analysis, error) {
 	a := &Analysis{Info: si, Plan: p}
 	a.Cells = make([]CellStats, len(p.Cells))
 	fails := make([]map[string]int, len(p.Cells))
 	for i, c := range p.Cells {
 		a.Cells[i] = CellStats{Cell: c, Index: i}
 	}
-	for _, r := range Latest(recs) {
+	for _, r := range study.Latest(recs) {
 		if r.Study != p.Fingerprint || r.Cell < 0 || r.Cell >= len(p.Cells) {
-			return nil, fmt.Errorf("%s: a record of another study (%s)", filepath.Join(dir, ResultsFile), r.Study)
+			return nil, fmt.Errorf("%s: a record of another study (%s)", filepath.Join(dir, study.ResultsFile), r.Study)
 		}
 		cs := &a.Cells[r.Cell]
 		cs.Episodes++
@@ -192,7 +199,7 @@ func Analyze(dir string) (*Analysis, error) {
 		cs.Retention = &e
 	}
 	a.curves()
-	a.StepsPerSecond = medianSPS(ReadTimings(dir))
+	a.StepsPerSecond = medianSPS(study.ReadTimings(dir))
 	if p.Def.Kind == "sizes" {
 		costs, err := readCosts(dir)
 		if err != nil {
@@ -206,7 +213,7 @@ func Analyze(dir string) (*Analysis, error) {
 	return a, nil
 }
 
-func medianSPS(ts []Timing) float64 {
+func medianSPS(ts []study.Timing) float64 {
 	var v []float64
 	for _, t := range ts {
 		if t.StepsPerSecond > 0 {
@@ -223,8 +230,8 @@ func medianSPS(ts []Timing) float64 {
 // how to put the cell back to the axis's identity.
 type axis struct {
 	name string
-	sev  func(c Cell) (kind string, s float64, identity bool, ok bool)
-	zero func(c Cell) Cell
+	sev  func(c study.Cell) (kind string, s float64, identity bool, ok bool)
+	zero func(c study.Cell) study.Cell
 }
 
 func ratioOf(s string) (string, float64, bool) {
@@ -237,14 +244,14 @@ func ratioOf(s string) (string, float64, bool) {
 }
 
 var axes = []axis{
-	{name: "occlusion ratio", sev: func(c Cell) (string, float64, bool, bool) {
+	{name: "occlusion ratio", sev: func(c study.Cell) (string, float64, bool, bool) {
 		if c.Occlude == "none" {
 			return "", 0, true, true
 		}
 		k, f, ok := ratioOf(c.Occlude)
 		return k, f, false, ok
-	}, zero: func(c Cell) Cell { c.Occlude = "none"; return c }},
-	{name: "scramble", sev: func(c Cell) (string, float64, bool, bool) {
+	}, zero: func(c study.Cell) study.Cell { c.Occlude = "none"; return c }},
+	{name: "scramble", sev: func(c study.Cell) (string, float64, bool, bool) {
 		if c.Scramble == "none" {
 			return "", 0, true, true
 		}
@@ -253,20 +260,20 @@ var axes = []axis{
 		}
 		k, f, ok := ratioOf(c.Scramble)
 		return k, f, false, ok
-	}, zero: func(c Cell) Cell { c.Scramble = "none"; c.Every = 0; return c }},
-	{name: "noise tokens", sev: func(c Cell) (string, float64, bool, bool) {
+	}, zero: func(c study.Cell) study.Cell { c.Scramble = "none"; c.Every = 0; return c }},
+	{name: "noise tokens", sev: func(c study.Cell) (string, float64, bool, bool) {
 		return "count", float64(c.NoiseTokens), c.NoiseTokens == 0, true
-	}, zero: func(c Cell) Cell { c.NoiseTokens = 0; return c }},
-	{name: "pixel noise σ", sev: func(c Cell) (string, float64, bool, bool) {
+	}, zero: func(c study.Cell) study.Cell { c.NoiseTokens = 0; return c }},
+	{name: "pixel noise σ", sev: func(c study.Cell) (string, float64, bool, bool) {
 		return "sigma", c.PixelNoise, c.PixelNoise == 0, true
-	}, zero: func(c Cell) Cell { c.PixelNoise = 0; return c }},
-	{name: "brightness shift", sev: func(c Cell) (string, float64, bool, bool) {
+	}, zero: func(c study.Cell) study.Cell { c.PixelNoise = 0; return c }},
+	{name: "brightness shift", sev: func(c study.Cell) (string, float64, bool, bool) {
 		return "abs", math.Abs(c.Brightness), c.Brightness == 0, true
-	}, zero: func(c Cell) Cell { c.Brightness = 0; return c }},
-	{name: "contrast change", sev: func(c Cell) (string, float64, bool, bool) {
+	}, zero: func(c study.Cell) study.Cell { c.Brightness = 0; return c }},
+	{name: "contrast change", sev: func(c study.Cell) (string, float64, bool, bool) {
 		return "abs", math.Abs(c.Contrast - 1), c.Contrast == 1, true
-	}, zero: func(c Cell) Cell { c.Contrast = 1; return c }},
-	{name: "corruption", sev: corruptSeverity, zero: func(c Cell) Cell { c.Corrupt = ""; return c }},
+	}, zero: func(c study.Cell) study.Cell { c.Contrast = 1; return c }},
+	{name: "corruption", sev: corruptSeverity, zero: func(c study.Cell) study.Cell { c.Corrupt = ""; return c }},
 }
 
 // corruptSeverity places a cell with one frame corruption on its curve:
@@ -275,8 +282,8 @@ var axes = []axis{
 // or degrees as written, 1/F for resolution, 100−Q for JPEG, |ln G| for
 // gamma and |ln S| for scale. Lists of several corruptions are on no
 // curve.
-func corruptSeverity(c Cell) (string, float64, bool, bool) {
-	if !c.corrupted() {
+func corruptSeverity(c study.Cell) (string, float64, bool, bool) {
+	if !c.Corrupted() {
 		return "", 0, true, true
 	}
 	cs, err := patch.ParseCorrupt(c.Corrupt)
@@ -416,7 +423,7 @@ func (a *Analysis) recommend() error {
 	}
 	// Conditions: the cells of the first patch size, matched by their key
 	// without the patch size.
-	cond := func(c Cell) string { c.Patch = 0; return c.Key() }
+	cond := func(c study.Cell) string { c.Patch = 0; return c.Key() }
 	var conds []string
 	seen := map[string]bool{}
 	for _, c := range a.Plan.Cells {
@@ -559,7 +566,7 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 
 // cellID is the cell's short stable name in the report: its index and
 // what it does, e.g. "3 p8/occlude=random:0.3/scramble=full".
-func cellID(i int, c Cell, base string) string {
+func cellID(i int, c study.Cell, base string) string {
 	id := fmt.Sprintf("%d p%d", i, c.Patch)
 	if c.Variation != base {
 		id += "/variation=" + variationName(c.Variation)
@@ -588,7 +595,7 @@ func cellID(i int, c Cell, base string) string {
 	if c.PixelNoise != 0 {
 		id += "/pixel_noise=" + fnum(c.PixelNoise)
 	}
-	if c.corrupted() {
+	if c.Corrupted() {
 		id += "/corrupt=" + c.Corrupt
 	}
 	if c.Clean() && c.Variation == base {
@@ -599,7 +606,7 @@ func cellID(i int, c Cell, base string) string {
 
 func fmtG(v float64) string { return strconv.FormatFloat(v, 'g', 4, 64) }
 
-func policyLabel(p PolicyDef) string {
+func policyLabel(p study.PolicyDef) string {
 	switch p.Source {
 	case "expert":
 		return "scripted expert"
@@ -609,7 +616,7 @@ func policyLabel(p PolicyDef) string {
 	return p.Source
 }
 
-func primaryAxis(c Cell) (string, string, float64) {
+func primaryAxis(c study.Cell) (string, string, float64) {
 	var found []string
 	var kind string
 	var sev float64
@@ -631,7 +638,7 @@ func primaryAxis(c Cell) (string, string, float64) {
 	return "mixed: " + strings.Join(found, " + "), kind, sev
 }
 
-func cellParams(c Cell) []report.KV {
+func cellParams(c study.Cell) []report.KV {
 	kv := []report.KV{
 		{Key: "patch", Value: strconv.Itoa(c.Patch)},
 		{Key: "variation", Value: variationName(c.Variation)},
@@ -644,7 +651,7 @@ func cellParams(c Cell) []report.KV {
 		{Key: "contrast", Value: fnum(c.Contrast)},
 		{Key: "pixel_noise", Value: fnum(c.PixelNoise)},
 	}
-	if c.corrupted() {
+	if c.Corrupted() {
 		kv = append(kv, report.KV{Key: "corrupt", Value: c.Corrupt})
 	}
 	return kv
@@ -780,8 +787,9 @@ type StripMeta struct {
 // maxStripPixels bounds the strip images read back for the report.
 const maxStripPixels = 1 << 25
 
-func loadStrip(dir string, cell int) (image.Image, *StripMeta) {
-	base := filepath.Join(dir, StripsDir, fmt.Sprintf("cell-%04d", cell))
+// LoadStrip reads the strip of cell from dir (nil when there is none).
+func LoadStrip(dir string, cell int) (image.Image, *StripMeta) {
+	base := filepath.Join(dir, study.StripsDir, fmt.Sprintf("cell-%04d", cell))
 	data, err := os.ReadFile(base + ".json")
 	if err != nil {
 		return nil, nil
@@ -810,8 +818,8 @@ func loadStrip(dir string, cell int) (image.Image, *StripMeta) {
 	return img, &m
 }
 
-// stripFrame cuts column k of row (0 raw, 1 seen) out of a strip.
-func stripFrame(img image.Image, m *StripMeta, k, row int) image.Image {
+// StripFrame cuts column k of row (0 raw, 1 seen) out of a strip.
+func StripFrame(img image.Image, m *StripMeta, k, row int) image.Image {
 	if k < 0 || k >= len(m.Steps) {
 		return nil
 	}
@@ -832,13 +840,13 @@ func (a *Analysis) stripSections(rd *report.Data, dir string) {
 		if a.Plan.Reference(i) != i {
 			continue
 		}
-		img, m := loadStrip(dir, i)
+		img, m := LoadStrip(dir, i)
 		if img == nil {
 			continue
 		}
 		st := report.Strip{Title: fmt.Sprintf("Clean, patch %d: the game's frames over episode 0", a.Plan.Cells[i].Patch)}
 		for k, s := range m.Steps {
-			st.Frames = append(st.Frames, report.Frame{Label: fmt.Sprintf("step %d", s), Image: stripFrame(img, m, k, 0)})
+			st.Frames = append(st.Frames, report.Frame{Label: fmt.Sprintf("step %d", s), Image: StripFrame(img, m, k, 0)})
 		}
 		rd.Strips = append(rd.Strips, st)
 		break
@@ -851,12 +859,12 @@ func (a *Analysis) stripSections(rd *report.Data, dir string) {
 		st := report.Strip{Title: fmt.Sprintf("What the policy saw: %s (%s)", cv.Axis, cv.Context),
 			Caption: "Episode 0 of each cell, the same game seed in every cell."}
 		for k, ci := range cv.Cells {
-			img, m := loadStrip(dir, ci)
+			img, m := LoadStrip(dir, ci)
 			if img == nil {
 				continue
 			}
 			col := min(2, len(m.Steps)-1)
-			st.Frames = append(st.Frames, report.Frame{Label: fmt.Sprintf("%s, step %d", fmtG(cv.Severities[k]), m.Steps[col]), Image: stripFrame(img, m, col, 1)})
+			st.Frames = append(st.Frames, report.Frame{Label: fmt.Sprintf("%s, step %d", fmtG(cv.Severities[k]), m.Steps[col]), Image: StripFrame(img, m, col, 1)})
 		}
 		if len(st.Frames) > 0 {
 			addLegend(&st, dir, cv.Cells)

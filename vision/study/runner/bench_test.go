@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"context"
@@ -8,15 +8,16 @@ import (
 	"time"
 
 	"tilebench/games"
+	"tilebench/vision/study"
 )
 
 // benchPlan is the whole-pipeline benchmark study: the driving game,
 // random occlusion of a quarter of the tokens with a full scramble every
 // 10 steps, and an (untrained) set-attention policy at patch 8.
-func benchPlan(b *testing.B, episodes int) *Plan {
+func benchPlan(b *testing.B, episodes int) *study.Plan {
 	b.Helper()
-	p, err := NewPlan(Definition{Name: "bench", Game: "drive", Episodes: episodes, Policy: PolicyDef{Source: "fresh", Family: "attention"},
-		Patch: Axis{"8"}, Axes: Axes{Occlude: Axis{"random:0.25"}, Scramble: Axis{"full"}, Every: Axis{"10"}}, Strips: []int{}})
+	p, err := study.NewPlan(study.Definition{Name: "bench", Game: "drive", Episodes: episodes, Policy: study.PolicyDef{Source: "fresh", Family: "attention"},
+		Patch: study.Axis{"8"}, Axes: study.Axes{Occlude: study.Axis{"random:0.25"}, Scramble: study.Axis{"full"}, Every: study.Axis{"10"}}, Strips: []int{}})
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"bytes"
@@ -15,6 +15,9 @@ import (
 	"tilebench/games"
 	"tilebench/vision"
 	"tilebench/vision/nets"
+	"tilebench/vision/policies"
+	"tilebench/vision/study"
+	"tilebench/vision/study/analysis"
 	"tilebench/vision/weights"
 )
 
@@ -31,17 +34,17 @@ func TestParseExplicitValues(t *testing.T) {
 		{"workers = 100000000\n", `key "workers": 100000000 workers: at most`},
 		{"workers = -3\n", `key "workers": -3 workers`},
 	} {
-		_, err := Parse([]byte(c.toml))
+		_, err := study.Parse([]byte(c.toml))
 		if err == nil || !strings.Contains(err.Error(), c.want) {
 			t.Errorf("%q: %v, want %q", c.toml, err, c.want)
 		}
 	}
 	// Left out, each takes its default; forced, many workers are taken.
-	d, err := Parse([]byte("seed = 7\n"))
-	if err != nil || d.Episodes != DefaultEpisodes || d.Stats.Resamples != DefaultResamples || d.Seed != 7 {
+	d, err := study.Parse([]byte("seed = 7\n"))
+	if err != nil || d.Episodes != study.DefaultEpisodes || d.Stats.Resamples != study.DefaultResamples || d.Seed != 7 {
 		t.Fatalf("defaults: %+v, %v", d, err)
 	}
-	if d, err := Parse([]byte("workers = 100000000\nforce_workers = true\n")); err != nil || d.Workers != 100000000 {
+	if d, err := study.Parse([]byte("workers = 100000000\nforce_workers = true\n")); err != nil || d.Workers != 100000000 {
 		t.Fatalf("forced workers: %v", err)
 	}
 	if vision.MaxWorkers() < vision.WorkersPerCore {
@@ -53,15 +56,15 @@ func TestParseExplicitValues(t *testing.T) {
 // patch size, as docs/studies.md says, whether it comes from a file or
 // from the flags; it used to take patch 8 from a file.
 func TestPatchFromWeightsFile(t *testing.T) {
-	src := filepath.Join("..", "..", "testdata", "policies", "paddle-attention-p12.safetensors")
-	d, err := Parse([]byte("game = \"paddle\"\n[policy]\nsource = '" + src + "'\n"))
+	src := filepath.Join("..", "..", "..", "testdata", "policies", "paddle-attention-p12.safetensors")
+	d, err := study.Parse([]byte("game = \"paddle\"\n[policy]\nsource = '" + src + "'\n"))
 	if err != nil {
 		t.Fatal(err)
 	}
 	if len(d.Patch) != 1 || d.Patch[0] != "12" {
 		t.Fatalf("patch %v, want the file's 12", d.Patch)
 	}
-	d, err = Parse([]byte("game = \"paddle\"\npatch = 4\n[policy]\nsource = '" + src + "'\n"))
+	d, err = study.Parse([]byte("game = \"paddle\"\npatch = 4\n[policy]\nsource = '" + src + "'\n"))
 	if err != nil || d.Patch[0] != "4" {
 		t.Fatalf("a patch key still wins: %v %v", d.Patch, err)
 	}
@@ -71,7 +74,7 @@ func TestPatchFromWeightsFile(t *testing.T) {
 // when played, even when its geometry happens to fit; it used to load
 // and play.
 func TestWeightsGameMismatch(t *testing.T) {
-	src := filepath.Join("..", "..", "testdata", "policies", "paddle-attention-p12.safetensors")
+	src := filepath.Join("..", "..", "..", "testdata", "policies", "paddle-attention-p12.safetensors")
 	f, err := weights.ReadFile(src)
 	if err != nil {
 		t.Fatal(err)
@@ -87,7 +90,7 @@ func TestWeightsGameMismatch(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := CheckGeometry(src, n, g.Spec(), n.Grid()); err != nil {
+	if err := policies.CheckGeometry(src, n, g.Spec(), n.Grid()); err != nil {
 		t.Fatalf("own game: %v", err)
 	}
 	f.SetMeta(weights.KeyGame, "drive")
@@ -95,10 +98,10 @@ func TestWeightsGameMismatch(t *testing.T) {
 	if err := weights.WriteFile(other, f); err != nil {
 		t.Fatal(err)
 	}
-	if err := CheckGeometry(other, n, g.Spec(), n.Grid()); err != nil {
+	if err := policies.CheckGeometry(other, n, g.Spec(), n.Grid()); err != nil {
 		t.Fatalf("geometry alone no longer checks the game: %v", err)
 	}
-	if err := CheckGame(other, g.Spec()); err == nil || !strings.Contains(err.Error(), "trained on game drive, this run plays paddle") {
+	if err := policies.CheckGame(other, g.Spec()); err == nil || !strings.Contains(err.Error(), "trained on game drive, this run plays paddle") {
 		t.Fatalf("game mismatch: %v", err)
 	}
 }
@@ -116,11 +119,11 @@ func TestCraftedStripSkipped(t *testing.T) {
 	binary.BigEndian.PutUint32(data[16:], 30000)
 	binary.BigEndian.PutUint32(data[20:], 30000)
 	binary.BigEndian.PutUint32(data[29:], crc32.ChecksumIEEE(data[12:29]))
-	os.WriteFile(filepath.Join(dir, StripsDir, "cell-0000.png"), data, 0o644)
+	os.WriteFile(filepath.Join(dir, study.StripsDir, "cell-0000.png"), data, 0o644)
 	var m0, m1 runtime.MemStats
 	runtime.GC()
 	runtime.ReadMemStats(&m0)
-	img, _ := loadStrip(dir, 0)
+	img, _ := analysis.LoadStrip(dir, 0)
 	runtime.ReadMemStats(&m1)
 	if img != nil {
 		t.Fatal("crafted strip loaded")
@@ -128,7 +131,7 @@ func TestCraftedStripSkipped(t *testing.T) {
 	if n := m1.TotalAlloc - m0.TotalAlloc; n > 4<<20 {
 		t.Fatalf("%d bytes allocated for a crafted strip", n)
 	}
-	if err := WriteReport(dir); err != nil {
+	if err := analysis.WriteReport(dir); err != nil {
 		t.Fatalf("report with a crafted strip: %v", err)
 	}
 }

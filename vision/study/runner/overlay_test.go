@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"image"
@@ -7,16 +7,18 @@ import (
 	"testing"
 
 	"tilebench/internal/reftest"
+	"tilebench/vision/study"
+	"tilebench/vision/study/analysis"
 )
 
 // A study with an overlay draws the policy's attention on its strips and
 // the report shows the key beside them.
 func TestStripsWithOverlay(t *testing.T) {
 	pol := filepath.Join(reftest.Root(), "testdata", "policies", "drive-attention-p8.safetensors")
-	mk := func(ov string) *Plan {
-		p, err := NewPlan(Definition{Name: "ov", Game: "drive", Episodes: 1, Seed: 3, Policy: PolicyDef{Source: pol},
-			Patch: Axis{"8"}, Axes: Axes{Occlude: Axis{"random:0,random:0.5"}, Scramble: Axis{"full"}},
-			Stats: StatsDef{Resamples: 200}, Strips: []int{0, 3}, Overlay: ov})
+	mk := func(ov string) *study.Plan {
+		p, err := study.NewPlan(study.Definition{Name: "ov", Game: "drive", Episodes: 1, Seed: 3, Policy: study.PolicyDef{Source: pol},
+			Patch: study.Axis{"8"}, Axes: study.Axes{Occlude: study.Axis{"random:0,random:0.5"}, Scramble: study.Axis{"full"}},
+			Stats: study.StatsDef{Resamples: 200}, Strips: []int{0, 3}, Overlay: ov})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -27,12 +29,12 @@ func TestStripsWithOverlay(t *testing.T) {
 		t.Fatal("the overlay changed the study's fingerprint")
 	}
 	dirs := [2]string{t.TempDir(), t.TempDir()}
-	for i, p := range []*Plan{plain, marked} {
+	for i, p := range []*study.Plan{plain, marked} {
 		runStudy(t, p, dirs[i], Options{Workers: 1, Env: DefaultEnv(p, "")})
 	}
 	for c := range marked.Cells {
-		a, ma := loadStrip(dirs[0], c)
-		b, mb := loadStrip(dirs[1], c)
+		a, ma := analysis.LoadStrip(dirs[0], c)
+		b, mb := analysis.LoadStrip(dirs[1], c)
 		if a == nil || b == nil {
 			t.Fatalf("cell %d: strips missing", c)
 		}
@@ -42,13 +44,13 @@ func TestStripsWithOverlay(t *testing.T) {
 		// Same seeds, same frames: the overlay is the only difference,
 		// on the game frame (row 0) and on what the policy saw (row 1).
 		for row := 0; row < 2; row++ {
-			fa, fb := stripFrame(a, ma, 1, row).(*image.RGBA), stripFrame(b, mb, 1, row).(*image.RGBA)
+			fa, fb := analysis.StripFrame(a, ma, 1, row).(*image.RGBA), analysis.StripFrame(b, mb, 1, row).(*image.RGBA)
 			if string(fa.Pix) == string(fb.Pix) {
 				t.Fatalf("cell %d row %d: no overlay drawn", c, row)
 			}
 		}
 	}
-	an, err := Analyze(dirs[1])
+	an, err := analysis.Analyze(dirs[1])
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"fmt"
@@ -6,6 +6,7 @@ import (
 	"tilebench/games"
 	"tilebench/patch"
 	"tilebench/vision"
+	"tilebench/vision/study"
 )
 
 // Player plays episodes of one cell.
@@ -19,7 +20,7 @@ type Player interface {
 // only, so an Env may cache games and policies between cells.
 type Env interface {
 	// Player returns a player for cell c.
-	Player(c Cell) (Player, error)
+	Player(c study.Cell) (Player, error)
 	// Close releases what the Env holds (external policy processes).
 	Close() error
 }
@@ -50,7 +51,7 @@ func NewGameEnv(game string, pol PolicyFunc) *GameEnv {
 }
 
 // Player builds (or reuses) the game, policy, tokenizer and pipeline for c.
-func (e *GameEnv) Player(c Cell) (Player, error) {
+func (e *GameEnv) Player(c study.Cell) (Player, error) {
 	g, ok := e.games[c.Variation]
 	if !ok {
 		var err error

@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"bytes"
@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"tilebench/vision"
+	"tilebench/vision/study"
 )
 
 // killRunEnv makes the test binary run the kill test's study into the
@@ -19,18 +20,18 @@ import (
 const killRunEnv = "STUDY_KILL_RUN"
 
 // killPlan is the study of the kill tests: testPlan's, built without a T.
-func killPlan() (*Plan, error) {
-	return NewPlan(Definition{Name: "t", Episodes: 7, Seed: 42,
-		Patch: Axis{"4,8"},
-		Axes:  Axes{Occlude: Axis{"random:0:0.6:0.3,block:0.5"}, Scramble: Axis{"none,full"}, Every: Axis{"0,10"}},
-		Stats: StatsDef{Resamples: 200}})
+func killPlan() (*study.Plan, error) {
+	return study.NewPlan(study.Definition{Name: "t", Episodes: 7, Seed: 42,
+		Patch: study.Axis{"4,8"},
+		Axes:  study.Axes{Occlude: study.Axis{"random:0:0.6:0.3,block:0.5"}, Scramble: study.Axis{"none,full"}, Every: study.Axis{"0,10"}},
+		Stats: study.StatsDef{Resamples: 200}})
 }
 
 // slowEnv is fakeEnv with a pause per episode, so that a kill lands
 // among the writes.
 type slowEnv struct{ fakeEnv }
 
-func (e *slowEnv) Player(c Cell) (Player, error) {
+func (e *slowEnv) Player(c study.Cell) (Player, error) {
 	pl, err := e.fakeEnv.Player(c)
 	return slowPlayer{pl}, err
 }
@@ -59,7 +60,7 @@ func killRunHelper(dir string) int {
 func timingUnits(t *testing.T, dir string) map[unit]int {
 	t.Helper()
 	n := map[unit]int{}
-	for _, tm := range ReadTimings(dir) {
+	for _, tm := range study.ReadTimings(dir) {
 		n[unit{tm.Cell, tm.Episode}]++
 	}
 	return n
@@ -69,7 +70,7 @@ func timingUnits(t *testing.T, dir string) map[unit]int {
 // one line for each episode its results.jsonl records.
 func checkOneTimingPerRecord(t *testing.T, dir string) {
 	t.Helper()
-	recs, _, err := ReadResults(dir)
+	recs, _, err := study.ReadResults(dir)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -93,10 +94,10 @@ func TestTimingAndRecordBothOrNeither(t *testing.T) {
 	p := testPlan(t)
 	dir := filepath.Join(t.TempDir(), "s")
 	runStudy(t, p, dir, Options{Workers: 2})
-	want := readFile(t, filepath.Join(dir, ResultsFile))
+	want := readFile(t, filepath.Join(dir, study.ResultsFile))
 	// The state a kill after the timing write leaves: the last record
 	// missing, its timing line present.
-	rp := filepath.Join(dir, ResultsFile)
+	rp := filepath.Join(dir, study.ResultsFile)
 	lines := bytes.SplitAfter(want, []byte("\n"))
 	os.WriteFile(rp, bytes.Join(lines[:len(lines)-2], nil), 0o644)
 	out := runStudy(t, p, dir, Options{Workers: 2, Resume: true})
@@ -121,7 +122,7 @@ func TestKillAtRandomPoints(t *testing.T) {
 	base := t.TempDir()
 	whole := filepath.Join(base, "whole")
 	runStudy(t, p, whole, Options{Workers: 2})
-	want := readFile(t, filepath.Join(whole, ResultsFile))
+	want := readFile(t, filepath.Join(whole, study.ResultsFile))
 	rounds := 8
 	if testing.Short() {
 		rounds = 4
@@ -142,14 +143,14 @@ func TestKillAtRandomPoints(t *testing.T) {
 			cmd.Process.Signal(syscall.SIGKILL)
 			cmd.Wait()
 		}
-		if _, err := os.Stat(filepath.Join(dir, StudyFile)); err != nil {
+		if _, err := os.Stat(filepath.Join(dir, study.InfoFile)); err != nil {
 			continue // killed before it began
 		}
-		if recs, _, _ := ReadResults(dir); len(recs) < p.Units() {
+		if recs, _, _ := study.ReadResults(dir); len(recs) < p.Units() {
 			cut++
 		}
 		runStudy(t, p, dir, Options{Workers: 2, Resume: true})
-		if got := readFile(t, filepath.Join(dir, ResultsFile)); !bytes.Equal(got, want) {
+		if got := readFile(t, filepath.Join(dir, study.ResultsFile)); !bytes.Equal(got, want) {
 			t.Fatalf("round %d: resumed results differ from an uninterrupted run", round)
 		}
 		checkOneTimingPerRecord(t, dir)
@@ -162,7 +163,7 @@ func TestCorruptStudyFile(t *testing.T) {
 	p := testPlan(t)
 	dir := filepath.Join(t.TempDir(), "s")
 	runStudy(t, p, dir, Options{})
-	os.WriteFile(filepath.Join(dir, StudyFile), []byte(`{"format": 1, "finger`), 0o644)
+	os.WriteFile(filepath.Join(dir, study.InfoFile), []byte(`{"format": 1, "finger`), 0o644)
 	_, err := Run(context.Background(), p, Options{Dir: dir, Resume: true, Env: fakeFactory(&fakeEnv{})})
 	if err == nil || !bytes.Contains([]byte(err.Error()), []byte("study.json is corrupt")) {
 		t.Fatalf("corrupt study.json: %v", err)

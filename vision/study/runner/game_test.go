@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"bytes"
@@ -11,20 +11,24 @@ import (
 	"testing"
 
 	"tilebench/games"
+	_ "tilebench/games/all" // the built-in games
 	"tilebench/patch"
 	"tilebench/vision"
 	"tilebench/vision/nets"
+	"tilebench/vision/policies"
+	"tilebench/vision/study"
+	"tilebench/vision/study/analysis"
 )
 
 // gamePlan is a small study on the real driving game with an untrained
 // set-attention network, so that every part of the pipeline (game,
 // tokenizer, transforms, network) takes part.
-func gamePlan(t *testing.T, source string) *Plan {
+func gamePlan(t *testing.T, source string) *study.Plan {
 	t.Helper()
-	p, err := NewPlan(Definition{Name: "game", Game: "drive", Episodes: 2, Seed: 3,
-		Policy: PolicyDef{Source: source, Family: "attention"}, Patch: Axis{"16"},
-		Axes:  Axes{Occlude: Axis{"random:0.5"}, Scramble: Axis{"none,full"}, Every: Axis{"0,7"}},
-		Stats: StatsDef{Resamples: 200}, Strips: []int{0, 5}})
+	p, err := study.NewPlan(study.Definition{Name: "game", Game: "drive", Episodes: 2, Seed: 3,
+		Policy: study.PolicyDef{Source: source, Family: "attention"}, Patch: study.Axis{"16"},
+		Axes:  study.Axes{Occlude: study.Axis{"random:0.5"}, Scramble: study.Axis{"none,full"}, Every: study.Axis{"0,7"}},
+		Stats: study.StatsDef{Resamples: 200}, Strips: []int{0, 5}})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -38,17 +42,17 @@ func TestGameStudyDeterministic(t *testing.T) {
 	p := gamePlan(t, "fresh")
 	base := t.TempDir()
 	env := func(int) (Env, error) { return NewGameEnv("drive", tokenPolicy), nil }
-	run := func(name string, w int, s Shard) string {
+	run := func(name string, w int, s study.Shard) string {
 		dir := filepath.Join(base, name)
 		if _, err := Run(context.Background(), p, Options{Dir: dir, Workers: w, Shard: s, Env: env}); err != nil {
 			t.Fatal(err)
 		}
 		return dir
 	}
-	one := run("w1", 1, Shard{})
-	two := run("w2", 2, Shard{})
-	want := readFile(t, filepath.Join(one, ResultsFile))
-	recs, _, _ := ReadResults(one)
+	one := run("w1", 1, study.Shard{})
+	two := run("w2", 2, study.Shard{})
+	want := readFile(t, filepath.Join(one, study.ResultsFile))
+	recs, _, _ := study.ReadResults(one)
 	returns := map[float64]bool{}
 	for _, r := range recs {
 		returns[r.Return] = true
@@ -56,7 +60,7 @@ func TestGameStudyDeterministic(t *testing.T) {
 	if len(returns) < len(recs)/2 {
 		t.Fatalf("only %d distinct returns in %d episodes: the transforms do not reach the policy", len(returns), len(recs))
 	}
-	if !bytes.Equal(want, readFile(t, filepath.Join(two, ResultsFile))) {
+	if !bytes.Equal(want, readFile(t, filepath.Join(two, study.ResultsFile))) {
 		t.Fatal("results.jsonl differs between 1 and 2 workers")
 	}
 	if !bytes.Equal(readFile(t, filepath.Join(one, "cells.csv")), readFile(t, filepath.Join(two, "cells.csv"))) {
@@ -64,13 +68,13 @@ func TestGameStudyDeterministic(t *testing.T) {
 	}
 	var shards []string
 	for i := range 3 {
-		shards = append(shards, run(fmt.Sprintf("s%d", i), 1, Shard{Index: i, Count: 3}))
+		shards = append(shards, run(fmt.Sprintf("s%d", i), 1, study.Shard{Index: i, Count: 3}))
 	}
 	merged := filepath.Join(base, "merged")
 	if _, err := Merge(merged, shards, true); err != nil {
 		t.Fatal(err)
 	}
-	if !bytes.Equal(want, readFile(t, filepath.Join(merged, ResultsFile))) {
+	if !bytes.Equal(want, readFile(t, filepath.Join(merged, study.ResultsFile))) {
 		t.Fatal("3 shards merged differ from the unsharded run")
 	}
 	if !bytes.Equal(readFile(t, filepath.Join(one, "cells.csv")), readFile(t, filepath.Join(merged, "cells.csv"))) {
@@ -83,13 +87,13 @@ func TestGameStudyDeterministic(t *testing.T) {
 		if err != nil || rec == nil {
 			t.Fatal(err)
 		}
-		a, _ := EncodeRecord(&fresh)
-		b, _ := EncodeRecord(rec)
+		a, _ := study.EncodeRecord(&fresh)
+		b, _ := study.EncodeRecord(rec)
 		if !bytes.Equal(a, b) {
 			t.Fatalf("replay of cell %d:\n%s\nrecorded:\n%s", c, a, b)
 		}
 	}
-	if _, m := loadStrip(one, 0); m == nil || len(m.Steps) != 2 || m.Width != 96 {
+	if _, m := analysis.LoadStrip(one, 0); m == nil || len(m.Steps) != 2 || m.Width != 96 {
 		t.Fatalf("strip of cell 0: %+v", m)
 	}
 }
@@ -153,8 +157,8 @@ func TestWeightsGeometryMismatch(t *testing.T) {
 	if err == nil || !strings.Contains(err.Error(), "patch 8x8") {
 		t.Fatalf("err %v: want the patch size named", err)
 	}
-	if got, ok := PatchOfPolicy(wpath); !ok || got != 8 {
-		t.Fatalf("PatchOfPolicy %d %v", got, ok)
+	if got, ok := policies.PatchOf(wpath); !ok || got != 8 {
+		t.Fatalf("PatchOf %d %v", got, ok)
 	}
 }
 

@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"bytes"
@@ -9,6 +9,7 @@ import (
 	"image/color"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"sync/atomic"
 	"testing"
@@ -16,24 +17,26 @@ import (
 	"tilebench/games"
 	"tilebench/patch"
 	"tilebench/vision"
+	"tilebench/vision/study"
+	"tilebench/vision/study/analysis"
 )
 
 // fakeEnv plays episodes whose outcome is a pure function of the seeds
 // and the cell, so that tests of the runner need no game or network. It
 // calls the hook like vision.Episode does, with a small frame.
 type fakeEnv struct {
-	fail  func(c Cell, gameSeed uint64) error
+	fail  func(c study.Cell, gameSeed uint64) error
 	calls *atomic.Int64
 }
 
 type fakePlayer struct {
-	c    Cell
+	c    study.Cell
 	env  *fakeEnv
 	raw  *image.RGBA
 	seen *image.RGBA
 }
 
-func (e *fakeEnv) Player(c Cell) (Player, error) {
+func (e *fakeEnv) Player(c study.Cell) (Player, error) {
 	return &fakePlayer{c: c, env: e, raw: image.NewRGBA(image.Rect(0, 0, 8, 8)), seen: image.NewRGBA(image.Rect(0, 0, 8, 8))}, nil
 }
 
@@ -72,20 +75,20 @@ func fakeFactory(e *fakeEnv) EnvFactory {
 	return func(int) (Env, error) { return e, nil }
 }
 
-func testPlan(t *testing.T) *Plan {
+func testPlan(t *testing.T) *study.Plan {
 	t.Helper()
-	d := Definition{Name: "t", Episodes: 7, Seed: 42,
-		Patch: Axis{"4,8"},
-		Axes:  Axes{Occlude: Axis{"random:0:0.6:0.3,block:0.5"}, Scramble: Axis{"none,full"}, Every: Axis{"0,10"}},
-		Stats: StatsDef{Resamples: 200}}
-	p, err := NewPlan(d)
+	d := study.Definition{Name: "t", Episodes: 7, Seed: 42,
+		Patch: study.Axis{"4,8"},
+		Axes:  study.Axes{Occlude: study.Axis{"random:0:0.6:0.3,block:0.5"}, Scramble: study.Axis{"none,full"}, Every: study.Axis{"0,10"}},
+		Stats: study.StatsDef{Resamples: 200}}
+	p, err := study.NewPlan(d)
 	if err != nil {
 		t.Fatal(err)
 	}
 	return p
 }
 
-func runStudy(t *testing.T, p *Plan, dir string, opt Options) *Outcome {
+func runStudy(t *testing.T, p *study.Plan, dir string, opt Options) *Outcome {
 	t.Helper()
 	opt.Dir = dir
 	if opt.Env == nil {
@@ -140,8 +143,8 @@ func TestSeedsIndependentOfCellOrder(t *testing.T) {
 	}
 	// A pipeline seed depends on the cell's parameters, not its index.
 	d := p.Def
-	d.Patch = Axis{"8"}
-	q, err := NewPlan(d)
+	d.Patch = study.Axis{"8"}
+	q, err := study.NewPlan(d)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -165,7 +168,7 @@ func TestWorkersGiveIdenticalResults(t *testing.T) {
 	for _, w := range []int{1, 2} {
 		dir := filepath.Join(base, fmt.Sprint(w))
 		runStudy(t, p, dir, Options{Workers: w})
-		outs = append(outs, readFile(t, filepath.Join(dir, ResultsFile)))
+		outs = append(outs, readFile(t, filepath.Join(dir, study.ResultsFile)))
 		csvs = append(csvs, readFile(t, filepath.Join(dir, "cells.csv")))
 	}
 	if !bytes.Equal(outs[0], outs[1]) {
@@ -184,13 +187,13 @@ func TestShardsMergeToUnsharded(t *testing.T) {
 	base := t.TempDir()
 	whole := filepath.Join(base, "whole")
 	runStudy(t, p, whole, Options{Workers: 2})
-	want := readFile(t, filepath.Join(whole, ResultsFile))
+	want := readFile(t, filepath.Join(whole, study.ResultsFile))
 	wantCSV := readFile(t, filepath.Join(whole, "cells.csv"))
 	for _, n := range []int{1, 2, 3} {
 		var dirs []string
 		for i := range n {
 			dir := filepath.Join(base, fmt.Sprintf("s%d-%d", n, i))
-			runStudy(t, p, dir, Options{Workers: 1 + i%2, Shard: Shard{Index: i, Count: n}})
+			runStudy(t, p, dir, Options{Workers: 1 + i%2, Shard: study.Shard{Index: i, Count: n}})
 			dirs = append(dirs, dir)
 		}
 		out := filepath.Join(base, fmt.Sprintf("merged%d", n))
@@ -201,7 +204,7 @@ func TestShardsMergeToUnsharded(t *testing.T) {
 		if mo.Missing != 0 || mo.Episodes != p.Units() {
 			t.Fatalf("%d shards: merged %+v", n, mo)
 		}
-		if got := readFile(t, filepath.Join(out, ResultsFile)); !bytes.Equal(got, want) {
+		if got := readFile(t, filepath.Join(out, study.ResultsFile)); !bytes.Equal(got, want) {
 			t.Fatalf("%d shards merged: results.jsonl differs from the unsharded run", n)
 		}
 		if got := readFile(t, filepath.Join(out, "cells.csv")); !bytes.Equal(got, wantCSV) {
@@ -215,7 +218,7 @@ func TestResumeAfterCancelAndTruncation(t *testing.T) {
 	base := t.TempDir()
 	whole := filepath.Join(base, "whole")
 	runStudy(t, p, whole, Options{Workers: 2})
-	want := readFile(t, filepath.Join(whole, ResultsFile))
+	want := readFile(t, filepath.Join(whole, study.ResultsFile))
 
 	dir := filepath.Join(base, "cut")
 	ctx, cancel := context.WithCancel(context.Background())
@@ -228,7 +231,7 @@ func TestResumeAfterCancelAndTruncation(t *testing.T) {
 		t.Fatalf("err %v, want ErrInterrupted", err)
 	}
 	// Simulate a kill mid-write: cut the last record in half.
-	rp := filepath.Join(dir, ResultsFile)
+	rp := filepath.Join(dir, study.ResultsFile)
 	data := readFile(t, rp)
 	lines := bytes.Count(data, []byte("\n"))
 	if lines < 10 || lines >= p.Units() {
@@ -261,7 +264,7 @@ func TestFailedEpisodesRecordedAndRetried(t *testing.T) {
 	p := testPlan(t)
 	dir := t.TempDir()
 	bad := p.GameSeed(2)
-	broken := &fakeEnv{fail: func(c Cell, gs uint64) error {
+	broken := &fakeEnv{fail: func(c study.Cell, gs uint64) error {
 		if c.Occlude == "block:0.5" && gs == bad {
 			return errors.New("policy process exited (status 3) at step 17")
 		}
@@ -277,7 +280,7 @@ func TestFailedEpisodesRecordedAndRetried(t *testing.T) {
 	if out.Failed != wantFailed || out.Ran != p.Units() {
 		t.Fatalf("outcome %+v, want %d failed of %d", out, wantFailed, p.Units())
 	}
-	recs, _, err := ReadResults(dir)
+	recs, _, err := study.ReadResults(dir)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -299,7 +302,7 @@ func TestFailedEpisodesRecordedAndRetried(t *testing.T) {
 	}
 	whole := t.TempDir()
 	runStudy(t, p, whole, Options{})
-	if !bytes.Equal(readFile(t, filepath.Join(dir, ResultsFile)), readFile(t, filepath.Join(whole, ResultsFile))) {
+	if !bytes.Equal(readFile(t, filepath.Join(dir, study.ResultsFile)), readFile(t, filepath.Join(whole, study.ResultsFile))) {
 		t.Fatal("after the retry results differ from a clean run")
 	}
 }
@@ -308,10 +311,10 @@ func TestRefusesOtherStudyAndOverwrite(t *testing.T) {
 	p := testPlan(t)
 	dir := t.TempDir()
 	runStudy(t, p, dir, Options{})
-	before := readFile(t, filepath.Join(dir, ResultsFile))
+	before := readFile(t, filepath.Join(dir, study.ResultsFile))
 	d := p.Def
 	d.Episodes = 5
-	q, err := NewPlan(d)
+	q, err := study.NewPlan(d)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -327,7 +330,7 @@ func TestRefusesOtherStudyAndOverwrite(t *testing.T) {
 	if err == nil || !strings.Contains(err.Error(), "--resume") {
 		t.Fatalf("rerun without --resume: %v", err)
 	}
-	if !bytes.Equal(readFile(t, filepath.Join(dir, ResultsFile)), before) {
+	if !bytes.Equal(readFile(t, filepath.Join(dir, study.ResultsFile)), before) {
 		t.Fatal("results were changed")
 	}
 	// Mixed studies to merge.
@@ -351,8 +354,8 @@ func TestReplayGivesRecordedReturn(t *testing.T) {
 		if err != nil || rec == nil {
 			t.Fatal(err, rec)
 		}
-		a, _ := EncodeRecord(&fresh)
-		b, _ := EncodeRecord(rec)
+		a, _ := study.EncodeRecord(&fresh)
+		b, _ := study.EncodeRecord(rec)
 		if !bytes.Equal(a, b) {
 			t.Fatalf("replay of %v:\n%s\nrecorded\n%s", ce, a, b)
 		}
@@ -367,7 +370,7 @@ func TestStripsRecorded(t *testing.T) {
 	dir := t.TempDir()
 	runStudy(t, p, dir, Options{Workers: 2})
 	for c := range p.Cells {
-		img, m := loadStrip(dir, c)
+		img, m := analysis.LoadStrip(dir, c)
 		if img == nil {
 			t.Fatalf("cell %d: no strip", c)
 		}
@@ -375,7 +378,7 @@ func TestStripsRecorded(t *testing.T) {
 			// The fake's episodes last 60..89 steps: steps 0 and 50 are kept.
 			t.Fatalf("cell %d: strip steps %v", c, m.Steps)
 		}
-		f := stripFrame(img, m, 1, 0)
+		f := analysis.StripFrame(img, m, 1, 0)
 		if f == nil || f.Bounds().Dx() != 8 {
 			t.Fatalf("cell %d: frame %v", c, f)
 		}
@@ -393,16 +396,16 @@ func TestShardFromEnv(t *testing.T) {
 	cases := []struct {
 		env   func(string) string
 		count int
-		want  Shard
+		want  study.Shard
 		ok    bool
 		err   bool
 	}{
-		{env(), 0, Shard{}, false, false},
-		{env("SLURM_ARRAY_TASK_ID", "2", "SLURM_ARRAY_TASK_COUNT", "4"), 0, Shard{2, 4}, true, false},
-		{env("SLURM_ARRAY_TASK_ID", "3", "SLURM_ARRAY_TASK_COUNT", "3", "SLURM_ARRAY_TASK_MIN", "1"), 0, Shard{2, 3}, true, false},
-		{env("SLURM_ARRAY_TASK_ID", "5", "SLURM_ARRAY_TASK_COUNT", "3"), 0, Shard{}, false, true},
-		{env("JOB_COMPLETION_INDEX", "1"), 3, Shard{1, 3}, true, false},
-		{env("JOB_COMPLETION_INDEX", "1"), 0, Shard{}, false, true},
+		{env(), 0, study.Shard{}, false, false},
+		{env("SLURM_ARRAY_TASK_ID", "2", "SLURM_ARRAY_TASK_COUNT", "4"), 0, study.Shard{Index: 2, Count: 4}, true, false},
+		{env("SLURM_ARRAY_TASK_ID", "3", "SLURM_ARRAY_TASK_COUNT", "3", "SLURM_ARRAY_TASK_MIN", "1"), 0, study.Shard{Index: 2, Count: 3}, true, false},
+		{env("SLURM_ARRAY_TASK_ID", "5", "SLURM_ARRAY_TASK_COUNT", "3"), 0, study.Shard{}, false, true},
+		{env("JOB_COMPLETION_INDEX", "1"), 3, study.Shard{Index: 1, Count: 3}, true, false},
+		{env("JOB_COMPLETION_INDEX", "1"), 0, study.Shard{}, false, true},
 	}
 	for i, c := range cases {
 		got, ok, err := ShardFromEnv(c.env, c.count)
@@ -411,7 +414,7 @@ func TestShardFromEnv(t *testing.T) {
 		}
 	}
 	for _, s := range []string{"3/3", "-1/2", "1/0", "a/b", "1"} {
-		if _, err := ParseShard(s); err == nil {
+		if _, err := study.ParseShard(s); err == nil {
 			t.Errorf("ParseShard(%q) succeeded", s)
 		}
 	}
@@ -421,10 +424,10 @@ func TestShardFromEnv(t *testing.T) {
 // cells without a corruption keep the keys (and so the seeds) they had
 // before the axis existed, and the analysis draws one curve per kind.
 func TestCorruptAxis(t *testing.T) {
-	d := Definition{Name: "c", Episodes: 5, Seed: 4, Patch: Axis{"8"},
-		Axes:  Axes{Corrupt: Axis{"blur:s1:s3", "jpeg:40:80:40,shift:3:0+blur:1,none"}},
-		Stats: StatsDef{Resamples: 100}}
-	p, err := NewPlan(d)
+	d := study.Definition{Name: "c", Episodes: 5, Seed: 4, Patch: study.Axis{"8"},
+		Axes:  study.Axes{Corrupt: study.Axis{"blur:s1:s3", "jpeg:40:80:40,shift:3:0+blur:1,none"}},
+		Stats: study.StatsDef{Resamples: 100}}
+	p, err := study.NewPlan(d)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -442,13 +445,13 @@ func TestCorruptAxis(t *testing.T) {
 	if strings.Join(got, "|") != strings.Join(want, "|") {
 		t.Fatalf("cells %q, want %q", got, want)
 	}
-	if k := (Cell{Patch: 8, Occlude: "none", Fill: "black", Scramble: "none", Contrast: 1}).Key(); k !=
+	if k := (study.Cell{Patch: 8, Occlude: "none", Fill: "black", Scramble: "none", Contrast: 1}).Key(); k !=
 		"patch=8 variation= occlude=none fill=black scramble=none every=0 noise_tokens=0 brightness=0 contrast=1 pixel_noise=0" {
 		t.Fatalf("clean key changed: %q", k)
 	}
 	dir := t.TempDir()
 	runStudy(t, p, dir, Options{Workers: 2})
-	a, err := Analyze(dir)
+	a, err := analysis.Analyze(dir)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -462,9 +465,19 @@ func TestCorruptAxis(t *testing.T) {
 		t.Fatalf("curves %v", axes)
 	}
 	for _, bad := range []string{"blur:s0:s2", "fog:1", "blur:3:1:1", "jpeg:0"} {
-		d.Axes.Corrupt = Axis{bad}
-		if _, err := NewPlan(d); err == nil || !strings.Contains(err.Error(), "axes.corrupt") {
+		d.Axes.Corrupt = study.Axis{bad}
+		if _, err := study.NewPlan(d); err == nil || !strings.Contains(err.Error(), "axes.corrupt") {
 			t.Errorf("axis %q: error %v", bad, err)
 		}
 	}
+}
+
+// ratioOf reads "kind:R" (the occlusion ratio the fake player scores by).
+func ratioOf(s string) (string, float64, bool) {
+	k, v, ok := strings.Cut(s, ":")
+	if !ok {
+		return k, 0, false
+	}
+	f, err := strconv.ParseFloat(v, 64)
+	return k, f, err == nil
 }

@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"bytes"
@@ -10,6 +10,8 @@ import (
 	"sort"
 
 	"tilebench/internal/atomicfile"
+	"tilebench/vision/study"
+	"tilebench/vision/study/analysis"
 )
 
 // MergeOutcome summarises a merge.
@@ -50,13 +52,13 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 	if entries, err := os.ReadDir(out); err == nil && len(entries) > 0 {
 		return nil, fmt.Errorf("merge: %s is not empty; choose a new folder", out)
 	}
-	var first *StudyInfo
-	var all []Record
+	var first *study.Info
+	var all []study.Record
 	for _, d := range dirs {
 		if abs(d) == abs(out) {
 			return nil, fmt.Errorf("merge: %s is both an input and the output", d)
 		}
-		si, err := ReadStudy(d)
+		si, err := study.ReadInfo(d)
 		if err != nil {
 			return nil, fmt.Errorf("merge: %w", err)
 		}
@@ -65,23 +67,23 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 		} else if si.Fingerprint != first.Fingerprint {
 			return nil, fmt.Errorf("merge: %s holds study %s (%q) but %s holds study %s (%q): not the same study", d, si.Fingerprint, si.Definition.Name, dirs[0], first.Fingerprint, first.Definition.Name)
 		}
-		recs, _, err := ReadResults(d)
+		recs, _, err := study.ReadResults(d)
 		if err != nil {
 			return nil, fmt.Errorf("merge: %w", err)
 		}
 		for _, r := range recs {
 			if r.Study != first.Fingerprint {
-				return nil, fmt.Errorf("merge: %s holds a record of study %s", filepath.Join(d, ResultsFile), r.Study)
+				return nil, fmt.Errorf("merge: %s holds a record of study %s", filepath.Join(d, study.ResultsFile), r.Study)
 			}
 		}
-		all = append(all, Latest(recs)...)
+		all = append(all, study.Latest(recs)...)
 	}
 	p, err := first.Plan()
 	if err != nil {
 		return nil, fmt.Errorf("merge: %w", err)
 	}
 	// Two folders holding the same finished episode must agree.
-	byUnit := map[unit]Record{}
+	byUnit := map[unit]study.Record{}
 	for _, r := range all {
 		u := unit{r.Cell, r.Episode}
 		if r.Cell < 0 || r.Cell >= len(p.Cells) || r.Episode < 0 || r.Episode >= p.Def.Episodes {
@@ -93,14 +95,14 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 			continue
 		}
 		if !r.Failed() {
-			a, _ := EncodeRecord(&prev)
-			b, _ := EncodeRecord(&r)
+			a, _ := study.EncodeRecord(&prev)
+			b, _ := study.EncodeRecord(&r)
 			if !bytes.Equal(a, b) {
 				return nil, fmt.Errorf("merge: cell %d episode %d differs between folders (return %v vs %v): not reproducible", r.Cell, r.Episode, prev.Return, r.Return)
 			}
 		}
 	}
-	merged := make([]Record, 0, len(byUnit))
+	merged := make([]study.Record, 0, len(byUnit))
 	mo := &MergeOutcome{}
 	for _, r := range byUnit {
 		merged = append(merged, r)
@@ -108,7 +110,7 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 			mo.Failed++
 		}
 	}
-	SortRecords(merged)
+	study.SortRecords(merged)
 	mo.Episodes = len(merged)
 	mo.Missing = p.Units() - len(merged)
 	if mo.Missing > 0 && !opt.AllowPartial {
@@ -121,15 +123,15 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 	}
 	si := *first
 	si.Shard = nil
-	if err := writeStudy(out, &si); err != nil {
+	if err := study.WriteInfo(out, &si); err != nil {
 		return nil, err
 	}
-	if err := WriteResults(out, merged); err != nil {
+	if err := study.WriteResults(out, merged); err != nil {
 		return nil, err
 	}
-	var timings []Timing
+	var timings []study.Timing
 	for _, d := range dirs {
-		timings = append(timings, ReadTimings(d)...)
+		timings = append(timings, study.ReadTimings(d)...)
 	}
 	sort.SliceStable(timings, func(i, j int) bool {
 		if timings[i].Cell != timings[j].Cell {
@@ -137,7 +139,7 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 		}
 		return timings[i].Episode < timings[j].Episode
 	})
-	if err := atomicfile.Write(filepath.Join(out, TimingFile), func(w io.Writer) error {
+	if err := atomicfile.Write(filepath.Join(out, study.TimingFile), func(w io.Writer) error {
 		for _, t := range timings {
 			b, err := jsonLine(t)
 			if err != nil {
@@ -152,15 +154,15 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 		return nil, err
 	}
 	for _, d := range dirs {
-		if err := copyDir(filepath.Join(d, StripsDir), filepath.Join(out, StripsDir)); err != nil {
+		if err := copyDir(filepath.Join(d, study.StripsDir), filepath.Join(out, study.StripsDir)); err != nil {
 			return nil, fmt.Errorf("merge: strips: %w", err)
 		}
-		if err := copyFileIfMissing(filepath.Join(d, CostsFile), filepath.Join(out, CostsFile)); err != nil {
+		if err := copyFileIfMissing(filepath.Join(d, analysis.CostsFile), filepath.Join(out, analysis.CostsFile)); err != nil {
 			return nil, fmt.Errorf("merge: costs: %w", err)
 		}
 	}
 	if writeReport {
-		if err := WriteReport(out); err != nil {
+		if err := analysis.WriteReport(out); err != nil {
 			return mo, err
 		}
 	}

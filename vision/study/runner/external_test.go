@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"context"
@@ -10,6 +10,7 @@ import (
 
 	"tilebench/vision"
 	"tilebench/vision/remote"
+	"tilebench/vision/study"
 )
 
 // The test binary doubles as an external policy process: with
@@ -54,15 +55,15 @@ func TestExternalPolicyCrashMarksEpisodesFailed(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	p, err := NewPlan(Definition{Name: "ext", Game: "drive", Episodes: 6, Seed: 5,
-		Policy: PolicyDef{Source: "exec:'" + exe + "'", Timeout: "10s"}, Patch: Axis{"16"},
-		Axes: Axes{Occlude: Axis{"random:0.3"}}, Stats: StatsDef{Resamples: 200}, Strips: []int{}})
+	p, err := study.NewPlan(study.Definition{Name: "ext", Game: "drive", Episodes: 6, Seed: 5,
+		Policy: study.PolicyDef{Source: "exec:'" + exe + "'", Timeout: "10s"}, Patch: study.Axis{"16"},
+		Axes: study.Axes{Occlude: study.Axis{"random:0.3"}}, Stats: study.StatsDef{Resamples: 200}, Strips: []int{}})
 	if err != nil {
 		t.Fatal(err)
 	}
 	dir := filepath.Join(t.TempDir(), "s")
 	t.Setenv("STUDY_FAKE_POLICY", "crash")
-	out, err := Run(context.Background(), p, Options{Dir: dir, Workers: 2, Env: DefaultEnv(p, filepath.Join(dir, LogsDir))})
+	out, err := Run(context.Background(), p, Options{Dir: dir, Workers: 2, Env: DefaultEnv(p, filepath.Join(dir, study.LogsDir))})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -80,7 +81,7 @@ func TestExternalPolicyCrashMarksEpisodesFailed(t *testing.T) {
 	if out.Failed != wantFailed || out.Ran != p.Units() {
 		t.Fatalf("outcome %+v, want %d failed", out, wantFailed)
 	}
-	recs, _, _ := ReadResults(dir)
+	recs, _, _ := study.ReadResults(dir)
 	for _, r := range recs {
 		crashed := r.PipeSeed%3 == 0
 		if r.Failed() != crashed {
@@ -95,7 +96,7 @@ func TestExternalPolicyCrashMarksEpisodesFailed(t *testing.T) {
 	}
 	// The policy fixed, --resume retries exactly the failed episodes.
 	t.Setenv("STUDY_FAKE_POLICY", "ok")
-	out, err = Run(context.Background(), p, Options{Dir: dir, Resume: true, Workers: 2, Env: DefaultEnv(p, filepath.Join(dir, LogsDir))})
+	out, err = Run(context.Background(), p, Options{Dir: dir, Resume: true, Workers: 2, Env: DefaultEnv(p, filepath.Join(dir, study.LogsDir))})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,4 +1,4 @@
-package study
+package runner
 
 import (
 	"context"
@@ -21,88 +21,55 @@ import (
 	"tilebench/internal/atomicfile"
 	"tilebench/patch"
 	"tilebench/vision"
+	"tilebench/vision/study"
+	"tilebench/vision/study/analysis"
 )
-
-// Shard is one part of a study split for a cluster: the episodes whose
-// index u = cell·episodes + episode satisfies u mod Count = Index.
-// The zero value (and Count 1) is the whole study.
-type Shard struct {
-	// Index runs from 0 to Count-1.
-	Index int `json:"index"`
-	// Count is the number of shards; 0 or 1 means no split.
-	Count int `json:"count"`
-}
-
-// Whole reports whether s is the whole study.
-func (s Shard) Whole() bool { return s.Count <= 1 }
-
-// Owns reports whether unit u belongs to the shard.
-func (s Shard) Owns(u int) bool { return s.Whole() || u%s.Count == s.Index }
-
-// String is "i/n", or "all" for the whole study.
-func (s Shard) String() string {
-	if s.Whole() {
-		return "all"
-	}
-	return fmt.Sprintf("%d/%d", s.Index, s.Count)
-}
-
-// ParseShard reads "i/n" with 0 ≤ i < n.
-func ParseShard(s string) (Shard, error) {
-	a, b, ok := strings.Cut(strings.TrimSpace(s), "/")
-	i, e1 := strconv.Atoi(a)
-	n, e2 := strconv.Atoi(b)
-	if !ok || e1 != nil || e2 != nil || n < 1 || n > 1_000_000 || i < 0 || i >= n {
-		return Shard{}, fmt.Errorf("shard %q: want i/n with 0 ≤ i < n (shards count from 0)", s)
-	}
-	return Shard{Index: i, Count: n}, nil
-}
 
 // ShardFromEnv takes the shard from a cluster's environment: a Slurm job
 // array (SLURM_ARRAY_TASK_ID, minus SLURM_ARRAY_TASK_MIN when set, out of
 // SLURM_ARRAY_TASK_COUNT) or a Kubernetes indexed Job (JOB_COMPLETION_INDEX
 // out of count, which the Job's completions must give, as
 // Kubernetes sets no count variable). ok is false when neither is set.
-func ShardFromEnv(getenv func(string) string, count int) (s Shard, ok bool, err error) {
+func ShardFromEnv(getenv func(string) string, count int) (s study.Shard, ok bool, err error) {
 	if id := getenv("SLURM_ARRAY_TASK_ID"); id != "" {
 		n := getenv("SLURM_ARRAY_TASK_COUNT")
 		i, e1 := strconv.Atoi(id)
 		c, e2 := strconv.Atoi(n)
 		if e1 != nil || e2 != nil {
-			return Shard{}, false, fmt.Errorf("slurm array: SLURM_ARRAY_TASK_ID=%q SLURM_ARRAY_TASK_COUNT=%q: want whole numbers", id, n)
+			return study.Shard{}, false, fmt.Errorf("slurm array: SLURM_ARRAY_TASK_ID=%q SLURM_ARRAY_TASK_COUNT=%q: want whole numbers", id, n)
 		}
 		if m := getenv("SLURM_ARRAY_TASK_MIN"); m != "" {
 			lo, err := strconv.Atoi(m)
 			if err != nil {
-				return Shard{}, false, fmt.Errorf("slurm array: SLURM_ARRAY_TASK_MIN=%q: want a whole number", m)
+				return study.Shard{}, false, fmt.Errorf("slurm array: SLURM_ARRAY_TASK_MIN=%q: want a whole number", m)
 			}
 			i -= lo
 		}
-		s, err := ParseShard(fmt.Sprintf("%d/%d", i, c))
+		s, err := study.ParseShard(fmt.Sprintf("%d/%d", i, c))
 		if err != nil {
-			return Shard{}, false, fmt.Errorf("slurm array: %w (arrays must be contiguous, e.g. --array=0-7)", err)
+			return study.Shard{}, false, fmt.Errorf("slurm array: %w (arrays must be contiguous, e.g. --array=0-7)", err)
 		}
 		return s, true, nil
 	}
 	if id := getenv("JOB_COMPLETION_INDEX"); id != "" {
 		if count <= 0 {
-			return Shard{}, false, errors.New("JOB_COMPLETION_INDEX is set: give the number of shards (--shards N, the Job's completions)")
+			return study.Shard{}, false, errors.New("JOB_COMPLETION_INDEX is set: give the number of shards (--shards N, the Job's completions)")
 		}
 		i, err := strconv.Atoi(id)
 		if err != nil {
-			return Shard{}, false, fmt.Errorf("JOB_COMPLETION_INDEX=%q: want a whole number", id)
+			return study.Shard{}, false, fmt.Errorf("JOB_COMPLETION_INDEX=%q: want a whole number", id)
 		}
-		s, err := ParseShard(fmt.Sprintf("%d/%d", i, count))
+		s, err := study.ParseShard(fmt.Sprintf("%d/%d", i, count))
 		if err != nil {
-			return Shard{}, false, fmt.Errorf("indexed job: %w", err)
+			return study.Shard{}, false, fmt.Errorf("indexed job: %w", err)
 		}
 		return s, true, nil
 	}
-	return Shard{}, false, nil
+	return study.Shard{}, false, nil
 }
 
-// Options control Run. Env is required; the zero value of the rest runs
-// the whole study on every core into Dir.
+// Options control Run. The zero value but Dir runs the whole study on
+// every core into Dir.
 type Options struct {
 	// Dir is the study folder. It must not exist, be empty, or (with
 	// Resume) hold the same study.
@@ -114,9 +81,16 @@ type Options struct {
 	// exist starts the study.
 	Resume bool
 	// Shard restricts the run to one part of the study.
-	Shard Shard
-	// Env makes each worker's games and policies.
+	Shard study.Shard
+	// Env makes each worker's games and policies. Default: the
+	// registered games with the study's policy (DefaultEnv).
 	Env EnvFactory
+	// LogDir receives external policies' stderr when Env is the default.
+	// Default Dir/logs.
+	LogDir string
+	// Train, if set, trains the study's policies before the episodes
+	// (TrainPolicies); the study's policy must be TrainTemplate(Dir).
+	Train *TrainOptions
 	// Progress, if set, is called after every finished episode with the
 	// number done (including those found on resume) and the total for
 	// this shard. Calls come from one goroutine.
@@ -136,6 +110,8 @@ type Outcome struct {
 	// Steps is the number of game steps played now; Elapsed the wall time.
 	Steps   int
 	Elapsed time.Duration
+	// Analysis is what the report was made from (nil with NoReport).
+	Analysis *analysis.Analysis
 }
 
 // ErrInterrupted is returned (wrapped) when the context ends a run early.
@@ -144,61 +120,62 @@ var ErrInterrupted = errors.New("study interrupted")
 type unit struct{ cell, ep int }
 
 type finished struct {
-	rec    Record
-	timing Timing
+	rec    study.Record
+	timing study.Timing
 }
 
-// Run plays the study's episodes (those of opt.Shard not already finished
-// in opt.Dir), appending one record per episode to results.jsonl, synced
-// to disk, so that a run stopped at any point loses at most the episodes
-// in flight. At the end it rewrites results.jsonl in canonical order and,
-// unless opt.NoReport, writes the report. A cancelled ctx stops the run
-// after the episodes in flight; the error wraps ErrInterrupted.
-func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
+// playEpisodes plays the study's episodes (those of opt.Shard not already
+// finished in opt.Dir), appending one record per episode to
+// results.jsonl, synced to disk, so that a run stopped at any point loses
+// at most the episodes in flight. At the end it rewrites results.jsonl in
+// canonical order and returns the latest record of every episode. A
+// cancelled ctx stops the run after the episodes in flight; the error
+// wraps ErrInterrupted.
+func playEpisodes(ctx context.Context, p *study.Plan, opt Options) (*Outcome, []study.Record, error) {
 	start := time.Now()
 	if opt.Env == nil {
-		return nil, errors.New("study: no Env")
+		return nil, nil, errors.New("study: no Env")
 	}
 	if opt.Dir == "" {
-		return nil, errors.New("study: no output folder given")
+		return nil, nil, errors.New("study: no output folder given")
 	}
 	workers := opt.Workers
 	if workers <= 0 {
 		workers = runtime.NumCPU()
 	}
 	if err := prepareDir(p, opt); err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	// Check every cell builds (pipeline specs, policy files, geometry)
 	// before anything is written.
 	if err := preflight(p, opt.Env); err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	if err := os.MkdirAll(opt.Dir, 0o755); err != nil {
-		return nil, fmt.Errorf("study folder: %w", err)
+		return nil, nil, fmt.Errorf("study folder: %w", err)
 	}
-	if _, err := os.Stat(filepath.Join(opt.Dir, StudyFile)); errors.Is(err, os.ErrNotExist) {
-		si := &StudyInfo{Format: 1, Fingerprint: p.Fingerprint, Definition: p.Def, Cells: p.Cells,
+	if _, err := os.Stat(filepath.Join(opt.Dir, study.InfoFile)); errors.Is(err, os.ErrNotExist) {
+		si := &study.Info{Format: 1, Fingerprint: p.Fingerprint, Definition: p.Def, Cells: p.Cells,
 			Episodes: p.Def.Episodes, Command: opt.Command}
 		if !opt.Shard.Whole() {
 			sh := opt.Shard
 			si.Shard = &sh
 		}
-		if err := writeStudy(opt.Dir, si); err != nil {
-			return nil, err
+		if err := study.WriteInfo(opt.Dir, si); err != nil {
+			return nil, nil, err
 		}
 	}
-	old, validEnd, err := ReadResults(opt.Dir)
+	old, validEnd, err := study.ReadResults(opt.Dir)
 	if err != nil {
-		return nil, err
+		return nil, nil, err
 	}
 	for _, r := range old {
 		if r.Study != p.Fingerprint || r.Cell < 0 || r.Cell >= len(p.Cells) || r.Episode < 0 || r.Episode >= p.Def.Episodes {
-			return nil, fmt.Errorf("%s: record for cell %d episode %d does not belong to study %s", filepath.Join(opt.Dir, ResultsFile), r.Cell, r.Episode, p.Fingerprint)
+			return nil, nil, fmt.Errorf("%s: record for cell %d episode %d does not belong to study %s", filepath.Join(opt.Dir, study.ResultsFile), r.Cell, r.Episode, p.Fingerprint)
 		}
 	}
 	done := map[unit]bool{}
-	for _, r := range Latest(old) {
+	for _, r := range study.Latest(old) {
 		if !r.Failed() {
 			done[unit{r.Cell, r.Episode}] = true
 		}
@@ -219,26 +196,26 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	out := &Outcome{Total: total, Kept: total - len(todo)}
 
 	// Drop a line cut short by a kill, then append.
-	rpath := filepath.Join(opt.Dir, ResultsFile)
+	rpath := filepath.Join(opt.Dir, study.ResultsFile)
 	rf, err := os.OpenFile(rpath, os.O_WRONLY|os.O_CREATE, 0o644)
 	if err != nil {
-		return nil, fmt.Errorf("open results: %w", err)
+		return nil, nil, fmt.Errorf("open results: %w", err)
 	}
 	defer rf.Close()
 	if err := rf.Truncate(validEnd); err != nil {
-		return nil, fmt.Errorf("results: %w", err)
+		return nil, nil, fmt.Errorf("results: %w", err)
 	}
 	if _, err := rf.Seek(validEnd, io.SeekStart); err != nil {
-		return nil, fmt.Errorf("results: %w", err)
+		return nil, nil, fmt.Errorf("results: %w", err)
 	}
 	// Timing lines are written before their records: drop those whose
 	// record a kill kept from being written (the episode is played again).
-	if err := reconcileTimings(opt.Dir, old); err != nil {
-		return nil, err
+	if err := study.ReconcileTimings(opt.Dir, old); err != nil {
+		return nil, nil, err
 	}
-	tf, err := os.OpenFile(filepath.Join(opt.Dir, TimingFile), os.O_WRONLY|os.O_CREATE|os.O_APPEND, 0o644)
+	tf, err := os.OpenFile(filepath.Join(opt.Dir, study.TimingFile), os.O_WRONLY|os.O_CREATE|os.O_APPEND, 0o644)
 	if err != nil {
-		return nil, fmt.Errorf("open timing: %w", err)
+		return nil, nil, fmt.Errorf("open timing: %w", err)
 	}
 	defer tf.Close()
 
@@ -272,6 +249,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	go func() { wg.Wait(); close(results) }()
 
 	var writeErr error
+	var ran []study.Record
 	n := out.Kept
 	for f := range results {
 		if writeErr != nil {
@@ -293,7 +271,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 			cancelRun()
 			continue
 		}
-		b, err := EncodeRecord(&f.rec)
+		b, err := study.EncodeRecord(&f.rec)
 		if err == nil {
 			_, err = rf.Write(b)
 		}
@@ -305,6 +283,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 			cancelRun()
 			continue
 		}
+		ran = append(ran, f.rec)
 		out.Ran++
 		out.Steps += f.rec.Steps
 		n++
@@ -314,35 +293,27 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	}
 	out.Elapsed = time.Since(start)
 	if writeErr != nil {
-		return out, writeErr
+		return out, nil, writeErr
 	}
-	all, _, err := ReadResults(opt.Dir)
-	if err != nil {
-		return out, err
-	}
-	latest := Latest(all)
+	// results.jsonl now holds old (up to validEnd) and then ran.
+	latest := study.Latest(append(old, ran...))
 	for _, r := range latest {
 		if r.Failed() {
 			out.Failed++
 		}
 	}
 	if ctx.Err() != nil && out.Kept+out.Ran < total {
-		return out, fmt.Errorf("%w: %d of %d episodes recorded in %s; continue with --resume", ErrInterrupted, out.Kept+out.Ran, total, opt.Dir)
+		return out, nil, fmt.Errorf("%w: %d of %d episodes recorded in %s; continue with --resume", ErrInterrupted, out.Kept+out.Ran, total, opt.Dir)
 	}
 	rf.Close()
-	if err := WriteResults(opt.Dir, latest); err != nil {
-		return out, err
+	if err := study.WriteResults(opt.Dir, latest); err != nil {
+		return out, nil, err
 	}
-	if !opt.NoReport {
-		if err := WriteReport(opt.Dir); err != nil {
-			return out, err
-		}
-	}
-	return out, nil
+	return out, latest, nil
 }
 
 // prepareDir refuses a folder that holds something else than this study.
-func prepareDir(p *Plan, opt Options) error {
+func prepareDir(p *study.Plan, opt Options) error {
 	entries, err := os.ReadDir(opt.Dir)
 	if errors.Is(err, os.ErrNotExist) {
 		return nil
@@ -360,10 +331,10 @@ func prepareDir(p *Plan, opt Options) error {
 	if others == 0 {
 		return nil
 	}
-	si, err := ReadStudy(opt.Dir)
+	si, err := study.ReadInfo(opt.Dir)
 	if err != nil {
-		if _, serr := os.Stat(filepath.Join(opt.Dir, StudyFile)); serr == nil {
-			return fmt.Errorf("%s: %s is corrupt (%v); nothing changed", opt.Dir, StudyFile, err)
+		if _, serr := os.Stat(filepath.Join(opt.Dir, study.InfoFile)); serr == nil {
+			return fmt.Errorf("%s: %s is corrupt (%v); nothing changed", opt.Dir, study.InfoFile, err)
 		}
 		return fmt.Errorf("%s is not empty and holds no study; choose another --out", opt.Dir)
 	}
@@ -373,7 +344,7 @@ func prepareDir(p *Plan, opt Options) error {
 	if si.Fingerprint != p.Fingerprint {
 		return fmt.Errorf("%s holds a different study (%s, %q) than the one given (%s, %q); nothing changed", opt.Dir, si.Fingerprint, si.Definition.Name, p.Fingerprint, p.Def.Name)
 	}
-	var stored Shard
+	var stored study.Shard
 	if si.Shard != nil {
 		stored = *si.Shard
 	}
@@ -384,7 +355,7 @@ func prepareDir(p *Plan, opt Options) error {
 }
 
 // preflight builds a player for every cell once.
-func preflight(p *Plan, f EnvFactory) (err error) {
+func preflight(p *study.Plan, f EnvFactory) (err error) {
 	env, err := f(0)
 	if err != nil {
 		return err
@@ -402,7 +373,7 @@ func preflight(p *Plan, f EnvFactory) (err error) {
 	return nil
 }
 
-func worker(ctx context.Context, p *Plan, opt Options, w int, jobs <-chan unit, results chan<- finished) {
+func worker(ctx context.Context, p *study.Plan, opt Options, w int, jobs <-chan unit, results chan<- finished) {
 	var env Env
 	var envErr error
 	lastCell := -1
@@ -416,7 +387,7 @@ func worker(ctx context.Context, p *Plan, opt Options, w int, jobs <-chan unit, 
 		if ctx.Err() != nil {
 			continue
 		}
-		rec := Record{Format: 1, Study: p.Fingerprint, Cell: u.cell, Episode: u.ep, Params: p.Cells[u.cell],
+		rec := study.Record{Format: 1, Study: p.Fingerprint, Cell: u.cell, Episode: u.ep, Params: p.Cells[u.cell],
 			GameSeed: p.GameSeed(u.ep), PipeSeed: p.PipeSeed(u.cell, u.ep)}
 		if env == nil {
 			env, envErr = opt.Env(w)
@@ -440,7 +411,7 @@ func worker(ctx context.Context, p *Plan, opt Options, w int, jobs <-chan unit, 
 			if err == nil && strip != nil {
 				// A strip that cannot be written costs the report a
 				// picture, not the study an episode.
-				_ = strip.write(filepath.Join(opt.Dir, StripsDir, fmt.Sprintf("cell-%04d.png", u.cell)))
+				_ = strip.write(filepath.Join(opt.Dir, study.StripsDir, fmt.Sprintf("cell-%04d.png", u.cell)))
 			}
 		}
 		if err != nil {
@@ -456,7 +427,7 @@ func worker(ctx context.Context, p *Plan, opt Options, w int, jobs <-chan unit, 
 			rec.Return, rec.Steps, rec.End = res.Return, res.Steps, res.Reason.String()
 		}
 		secs := res.Duration.Seconds()
-		t := Timing{Format: 1, Cell: u.cell, Episode: u.ep, Steps: res.Steps, Seconds: secs}
+		t := study.Timing{Format: 1, Cell: u.cell, Episode: u.ep, Steps: res.Steps, Seconds: secs}
 		if secs > 0 {
 			t.StepsPerSecond = float64(res.Steps) / secs
 		}
@@ -464,7 +435,7 @@ func worker(ctx context.Context, p *Plan, opt Options, w int, jobs <-chan unit, 
 	}
 }
 
-func safePlayer(env Env, c Cell) (pl Player, err error) {
+func safePlayer(env Env, c study.Cell) (pl Player, err error) {
 	defer func() {
 		if r := recover(); r != nil {
 			err = fmt.Errorf("building cell %s: panic: %v", c.Label(), r)
@@ -563,7 +534,7 @@ func (s *stripRecorder) write(path string) error {
 	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
 		return err
 	}
-	meta, err := jsonLine(StripMeta{Format: 1, Steps: s.kept, Width: cw, Height: ch, Gap: gap, Overlay: s.overlayName()})
+	meta, err := jsonLine(analysis.StripMeta{Format: 1, Steps: s.kept, Width: cw, Height: ch, Gap: gap, Overlay: s.overlayName()})
 	if err != nil {
 		return err
 	}
@@ -587,26 +558,26 @@ func jsonLine(v any) ([]byte, error) {
 // returns the fresh record and the recorded one (nil if none is
 // recorded). Seeds come from the plan, so the fresh record equals the
 // recorded one for a reproducible policy.
-func Replay(dir string, c, ep int, f EnvFactory) (fresh Record, recorded *Record, err error) {
-	si, err := ReadStudy(dir)
+func Replay(dir string, c, ep int, f EnvFactory) (fresh study.Record, recorded *study.Record, err error) {
+	si, err := study.ReadInfo(dir)
 	if err != nil {
-		return Record{}, nil, err
+		return study.Record{}, nil, err
 	}
 	p, err := si.Plan()
 	if err != nil {
-		return Record{}, nil, err
+		return study.Record{}, nil, err
 	}
 	if c < 0 || c >= len(p.Cells) {
-		return Record{}, nil, fmt.Errorf("cell %d: the study has cells 0..%d", c, len(p.Cells)-1)
+		return study.Record{}, nil, fmt.Errorf("cell %d: the study has cells 0..%d", c, len(p.Cells)-1)
 	}
 	if ep < 0 || ep >= p.Def.Episodes {
-		return Record{}, nil, fmt.Errorf("episode %d: the study has episodes 0..%d", ep, p.Def.Episodes-1)
+		return study.Record{}, nil, fmt.Errorf("episode %d: the study has episodes 0..%d", ep, p.Def.Episodes-1)
 	}
-	recs, _, err := ReadResults(dir)
+	recs, _, err := study.ReadResults(dir)
 	if err != nil {
-		return Record{}, nil, err
+		return study.Record{}, nil, err
 	}
-	for _, r := range Latest(recs) {
+	for _, r := range study.Latest(recs) {
 		if r.Cell == c && r.Episode == ep {
 			r := r
 			recorded = &r
@@ -614,14 +585,14 @@ func Replay(dir string, c, ep int, f EnvFactory) (fresh Record, recorded *Record
 	}
 	env, err := f(0)
 	if err != nil {
-		return Record{}, recorded, err
+		return study.Record{}, recorded, err
 	}
 	defer env.Close()
 	pl, err := env.Player(p.Cells[c])
 	if err != nil {
-		return Record{}, recorded, err
+		return study.Record{}, recorded, err
 	}
-	fresh = Record{Format: 1, Study: p.Fingerprint, Cell: c, Episode: ep, Params: p.Cells[c],
+	fresh = study.Record{Format: 1, Study: p.Fingerprint, Cell: c, Episode: ep, Params: p.Cells[c],
 		GameSeed: p.GameSeed(ep), PipeSeed: p.PipeSeed(c, ep)}
 	res, err := safePlay(pl, fresh.GameSeed, fresh.PipeSeed, nil)
 	if err != nil {

@@ -1,13 +1,11 @@
-package study
+package runner
 
 import (
-	"fmt"
 	"image"
 
 	"tilebench/patch"
 	"tilebench/vision"
 	"tilebench/vision/overlay"
-	"tilebench/vision/report"
 )
 
 // stripOverlay draws the policy's attention on the frames a strip keeps:
@@ -70,17 +68,4 @@ func (s *stripRecorder) keepOverlaid(t int, raw *image.RGBA, obs *vision.Observa
 	s.kept = append(s.kept, t)
 	s.raw = append(s.raw, r)
 	s.seen = append(s.seen, seen)
-}
-
-// addLegend ends a strip drawn with an overlay with the overlay's key.
-func addLegend(st *report.Strip, dir string, cells []int) {
-	for _, c := range cells {
-		_, m := loadStrip(dir, c)
-		if m == nil || m.Overlay == "" {
-			continue
-		}
-		st.Frames = append(st.Frames, report.Frame{Label: "key: dim → amber, ringed = most attended", Image: overlay.Legend(8)})
-		st.Caption += fmt.Sprintf(" Overlay %s: each patch is dimmed by how little attention the policy gave it and washed amber by how much; ringed patches drew the most.", m.Overlay)
-		return
-	}
 }
