@@ -13,21 +13,22 @@ import (
 	"tilebench/vision/policies"
 )
 
-// overlayFlags are --overlay (and, for export, the --policy whose
-// attention is drawn).
+// overlayFlags are --overlay (and, for export, the --weights whose
+// attention is drawn; export runs no other policy, so it does not take
+// the --policy grammar).
 type overlayFlags struct {
 	spec   string
 	policy *string // export only
 	parsed overlay.Spec
 }
 
-// addOverlayFlags registers --overlay on fs, and --policy when withPolicy
+// addOverlayFlags registers --overlay on fs, and --weights when withPolicy
 // (export, which otherwise runs no policy).
 func addOverlayFlags(fs *flag.FlagSet, withPolicy bool) *overlayFlags {
 	o := &overlayFlags{}
 	fs.StringVar(&o.spec, "overlay", "none", "draw the policy's attention over the frames it saw: none, attention (heat), top:K (outline the K most attended patches) or attention+top:K (e.g. --overlay attention+top:3)")
 	if withPolicy {
-		o.policy = fs.String("policy", "", "with --overlay: the weights FILE.safetensors whose attention is drawn (e.g. --policy drive-p8.safetensors)")
+		o.policy = fs.String("weights", "", "with --overlay: the weights FILE.safetensors whose attention is drawn (e.g. --weights drive-p8.safetensors)")
 	}
 	return o
 }
@@ -42,11 +43,11 @@ func (o *overlayFlags) parse(cmd string) error {
 	if o.policy != nil {
 		switch {
 		case sp.On() && *o.policy == "":
-			return usagef("%s: --overlay needs --policy FILE.safetensors (the policy whose attention is drawn)", cmd)
+			return usagef("%s: --overlay needs --weights FILE.safetensors (the policy whose attention is drawn)", cmd)
 		case !sp.On() && *o.policy != "":
-			return usagef("%s: --policy is used only with --overlay", cmd)
+			return usagef("%s: --weights is used only with --overlay", cmd)
 		case sp.On() && policies.Kind(*o.policy) != policies.KindFile:
-			return usagef("%s: --policy %q: export draws the attention of a weights file (.safetensors); use play or watch for other policies", cmd, *o.policy)
+			return usagef("%s: --weights %q: export draws the attention of a weights file (.safetensors); use play or watch for other policies", cmd, *o.policy)
 		}
 	}
 	return nil
@@ -63,10 +64,10 @@ func (o *overlayFlags) exportPolicy(g *patch.Grid) (nets.Net, error) {
 	}
 	ng := n.Grid()
 	if ng.Cols != g.Cols || ng.Rows != g.Rows || ng.D() != g.D() {
-		return nil, usagef("export: --policy %s was trained on %s; these frames are cut as %s (match --patch and the frame size)", *o.policy, ng, g)
+		return nil, usagef("export: --weights %s was trained on %s; these frames are cut as %s (match --patch and the frame size)", *o.policy, ng, g)
 	}
 	if _, ok := n.(vision.AttentionReporter); !ok {
-		return nil, usagef("export: --policy %s is a %s policy, which has no attention to draw", *o.policy, n.Config().Family)
+		return nil, usagef("export: --weights %s is a %s policy, which has no attention to draw", *o.policy, n.Config().Family)
 	}
 	return n, nil
 }

@@ -22,7 +22,7 @@ func TestExportOverlay(t *testing.T) {
 	if code, _, stderr := runCLI(t, "", append(common, "--out", plain)...); code != 0 {
 		t.Fatalf("plain export: %d %s", code, stderr)
 	}
-	code, stdout, stderr := runCLI(t, "", append(common, "--out", marked, "--overlay", "attention+top:3", "--policy", pol)...)
+	code, stdout, stderr := runCLI(t, "", append(common, "--out", marked, "--overlay", "attention+top:3", "--weights", pol)...)
 	if code != 0 {
 		t.Fatalf("overlay export: %d %s", code, stderr)
 	}
@@ -65,11 +65,11 @@ func TestOverlayUsageErrors(t *testing.T) {
 	out := t.TempDir()
 	for _, args := range [][]string{
 		{"export", "--in", "builtin:drift", "--out", out, "--overlay", "attention"},
-		{"export", "--in", "builtin:drift", "--out", out, "--policy", pol},
-		{"export", "--in", "builtin:drift", "--out", out, "--overlay", "heat", "--policy", pol},
-		{"export", "--in", "builtin:drift", "--out", out, "--overlay", "top:2", "--policy", "expert"},
-		{"export", "--in", "builtin:drift", "--out", out, "--overlay", "top:2", "--policy", pol, "--as", "npy"},
-		{"export", "--in", "builtin:drift", "--out", out, "--overlay", "top:2", "--policy", pol, "--patch", "6"},
+		{"export", "--in", "builtin:drift", "--out", out, "--weights", pol},
+		{"export", "--in", "builtin:drift", "--out", out, "--overlay", "heat", "--weights", pol},
+		{"export", "--in", "builtin:drift", "--out", out, "--overlay", "top:2", "--weights", "expert"},
+		{"export", "--in", "builtin:drift", "--out", out, "--overlay", "top:2", "--weights", pol, "--as", "npy"},
+		{"export", "--in", "builtin:drift", "--out", out, "--overlay", "top:2", "--weights", pol, "--patch", "6"},
 		{"play", "--game", "paddle", "--overlay", "attention", "--episodes", "1"},
 		{"play", "--game", "paddle", "--overlay", "top:0", "--episodes", "1"},
 	} {

@@ -53,13 +53,10 @@ func runProbe(ctx *runContext, args []string) error {
 	size := fs.String("size", "", "frame size `WxH` of raw .rgb/.raw input")
 	fs.StringVar(&c.Episodes, "episodes", "", "sequence boundaries `FILE`: one start index per line, or a sequence column with one id per frame")
 	fs.StringVar(&c.Actions, "actions", "", "recorded actions `FILE.npy`, one row per frame (N or N×W)")
-	fs.StringVar(&c.Policy, "policy", "", "the policy: a weights `FILE`, fresh, exec:COMMAND ARGS or tcp://HOST:PORT")
+	pf := policies.AddFlags(fs, policies.FlagConfig{Usage: "the policy: a weights FILE, fresh, exec:COMMAND ARGS or tcp://HOST:PORT"})
 	fs.StringVar(&c.Family, "family", "attention", "network `FAMILY` of --policy fresh: attention, posattention, mlp, meanpool")
 	fs.StringVar(&c.ActionSpace, "action-space", "", "`SPACE` of a fresh or external policy: continuous:N, continuous:N:LOW:HIGH or discrete:K (default: from --actions)")
 	fs.StringVar(&c.Resize, "resize", "", "scale frames to `WxH` (the policy's frame size) with a triangle filter")
-	var timeout policies.DurationText
-	fs.Var(&timeout, "policy-timeout", "external policy: longest wait (a `DURATION`) for one step's reply (default 5s) (e.g. --policy-timeout 10s)")
-	fs.StringVar(&c.Obs, "policy-obs", "", "what an external policy receives: frame (default) or tokens")
 	noBatch := fs.Bool("no-batch", false, "send one frame per message even to a policy that offers batches")
 	patchList := fs.String("patch", "", "patch `SIZES` in pixels (default: the weights file's, else 8)")
 	tf := addSweepFlags(fs)
@@ -91,12 +88,11 @@ func runProbe(ctx *runContext, args []string) error {
 	c.NoBatch = *noBatch
 	c.Patch = study.ParseAxis(*patchList)
 	tf.apply(&c.Axes, true)
-	if timeout.Text != "" {
-		if timeout.D <= 0 {
-			return usagef("probe: --policy-timeout %s: want a positive duration such as 5s", timeout.Text)
-		}
-		c.Timeout = timeout.Text
+	if _, err := pf.Options(); err != nil {
+		return usagef("probe: %v", err)
 	}
+	c.Policy, c.Timeout, c.StartTimeout = pf.Source, pf.Timeout.Text, pf.StartTimeout.Text
+	c.Obs, c.Dtype, c.Clamp = pf.Obs, pf.Dtype, pf.Clamp
 	var sh study.Shard
 	if *shard != "" {
 		s, err := study.ParseShard(*shard)
@@ -112,7 +108,11 @@ func runProbe(ctx *runContext, args []string) error {
 	bar := newProgress(ctx.stderr, 0, "probe")
 	sctx, stop := interruptible()
 	defer stop()
-	o, err := probe.Run(sctx, p, probe.Options{Dir: *out, Workers: *workers, Resume: *resume, Shard: sh,
+	var polFunc probe.PolicyFunc
+	if pf.LogDir != "" {
+		polFunc = probe.Policies(p, pf.LogDir)
+	}
+	o, err := probe.Run(sctx, p, probe.Options{Dir: *out, Policy: polFunc, Workers: *workers, Resume: *resume, Shard: sh,
 		Command: commandLine(append([]string{"probe"}, args...)),
 		Progress: func(done, total int) {
 			if bar.bar == nil && total > 0 {

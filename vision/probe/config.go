@@ -77,6 +77,15 @@ type Config struct {
 	// Obs is what an external policy receives: "frame" (default) or
 	// "tokens".
 	Obs string `json:"obs,omitempty"`
+	// StartTimeout bounds an external policy's start and handshake
+	// ("30s"). Default the protocol's.
+	StartTimeout string `json:"start_timeout,omitempty"`
+	// Dtype is how observation values are sent to an external policy:
+	// "uint8" (default) or "float32".
+	Dtype string `json:"dtype,omitempty"`
+	// Clamp clips an external policy's out-of-bounds continuous actions
+	// instead of failing.
+	Clamp bool `json:"clamp,omitempty"`
 	// NoBatch turns off batched messages even for a policy that offers
 	// them. Results do not depend on it (it is left out of the
 	// fingerprint).
@@ -223,6 +232,13 @@ func NewPlan(cfg Config) (*Plan, error) {
 	}
 	if cfg.Obs == "" {
 		cfg.Obs = remote.ObsFrame
+	}
+	switch cfg.Dtype {
+	case remote.Uint8:
+		cfg.Dtype = "" // the default, spelt as before the option existed
+	case "", remote.Float32:
+	default:
+		return nil, fmt.Errorf("dtype %q: want %s or %s", cfg.Dtype, remote.Uint8, remote.Float32)
 	}
 	if len(cfg.Axes.Variations) > 0 {
 		return nil, errors.New("a probe has no game: variations do not apply")

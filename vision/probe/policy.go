@@ -10,8 +10,8 @@ import (
 	"tilebench/patch"
 	"tilebench/vision"
 	"tilebench/vision/nets"
-	"tilebench/vision/remote"
 	"tilebench/vision/policies"
+	"tilebench/vision/remote"
 )
 
 // GameName is what an external policy is told it plays in a probe (the
@@ -52,7 +52,14 @@ func Policies(p *Plan, logDir string) PolicyFunc {
 		case src == "fresh":
 			return nets.New(nets.Config{Family: p.Config.Family}, grid, space, p.NetSeed(ps))
 		case remote.IsTarget(src):
-			cfg := remote.Config{Game: spec, Grid: grid, Obs: p.Config.Obs, LogDir: logDir}
+			cfg := remote.Config{Game: spec, Grid: grid, Obs: p.Config.Obs, Dtype: p.Config.Dtype, Clamp: p.Config.Clamp, LogDir: logDir}
+			if p.Config.StartTimeout != "" {
+				d, err := time.ParseDuration(p.Config.StartTimeout)
+				if err != nil || d <= 0 {
+					return nil, fmt.Errorf("policy start timeout %q: want a positive duration such as 30s", p.Config.StartTimeout)
+				}
+				cfg.HandshakeTimeout = d
+			}
 			if p.Config.Timeout != "" {
 				d, err := time.ParseDuration(p.Config.Timeout)
 				if err != nil || d <= 0 {
