@@ -93,13 +93,9 @@ func runProbe(ctx *runContext, args []string) error {
 	}
 	c.Policy, c.Timeout, c.StartTimeout = pf.Source, pf.Timeout.Text, pf.StartTimeout.Text
 	c.Obs, c.Dtype, c.Clamp = pf.Obs, pf.Dtype, pf.Clamp
-	var sh study.Shard
-	if *shard != "" {
-		s, err := study.ParseShard(*shard)
-		if err != nil {
-			return usagef("--%v", err)
-		}
-		sh = s
+	sh, err := parseShardFlag(*shard)
+	if err != nil {
+		return err
 	}
 	p, err := probe.NewPlan(c)
 	if err != nil {
@@ -125,23 +121,9 @@ func runProbe(ctx *runContext, args []string) error {
 		return err
 	}
 	if *asJSON {
-		in, err := probe.ReadInfo(*out)
-		if err != nil {
+		if err := printProbeJSON(ctx, *out); err != nil {
 			return err
 		}
-		all, _, err := probe.ReadResults(*out)
-		if err != nil {
-			return err
-		}
-		s, err := probe.Analyze(&in.Plan, all)
-		if err != nil {
-			return err
-		}
-		b, err := json.MarshalIndent(s, "", " ")
-		if err != nil {
-			return err
-		}
-		fmt.Fprintln(ctx.stdout, string(b))
 	} else {
 		fmt.Fprintf(ctx.stdout, "probe %s: %d units (%d kept, %d run, %d frames twice) in %.1fs; report %s\n",
 			p.Fingerprint, o.Total, o.Kept, o.Ran, o.Frames, o.Elapsed.Seconds(), filepath.Join(*out, "report.html"))
@@ -184,4 +166,38 @@ func runProbeMerge(ctx *runContext, args []string) error {
 func isProbeDir(dir string) bool {
 	_, err := os.Stat(filepath.Join(dir, probe.ProbeFile))
 	return err == nil
+}
+
+// printProbeJSON prints the statistics of the probe in dir as JSON.
+func printProbeJSON(ctx *runContext, dir string) error {
+	in, err := probe.ReadInfo(dir)
+	if err != nil {
+		return err
+	}
+	all, _, err := probe.ReadResults(dir)
+	if err != nil {
+		return err
+	}
+	s, err := probe.Analyze(&in.Plan, all)
+	if err != nil {
+		return err
+	}
+	b, err := json.MarshalIndent(s, "", " ")
+	if err != nil {
+		return err
+	}
+	fmt.Fprintln(ctx.stdout, string(b))
+	return nil
+}
+
+// parseShardFlag reads --shard i/n ("" is the whole run).
+func parseShardFlag(v string) (study.Shard, error) {
+	if v == "" {
+		return study.Shard{}, nil
+	}
+	s, err := study.ParseShard(v)
+	if err != nil {
+		return s, usagef("--%v", err)
+	}
+	return s, nil
 }
