@@ -132,6 +132,18 @@ type Spec struct {
 	Action ActionSpace
 	// MaxSteps is the step limit of one episode.
 	MaxSteps int
+	// Floors are the game's documented baseline returns (docs/games.md),
+	// measured on the development range of held-out seeds; zero values
+	// mean not measured. Studies that normalise scores measure their own
+	// floor on their own seeds; these figures are for reading and checks.
+	Floors Floors
+}
+
+// Floors are the mean returns of the two baseline policies every game
+// documents: one that does nothing (the zero action, or the discrete
+// choice named "stay"), and one that draws each action uniformly at random.
+type Floors struct {
+	Idle, Random float64
 }
 
 // Step is the outcome of one game step.
