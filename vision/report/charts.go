@@ -95,6 +95,7 @@ var (
 	svgPrefix = regexp.MustCompile(`(?s)^.*?<svg `)
 	svgXMLNS  = regexp.MustCompile(`\s+xmlns(:xlink)?="[^"]*"`)
 	svgSize   = regexp.MustCompile(`width="[0-9.]+pt" height="[0-9.]+pt"`)
+	svgFont   = regexp.MustCompile(`font-family:[^;"]*`)
 )
 
 // renderSVG draws p and returns inline SVG markup for an HTML page: the
@@ -119,10 +120,9 @@ func renderSVG(p *plot.Plot, label string) (out template.HTML, err error) {
 	s = svgPrefix.ReplaceAllString(s, "<svg ")
 	s = svgXMLNS.ReplaceAllString(s, "")
 	s = svgSize.ReplaceAllString(s, `class="chart" role="img" aria-label="`+template.HTMLEscapeString(label)+`"`)
-	// gonum/plot measures text with Liberation Sans; where that font is
-	// missing, fall back to the fonts with the same metrics (Arimo, Arial,
-	// Helvetica: common practice) before any sans-serif.
-	s = strings.ReplaceAll(s, "font-family:Liberation Sans;", "font-family:'Liberation Sans',Arimo,Arial,Helvetica,sans-serif;")
+	// gonum/plot names the font it measured text with; the page names
+	// only the generic stacks (FontSans), so every family gives way.
+	s = svgFont.ReplaceAllString(s, "font-family:"+FontSans)
 	return template.HTML(s), nil
 }
 

@@ -7,6 +7,14 @@ import (
 	"html/template"
 )
 
+// FontSans and FontMono are the only font stacks the report's pages and
+// charts name: the system's own interface face and the generic families,
+// so nothing depends on a font a vendor ships.
+const (
+	FontSans = "system-ui, sans-serif"
+	FontMono = "monospace"
+)
+
 //go:embed page.tmpl
 var pageSource string
 
