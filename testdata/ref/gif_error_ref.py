@@ -1,0 +1,34 @@
+#!/usr/bin/python3
+"""Measure, with NumPy, how far a decoded GIF is from the frames written.
+
+Usage: gif_error_ref.py ORIGINAL.npy DECODED.npy
+
+Both are uint8 arrays T×H×W×3 (NEP 1 .npy, read by numpy.load). Prints
+one JSON object: the largest absolute difference in any channel, the
+largest per channel, the mean absolute difference, and the number of
+distinct colours in each array (numpy.unique over the pixels).
+"""
+import json
+import sys
+
+import numpy as np
+
+
+def main():
+    a = np.load(sys.argv[1]).astype(np.int16)
+    b = np.load(sys.argv[2]).astype(np.int16)
+    if a.shape != b.shape:
+        raise SystemExit(f"shapes differ: {a.shape} and {b.shape}")
+    d = np.abs(a - b)
+    colours = lambda x: int(np.unique(x.reshape(-1, x.shape[-1]), axis=0).shape[0])
+    print(json.dumps({
+        "max": int(d.max()),
+        "max_per_channel": [int(v) for v in d.reshape(-1, d.shape[-1]).max(axis=0)],
+        "mean": float(d.mean()),
+        "colours_original": colours(a),
+        "colours_decoded": colours(b),
+    }))
+
+
+if __name__ == "__main__":
+    main()
