@@ -107,7 +107,7 @@ func addExportFlags(ctx *runContext) *exportFlags {
 		unscramble:  fs.String("unscramble", "", "manifest.json of an earlier export: put the --in frames back in order (e.g. --unscramble OUT/manifest.json)"),
 		crop:        fs.Bool("crop-to-source", false, "with --unscramble, crop the padded frames back to the source size (e.g. --crop-to-source)"),
 		fps:         fs.Float64("fps", 10, "frames a second of the GIF, 1 to 100 (e.g. --fps 25)"),
-		dither:      fs.Bool("dither", false, "GIF: Floyd–Steinberg dithering (slower) instead of the nearest colour of the fixed colour cube (e.g. --dither)"),
+		dither:      fs.Bool("dither", false, "GIF: Floyd–Steinberg dithering where the sequence has more than 256 colours, instead of the nearest colour of the palette built from the frames (e.g. --dither)"),
 		sheetFrames: fs.Int("sheet-frames", 16, "most frames on the contact sheet, spread over the sequence (e.g. --sheet-frames 8)"),
 		sheetCols:   fs.Int("sheet-columns", 4, "original/transformed pairs per row of the contact sheet (e.g. --sheet-columns 2)"),
 		sheetScale:  fs.Int("sheet-scale", 2, "contact sheet pixel enlargement, 1 to 8 (e.g. --sheet-scale 3)"),

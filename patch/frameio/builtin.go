@@ -14,8 +14,8 @@ import (
 //
 //	drift    four shapes (a disc, a ring, a square and a bar) gliding on
 //	         their own paths over a dusk-coloured vertical gradient
-//	checker  a diagonally scrolling checkerboard whose cell colours all lie
-//	         in the GIF colour cube (handy for exact round trips)
+//	checker  a diagonally scrolling checkerboard of a few colours
+//	         (a GIF keeps them exactly: handy for exact round trips)
 var scenes = map[string]func(t, w, h int, pix []byte){
 	"drift":   drawDrift,
 	"checker": drawChecker,

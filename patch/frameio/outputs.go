@@ -62,7 +62,8 @@ type OutputConfig struct {
 	// second (0 means 10, i.e. 10 frames a second).
 	GIFDelay int
 	// GIFDither turns on Floyd–Steinberg dithering in the GIF (default:
-	// nearest colour of the fixed Palette).
+	// nearest colour of the palette built from the frames; see
+	// GIFWriter).
 	GIFDither bool
 	// Sheet lays out the contact sheet (its Total is set from Frames).
 	Sheet SheetConfig

@@ -99,6 +99,7 @@ func (c *ColorCounts) Palette(max int) color.Palette {
 		return p
 	}
 	boxes := []cutBox{newCutBox(cs)}
+	tmp := make([]colorCount, len(cs))
 	for len(boxes) < max {
 		best := -1
 		for i := range boxes {
@@ -113,7 +114,7 @@ func (c *ColorCounts) Palette(max int) color.Palette {
 		if best < 0 {
 			break // cannot happen: more colours than boxes
 		}
-		a, b := boxes[best].cut()
+		a, b := boxes[best].cut(tmp)
 		boxes[best] = a
 		boxes = append(boxes, b)
 	}
@@ -162,37 +163,51 @@ func newCutBox(cs []colorCount) cutBox {
 // error along it (the variance-based cut of Wan, Wong & Prusinkiewicz
 // 1988, from memory). Unlike a cut at the median pixel, it keeps a
 // small object of its own colour apart from a large area of another.
-func (b cutBox) cut() (cutBox, cutBox) {
+//
+// The colours are ordered by that channel with a counting sort (stable,
+// through tmp, which holds at least len(b.cs)), and the errors come from
+// exact integer sums, so the cut depends on the counts alone.
+func (b cutBox) cut(tmp []colorCount) (cutBox, cutBox) {
 	k := b.axis
-	slices.SortStableFunc(b.cs, func(x, y colorCount) int {
-		if x.rgb[k] != y.rgb[k] {
-			return int(x.rgb[k]) - int(y.rgb[k])
-		}
-		return int(packRGB(x.rgb[0], x.rgb[1], x.rgb[2])) - int(packRGB(y.rgb[0], y.rgb[1], y.rgb[2]))
-	})
-	// Prefix sums of count, value and value² along the axis; the error
-	// of a half is Σv² − (Σv)²/n.
-	var tn, tv, tq float64
+	var cnt [256]int
+	var wn [256]uint64
 	for _, e := range b.cs {
-		v := float64(e.rgb[k])
-		tn, tv, tq = tn+float64(e.n), tv+v*float64(e.n), tq+v*v*float64(e.n)
+		cnt[e.rgb[k]]++
+		wn[e.rgb[k]] += e.n
 	}
-	var ln, lv, lq float64
-	best, bestErr := -1, 0.0
-	for j := 1; j < len(b.cs); j++ {
-		e := b.cs[j-1]
-		v := float64(e.rgb[k])
-		ln, lv, lq = ln+float64(e.n), lv+v*float64(e.n), lq+v*v*float64(e.n)
-		if b.cs[j].rgb[k] == e.rgb[k] {
-			continue // cut only between values
+	// Sums along the axis; the error of a half is Σnv² − (Σnv)²/Σn.
+	var tn, tv, tq uint64
+	for v := int(b.lo[k]); v <= int(b.hi[k]); v++ {
+		w := wn[v]
+		tn, tv, tq = tn+w, tv+w*uint64(v), tq+w*uint64(v*v)
+	}
+	var ln, lv, lq uint64
+	cutAt, bestErr := -1, 0.0
+	for v := int(b.lo[k]); v < int(b.hi[k]); v++ {
+		w := wn[v]
+		if w == 0 {
+			continue
 		}
+		ln, lv, lq = ln+w, lv+w*uint64(v), lq+w*uint64(v*v)
 		rn, rv, rq := tn-ln, tv-lv, tq-lq
-		err := lq - lv*lv/ln + rq - rv*rv/rn
-		if best < 0 || err < bestErr {
-			best, bestErr = j, err
+		err := float64(lq) - float64(lv)*float64(lv)/float64(ln) + float64(rq) - float64(rv)*float64(rv)/float64(rn)
+		if cutAt < 0 || err < bestErr {
+			cutAt, bestErr = v, err
 		}
 	}
-	return newCutBox(b.cs[:best:best]), newCutBox(b.cs[best:])
+	// Counting sort by the channel, then the halves: values ≤ cutAt first.
+	var start [256]int
+	for v, pos := 0, 0; v < 256; v++ {
+		start[v], pos = pos, pos+cnt[v]
+	}
+	tmp = tmp[:len(b.cs)]
+	for _, e := range b.cs {
+		tmp[start[e.rgb[k]]] = e
+		start[e.rgb[k]]++
+	}
+	copy(b.cs, tmp)
+	j := start[cutAt]
+	return newCutBox(b.cs[:j:j]), newCutBox(b.cs[j:])
 }
 
 // mean is the pixel-weighted mean colour of b, rounded, packed.
