@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"fmt"
 	"image"
+	"image/color"
 	"os"
 	"path/filepath"
 	"strings"
@@ -74,4 +75,30 @@ func ExampleTransform() {
 	// frames.gif
 	// frames.npy
 	// 8 frames of 64 x 48
+}
+
+// A sequence of few colours gets exactly those colours as its GIF
+// palette; past 256 colours the palette is built by median cut.
+func ExampleColorCounts() {
+	a := image.NewRGBA(image.Rect(0, 0, 4, 2))
+	for i := range a.Pix {
+		a.Pix[i] = 0xff
+	}
+	a.Set(1, 1, color.RGBA{200, 40, 10, 255})
+	var c frameio.ColorCounts
+	c.Add(a)
+	fmt.Println(c.Len(), c.Palette(0))
+
+	ramp := image.NewRGBA(image.Rect(0, 0, 64, 64))
+	for y := range 64 {
+		for x := range 64 {
+			ramp.Set(x, y, color.RGBA{uint8(4 * x), uint8(4 * y), 128, 255})
+		}
+	}
+	var r frameio.ColorCounts
+	r.Add(ramp)
+	fmt.Println(r.Len(), len(r.Palette(0)))
+	// Output:
+	// 2 [{200 40 10 255} {255 255 255 255}]
+	// 4096 256
 }
