@@ -9,6 +9,7 @@ import (
 	"image/gif"
 	"io"
 	"os"
+	"slices"
 )
 
 // gifReader composites the frames of an animated GIF onto a canvas of
@@ -140,7 +141,6 @@ type GIFWriter struct {
 	w, h   int
 	n      int
 	rgb    []byte // the frames, row after row, 3 bytes a pixel
-	counts ColorCounts
 	row    *image.RGBA // scratch for non-RGBA frames
 }
 
@@ -169,7 +169,6 @@ func (w *GIFWriter) Add(img image.Image) error {
 			draw.Draw(w.row, w.row.Rect, img, image.Pt(b.Min.X, y), draw.Src)
 			row = w.row.Pix
 		}
-		w.counts.addRGBA(row)
 		for x := 0; x < len(row); x += 4 {
 			w.rgb = append(w.rgb, row[x], row[x+1], row[x+2])
 		}
@@ -182,7 +181,112 @@ func (w *GIFWriter) Add(img image.Image) error {
 func (w *GIFWriter) Len() int { return w.n }
 
 // Palette is the palette Encode draws the frames with.
-func (w *GIFWriter) Palette() color.Palette { return w.counts.Palette(MaxGIFColors) }
+func (w *GIFWriter) Palette() color.Palette {
+	pal, _, _ := w.palette()
+	return pal
+}
+
+// palette builds the palette from the frames' colours, sorted by a radix
+// sort of their packed values (no map: the cost grows with the pixels),
+// and returns with it the distinct colours in increasing order and the
+// palette index of each.
+func (w *GIFWriter) palette() (color.Palette, []uint32, []uint8) {
+	if distinct, ok := fewColors(w.rgb); ok {
+		pal := make(color.Palette, len(distinct))
+		idx := make([]uint8, len(distinct))
+		for i, k := range distinct {
+			pal[i] = color.RGBA{uint8(k >> 16), uint8(k >> 8), uint8(k), 0xff}
+			idx[i] = uint8(i)
+		}
+		return pal, distinct, idx
+	}
+	keys := make([]uint32, len(w.rgb)/3)
+	for i := range keys {
+		keys[i] = packRGB(w.rgb[3*i], w.rgb[3*i+1], w.rgb[3*i+2])
+	}
+	radixSort24(keys, make([]uint32, len(keys)))
+	var cs []colorCount
+	var distinct []uint32
+	for i := 0; i < len(keys); {
+		j := i + 1
+		for j < len(keys) && keys[j] == keys[i] {
+			j++
+		}
+		k := keys[i]
+		cs = append(cs, colorCount{rgb: [3]uint8{uint8(k >> 16), uint8(k >> 8), uint8(k)}, n: uint64(j - i)})
+		distinct = append(distinct, k)
+		i = j
+	}
+	pal := paletteOf(cs, MaxGIFColors)
+	idx := make([]uint8, len(distinct))
+	if len(pal) == len(distinct) {
+		for i := range idx {
+			idx[i] = uint8(i) // exact: the palette is the colours in order
+		}
+	} else {
+		m := newColorMapper(pal)
+		for i, k := range distinct {
+			idx[i] = m.search(int32(k>>16), int32(k>>8&0xff), int32(k&0xff))
+		}
+	}
+	return pal, distinct, idx
+}
+
+// fewColors returns the distinct colours of the RGB bytes rgb, in
+// increasing packed order, when there are at most MaxGIFColors of them
+// (a small open-addressing table, given up at the 257th colour).
+func fewColors(rgb []byte) ([]uint32, bool) {
+	const slots = 1024 // a power of two, four times MaxGIFColors
+	var tab [slots]uint32 // packed colour + 1; 0 is empty
+	n, last := 0, uint32(1<<24)
+	for i := 0; i+2 < len(rgb); i += 3 {
+		k := packRGB(rgb[i], rgb[i+1], rgb[i+2])
+		if k == last {
+			continue
+		}
+		last = k
+		h := (k * 2654435761) >> 22 & (slots - 1) // Knuth's multiplicative hash
+		for tab[h] != 0 && tab[h] != k+1 {
+			h = (h + 1) & (slots - 1)
+		}
+		if tab[h] == 0 {
+			if n++; n > MaxGIFColors {
+				return nil, false
+			}
+			tab[h] = k + 1
+		}
+	}
+	out := make([]uint32, 0, n)
+	for _, v := range tab {
+		if v != 0 {
+			out = append(out, v-1)
+		}
+	}
+	slices.Sort(out)
+	return out, true
+}
+
+// radixSort24 sorts keys (values below 1<<24) in place, three 8-bit
+// passes through tmp (the same length).
+func radixSort24(keys, tmp []uint32) {
+	src, dst := keys, tmp
+	for shift := 0; shift < 24; shift += 8 {
+		var pos [256]int
+		for _, k := range src {
+			pos[k>>shift&0xff]++
+		}
+		for v, at := 0, 0; v < 256; v++ {
+			pos[v], at = at, at+pos[v]
+		}
+		for _, k := range src {
+			d := k >> shift & 0xff
+			dst[pos[d]] = k
+			pos[d]++
+		}
+		src, dst = dst, src
+	}
+	copy(keys, src) // three passes end in tmp
+}
 
 // Encode writes the animation (looping forever, one global palette) to
 // out. The same frames give the same bytes.
@@ -190,25 +294,32 @@ func (w *GIFWriter) Encode(out io.Writer) error {
 	if w.n == 0 {
 		return errors.New("gif: no frames")
 	}
-	pal := w.Palette()
+	pal, distinct, idx := w.palette()
 	g := gif.GIF{LoopCount: 0, Config: image.Config{ColorModel: pal, Width: w.w, Height: w.h}}
-	m := newColorMapper(pal)
 	var rgba *image.RGBA
-	if w.Dither {
+	dither := w.Dither && len(pal) < len(distinct)
+	if dither {
 		rgba = image.NewRGBA(image.Rect(0, 0, w.w, w.h))
 	}
 	size := 3 * w.w * w.h
+	all := make([]uint8, w.n*w.w*w.h)
 	for f := range w.n {
 		frame := w.rgb[f*size : (f+1)*size]
-		p := image.NewPaletted(image.Rect(0, 0, w.w, w.h), pal)
-		if w.Dither && len(pal) < w.counts.Len() {
+		p := &image.Paletted{Pix: all[f*w.w*w.h : (f+1)*w.w*w.h : (f+1)*w.w*w.h], Stride: w.w, Rect: image.Rect(0, 0, w.w, w.h), Palette: pal}
+		if dither {
 			for i, j := 0, 0; i < len(frame); i, j = i+3, j+4 {
 				rgba.Pix[j], rgba.Pix[j+1], rgba.Pix[j+2], rgba.Pix[j+3] = frame[i], frame[i+1], frame[i+2], 0xff
 			}
 			draw.FloydSteinberg.Draw(p, p.Rect, rgba, image.Point{})
 		} else {
+			last, li := uint32(1<<24), uint8(0)
 			for i, j := 0, 0; i < len(frame); i, j = i+3, j+1 {
-				p.Pix[j] = m.index(packRGB(frame[i], frame[i+1], frame[i+2]))
+				k := packRGB(frame[i], frame[i+1], frame[i+2])
+				if k != last {
+					at, _ := slices.BinarySearch(distinct, k)
+					last, li = k, idx[at]
+				}
+				p.Pix[j] = li
 			}
 		}
 		g.Image = append(g.Image, p)

@@ -87,7 +87,12 @@ func (c *ColorCounts) Palette(max int) color.Palette {
 	if max <= 0 || max > MaxGIFColors {
 		max = MaxGIFColors
 	}
-	cs := c.sorted()
+	return paletteOf(c.sorted(), max)
+}
+
+// paletteOf is Palette for the distinct colours cs, in increasing packed
+// order; it reorders cs.
+func paletteOf(cs []colorCount, max int) color.Palette {
 	if len(cs) == 0 {
 		return color.Palette{color.RGBA{A: 0xff}}
 	}

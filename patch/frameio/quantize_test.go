@@ -237,7 +237,8 @@ func TestMedianCutKeepsSmallObjects(t *testing.T) {
 }
 
 // TestGIFDeterministic: the same frames give the same bytes, and the
-// palette does not depend on the order the frames came in.
+// palette does not depend on the order the frames came in or on the way
+// the colours were counted.
 func TestGIFDeterministic(t *testing.T) {
 	var frames, rev []image.Image
 	for f := range 5 {
@@ -256,13 +257,19 @@ func TestGIFDeterministic(t *testing.T) {
 		c1.Add(frames[i].(*image.RGBA))
 		c2.Add(rev[i].(*image.RGBA))
 	}
-	p1, p2 := c1.Palette(0), c2.Palette(0)
-	if len(p1) != len(p2) {
-		t.Fatal("palette depends on frame order")
+	// The writer sorts the pixels, ColorCounts counts them in a map:
+	// the same palette either way, whatever the frame order.
+	w := &GIFWriter{}
+	for _, f := range rev {
+		w.Add(f)
+	}
+	p1, p2, p3 := c1.Palette(0), c2.Palette(0), w.Palette()
+	if len(p1) != len(p2) || len(p1) != len(p3) || len(p1) != MaxGIFColors {
+		t.Fatalf("palettes of %d, %d and %d colours", len(p1), len(p2), len(p3))
 	}
 	for i := range p1 {
-		if p1[i] != p2[i] {
-			t.Fatalf("palette entry %d: %v then %v", i, p1[i], p2[i])
+		if p1[i] != p2[i] || p1[i] != p3[i] {
+			t.Fatalf("palette entry %d: %v, %v, %v", i, p1[i], p2[i], p3[i])
 		}
 	}
 }
@@ -320,11 +327,10 @@ func TestGIFWriterErrors(t *testing.T) {
 	}
 }
 
+// BenchmarkGIFPalette counts the colours of 32 smooth frames and builds
+// their palette by median cut.
 func BenchmarkGIFPalette(b *testing.B) {
-	var frames []*image.RGBA
-	for f := range 32 {
-		frames = append(frames, gradient(112, 80, f))
-	}
+	frames := smoothFrames()
 	b.ReportAllocs()
 	for b.Loop() {
 		var c ColorCounts
@@ -335,14 +341,30 @@ func BenchmarkGIFPalette(b *testing.B) {
 	}
 }
 
-func BenchmarkGIFEncode(b *testing.B)       { benchGIF(b, false) }
-func BenchmarkGIFEncodeDither(b *testing.B) { benchGIF(b, true) }
+func BenchmarkGIFEncode(b *testing.B)       { benchGIF(b, smoothFrames(), false) }
+func BenchmarkGIFEncodeDither(b *testing.B) { benchGIF(b, smoothFrames(), true) }
 
-// benchGIF adds and encodes 32 frames of a smooth 112×80 sequence.
-func benchGIF(b *testing.B, dither bool) {
+// BenchmarkGIFEncodeExact: 32 frames of a few colours (the exact path).
+func BenchmarkGIFEncodeExact(b *testing.B) {
+	r, _ := Builtin("checker", 32, 112, 80)
+	frames, _ := ReadAll(r)
+	benchGIF(b, frames, false)
+}
+
+// smoothFrames is 32 frames of a smooth 112×80 sequence.
+func smoothFrames() []*image.RGBA {
 	var frames []*image.RGBA
 	for f := range 32 {
 		frames = append(frames, gradient(112, 80, f))
+	}
+	return frames
+}
+
+// benchGIF adds and encodes frames, reporting their distinct colours.
+func benchGIF(b *testing.B, frames []*image.RGBA, dither bool) {
+	var c ColorCounts
+	for _, f := range frames {
+		c.Add(f)
 	}
 	b.ReportAllocs()
 	for b.Loop() {
@@ -356,4 +378,5 @@ func benchGIF(b *testing.B, dither bool) {
 			b.Fatal(err)
 		}
 	}
+	b.ReportMetric(float64(c.Len()), "colours")
 }
