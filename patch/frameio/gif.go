@@ -140,7 +140,7 @@ type GIFWriter struct {
 	Dither bool
 	w, h   int
 	n      int
-	rgb    []byte // the frames, row after row, 3 bytes a pixel
+	rgb    []byte      // the frames, row after row, 3 bytes a pixel
 	row    *image.RGBA // scratch for non-RGBA frames
 }
 
@@ -236,7 +236,7 @@ func (w *GIFWriter) palette() (color.Palette, []uint32, []uint8) {
 // increasing packed order, when there are at most MaxGIFColors of them
 // (a small open-addressing table, given up at the 257th colour).
 func fewColors(rgb []byte) ([]uint32, bool) {
-	const slots = 1024 // a power of two, four times MaxGIFColors
+	const slots = 1024    // a power of two, four times MaxGIFColors
 	var tab [slots]uint32 // packed colour + 1; 0 is empty
 	n, last := 0, uint32(1<<24)
 	for i := 0; i+2 < len(rgb); i += 3 {
