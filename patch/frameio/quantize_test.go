@@ -380,3 +380,33 @@ func benchGIF(b *testing.B, frames []*image.RGBA, dither bool) {
 	}
 	b.ReportMetric(float64(c.Len()), "colours")
 }
+
+// TestGIFPaletteBoundary: 256 colours are kept exactly, 257 are not; the
+// writer and ColorCounts agree at both sizes.
+func TestGIFPaletteBoundary(t *testing.T) {
+	for _, n := range []int{MaxGIFColors, MaxGIFColors + 1} {
+		cols := randomColors(n, 11)
+		m := image.NewRGBA(image.Rect(0, 0, n, 2))
+		for x, c := range cols {
+			m.SetRGBA(x, 0, c)
+			m.SetRGBA(x, 1, c)
+		}
+		var c ColorCounts
+		c.Add(m)
+		w := &GIFWriter{}
+		w.Add(m)
+		p, q := c.Palette(0), w.Palette()
+		if len(p) != min(n, MaxGIFColors) || len(q) != len(p) {
+			t.Fatalf("%d colours: palettes of %d and %d", n, len(p), len(q))
+		}
+		for i := range p {
+			if p[i] != q[i] {
+				t.Fatalf("%d colours: entry %d is %v and %v", n, i, p[i], q[i])
+			}
+		}
+		_, got := gifRoundTrip(t, []image.Image{m}, false)
+		if e := maxChannelError(got[0], m); (e == 0) != (n <= MaxGIFColors) {
+			t.Errorf("%d colours: largest channel error %d", n, e)
+		}
+	}
+}
