@@ -126,10 +126,12 @@ func (r *gifReader) disposal(i int) byte {
 func (r *gifReader) Close() error { return nil }
 
 // GIFWriter collects frames for an animated GIF whose one palette is
-// built from the frames themselves (ColorCounts.Palette): exact when the
-// whole sequence has at most 256 colours, median cut otherwise. It keeps
-// every frame (3 bytes a pixel) until Encode, which builds the palette
-// from them all. play --gif and export --as gif both write through it.
+// built from the frames themselves (as ColorCounts.Palette builds it):
+// exact when the whole sequence has at most 256 colours, median cut
+// otherwise. It keeps every frame (3 bytes a pixel) until Encode, which
+// builds the palette from them all (with about 8 more bytes a pixel
+// while it does, past 256 colours). play --gif and export --as gif both
+// write through it.
 type GIFWriter struct {
 	// Delay is the time each frame is shown, in hundredths of a second.
 	Delay int

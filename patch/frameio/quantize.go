@@ -9,9 +9,10 @@ import (
 // MaxGIFColors is the most colours a GIF palette holds.
 const MaxGIFColors = 256
 
-// ColorCounts counts the colours of a sequence of frames, the input of
-// the palette a GIF of that sequence is drawn with. The zero value is an
-// empty count. Frames are taken as opaque: alpha is ignored (an
+// ColorCounts counts the colours of a sequence of frames, a frame at a
+// time; its Palette is the palette a GIFWriter given the same frames
+// draws them with (the writer sorts its stored pixels instead of
+// counting them in a map). The zero value is an empty count. Frames are taken as opaque: alpha is ignored (an
 // *image.RGBA's colour channels are used as they are, that is composited
 // over black).
 type ColorCounts struct {
