@@ -5,7 +5,7 @@ import (
 	"fmt"
 	"math"
 
-	"tilebench/patch"
+	"tilebench/internal/seeds"
 )
 
 // Sequences holds per-frame values (a drift, a 0/1 agreement) grouped by
@@ -121,7 +121,7 @@ func (b Bootstrap) wholeReplicates(s Sequences) ([]float64, Estimate, error) {
 	}
 	e := Estimate{Value: s.Mean(), Level: lv, Resamples: B}
 	theta := make([]float64, B)
-	r := patch.NewRand(b.Seed)
+	r := seeds.NewRand(b.Seed)
 	m := len(s)
 	for i := range theta {
 		var tot, n float64
@@ -176,7 +176,7 @@ func (b Bootstrap) blockReplicates(x []float64, l int) ([]float64, Estimate, err
 	last := n - (k-1)*l // length of the cut last block
 	e := Estimate{Value: Mean(x), Level: lv, Resamples: B}
 	theta := make([]float64, B)
-	r := patch.NewRand(b.Seed)
+	r := seeds.NewRand(b.Seed)
 	for i := range theta {
 		var tot float64
 		for j := 0; j < k; j++ {

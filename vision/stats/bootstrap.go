@@ -62,6 +62,9 @@ type Estimate struct {
 	Level float64
 	// Resamples is the number of bootstrap resamples behind Lo and Hi.
 	Resamples int
+	// Method is how Lo and Hi were read from the resamples: "" or
+	// MethodPercentile for the percentile interval, MethodBCa for BCa.
+	Method string
 }
 
 // String formats e as "value [lo, hi]": three significant digits, or

@@ -26,13 +26,15 @@ type Level struct {
 
 // Break is the breaking point of an axis.
 type Break struct {
-	// Reached is false when retention stayed at or above Threshold at every
-	// measured severity; Severity is then NaN.
+	// Reached is false when no measured severity broke the policy;
+	// Severity is then NaN.
 	Reached bool
-	// Severity is the smallest measured severity whose retention point
-	// estimate is below Threshold.
+	// Severity is the smallest measured severity that broke the policy:
+	// for BreakingPoint the first whose whole retention interval lies
+	// below Threshold, for DriftBreak the first whose whole drift
+	// interval lies past it.
 	Severity float64
-	// Threshold is the retention threshold that was applied.
+	// Threshold is the threshold that was applied.
 	Threshold float64
 	// Max is the largest severity measured (so "not reached up to Max").
 	Max float64
@@ -40,6 +42,10 @@ type Break struct {
 	// retention was already below Threshold there: in a context with
 	// other stress applied, that context alone broke the policy.
 	Min float64
+	// FirstDip is the smallest severity whose point estimate alone is
+	// below Threshold (NaN when none): a secondary figure that follows
+	// the noise of the curve. Set by BreakingPoint only.
+	FirstDip float64
 }
 
 // AtStart reports whether the break is at the smallest severity measured.
@@ -53,12 +59,23 @@ func (b Break) String() string {
 	return strconv.FormatFloat(b.Severity, 'g', 4, 64)
 }
 
-// BreakingPoint returns the smallest severity in levels whose retention
-// point estimate (Retention.Value) is below threshold; threshold 0 means
-// DefaultBreakThreshold. The interval is not used: the rule reads "the
-// policy keeps less than half its clean score here", not a significance
-// test; report the interval beside it. levels need not be sorted; it is not
-// modified. If no level falls below, the Break is not Reached.
+// DipString returns the first-dip severity or "none".
+func (b Break) DipString() string {
+	if math.IsNaN(b.FirstDip) {
+		return "none"
+	}
+	return strconv.FormatFloat(b.FirstDip, 'g', 4, 64)
+}
+
+// BreakingPoint returns the smallest severity in levels whose whole
+// retention interval lies below threshold (Retention.Hi < threshold):
+// the first severity at which the data show, at the interval's level,
+// that the policy keeps less than threshold of its (normalised) clean
+// score. A noisy curve whose point estimates wander about the threshold
+// does not break until an interval clears it. The first severity whose
+// point estimate dips below is kept as Break.FirstDip. threshold 0 means
+// DefaultBreakThreshold. levels need not be sorted; it is not modified.
+// If no interval lies below, the Break is not Reached.
 func BreakingPoint(levels []Level, threshold float64) (Break, error) {
 	if threshold == 0 {
 		threshold = DefaultBreakThreshold
@@ -79,11 +96,13 @@ func BreakingPoint(levels []Level, threshold float64) (Break, error) {
 		}
 	}
 	slices.SortStableFunc(ls, func(a, b Level) int { return cmp.Compare(a.Severity, b.Severity) })
-	br := Break{Severity: math.NaN(), Threshold: threshold, Max: ls[len(ls)-1].Severity, Min: ls[0].Severity}
+	br := Break{Severity: math.NaN(), FirstDip: math.NaN(), Threshold: threshold, Max: ls[len(ls)-1].Severity, Min: ls[0].Severity}
 	for _, l := range ls {
-		if l.Retention.Value < threshold {
+		if math.IsNaN(br.FirstDip) && l.Retention.Value < threshold {
+			br.FirstDip = l.Severity
+		}
+		if !br.Reached && l.Retention.Hi < threshold {
 			br.Reached, br.Severity = true, l.Severity
-			break
 		}
 	}
 	return br, nil
@@ -140,14 +159,14 @@ type Candidate struct {
 	Name string
 	// Cost is what the budget limits (MFLOP per step, µs per step, ...).
 	Cost float64
-	// Scores are the candidate's episode scores by stratum. All candidates
-	// must have the same strata (same count, stratum k meaning the same
-	// condition for every candidate).
+	// Scores are the candidate's normalised episode scores by stratum
+	// (condition). All candidates must be paired: the same strata, and in
+	// stratum k the same seeds in the same order (see Arms).
 	Scores Strata
 }
 
-// Recommender picks the cheapest candidate that is not significantly
-// worse than the best. The zero value is ready to use.
+// Recommender picks the cheapest candidate shown to be not worse than
+// the best by more than a margin. The zero value is ready to use.
 //
 // The rule, precisely:
 //
@@ -155,14 +174,14 @@ type Candidate struct {
 //     Budget is 0).
 //  2. The best is the affordable candidate with the highest score
 //     (Statistic of its pooled scores; ties: lower cost, then lower index).
-//  3. For every affordable candidate c, P(best > c), the probability of
-//     improvement of Agarwal et al. 2021, is estimated with its stratified
-//     bootstrap interval. c is "not significantly below the best" when the
-//     interval's lower end is at most 0.5, that is, the data do not show
-//     that the best beats c in more than half of the pairings. The best
-//     itself always qualifies.
+//  3. Every other affordable candidate c is tested for non-inferiority
+//     to the best (NonInferiority: paired bootstrap of score(best) −
+//     score(c), one-sided at the Holm-adjusted level, against Margin).
+//     The best itself always qualifies.
 //  4. The recommendation is the cheapest qualifying candidate (ties:
-//     higher score, then lower index).
+//     higher score, then lower index). With no qualifying candidate but
+//     the best, the best is the pick and Choice.Evidence says how many
+//     episodes a cheaper one would need.
 type Recommender struct {
 	// Bootstrap sets resamples, level and seed of every interval. Candidate
 	// i's intervals use seeds.DeriveSeed(Bootstrap.Seed, i, stream).
@@ -172,6 +191,11 @@ type Recommender struct {
 	// Budget is the largest affordable Cost; 0 means no budget. Must not be
 	// negative.
 	Budget float64
+	// Margin is the non-inferiority margin on the normalised scale; 0
+	// means DefaultMargin.
+	Margin float64
+	// Alpha is the family-wise one-sided error rate; 0 means DefaultAlpha.
+	Alpha float64
 }
 
 // Choice is the outcome of Recommend. Slices are indexed like the
@@ -182,20 +206,30 @@ type Choice struct {
 	Pick int
 	// Best is the best affordable candidate's index, -1 when none.
 	Best int
-	// Score is each candidate's score with its bootstrap interval.
+	// Score is each candidate's score with its paired-bootstrap interval.
 	Score []Estimate
-	// PBest is P(best > candidate) with its interval, for affordable
-	// candidates (zero Estimate for the others).
-	PBest []Estimate
+	// Versus is each affordable candidate's comparison with the best
+	// (zero for the others).
+	Versus []Comparison
 	// Affordable marks the candidates within the budget.
 	Affordable []bool
-	// Qualifies marks the affordable candidates not significantly below
-	// the best.
+	// Qualifies marks the affordable candidates shown non-inferior.
 	Qualifies []bool
+	// Margin and Alpha are the values applied.
+	Margin, Alpha float64
+	// Cheaper is true when some affordable candidate is cheaper than the
+	// best; Shown whether one of them qualified. Cheaper && !Shown is
+	// "not enough evidence".
+	Cheaper, Shown bool
+	// More is, when Cheaper && !Shown, the fewest episodes per condition
+	// that the cheapest promising candidate (observed difference under
+	// the margin) would need, by Comparison.Needed; -1 when no cheaper
+	// candidate's difference is under the margin.
+	More int
 }
 
 // Rule is the one-line description of Recommender's rule, for reports.
-const Rule = "the cheapest candidate within the budget that the best does not beat significantly: the lower end of the stratified bootstrap interval (95% by default) of P(best > candidate), the probability of improvement of Agarwal et al. 2021, is at most 0.5"
+const Rule = HolmRule
 
 // Recommend applies the rule documented on Recommender.
 func (r Recommender) Recommend(cands []Candidate) (Choice, error) {
@@ -209,46 +243,74 @@ func (r Recommender) Recommend(cands []Candidate) (Choice, error) {
 		return Choice{}, fmt.Errorf("recommend: %w", err)
 	}
 	n := len(cands)
-	ch := Choice{Pick: -1, Best: -1, Score: make([]Estimate, n), PBest: make([]Estimate, n),
-		Affordable: make([]bool, n), Qualifies: make([]bool, n)}
+	ch := Choice{Pick: -1, Best: -1, Score: make([]Estimate, n), Versus: make([]Comparison, n),
+		Affordable: make([]bool, n), Qualifies: make([]bool, n), More: -1}
+	all := make(Arms, n)
 	for i, c := range cands {
 		if math.IsNaN(c.Cost) || c.Cost < 0 {
 			return Choice{}, fmt.Errorf("recommend: candidate %q cost %v is not a non-negative number", c.Name, c.Cost)
 		}
-		if len(c.Scores) != len(cands[0].Scores) {
-			return Choice{}, fmt.Errorf("recommend: candidate %q has %d strata, %q has %d", c.Name, len(c.Scores), cands[0].Name, len(cands[0].Scores))
-		}
+		all[i] = c.Scores
+	}
+	if err := all.check("recommend"); err != nil {
+		return Choice{}, err
+	}
+	for i, c := range cands {
 		bs := r.Bootstrap
 		bs.Seed = seeds.DeriveSeed(r.Bootstrap.Seed, uint64(i), seeds.StreamKey("score"))
-		e, err := bs.CI(c.Scores, r.Statistic)
+		rep, lv, err := bs.single(c.Scores, r.Statistic)
 		if err != nil {
 			return Choice{}, fmt.Errorf("recommend: candidate %q: %w", c.Name, err)
 		}
-		ch.Score[i] = e
+		ch.Score[i] = rep.Estimate(lv)
 		ch.Affordable[i] = r.Budget == 0 || c.Cost <= r.Budget
 		if !ch.Affordable[i] {
 			continue
 		}
-		if b := ch.Best; b < 0 || e.Value > ch.Score[b].Value ||
-			(e.Value == ch.Score[b].Value && c.Cost < cands[b].Cost) {
+		if b := ch.Best; b < 0 || ch.Score[i].Value > ch.Score[b].Value ||
+			(ch.Score[i].Value == ch.Score[b].Value && c.Cost < cands[b].Cost) {
 			ch.Best = i
 		}
 	}
 	if ch.Best < 0 {
 		return ch, nil
 	}
-	for i, c := range cands {
-		if !ch.Affordable[i] {
-			continue
+	var arms Arms
+	var pos []int
+	best := 0
+	for i := range cands {
+		if ch.Affordable[i] {
+			if i == ch.Best {
+				best = len(arms)
+			}
+			arms = append(arms, cands[i].Scores)
+			pos = append(pos, i)
 		}
-		bs := r.Bootstrap
-		bs.Seed = seeds.DeriveSeed(r.Bootstrap.Seed, uint64(i), seeds.StreamKey("pbest"))
-		p, err := bs.ProbImprovementCI(cands[ch.Best].Scores, c.Scores)
-		if err != nil {
-			return Choice{}, fmt.Errorf("recommend: candidate %q: %w", c.Name, err)
+	}
+	ni := NonInferiority{Bootstrap: r.Bootstrap, Statistic: r.Statistic, Margin: r.Margin, Alpha: r.Alpha}
+	cmpr, err := ni.Test(arms, best)
+	if err != nil {
+		return Choice{}, fmt.Errorf("recommend: %w", err)
+	}
+	ch.Margin, ch.Alpha = ni.Margin, ni.Alpha
+	if ch.Margin == 0 {
+		ch.Margin = DefaultMargin
+	}
+	if ch.Alpha == 0 {
+		ch.Alpha = DefaultAlpha
+	}
+	for j, i := range pos {
+		ch.Versus[i] = cmpr[j]
+		ch.Qualifies[i] = cmpr[j].NonInferior
+		c := cands[i]
+		if c.Cost < cands[ch.Best].Cost {
+			ch.Cheaper = true
+			if ch.Qualifies[i] {
+				ch.Shown = true
+			} else if nd := cmpr[j].Needed; nd > 0 && (ch.More < 0 || nd < ch.More) {
+				ch.More = nd
+			}
 		}
-		ch.PBest[i] = p
-		ch.Qualifies[i] = i == ch.Best || p.Lo <= 0.5
 		if !ch.Qualifies[i] {
 			continue
 		}
@@ -257,5 +319,15 @@ func (r Recommender) Recommend(cands []Candidate) (Choice, error) {
 			ch.Pick = i
 		}
 	}
+	if ch.Shown {
+		ch.More = -1
+	}
 	return ch, nil
+}
+
+// single is the bootstrap of one arm's statistic, with BCa below
+// MinPercentileN scores per stratum.
+func (b Bootstrap) single(s Strata, st Statistic) (*Replicates, float64, error) {
+	rep, _, lv, err := b.paired("score", Arms{s}, st, func(v []float64) float64 { return v[0] })
+	return rep, lv, err
 }

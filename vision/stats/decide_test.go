@@ -56,26 +56,34 @@ func TestParetoFrontDefinition(t *testing.T) {
 func ret(v float64) Estimate { return Estimate{Value: v, Lo: v - 0.1, Hi: v + 0.1} }
 
 func TestBreakingPoint(t *testing.T) {
+	// ret(v) has the interval v ± 0.1: only retention 0.3 (at 0.6) lies
+	// wholly below 0.5; 0.49 at 0.4 dips below by its point estimate only.
 	levels := []Level{{0.6, ret(0.3)}, {0, ret(1)}, {0.2, ret(0.8)}, {0.4, ret(0.49)}, {0.8, ret(0.6)}}
 	b, err := BreakingPoint(levels, 0)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !b.Reached || b.Severity != 0.4 || b.Threshold != 0.5 || b.String() != "0.4" || b.Min != 0 || b.AtStart() {
-		t.Fatalf("break %+v (%s), want 0.4 at threshold 0.5, not at the start", b, b)
+	if !b.Reached || b.Severity != 0.6 || b.FirstDip != 0.4 || b.Threshold != 0.5 || b.String() != "0.6" || b.DipString() != "0.4" || b.Min != 0 || b.AtStart() {
+		t.Fatalf("break %+v (%s), want 0.6 (first dip 0.4) at threshold 0.5, not at the start", b, b)
 	}
-	// Below the threshold at the smallest severity already.
-	if b, _ := BreakingPoint([]Level{{0.5, ret(0.2)}, {0.25, ret(0.4)}}, 0); !b.AtStart() || b.Severity != 0.25 || b.Min != 0.25 {
+	// A noisy curve about the threshold (0.36, 0.31, 0.33 with wide
+	// intervals) does not break, though its first point dips below.
+	noisy := []Level{{0.1, Estimate{Value: 0.36, Lo: 0.2, Hi: 0.55}}, {0.2, Estimate{Value: 0.31, Lo: 0.1, Hi: 0.52}}, {0.3, Estimate{Value: 0.33, Lo: 0.15, Hi: 0.51}}}
+	if b, _ := BreakingPoint(noisy, 0.4); b.Reached || b.FirstDip != 0.1 {
+		t.Fatalf("noisy curve: %+v", b)
+	}
+	// Wholly below the threshold at the smallest severity already.
+	if b, _ := BreakingPoint([]Level{{0.5, ret(0.2)}, {0.25, ret(0.3)}}, 0); !b.AtStart() || b.Severity != 0.25 || b.Min != 0.25 {
 		t.Fatalf("break %+v: want at the start, 0.25", b)
 	}
 	b, _ = BreakingPoint(levels, 0.25)
-	if b.Reached || !math.IsNaN(b.Severity) || b.Max != 0.8 || !strings.Contains(b.String(), "not reached") {
+	if b.Reached || !math.IsNaN(b.Severity) || b.Max != 0.8 || !strings.Contains(b.String(), "not reached") || b.DipString() != "none" {
 		t.Fatalf("break %+v (%s), want not reached", b, b)
 	}
-	// Exactly at the threshold is not below it.
-	b, _ = BreakingPoint([]Level{{1, ret(0.5)}}, 0.5)
+	// An upper end exactly at the threshold is not below it.
+	b, _ = BreakingPoint([]Level{{1, Estimate{Value: 0.4, Lo: 0.3, Hi: 0.5}}}, 0.5)
 	if b.Reached {
-		t.Fatal("retention equal to the threshold counted as broken")
+		t.Fatal("interval touching the threshold counted as broken")
 	}
 	for _, bad := range [][]Level{nil, {{math.NaN(), ret(1)}}, {{1, Estimate{Value: math.NaN()}}}} {
 		if _, err := BreakingPoint(bad, 0); err == nil {
@@ -121,29 +129,52 @@ func normals(seed uint64, k, n int, mu, sd float64) Strata {
 	return s
 }
 
+// paired returns k strata of n normalised scores: a shared per-seed
+// effect (sd shared) plus the arm's own noise (sd own) about mu.
+func paired(seed uint64, k, n int, mu, shared, own float64, arm uint64) Strata {
+	rs, ro := seeds.NewRand(seed), seeds.NewRand(seed+1000*arm+1)
+	s := make(Strata, k)
+	for i := range s {
+		s[i] = make([]float64, n)
+		for j := range s[i] {
+			s[i][j] = mu + shared*rs.NormFloat64() + own*ro.NormFloat64()
+		}
+	}
+	return s
+}
+
 func TestRecommend(t *testing.T) {
-	// Cost rises down the list; p8, p6 and p4 come from the same
-	// distribution (p4 half a point higher), p12 and p16 clearly worse.
+	// Cost rises down the list; p8, p6 and p4 score alike (p4 0.005
+	// higher), p12 and p16 clearly worse on the normalised scale.
 	cands := []Candidate{
-		{Name: "p16", Cost: 1, Scores: normals(1, 3, 30, 50, 5)},
-		{Name: "p12", Cost: 2, Scores: normals(2, 3, 30, 90, 5)},
-		{Name: "p8", Cost: 4, Scores: normals(3, 3, 30, 100, 5)},
-		{Name: "p6", Cost: 8, Scores: normals(4, 3, 30, 100, 5)},
-		{Name: "p4", Cost: 16, Scores: normals(5, 3, 30, 100.5, 5)},
+		{Name: "p16", Cost: 1, Scores: paired(1, 3, 30, 0.5, 0.1, 0.02, 1)},
+		{Name: "p12", Cost: 2, Scores: paired(1, 3, 30, 0.9, 0.1, 0.02, 2)},
+		{Name: "p8", Cost: 4, Scores: paired(1, 3, 30, 1, 0.1, 0.02, 3)},
+		{Name: "p6", Cost: 8, Scores: paired(1, 3, 30, 1, 0.1, 0.02, 4)},
+		{Name: "p4", Cost: 16, Scores: paired(1, 3, 30, 1.005, 0.1, 0.02, 5)},
 	}
 	ch, err := Recommender{}.Recommend(cands)
 	if err != nil {
 		t.Fatal(err)
 	}
-	t.Logf("scores %v\nP(best > c) %v", ch.Score, ch.PBest)
-	if cands[ch.Pick].Name != "p8" {
-		t.Fatalf("pick %d, want p8; scores %v pbest %v", ch.Pick, ch.Score, ch.PBest)
+	t.Logf("scores %v\nversus %+v", ch.Score, ch.Versus)
+	if cands[ch.Pick].Name != "p8" || !ch.Shown || ch.More != -1 || ch.Margin != DefaultMargin {
+		t.Fatalf("pick %d, want p8; scores %v versus %+v", ch.Pick, ch.Score, ch.Versus)
 	}
 	if ch.Qualifies[0] || ch.Qualifies[1] || !ch.Qualifies[ch.Best] {
 		t.Fatalf("qualifies %v", ch.Qualifies)
 	}
-	if ch.PBest[0].Lo <= 0.5 {
-		t.Fatalf("P(best > p16) interval %v should be above 0.5", ch.PBest[0])
+	if v := ch.Versus[0]; v.Diff.Lo < 0.4 || v.Needed != -1 {
+		t.Fatalf("best − p16 %+v should be far past the margin", v)
+	}
+	// A margin of 0.001: the cheaper sizes cannot be shown so close, so
+	// the best is the pick and the evidence asks for more episodes.
+	ch, err = Recommender{Margin: 0.001}.Recommend(cands)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if ch.Pick != ch.Best || ch.Shown || !ch.Cheaper {
+		t.Fatalf("margin 0.001: pick %d best %d shown %v", ch.Pick, ch.Best, ch.Shown)
 	}
 	// A budget of 3 leaves p16 and p12; p12 is then the best and the pick.
 	ch, err = Recommender{Budget: 3}.Recommend(cands)
@@ -165,6 +196,43 @@ func TestRecommend(t *testing.T) {
 	bad[2].Scores = Strata{{1}}
 	if _, err := (Recommender{}).Recommend(bad); err == nil {
 		t.Fatal("mismatched strata accepted")
+	}
+}
+
+// The pitfalls of the old rule: a cheaper candidate that crashes in a
+// fifth of its episodes (normalised score 0 there) is not shown
+// non-inferior once a crash is seen, at 10 episodes as at 30.
+func TestRecommendCrashingCandidate(t *testing.T) {
+	for _, n := range []int{10, 30} {
+		picks := 0
+		const trials = 40
+		for tr := 0; tr < trials; tr++ {
+			good := paired(uint64(100+tr), 1, n, 1, 0.02, 0.01, 1)
+			crash := paired(uint64(100+tr), 1, n, 1, 0.02, 0.01, 2)
+			r := seeds.NewRand(uint64(tr))
+			crashes := 0
+			for i := range crash[0] {
+				if r.Float64() < 0.2 {
+					crash[0][i] = 0
+					crashes++
+				}
+			}
+			if crashes == 0 {
+				// No crash seen: nothing tells the two apart.
+				continue
+			}
+			ch, err := Recommender{Bootstrap: Bootstrap{Resamples: 500, Seed: uint64(tr)}, Statistic: StatMean}.Recommend(
+				[]Candidate{{Name: "crash", Cost: 1, Scores: crash}, {Name: "good", Cost: 2, Scores: good}})
+			if err != nil {
+				t.Fatal(err)
+			}
+			if ch.Pick == 0 {
+				picks++
+			}
+		}
+		if picks > 3 {
+			t.Errorf("n=%d: the crashing candidate recommended %d of %d times", n, picks, trials)
+		}
 	}
 }
 

@@ -32,10 +32,13 @@ func ExampleParetoFront() {
 
 func ExampleRecommender() {
 	cands := []stats.Candidate{
-		{Name: "patch 16", Cost: 0.4, Scores: stats.Strata{{3, 4, 3, 5, 4, 3, 4, 2}}},
-		{Name: "patch 8", Cost: 1.5, Scores: stats.Strata{{9, 10, 8, 11, 10, 9, 10, 9}}},
-		{Name: "patch 4", Cost: 6.0, Scores: stats.Strata{{10, 9, 11, 10, 9, 10, 11, 8}}},
+		// Normalised scores (0 the floor policy, 1 the reference) on the
+		// same eight seeds: seed i is index i in every candidate.
+		{Name: "patch 16", Cost: 0.4, Scores: stats.Strata{{0.41, 0.35, 0.5, 0.42, 0.38, 0.47, 0.4, 0.44}}},
+		{Name: "patch 8", Cost: 1.5, Scores: stats.Strata{{0.99, 0.9, 1.08, 0.99, 0.95, 1.03, 0.97, 1.01}}},
+		{Name: "patch 4", Cost: 6.0, Scores: stats.Strata{{1, 0.9, 1.1, 1, 0.95, 1.05, 0.98, 1.02}}},
 	}
+	// Margin 0 means stats.DefaultMargin, 0.05 of the normalised scale.
 	ch, err := stats.Recommender{Bootstrap: stats.Bootstrap{Seed: 7}}.Recommend(cands)
 	if err != nil {
 		fmt.Println(err)
@@ -47,17 +50,17 @@ func ExampleRecommender() {
 
 func ExampleBreakingPoint() {
 	levels := []stats.Level{
-		{Severity: 0.1, Retention: stats.Estimate{Value: 0.95}},
-		{Severity: 0.3, Retention: stats.Estimate{Value: 0.71}},
-		{Severity: 0.5, Retention: stats.Estimate{Value: 0.42}},
-		{Severity: 0.7, Retention: stats.Estimate{Value: 0.18}},
+		{Severity: 0.1, Retention: stats.Estimate{Value: 0.95, Lo: 0.88, Hi: 1.01}},
+		{Severity: 0.3, Retention: stats.Estimate{Value: 0.71, Lo: 0.6, Hi: 0.8}},
+		{Severity: 0.5, Retention: stats.Estimate{Value: 0.42, Lo: 0.3, Hi: 0.55}},
+		{Severity: 0.7, Retention: stats.Estimate{Value: 0.18, Lo: 0.1, Hi: 0.27}},
 	}
 	b, _ := stats.BreakingPoint(levels, 0) // default threshold 0.5
-	fmt.Println(b)
+	fmt.Println(b, "first dip", b.DipString())
 	b, _ = stats.BreakingPoint(levels, 0.1)
 	fmt.Println(b)
 	// Output:
-	// 0.5
+	// 0.7 first dip 0.5
 	// not reached (≤ 0.7)
 }
 
