@@ -251,7 +251,7 @@ func (r *Replicates) Estimate(lv float64) Estimate {
 // mapped back through BCa's adjustment.
 func (r *Replicates) PAbove(d float64) float64 {
 	B := len(r.Theta)
-	k := B - lowerCount(r.Theta, d) // replicates ≥ d
+	k := B - lowerCount(r.Theta, d)    // replicates ≥ d
 	q := 1 - float64(k+1)/float64(B+1) // share below d
 	if r.Jack != nil {
 		if z0, a, ok := r.bcaParams(); ok {
