@@ -7,6 +7,8 @@ import (
 	"math"
 	"strconv"
 	"strings"
+
+	"tilebench/vision/stats"
 )
 
 // CSVColumns are the columns of cells.csv, in order (documented in
@@ -21,7 +23,15 @@ var CSVColumns = []string{
 	"std", "min", "max",
 	"retention", "retention_lo", "retention_hi",
 	"level", "resamples", "params", "note",
+	"errors", "game_failed", "game_failed_lo", "game_failed_hi",
+	"time_up", "time_up_lo", "time_up_hi", "cvar10",
+	"expert_share", "expert_share_lo", "expert_share_hi", "interval_method", "warning",
 }
+
+// CSVFormat is the format number in the first column of cells.csv.
+// Format 2 appended the columns from "errors" on and made "retention"
+// the normalised retention.
+const CSVFormat = "2"
 
 // csvFloat writes the shortest decimal that reads back to the same
 // float64; NaN is empty, infinities are "inf" and "-inf".
@@ -68,8 +78,26 @@ func CSV(d *Data) ([]byte, error) {
 		if c.Retention != nil {
 			rv, rlo, rhi = c.Retention.Value, c.Retention.Lo, c.Retention.Hi
 		}
+		ev, elo, ehi := math.NaN(), math.NaN(), math.NaN()
+		if c.Expert != nil {
+			ev, elo, ehi = c.Expert.Value, c.Expert.Lo, c.Expert.Hi
+		}
+		cvar := math.NaN()
+		if c.CVaR != nil {
+			cvar = *c.CVaR
+		}
+		method := s.IQM.Method
+		if method == "" && s.N > 0 {
+			method = "percentile"
+		}
+		rate := func(r stats.Rate) []string {
+			if r.Of == 0 {
+				return []string{"", "", ""}
+			}
+			return []string{csvFloat(r.Value), csvFloat(r.Lo), csvFloat(r.Hi)}
+		}
 		row := []string{
-			"1", c.ID, csvInt(c.Patch), c.Axis, c.Kind, csvFloat(c.Severity),
+			CSVFormat, c.ID, csvInt(c.Patch), c.Axis, c.Kind, csvFloat(c.Severity),
 			strconv.Itoa(c.Episodes), strconv.Itoa(c.Failures), strconv.Itoa(s.N),
 			csvFloat(s.Mean.Value), csvFloat(s.Mean.Lo), csvFloat(s.Mean.Hi),
 			csvFloat(s.Median.Value), csvFloat(s.Median.Lo), csvFloat(s.Median.Hi),
@@ -77,6 +105,13 @@ func CSV(d *Data) ([]byte, error) {
 			csvFloat(s.Std), csvFloat(s.Min), csvFloat(s.Max),
 			csvFloat(rv), csvFloat(rlo), csvFloat(rhi),
 			csvFloat(level), strconv.Itoa(resamples), joinParams(c.Params), c.Note,
+			strconv.Itoa(c.Failures),
+		}
+		row = append(row, rate(c.GameFailed)...)
+		row = append(row, rate(c.TimeUp)...)
+		row = append(row, csvFloat(cvar), csvFloat(ev), csvFloat(elo), csvFloat(ehi), method, c.Warn)
+		if len(row) != len(CSVColumns) {
+			return nil, fmt.Errorf("cells.csv: %d values for %d columns", len(row), len(CSVColumns))
 		}
 		if err := w.Write(row); err != nil {
 			return nil, fmt.Errorf("cells.csv: cell %q: %w", c.ID, err)

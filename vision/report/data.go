@@ -52,6 +52,11 @@ type Data struct {
 	Strips []Strip
 	// Cells is the per-cell table (and cells.csv), one entry per cell.
 	Cells []Cell
+	// Tables are further tables (failures, paired comparisons, the
+	// evidence behind a recommendation), shown after the cost table in
+	// the order given. A table is always shown when given: a value that
+	// is undefined is a row that says why.
+	Tables []Table
 	// Notes are free remarks shown at the end (before the caution).
 	Notes []string
 	// BreakRule, if set, replaces the sentence under the breaks table
@@ -61,6 +66,19 @@ type Data struct {
 	// Units names what Run.Episodes counts in the masthead; "" means
 	// "episodes".
 	Units string
+}
+
+// Table is a titled table of text cells.
+type Table struct {
+	// ID is the HTML anchor ("failures"); Title heads the table.
+	ID, Title string
+	// Caption is one or two sentences under the title: what is counted,
+	// how intervals were made, what pairing was used.
+	Caption string
+	// Columns name the columns; every row has len(Columns) cells.
+	Columns []string
+	// Rows are the rows, top to bottom.
+	Rows [][]string
 }
 
 // KV is a labelled value.
@@ -109,8 +127,11 @@ type Break struct {
 	// parenthesised part ("random occlusion ratio (patch 8)"), that part
 	// is shown as the context.
 	Context string
-	// Break is the result of stats.BreakingPoint.
+	// Break is the result of stats.BreakingPoint (its FirstDip is shown
+	// as a secondary figure).
 	Break stats.Break
+	// Note says why an axis has no breaking point (Break is then zero).
+	Note string
 }
 
 // Cost is one row of the cost table.
@@ -238,13 +259,27 @@ type Cell struct {
 	// Params are all cell parameters in a stable order; cells.csv joins
 	// them as "key=value; key=value".
 	Params []KV
-	// Episodes is the number of finished episodes, Failures those among
-	// them that failed.
+	// Episodes is the number of recorded episodes, Failures the errors
+	// among them (episodes that could not be played: a policy crash, a bad
+	// action), which are scored at the study's worst return.
 	Episodes, Failures int
+	// GameFailed and TimeUp are the shares of played episodes ended by
+	// the game's failure rule and by the step limit, with Wilson
+	// intervals; zero Of when not measured.
+	GameFailed, TimeUp stats.Rate
+	// CVaR is the mean of the worst 10% of the returns; nil when not
+	// measured.
+	CVaR *float64
+	// Expert is the share of expert (normalised against the scripted
+	// expert); nil when not measured.
+	Expert *stats.Estimate
+	// Warn flags an unstable statistic (a ratio over a clean score near
+	// the floor).
+	Warn string
 	// Summary holds the statistics (stats.Bootstrap.Summarize).
 	Summary stats.Summary
-	// Retention is stressed / clean score; nil for the clean cell or when
-	// undefined.
+	// Retention is the normalised retention, (stressed − floor) / (clean
+	// − floor); nil for the clean cell or when undefined (Note says why).
 	Retention *stats.Estimate
 	// Note is a short remark, e.g. the most common failure reason.
 	Note string

@@ -184,7 +184,7 @@ func TestBreakTable(t *testing.T) {
 	if !strings.Contains(s, `0.75</span> <span class="fine">threshold 0.3</span>`) {
 		t.Error("the odd threshold (0.3) is not shown on its row")
 	}
-	if !strings.Contains(s, "falls below 0.5") {
+	if !strings.Contains(s, "whole retention interval lies below 0.5") {
 		t.Error("the common threshold is not stated")
 	}
 	// Five findings: two cards plus one shared card, not five.

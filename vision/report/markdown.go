@@ -51,7 +51,7 @@ func Markdown(d *Data) ([]byte, error) {
 	}
 	meta = append(meta, fmt.Sprintf("%d episodes in %d cells", v.Episodes, len(d.Cells)))
 	if d.Run.Failures > 0 {
-		meta = append(meta, fmt.Sprintf("%d failed", d.Run.Failures))
+		meta = append(meta, fmt.Sprintf("%d errors", d.Run.Failures))
 	}
 	meta = append(meta, fmt.Sprintf("seed %d", d.Run.Seed))
 	if d.Generated != "" {
@@ -82,7 +82,7 @@ func Markdown(d *Data) ([]byte, error) {
 	}
 	if len(v.Breaks) > 0 {
 		p("\n### Where it breaks\n\n")
-		p("| axis | context | breaking point |\n|---|---|---|\n")
+		p("| axis | context | breaking point | first dip |\n|---|---|---|---|\n")
 		for _, br := range v.Breaks {
 			bp := "**" + md(br.Big) + "**"
 			if !br.Reached {
@@ -91,7 +91,7 @@ func Markdown(d *Data) ([]byte, error) {
 			if br.Sub != "" {
 				bp += " (" + md(br.Sub) + ")"
 			}
-			p("| %s | %s | %s |\n", md(br.Axis), md(br.Context), bp)
+			p("| %s | %s | %s | %s |\n", md(br.Axis), md(br.Context), bp, md(br.Dip))
 		}
 		p("\n%s\n", md(v.BreakRule))
 	}
@@ -114,16 +114,41 @@ func Markdown(d *Data) ([]byte, error) {
 		p("\n")
 	}
 
+	for _, t := range v.Tables {
+		p("## %s\n\n", md(t.Title))
+		if t.Caption != "" {
+			p("%s\n\n", md(t.Caption))
+		}
+		cols := make([]string, len(t.Columns))
+		seps := make([]string, len(t.Columns))
+		for i, c := range t.Columns {
+			cols[i], seps[i] = md(c), "---"
+		}
+		p("| %s |\n|%s|\n", strings.Join(cols, " | "), strings.Join(seps, "|"))
+		for _, row := range t.Rows {
+			cells := make([]string, len(row))
+			for i, c := range row {
+				cells[i] = md(c)
+			}
+			p("| %s |\n", strings.Join(cells, " | "))
+		}
+		p("\n")
+	}
+
 	if len(d.Cells) > 0 {
 		p("## Every cell\n\n")
-		p("| cell | episodes | failed | IQM [95%% CI] | mean [95%% CI] | median | std | retention [95%% CI] |\n")
-		p("|---|--:|--:|--:|--:|--:|--:|--:|\n")
+		p("| cell | episodes | errors | IQM [95%% CI] | mean [95%% CI] | median | std | game failures | time-ups | CVaR 10%% | retention [95%% CI] | share of expert | note |\n")
+		p("|---|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|--:|---|\n")
 		for _, c := range v.Cells {
-			p("| %s | %d | %d | %s | %s | %s | %s | %s |\n", md(c.ID), c.Episodes, c.Failures,
-				c.IQMText, c.MeanText, c.Median, c.Std, c.RetText)
+			note := c.Note
+			if c.Warn != "" {
+				note = strings.TrimSpace(note + " " + c.Warn)
+			}
+			p("| %s | %d | %d | %s | %s | %s | %s | %s | %s | %s | %s | %s | %s |\n", md(c.ID), c.Episodes, c.Failures,
+				c.IQMText, c.MeanText, c.Median, c.Std, md(c.Fail), md(c.TimeUp), c.CVaR, c.RetText, c.Expert, md(note))
 		}
 		if v.Resamples > 0 {
-			p("\nIntervals: stratified percentile bootstrap, %d resamples, %s%% level.\n", v.Resamples, num(v.Level*100))
+			p("\nIntervals: percentile bootstrap (BCa below 20 episodes), %d resamples, %s%% level. Retention is normalised, (IQM − floor) / (clean IQM − floor), paired over the shared seeds. Errors count at the study's worst return. Game failures and time-ups: shares of played episodes, Wilson intervals. CVaR 10%%: mean of the worst tenth of the returns.\n", v.Resamples, num(v.Level*100))
 		}
 		p("\n")
 	}

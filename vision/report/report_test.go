@@ -149,7 +149,7 @@ func TestCSV(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if got, want := strings.Join(rows[0], ","), "format,cell,patch,axis,kind,severity,episodes,failures,n,mean,mean_lo,mean_hi,median,median_lo,median_hi,iqm,iqm_lo,iqm_hi,std,min,max,retention,retention_lo,retention_hi,level,resamples,params,note"; got != want {
+	if got, want := strings.Join(rows[0], ","), "format,cell,patch,axis,kind,severity,episodes,failures,n,mean,mean_lo,mean_hi,median,median_lo,median_hi,iqm,iqm_lo,iqm_hi,std,min,max,retention,retention_lo,retention_hi,level,resamples,params,note,errors,game_failed,game_failed_lo,game_failed_hi,time_up,time_up_lo,time_up_hi,cvar10,expert_share,expert_share_lo,expert_share_hi,interval_method,warning"; got != want {
 		t.Fatalf("header\n%s\nwant (docs/report.md)\n%s", got, want)
 	}
 	if len(rows) != len(d.Cells)+1 {
@@ -161,7 +161,7 @@ func TestCSV(t *testing.T) {
 	}
 	for i, c := range d.Cells {
 		r := rows[i+1]
-		if r[col["format"]] != "1" || r[col["cell"]] != c.ID || r[col["iqm"]] != csvFloat(c.Summary.IQM.Value) ||
+		if r[col["format"]] != CSVFormat || r[col["cell"]] != c.ID || r[col["iqm"]] != csvFloat(c.Summary.IQM.Value) ||
 			r[col["iqm_lo"]] != csvFloat(c.Summary.IQM.Lo) || r[col["resamples"]] != "500" || r[col["level"]] != "0.95" {
 			t.Fatalf("row %d = %v for cell %+v", i+1, r, c)
 		}

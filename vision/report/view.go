@@ -37,6 +37,7 @@ type view struct {
 	Curves    []chartView
 	Strips    []stripView
 	Cells     []cellView
+	Tables    []tableView
 	Nav       []navItem
 	Caution   string
 	Units     string
@@ -52,7 +53,10 @@ type breakView struct {
 	// ("up to 1", or the threshold when it differs from the common one);
 	// Text says it all in one phrase (summary.md, tooltips).
 	Big, Sub, Text string
-	Reached        bool
+	// Dip is the first-dip severity (the point estimate alone below the
+	// threshold), a secondary figure.
+	Dip     string
+	Reached bool
 }
 
 // maxFactCards is the most headline facts shown as cards of their own.
@@ -133,15 +137,27 @@ func (v *view) buildBreaks(bs []Break) {
 		}
 	}
 	if len(sorted) > 0 {
-		v.BreakRule = "Breaking point: the first measured severity whose retention falls below " + num(common) +
-			"; earliest first. Not reached: retention stayed at or above it up to the largest severity measured."
+		v.BreakRule = "Breaking point: the first measured severity whose whole retention interval lies below " + num(common) +
+			" (retention normalised between the floor policy and the clean score, paired over seeds); earliest first. " +
+			"Not reached: no interval lay wholly below it up to the largest severity measured. " +
+			"First dip: the first severity whose point estimate alone is below it, which follows the noise of the curve."
 	}
 	if v.Data.BreakRule != "" {
 		v.BreakRule = v.Data.BreakRule
 	}
 	for _, b := range sorted {
 		th := thOf(b)
-		bv := breakView{Reached: b.Break.Reached, Context: b.Context}
+		bv := breakView{Reached: b.Break.Reached, Context: b.Context, Dip: b.Break.DipString()}
+		if b.Note != "" {
+			bv.Axis, bv.Context = b.Axis, b.Context
+			if bv.Context == "" {
+				bv.Axis, bv.Context = splitContext(b.Axis)
+			}
+			bv.Big, bv.Dip, bv.Text = "undefined", "—", b.Note
+			bv.Sub = b.Note
+			v.Breaks = append(v.Breaks, bv)
+			continue
+		}
 		bv.Axis = b.Axis
 		if bv.Context == "" {
 			bv.Axis, bv.Context = splitContext(b.Axis)
@@ -222,6 +238,7 @@ type frameView struct {
 }
 
 type cellView struct {
+	Fail, TimeUp, CVaR, Expert, Warn          string
 	ID, Axis, Kind, Severity, Patch           string
 	Episodes, Failures                        int
 	IQM, IQMText, Mean, MeanText, Median, Std string
@@ -325,6 +342,18 @@ func buildView(d *Data) (*view, error) {
 		v.Strips = append(v.Strips, sv)
 	}
 	v.buildCells(d)
+	for _, t := range d.Tables {
+		tv := tableView{Table: t, Short: t.Title}
+		if i := strings.IndexAny(t.Title, ":("); i > 0 {
+			tv.Short = strings.TrimSpace(t.Title[:i])
+		}
+		for r, row := range t.Rows {
+			if len(row) != len(t.Columns) {
+				return nil, fmt.Errorf("report: table %q row %d has %d cells for %d columns", t.Title, r+1, len(row), len(t.Columns))
+			}
+		}
+		v.Tables = append(v.Tables, tv)
+	}
 	v.nav()
 	return v, nil
 }
@@ -457,7 +486,13 @@ func (v *view) buildCells(d *Data) {
 		cv := cellView{ID: c.ID, IDParts: breakable(c.ID), Axis: c.Axis, Kind: c.Kind, Patch: intText(c.Patch),
 			Episodes: c.Episodes, Failures: c.Failures, Note: c.Note, Params: joinParams(c.Params),
 			IQM: "—", IQMText: "—", Mean: "—", MeanText: "—", Median: "—", Std: "—",
-			RetText: "—", Ret: "—"}
+			RetText: "—", Ret: "—", Fail: rateText(c.GameFailed), TimeUp: rateText(c.TimeUp), CVaR: "—", Expert: "—", Warn: c.Warn}
+		if c.CVaR != nil && finite(*c.CVaR) {
+			cv.CVaR = num(*c.CVaR)
+		}
+		if e := c.Expert; e != nil {
+			cv.Expert = estText(e.Value, e.Lo, e.Hi)
+		}
 		if c.Axis != "" && c.Axis != "clean" {
 			cv.Severity = num(c.Severity)
 		}
@@ -501,8 +536,24 @@ func (v *view) nav() {
 	add(len(v.Heatmaps) > 0, "map", "Score map")
 	add(len(v.Curves) > 0, "decline", "Under stress")
 	add(len(v.Strips) > 0, "seen", "What it saw")
+	for _, t := range v.Tables {
+		add(t.ID != "", t.ID, t.Short)
+	}
 	add(len(v.Cells) > 0, "cells", "Every cell")
 	add(true, "reproduce", "Reproduce")
+}
+
+type tableView struct {
+	Table
+	Short string
+}
+
+// rateText is "3/30 · 10% [3.5, 26]", "—" when nothing was counted.
+func rateText(r stats.Rate) string {
+	if r.Of == 0 {
+		return "—"
+	}
+	return fmt.Sprintf("%d/%d · %s%% [%s, %s]", r.Count, r.Of, num(100*r.Value), num(100*r.Lo), num(100*r.Hi))
 }
 
 func intText(n int) string {

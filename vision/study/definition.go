@@ -43,6 +43,11 @@ type Definition struct {
 	ForceWorkers bool `toml:"force_workers" json:"-"`
 	// Policy says what plays.
 	Policy PolicyDef `toml:"policy" json:"policy"`
+	// Floor is the baseline policy whose score is 0 on the normalised
+	// scale, played clean on the study's own seeds: "idle" (default: the
+	// zero action, or the discrete choice "stay"), "random" (uniform
+	// actions), or any policy source.
+	Floor string `toml:"floor" json:"floor,omitempty"`
 	// Patch lists the patch sizes (square, in pixels). Default 8.
 	Patch Axis `toml:"patch" json:"patch"`
 	// Axes are the transforms swept; every combination is a cell.
@@ -129,9 +134,13 @@ type StatsDef struct {
 	Resamples int `toml:"resamples" json:"resamples"`
 	// Confidence is the interval's coverage. Default 0.95.
 	Confidence float64 `toml:"confidence" json:"confidence"`
-	// Threshold is the retention below which an axis counts as broken.
-	// Default 0.5.
+	// Threshold is the normalised retention below which an axis counts
+	// as broken. Default 0.5.
 	Threshold float64 `toml:"threshold" json:"threshold"`
+	// Margin is the non-inferiority margin of a sizes study's
+	// recommendation, on the normalised scale (0 the floor policy, 1 the
+	// reference). 0 means stats.DefaultMargin, 0.05.
+	Margin float64 `toml:"margin" json:"margin,omitempty"`
 }
 
 // BudgetDef is the compute budget of a sizes study; zero fields are no limit.

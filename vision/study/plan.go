@@ -136,6 +136,15 @@ func (d *Definition) Normalize() error {
 	if !(d.Stats.Threshold > 0 && d.Stats.Threshold <= 1) {
 		return fieldErr("stats.threshold", fmt.Errorf("%v: want a number in (0, 1]", d.Stats.Threshold))
 	}
+	if !(d.Stats.Margin >= 0 && d.Stats.Margin < 1) {
+		return fieldErr("stats.margin", fmt.Errorf("%v: want a number in [0, 1) on the normalised scale (0: the default, 0.05)", d.Stats.Margin))
+	}
+	if d.Floor == "idle" {
+		d.Floor = ""
+	}
+	if err := policies.Check(d.Floor); d.Floor != "" && err != nil {
+		return fieldErr("floor", err)
+	}
 	if d.Budget.Microseconds < 0 || math.IsNaN(d.Budget.Microseconds) || math.IsInf(d.Budget.Microseconds, 0) {
 		return fieldErr("budget.us", fmt.Errorf("%v: want a positive number", d.Budget.Microseconds))
 	}

@@ -17,6 +17,7 @@ import (
 	"strings"
 
 	"tilebench/internal/atomicfile"
+	"tilebench/internal/seeds"
 	"tilebench/patch"
 	"tilebench/vision/report"
 	"tilebench/vision/stats"
@@ -69,19 +70,49 @@ func readCosts(dir string) ([]Cost, error) {
 
 // CellStats are the statistics of one cell.
 type CellStats struct {
-	Cell    study.Cell
-	Index   int
-	Returns []float64
-	// Episodes counts finished episodes, Failures the failed ones among
-	// them (left out of Returns).
+	Cell  study.Cell
+	Index int
+	// Returns are the scores of the cell's finished episodes in episode
+	// order, error episodes scored at the study's worst return (see
+	// WorstReturn); ByEpisode holds them by episode index, NaN for an
+	// episode not recorded.
+	Returns   []float64
+	ByEpisode []float64
+	// Episodes counts recorded episodes, Failures (= Errors) those that
+	// could not be played (a policy crash, a bad action).
 	Episodes, Failures int
-	// FailNote is the most common failure reason.
+	// FailNote is the most common error.
 	FailNote string
-	Summary  *stats.Summary
-	// Retention is against the cell's clean reference; nil when undefined.
+	// GameFailed is the share of played episodes the game's failure rule
+	// ended (off the road, too many misses), TimeUp the share that hit
+	// the step limit, with Wilson intervals (Wilson 1927).
+	GameFailed, TimeUp stats.Rate
+	// CVaR is the mean of the worst 10% of Returns (Chan et al. 2020).
+	CVaR    float64
+	Summary *stats.Summary
+	// Retention is the normalised retention against the cell's clean
+	// reference, (IQM − floor) / (IQM clean − floor), paired over seeds;
+	// nil when undefined (Note says why).
 	Retention *stats.Estimate
-	// Note explains a missing statistic.
-	Note string
+	// Expert is the share of expert, (IQM − floor) / (IQM expert −
+	// floor), paired over seeds; nil when there is no expert baseline.
+	Expert *stats.Estimate
+	// VsClean compares the cell with its clean reference on shared seeds.
+	VsClean *Paired
+	// Note explains a missing statistic; Warn flags an unstable one.
+	Note, Warn string
+}
+
+// Paired is a comparison of two cells on the seeds they share.
+type Paired struct {
+	// Seeds is the number of seeds both cells played.
+	Seeds int
+	// Diff is IQM(clean) − IQM(cell) by the paired bootstrap; Unpaired is
+	// the same difference with the cells resampled independently, to show
+	// what the pairing buys.
+	Diff, Unpaired stats.Estimate
+	// Test is the Wilcoxon signed-rank test of the per-seed differences.
+	Test stats.SignedRank
 }
 
 // Analysis is what the report shows, computed from recorded results only.
@@ -96,8 +127,37 @@ type Analysis struct {
 	Choice *stats.Choice
 	// Cands names the candidates of Choice (one per patch size).
 	Cands []int
+	// Conds are the per-condition non-inferiority tests of a sizes study.
+	Conds []CondTest
+	// RecNote says why a sizes study has no recommendation.
+	RecNote string
+	// Scale is how the recommendation's scores were normalised.
+	Scale string
 	// Timing is the median steps per second over the recorded episodes.
 	StepsPerSecond float64
+	// Floors is the baseline table (nil when none was recorded); Floor
+	// names the floor policy.
+	Floors *FloorTable
+	Floor  string
+	// WorstReturn is the score an error episode counts as: the lowest
+	// return of any played episode of the study or its baselines.
+	WorstReturn float64
+	// Errors counts error episodes over the study.
+	Errors int
+}
+
+// CondTest is the non-inferiority test of the patch sizes in one
+// condition of a sizes study.
+type CondTest struct {
+	// Label names the condition ("clean", "occlude random:0.25", ...).
+	Label string
+	// Best indexes Analysis.Cands; Score are the candidates' normalised
+	// IQMs in this condition; Versus their comparisons with Best.
+	Best   int
+	Score  []stats.Estimate
+	Versus []stats.Comparison
+	// Note says why the condition could not be tested.
+	Note string
 }
 
 // AxisCurve is one stress axis in one context.
@@ -112,16 +172,18 @@ type AxisCurve struct {
 	// Pure is true when nothing else is applied (the context is the
 	// clean cell on the study's variation).
 	Pure bool
+	// Note says why there is no breaking point.
+	Note string
 }
 
 func (a *Analysis) boot(c int, stream string) stats.Bootstrap {
 	d := a.Plan.Def
 	return stats.Bootstrap{Resamples: d.Stats.Resamples, Level: d.Stats.Confidence,
-		Seed: patch.DeriveSeed(d.Seed, patch.StreamKey(stream), patch.StreamKey(a.Plan.Cells[c].Key()))}
+		Seed: seeds.DeriveSeed(d.Seed, seeds.StreamKey(stream), seeds.StreamKey(a.Plan.Cells[c].Key()))}
 }
 
 // Analyze reads a study folder and computes every statistic. Its result
-// depends only on study.json, results.jsonl and costs.json.
+// depends only on study.json, results.jsonl, floors.json and costs.json.
 func Analyze(dir string) (*Analysis, error) {
 	si, err := study.ReadInfo(dir)
 	if err != nil {
@@ -141,40 +203,99 @@ func Analyze(dir string) (*Analysis, error) {
 // FromRecords is Analyze on the records recs already read from dir (with
 // its study.json si and plan p), so that a run reads its results once.
 func FromRecords(dir string, si *study.Info, p *study.Plan, recs []study.Record) (*Analysis, error) {
-	a := &Analysis{Info: si, Plan: p}
+	a := &Analysis{Info: si, Plan: p, Floor: p.Def.Floor}
+	if a.Floor == "" {
+		a.Floor = DefaultFloor
+	}
+	ft, err := ReadFloors(dir)
+	if err != nil {
+		return nil, err
+	}
+	if ft != nil && ft.Study == p.Fingerprint {
+		a.Floors = ft
+	}
 	a.Cells = make([]CellStats, len(p.Cells))
 	fails := make([]map[string]int, len(p.Cells))
+	ne := p.Def.Episodes
 	for i, c := range p.Cells {
-		a.Cells[i] = CellStats{Cell: c, Index: i}
+		a.Cells[i] = CellStats{Cell: c, Index: i, ByEpisode: make([]float64, ne)}
+		for e := range a.Cells[i].ByEpisode {
+			a.Cells[i].ByEpisode[e] = nan
+		}
 	}
-	for _, r := range study.Latest(recs) {
-		if r.Study != p.Fingerprint || r.Cell < 0 || r.Cell >= len(p.Cells) {
+	latest := study.Latest(recs)
+	a.WorstReturn = math.Inf(1)
+	for _, r := range latest {
+		if r.Study != p.Fingerprint || r.Cell < 0 || r.Cell >= len(p.Cells) || r.Episode < 0 || r.Episode >= ne {
 			return nil, fmt.Errorf("%s: a record of another study (%s)", filepath.Join(dir, study.ResultsFile), r.Study)
 		}
+		if !r.Failed() {
+			a.WorstReturn = math.Min(a.WorstReturn, r.Return)
+		}
+	}
+	if a.Floors != nil {
+		for _, bs := range [][]Baseline{a.Floors.Floors, a.Floors.Expert} {
+			for _, b := range bs {
+				for e, v := range b.Returns {
+					if e >= len(b.Errors) || b.Errors[e] == "" {
+						a.WorstReturn = math.Min(a.WorstReturn, v)
+					}
+				}
+			}
+		}
+	}
+	if math.IsInf(a.WorstReturn, 1) {
+		a.WorstReturn = nan
+	}
+	failed, timeUp, played := make([]int, len(p.Cells)), make([]int, len(p.Cells)), make([]int, len(p.Cells))
+	for _, r := range latest {
 		cs := &a.Cells[r.Cell]
 		cs.Episodes++
 		if r.Failed() {
 			cs.Failures++
+			a.Errors++
 			if fails[r.Cell] == nil {
 				fails[r.Cell] = map[string]int{}
 			}
 			fails[r.Cell][r.Failure]++
+			// Scored at the worst return, not dropped: errors that rise
+			// with stress must lower the score, not leave the survivors.
+			if !math.IsNaN(a.WorstReturn) {
+				cs.ByEpisode[r.Episode] = a.WorstReturn
+			}
 			continue
 		}
-		cs.Returns = append(cs.Returns, r.Return)
+		played[r.Cell]++
+		switch r.End {
+		case "failed":
+			failed[r.Cell]++
+		case "time-up":
+			timeUp[r.Cell]++
+		}
+		cs.ByEpisode[r.Episode] = r.Return
 	}
+	lv := p.Def.Stats.Confidence
 	for i := range a.Cells {
 		cs := &a.Cells[i]
+		for _, v := range cs.ByEpisode {
+			if !math.IsNaN(v) {
+				cs.Returns = append(cs.Returns, v)
+			}
+		}
+		cs.GameFailed = stats.NewRate(failed[i], played[i], lv)
+		cs.TimeUp = stats.NewRate(timeUp[i], played[i], lv)
 		best := 0
 		for why, n := range fails[i] {
 			if n > best || n == best && why < cs.FailNote {
 				best, cs.FailNote = n, why
 			}
 		}
+		cs.CVaR = nan
 		if len(cs.Returns) == 0 {
 			cs.Note = "no finished episodes"
 			continue
 		}
+		cs.CVaR, _ = stats.CVaR(cs.Returns, stats.DefaultCVaRLevel)
 		s, err := a.boot(i, "summary").Summarize(stats.Strata{cs.Returns})
 		if err != nil {
 			cs.Note = err.Error()
@@ -182,22 +303,7 @@ func FromRecords(dir string, si *study.Info, p *study.Plan, recs []study.Record)
 		}
 		cs.Summary = &s
 	}
-	for i := range a.Cells {
-		cs := &a.Cells[i]
-		ref := p.Reference(i)
-		if cs.Summary == nil || ref < 0 || a.Cells[ref].Summary == nil {
-			continue
-		}
-		e, err := a.boot(i, "retention").Retention(stats.Strata{cs.Returns}, stats.Strata{a.Cells[ref].Returns}, stats.StatIQM)
-		if err != nil {
-			cs.Note = err.Error()
-			continue
-		}
-		if i == ref {
-			e.Value = 1
-		}
-		cs.Retention = &e
-	}
+	a.normalise()
 	a.curves()
 	a.StepsPerSecond = medianSPS(study.ReadTimings(dir))
 	if p.Def.Kind == "sizes" {
@@ -403,78 +509,6 @@ func variationName(v string) string {
 		return "default"
 	}
 	return v
-}
-
-// sizeStrata is the candidate data of a sizes study: for every patch
-// size, one stratum per condition (the clean cell and each stress cell),
-// the conditions matched across patch sizes.
-func (a *Analysis) recommend() error {
-	patches := map[int]bool{}
-	var ps []int
-	for _, c := range a.Plan.Cells {
-		if !patches[c.Patch] {
-			patches[c.Patch] = true
-			ps = append(ps, c.Patch)
-		}
-	}
-	cost := map[int]Cost{}
-	for _, c := range a.Costs {
-		cost[c.Patch] = c
-	}
-	// Conditions: the cells of the first patch size, matched by their key
-	// without the patch size.
-	cond := func(c study.Cell) string { c.Patch = 0; return c.Key() }
-	var conds []string
-	seen := map[string]bool{}
-	for _, c := range a.Plan.Cells {
-		if k := cond(c); !seen[k] {
-			seen[k] = true
-			conds = append(conds, k)
-		}
-	}
-	idx := map[[2]string]int{}
-	for i, c := range a.Plan.Cells {
-		idx[[2]string{strconv.Itoa(c.Patch), cond(c)}] = i
-	}
-	d := a.Plan.Def
-	var cands []stats.Candidate
-	for _, p := range ps {
-		c := stats.Candidate{Name: fmt.Sprintf("patch %d", p)}
-		co, ok := cost[p]
-		switch {
-		case !ok:
-			c.Cost = math.NaN()
-		case d.Budget.Microseconds > 0:
-			c.Cost = co.LatencyUS
-		default:
-			c.Cost = co.MFLOP
-		}
-		for _, k := range conds {
-			i, ok := idx[[2]string{strconv.Itoa(p), k}]
-			if !ok || len(a.Cells[i].Returns) == 0 {
-				return nil
-			}
-			c.Scores = append(c.Scores, a.Cells[i].Returns)
-		}
-		if math.IsNaN(c.Cost) {
-			return nil
-		}
-		cands = append(cands, c)
-	}
-	r := stats.Recommender{Bootstrap: stats.Bootstrap{Resamples: d.Stats.Resamples, Level: d.Stats.Confidence,
-		Seed: patch.DeriveSeed(d.Seed, patch.StreamKey("recommend"))}}
-	if d.Budget.Microseconds > 0 {
-		r.Budget = d.Budget.Microseconds
-	} else {
-		r.Budget = d.Budget.MFLOP
-	}
-	ch, err := r.Recommend(cands)
-	if err != nil {
-		return fmt.Errorf("recommendation: %w", err)
-	}
-	a.Choice = &ch
-	a.Cands = ps
-	return nil
 }
 
 // WriteReport analyses the study in dir and writes report.html,
