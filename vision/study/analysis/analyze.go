@@ -487,16 +487,28 @@ func (a *Analysis) curves() {
 			cv := AxisCurve{Axis: axisName(ax, g.kind), Kind: g.kind, Context: ctxLabel, Patch: ctxCell.Patch, Cells: g.cells,
 				Pure: ctxCell.Clean() && ctxCell.Variation == a.Plan.Def.Variation}
 			var levels []stats.Level
+			stressed := 0
 			for _, ci := range g.cells {
 				_, s, _, _ := ax.sev(a.Plan.Cells[ci])
 				cv.Severities = append(cv.Severities, s)
 				if r := a.Cells[ci].Retention; r != nil {
 					levels = append(levels, stats.Level{Severity: s, Retention: *r})
+					if ci != g.ctx {
+						stressed++
+					}
 				}
 			}
-			if len(levels) > 0 {
+			if stressed > 0 {
 				if br, err := stats.BreakingPoint(levels, thr); err == nil {
 					cv.Break = &br
+				}
+			} else {
+				cv.Note = "no breaking point: retention is undefined at every severity"
+				for _, ci := range g.cells {
+					if n := a.Cells[ci].Note; n != "" {
+						cv.Note += " (" + n + ")"
+						break
+					}
 				}
 			}
 			a.Curves = append(a.Curves, cv)
@@ -541,8 +553,17 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 		{Key: "cells", Value: strconv.Itoa(len(a.Plan.Cells))},
 		{Key: "episodes per cell", Value: strconv.Itoa(d.Episodes)},
 		{Key: "game seeds", Value: d.Seeds},
-		{Key: "bootstrap", Value: fmt.Sprintf("%d resamples, %.0f%% percentile intervals", d.Stats.Resamples, 100*d.Stats.Confidence)},
-		{Key: "breaking threshold", Value: fmtG(d.Stats.Threshold) + " retention"},
+		{Key: "bootstrap", Value: fmt.Sprintf("%d resamples, %.0f%% percentile intervals (BCa below %d episodes); paired over shared seeds wherever two cells are compared", d.Stats.Resamples, 100*d.Stats.Confidence, stats.MinPercentileN)},
+		{Key: "floor", Value: a.FloorLabel()},
+		{Key: "breaking threshold", Value: fmtG(d.Stats.Threshold) + " normalised retention (whole interval below)"},
+		{Key: "error episodes", Value: "scored at the worst return " + fmtG(a.WorstReturn) + " (the lowest of any played episode of the study or its baselines)"},
+	}
+	if d.Kind == "sizes" {
+		m := d.Stats.Margin
+		if m == 0 {
+			m = stats.DefaultMargin
+		}
+		rd.Run.Params = append(rd.Run.Params, report.KV{Key: "non-inferiority margin", Value: fmtG(m) + " on the normalised scale, one-sided α " + fmtG(stats.DefaultAlpha) + ", Holm over the comparisons"})
 	}
 	if a.StepsPerSecond > 0 {
 		rd.Run.Params = append(rd.Run.Params, report.KV{Key: "speed", Value: fmt.Sprintf("%.0f steps/s per worker (median, timing.jsonl)", a.StepsPerSecond)})
@@ -556,6 +577,13 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 	for _, cs := range a.Cells {
 		rd.Run.Episodes += cs.Episodes - cs.Failures
 		rd.Run.Failures += cs.Failures
+	}
+	warned := false
+	for _, cs := range a.Cells {
+		if cs.Warn != "" && !warned {
+			warned = true
+			rd.Notes = append(rd.Notes, "Some retentions are ratios over a clean score whose interval comes near the floor: read their intervals with care (see the warnings in the table of every cell).")
+		}
 	}
 	for i := range a.Plan.Cells {
 		if ref := a.Plan.Reference(i); ref == i && a.Cells[i].Summary != nil {
@@ -575,20 +603,30 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 		if cv.Break != nil && (cv.Pure || cv.Break.Reached) {
 			rd.Breaks = append(rd.Breaks, report.Break{Axis: cv.Axis + " (" + cv.Context + ")", Break: *cv.Break})
 		}
+		if cv.Break == nil && cv.Pure {
+			// An undefined breaking point is a row that says why.
+			rd.Breaks = append(rd.Breaks, report.Break{Axis: cv.Axis + " (" + cv.Context + ")", Note: cv.Note,
+				Break: stats.Break{Severity: math.NaN(), FirstDip: math.NaN(), Threshold: d.Stats.Threshold}})
+		}
 	}
 	a.costSection(rd)
+	a.soundTables(rd)
 	a.curveSections(rd)
 	a.stripSections(rd, dir)
 	for i, cs := range a.Cells {
 		rc := report.Cell{ID: cellID(i, cs.Cell, d.Variation), Patch: cs.Cell.Patch, Episodes: cs.Episodes, Failures: cs.Failures,
-			Retention: cs.Retention, Note: cs.Note}
+			Retention: cs.Retention, Note: cs.Note, GameFailed: cs.GameFailed, TimeUp: cs.TimeUp, Expert: cs.Expert, Warn: cs.Warn}
+		if !math.IsNaN(cs.CVaR) {
+			v := cs.CVaR
+			rc.CVaR = &v
+		}
 		rc.Axis, rc.Kind, rc.Severity = primaryAxis(cs.Cell)
 		rc.Params = cellParams(cs.Cell)
 		if cs.Summary != nil {
 			rc.Summary = *cs.Summary
 		}
 		if cs.FailNote != "" {
-			rc.Note = strings.TrimSpace(rc.Note + " failed: " + cs.FailNote)
+			rc.Note = strings.TrimSpace(rc.Note + " errors: " + cs.FailNote)
 		}
 		if i == a.Plan.Reference(i) {
 			rc.Retention = nil
@@ -709,7 +747,7 @@ func (a *Analysis) costSection(rd *report.Data) {
 	for i, p := range a.Cands {
 		pos[p] = i
 	}
-	par := &report.Pareto{XLabel: unit, YLabel: "IQM return (clean + stress set)", LogX: true, Budget: budget}
+	par := &report.Pareto{XLabel: unit, YLabel: "normalised IQM (clean + stress set, pooled)", LogX: true, Budget: budget}
 	for _, c := range a.Costs {
 		rc := report.Cost{Name: fmt.Sprintf("patch %d", c.Patch), Patch: c.Patch, Tokens: c.Tokens, MFLOP: c.MFLOP,
 			Params: c.Params, LatencyUS: c.LatencyUS, Score: stats.Estimate{Value: math.NaN()}}
@@ -730,17 +768,31 @@ func (a *Analysis) costSection(rd *report.Data) {
 	if len(par.Points) > 0 {
 		rd.Pareto = par
 	}
+	if a.Choice == nil && a.RecNote != "" {
+		rd.Recommendation = &report.Recommendation{Rule: stats.Rule, Detail: a.RecNote + "."}
+	}
 	if a.Choice != nil {
 		rec := &report.Recommendation{Rule: stats.Rule}
+		ch := a.Choice
 		switch {
 		case pick < 0:
 			rec.Detail = "No patch size fits the budget."
 		default:
 			rec.Choice = fmt.Sprintf("patch %d", a.Cands[pick])
-			sb, sp := a.Choice.Score[best].Value, a.Choice.Score[pick].Value
-			detail := fmt.Sprintf("Best score: patch %d (IQM %s).", a.Cands[best], fmtG(sb))
+			ncond := 0
+			if best >= 0 {
+				ncond = len(a.Conds)
+			}
+			detail := fmt.Sprintf("Best score: patch %d (normalised IQM %s, pooled over the clean cell and %d stress conditions).", a.Cands[best], ch.Score[best].String(), max(ncond-1, 0))
 			if pick != best {
-				detail += fmt.Sprintf(" Patch %d scores IQM %s with P(best > it) %s, not significantly below the best, at lower cost.", a.Cands[pick], fmtG(sp), a.Choice.PBest[pick].String())
+				v := ch.Versus[pick]
+				detail += fmt.Sprintf(" Patch %d is shown non-inferior at lower cost: best − it = %s, below the margin %s (Holm-adjusted p %s).", a.Cands[pick], v.Diff.String(), fmtG(ch.Margin), fmtP(v.PAdj))
+			} else if ch.Cheaper {
+				if ch.More > 0 {
+					detail += fmt.Sprintf(" Not enough evidence for a cheaper size: run %d more episodes per condition (%d in all per cell; power %.0f%% estimate from the observed spread).", max(ch.More-d.Episodes, 1), ch.More, 100*stats.DefaultPower)
+				} else {
+					detail += " No cheaper size comes within the margin " + fmtG(ch.Margin) + ": its observed difference is at or past it, so more episodes are not expected to show it non-inferior."
+				}
 			}
 			if budget > 0 {
 				detail += fmt.Sprintf(" Budget: %s %s.", fmtG(budget), unit)
@@ -749,6 +801,13 @@ func (a *Analysis) costSection(rd *report.Data) {
 		}
 		rd.Recommendation = rec
 	}
+}
+
+func fmtP(p float64) string {
+	if p < 0.001 {
+		return "< 0.001"
+	}
+	return strconv.FormatFloat(p, 'g', 2, 64)
 }
 
 func (a *Analysis) curveSections(rd *report.Data) {

@@ -7,6 +7,7 @@ import (
 	"strconv"
 
 	"tilebench/internal/seeds"
+	"tilebench/vision/report"
 	"tilebench/vision/stats"
 	"tilebench/vision/study"
 )
@@ -99,6 +100,8 @@ func (a *Analysis) normalise() {
 			}
 		}
 		if i == ref {
+			// Against itself on the same seeds: exactly 1.
+			cs.Retention = &stats.Estimate{Value: 1, Lo: 1, Hi: 1, Level: p.Def.Stats.Confidence}
 			continue
 		}
 		rc := a.Cells[ref].ByEpisode
@@ -331,4 +334,154 @@ func (a *Analysis) recommend() error {
 		a.Conds = append(a.Conds, ct)
 	}
 	return nil
+}
+
+// soundTables adds the tables behind the headline: the normalisation,
+// the paired comparisons with the clean cell and, for a sizes study, the
+// evidence of the non-inferiority tests.
+func (a *Analysis) soundTables(rd *report.Data) {
+	d := a.Plan.Def
+	lv := d.Stats.Confidence
+	// The normalisation.
+	nt := report.Table{ID: "scale", Title: "Normalised scale: floor and reference",
+		Caption: "Normalised score = (x − floor) / (reference − floor) (Mnih et al. 2015): 0 is the floor policy, 1 the reference. " +
+			"Retention takes the policy's own clean score as the reference, share of expert the scripted expert's. " +
+			"The baselines play the clean game on the study's own seeds.",
+		Columns: []string{"baseline", "variation", "episodes", "IQM [CI]", "mean", "note"}}
+	vars := []string{d.Variation}
+	seen := map[string]bool{d.Variation: true}
+	for _, c := range a.Plan.Cells {
+		if !seen[c.Variation] {
+			seen[c.Variation] = true
+			vars = append(vars, c.Variation)
+		}
+	}
+	row := func(name, v string, col []float64, missing string) {
+		if col == nil {
+			nt.Rows = append(nt.Rows, []string{name, variationName(v), "0", "—", "—", missing})
+			return
+		}
+		x := align(col)[0]
+		if len(x) == 0 {
+			nt.Rows = append(nt.Rows, []string{name, variationName(v), "0", "—", "—", "every baseline episode failed to play"})
+			return
+		}
+		bs := stats.Bootstrap{Resamples: d.Stats.Resamples, Level: lv, Seed: seeds.DeriveSeed(d.Seed, seeds.StreamKey("baseline"), seeds.StreamKey(name+"|"+v))}
+		e, err := bs.CI(stats.Strata{x}, stats.StatIQM)
+		txt := "—"
+		if err == nil {
+			txt = e.String()
+		}
+		nt.Rows = append(nt.Rows, []string{name, variationName(v), strconv.Itoa(len(x)), txt, fmtG(stats.Mean(x)), ""})
+	}
+	for _, v := range vars {
+		row("floor: "+a.Floor, v, a.floorOf(v), "not recorded: retention is the plain ratio IQM stressed / IQM clean (floor 0)")
+	}
+	switch {
+	case d.Policy.Source == "expert":
+		nt.Rows = append(nt.Rows, []string{"scripted expert", variationName(d.Variation), "—", "—", "—", "the study's policy is the expert: share of expert is its retention"})
+	default:
+		row("scripted expert", d.Variation, a.expertOf(d.Variation), "not recorded (the game ships no expert, or the baselines were not played)")
+	}
+	rd.Tables = append(rd.Tables, nt)
+
+	// Paired comparisons with the clean cell.
+	pt := report.Table{ID: "paired", Title: "Paired comparisons with the clean cell",
+		Caption: "Every cell plays the same game seeds (common random numbers, Glasserman & Yao 1992), so a cell and its clean cell are compared seed by seed: " +
+			"the interval of IQM(clean) − IQM(cell) resamples seeds, each drawn seed bringing both its episodes (paired bootstrap); the unpaired width, resampling the two cells independently, is shown beside it. " +
+			"The test is Wilcoxon's signed-rank test of the per-seed differences (two-sided).",
+		Columns: []string{"cell", "seeds shared", "IQM clean − cell [CI], paired", "paired width", "unpaired width", "signed-rank p", "note"}}
+	for i, cs := range a.Cells {
+		ref := a.Plan.Reference(i)
+		if ref == i {
+			continue
+		}
+		id := cellID(i, cs.Cell, d.Variation)
+		pc := cs.VsClean
+		if pc == nil {
+			why := cs.Note
+			if why == "" {
+				why = "not compared"
+			}
+			if ref < 0 {
+				why = "no clean cell at this patch size"
+			}
+			pt.Rows = append(pt.Rows, []string{id, "—", "—", "—", "—", "—", why})
+			continue
+		}
+		method := "exact"
+		if !pc.Test.Exact {
+			method = "normal approx."
+		}
+		pt.Rows = append(pt.Rows, []string{id, strconv.Itoa(pc.Seeds), pc.Diff.String(), fmtG(pc.Diff.Hi - pc.Diff.Lo),
+			fmtG(pc.Unpaired.Hi - pc.Unpaired.Lo), fmt.Sprintf("%s (%s)", fmtP(pc.Test.P), method), cs.Warn})
+	}
+	if len(pt.Rows) == 0 {
+		pt.Rows = append(pt.Rows, []string{"—", "—", "—", "—", "—", "—", "the study has only clean cells"})
+	}
+	rd.Tables = append(rd.Tables, pt)
+
+	if d.Kind != "sizes" {
+		return
+	}
+	margin := d.Stats.Margin
+	if margin == 0 {
+		margin = stats.DefaultMargin
+	}
+	et := report.Table{ID: "evidence", Title: "Evidence for the recommendation",
+		Caption: fmt.Sprintf("Non-inferiority (Schuirmann 1987): a patch size counts as good as the best when the upper bound of (normalised IQM of the best − its normalised IQM) lies below the margin δ = %s, "+
+			"each comparison one-sided at the Holm-adjusted level (Holm 1979; family-wise α = %s), by the paired bootstrap over the seeds every size played (BCa below %d seeds). "+
+			"The pooled rows decide the recommendation; the rows per condition show where a size falls short. "+
+			"Episodes needed: per condition, for %.0f%% power by the normal approximation, taking the observed difference and spread as true. %s.",
+			fmtG(margin), fmtG(stats.DefaultAlpha), stats.MinPercentileN, 100*stats.DefaultPower, a.Scale),
+		Columns: []string{"condition", "patch", "normalised IQM [CI]", "best − patch [CI]", "margin", "Holm-adjusted p", "verdict", "episodes needed"}}
+	verdict := func(c stats.Comparison, isBest bool) (string, string) {
+		switch {
+		case isBest:
+			return "best", "—"
+		case c.NonInferior:
+			return "non-inferior", "—"
+		case c.Needed < 0:
+			return "not shown: observed difference at or past the margin", "—"
+		}
+		return "not enough evidence", strconv.Itoa(c.Needed)
+	}
+	if ch := a.Choice; ch != nil {
+		for j, p := range a.Cands {
+			if !ch.Affordable[j] {
+				et.Rows = append(et.Rows, []string{"pooled", strconv.Itoa(p), ch.Score[j].String(), "—", fmtG(margin), "—", "over budget", "—"})
+				continue
+			}
+			v, n := verdict(ch.Versus[j], j == ch.Best)
+			diff, padj := "—", "—"
+			if j != ch.Best {
+				diff, padj = ch.Versus[j].Diff.String(), fmtP(ch.Versus[j].PAdj)
+			}
+			et.Rows = append(et.Rows, []string{"pooled", strconv.Itoa(p), ch.Score[j].String(), diff, fmtG(margin), padj, v, n})
+		}
+		for _, ct := range a.Conds {
+			if ct.Note != "" || ct.Best < 0 {
+				et.Rows = append(et.Rows, []string{ct.Label, "—", "—", "—", fmtG(margin), "—", "not tested: " + ct.Note, "—"})
+				continue
+			}
+			for j, p := range a.Cands {
+				if !ch.Affordable[j] {
+					continue
+				}
+				v, n := verdict(ct.Versus[j], j == ct.Best)
+				diff, padj := "—", "—"
+				if j != ct.Best {
+					diff, padj = ct.Versus[j].Diff.String(), fmtP(ct.Versus[j].PAdj)
+				}
+				et.Rows = append(et.Rows, []string{ct.Label, strconv.Itoa(p), ct.Score[j].String(), diff, fmtG(margin), padj, v, n})
+			}
+		}
+	} else {
+		why := a.RecNote
+		if why == "" {
+			why = "no recommendation was computed"
+		}
+		et.Rows = append(et.Rows, []string{"pooled", "—", "—", "—", fmtG(margin), "—", why, "—"})
+	}
+	rd.Tables = append(rd.Tables, et)
 }
