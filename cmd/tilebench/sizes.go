@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"time"
 
+	"tilebench/vision/stats"
 	"tilebench/vision/study"
 	"tilebench/vision/study/analysis"
 	"tilebench/vision/study/runner"
@@ -35,7 +36,7 @@ options:`
 
 func runSizes(ctx *runContext, args []string) error {
 	fs := newFlags(ctx, "sizes", sizesUsage)
-	sf := addStudyFlags(fs, "", "4,6,8,12,16", 20)
+	sf := addStudyFlags(fs, "", "4,6,8,12,16", study.DefaultEpisodes)
 	budgetUS := fs.Float64("budget-us", 0, "recommend only patch sizes whose measured latency per step is at most this many `MICROSECONDS`")
 	budgetMF := fs.Float64("budget-mflop", 0, "recommend only patch sizes costing at most this many `MFLOP` per step (the cost model's count)")
 	trainM := fs.String("train", "", "train one policy per patch size first: clone (behaviour cloning), cmaes or es; policies go to DIR/policies/")
@@ -136,6 +137,14 @@ func printRecommendation(ctx *runContext, a *analysis.Analysis) {
 	}
 	if a.Choice.Pick < 0 {
 		fmt.Fprintln(ctx.stdout, "no patch size fits the budget")
+	}
+	if ch := a.Choice; ch.Pick >= 0 && ch.Pick == ch.Best && ch.Cheaper {
+		if ch.More > 0 {
+			fmt.Fprintf(ctx.stdout, "not enough evidence for a cheaper patch size within margin %g: run %d more episodes per condition (%d in all; %.0f%% power estimate)\n",
+				ch.Margin, max(ch.More-a.Plan.Def.Episodes, 1), ch.More, 100*stats.DefaultPower)
+		} else {
+			fmt.Fprintf(ctx.stdout, "no cheaper patch size comes within margin %g of the best\n", ch.Margin)
+		}
 	}
 }
 

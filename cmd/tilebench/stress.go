@@ -38,8 +38,8 @@ START:STOP:STEP (inclusive), KIND, KIND:VALUE or KIND:START:STOP:STEP
     --episodes 30 --out stress-drive
 
 Exit status: 0 all episodes recorded, 1 runtime failure, 2 usage error,
-3 finished with failed episodes (the report is written; retry them with
---resume).
+3 finished with error episodes (the report is written and counts them at
+the worst return; play them again with --resume --retry-errors).
 
 A study interrupted by Ctrl-C, SIGTERM or a kill continues with --resume.
 On a cluster, --shard i/n runs one part (or set by a Slurm job array or a
@@ -54,9 +54,10 @@ type studyFlags struct {
 	family, patch, variations, seeds     *string
 	episodes, workers, resamples, shards *int
 	seed                                 *uint64
-	threshold                            *float64
-	out, shard, overlay                  *string
+	threshold, margin                    *float64
+	out, shard, overlay, floor           *string
 	resume, asJSON, forceWorkers         *bool
+	retryErrors                          *bool
 	pol                                  *policies.Flags
 	tf                                   *transformFlags
 }
@@ -79,7 +80,10 @@ func addStudyFlags(fs *flag.FlagSet, defPolicy, defPatch string, defEpisodes int
 		resamples:    fs.Int("resamples", 0, "bootstrap resamples (default 2000)"),
 		threshold:    fs.Float64("threshold", 0, "retention below which an axis counts as broken (default 0.5)"),
 		out:          fs.String("out", "", "study `DIR` (required): results, report, strips"),
-		resume:       fs.Bool("resume", false, "continue the study in --out: keep finished episodes, retry failed ones"),
+		resume:       fs.Bool("resume", false, "continue the study in --out: keep recorded episodes (error episodes too, unless --retry-errors)"),
+		retryErrors:  fs.Bool("retry-errors", false, "with --resume, play the error episodes (policy crashes, bad actions) again instead of counting them at the worst return"),
+		floor:        fs.String("floor", "", "floor `POLICY` of the normalised scale, played clean on the study's seeds: idle (default), random, or any policy source"),
+		margin:       fs.Float64("margin", 0, "sizes: non-inferiority margin on the normalised scale (0 the floor, 1 the reference; default 0.05)"),
 		shard:        fs.String("shard", "", "run only shard `i/n` of the study (0 ≤ i < n); default from SLURM_ARRAY_TASK_ID/SLURM_ARRAY_TASK_COUNT or JOB_COMPLETION_INDEX with --shards"),
 		shards:       fs.Int("shards", 0, "number of shards when the index comes from JOB_COMPLETION_INDEX (a Kubernetes indexed Job's completions)"),
 		asJSON:       fs.Bool("json", false, "print a machine-readable summary"),
@@ -118,6 +122,7 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	sf.policyOptions(&d.Policy, set)
 	useStr("seeds", &d.Seeds, *sf.seeds)
 	useStr("overlay", &d.Overlay, *sf.overlay)
+	useStr("floor", &d.Floor, *sf.floor)
 	if set["patch"] || (all && *sf.patch != "") {
 		d.Patch = study.ParseAxis(*sf.patch)
 	}
@@ -137,8 +142,14 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	if set["force-workers"] {
 		d.ForceWorkers = *sf.forceWorkers
 	}
-	if err := refuseZero(sf.fs, "resamples", "threshold"); err != nil {
+	if err := refuseZero(sf.fs, "resamples", "threshold", "margin"); err != nil {
 		return nil, err
+	}
+	if set["margin"] {
+		d.Stats.Margin = *sf.margin
+	}
+	if *sf.retryErrors && !*sf.resume {
+		return nil, usagef("--retry-errors goes with --resume")
 	}
 	if set["resamples"] {
 		d.Stats.Resamples = *sf.resamples
@@ -248,7 +259,7 @@ func runStudyCLI(ctx *runContext, p *study.Plan, sf *studyFlags, args []string, 
 	}
 	sctx, stop := interruptible()
 	defer stop()
-	opt := runner.Options{Dir: *sf.out, Workers: p.Def.Workers, Resume: *sf.resume, Shard: shard,
+	opt := runner.Options{Dir: *sf.out, Workers: p.Def.Workers, Resume: *sf.resume, RetryErrors: *sf.retryErrors, Shard: shard,
 		LogDir: sf.pol.LogDir, Command: commandLine(args), Train: tr}
 	out, err := runWithProgress(sctx, ctx, p, opt, p.Def.Kind)
 	if err != nil {
@@ -269,7 +280,7 @@ func failedEpisodes(out *runner.Outcome, dir string) error {
 	if out.Failed == 0 {
 		return nil
 	}
-	return exitError{ExitFailedEpisodes, fmt.Errorf("%d of %d episodes failed (see %s, field \"failure\"); retry them with --resume",
+	return exitError{ExitFailedEpisodes, fmt.Errorf("%d of %d episodes could not be played (see %s, field \"failure\"); they count at the worst return; play them again with --resume --retry-errors",
 		out.Failed, out.Total, filepath.Join(dir, study.ResultsFile))}
 }
 
@@ -329,7 +340,7 @@ func printOutcome(ctx *runContext, p *study.Plan, dir string, shard study.Shard,
 	}
 	fmt.Fprintf(ctx.stdout, "; %d played now, %d kept from before, %d failed; %.0f steps/s\n", out.Ran, out.Kept, out.Failed, sps)
 	if out.Failed > 0 {
-		fmt.Fprintf(ctx.stdout, "failed episodes are in %s (field \"failure\"); retry them with --resume\n", filepath.Join(dir, study.ResultsFile))
+		fmt.Fprintf(ctx.stdout, "error episodes are in %s (field \"failure\"); they count at the worst return; play them again with --resume --retry-errors\n", filepath.Join(dir, study.ResultsFile))
 	}
 	fmt.Fprintf(ctx.stdout, "report: %s\n", rep)
 	return nil

@@ -3,6 +3,7 @@
 // serves every command:
 //
 //	expert           the game's scripted expert (reads the game state)
+//	idle, random     the baselines: doing nothing, uniform random actions
 //	fresh            an untrained network of Options.Family
 //	FAMILY           an untrained network of that family (attention, ...)
 //	FILE             a weights file (.safetensors, written by tilebench train)
@@ -98,7 +99,7 @@ func (e *SourceError) Error() string { return e.Err.Error() }
 func (e *SourceError) Unwrap() error { return e.Err }
 
 func notSource(s string) error {
-	return sourceErr("policy %q: not expert, fresh, a family (%s), exec: or tcp://, and not a readable file", s, strings.Join(nets.Families, ", "))
+	return sourceErr("policy %q: not expert, idle, random, fresh, a family (%s), exec: or tcp://, and not a readable file", s, strings.Join(nets.Families, ", "))
 }
 
 func sourceErr(format string, a ...any) error { return &SourceError{fmt.Errorf(format, a...)} }
@@ -114,6 +115,8 @@ func Kind(source string) string {
 		return KindExpert
 	case source == Fresh:
 		return KindFresh
+	case IsBaseline(source):
+		return KindBaseline
 	case IsFamily(source):
 		return KindFamily
 	case remote.IsTarget(source):
@@ -126,8 +129,12 @@ func Kind(source string) string {
 func IsTemplate(source string) bool { return strings.Contains(source, Placeholder) }
 
 // ReadsPixels reports whether the policy a source names reads what the
-// patch pipeline makes (every source but the scripted expert).
-func ReadsPixels(source string) bool { return Kind(source) != KindExpert }
+// patch pipeline makes (every source but the scripted expert and the
+// baselines).
+func ReadsPixels(source string) bool {
+	k := Kind(source)
+	return k != KindExpert && k != KindBaseline
+}
 
 // Expand replaces {patch} in source by the patch size ps.
 func Expand(source string, ps int) string {
@@ -218,6 +225,9 @@ func (c *Cache) Open(source string, g games.Game, grid *patch.Grid, opt Options)
 		if !ok {
 			return nil, fmt.Errorf("game %s ships no scripted expert", sp.Name)
 		}
+		return pol, nil
+	case KindBaseline:
+		pol, _ := NewBaseline(source, sp)
 		return pol, nil
 	case KindFresh, KindFamily:
 		fam := source

@@ -94,9 +94,10 @@ func TestExternalPolicyCrashMarksEpisodesFailed(t *testing.T) {
 			t.Fatalf("record %+v", r)
 		}
 	}
-	// The policy fixed, --resume retries exactly the failed episodes.
+	// The policy fixed, --resume --retry-errors retries exactly the
+	// failed episodes.
 	t.Setenv("STUDY_FAKE_POLICY", "ok")
-	out, err = Run(context.Background(), p, Options{Dir: dir, Resume: true, Workers: 2, Env: DefaultEnv(p, filepath.Join(dir, study.LogsDir))})
+	out, err = Run(context.Background(), p, Options{Dir: dir, Resume: true, RetryErrors: true, Workers: 2, Env: DefaultEnv(p, filepath.Join(dir, study.LogsDir))})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -46,8 +46,14 @@ func Run(ctx context.Context, p *study.Plan, opt Options) (*Outcome, error) {
 		}
 	}
 	out, recs, err := playEpisodes(ctx, p, opt)
-	if err != nil || opt.NoReport {
+	if err != nil {
 		return out, err
+	}
+	if err := recordFloors(ctx, p, opt); err != nil {
+		return out, err
+	}
+	if opt.NoReport {
+		return out, nil
 	}
 	if out.Analysis, err = finish(p, opt.Dir, recs); err != nil {
 		return out, err
@@ -90,6 +96,9 @@ func CheckSizesPolicy(p *study.Plan) error {
 	switch policies.Kind(p.Def.Policy.Source) {
 	case policies.KindFresh, policies.KindFamily, policies.KindFile:
 		return nil
+	}
+	if policies.IsBaseline(p.Def.Policy.Source) {
+		return &policies.SourceError{Err: fmt.Errorf("a sizes study needs a network with a cost model; %q is a baseline policy (use it as --floor)", p.Def.Policy.Source)}
 	}
 	return &policies.SourceError{Err: fmt.Errorf("a sizes study needs a network with a cost model (fresh, a family, a weights file or --train), not %q", p.Def.Policy.Source)}
 }

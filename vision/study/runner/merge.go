@@ -157,6 +157,9 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 		if err := copyDir(filepath.Join(d, study.StripsDir), filepath.Join(out, study.StripsDir)); err != nil {
 			return nil, fmt.Errorf("merge: strips: %w", err)
 		}
+		if err := copyFileIfMissing(filepath.Join(d, analysis.FloorsFile), filepath.Join(out, analysis.FloorsFile)); err != nil {
+			return nil, fmt.Errorf("merge: floors: %w", err)
+		}
 		if err := copyFileIfMissing(filepath.Join(d, analysis.CostsFile), filepath.Join(out, analysis.CostsFile)); err != nil {
 			return nil, fmt.Errorf("merge: costs: %w", err)
 		}

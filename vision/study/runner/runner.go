@@ -76,10 +76,15 @@ type Options struct {
 	Dir string
 	// Workers is the number of parallel workers; 0 means runtime.NumCPU().
 	Workers int
-	// Resume continues the study already in Dir: finished episodes are
-	// kept, failed ones are retried. Resume on a folder that does not
-	// exist starts the study.
+	// Resume continues the study already in Dir: recorded episodes are
+	// kept, error episodes too unless RetryErrors. Resume on a folder that
+	// does not exist starts the study.
 	Resume bool
+	// RetryErrors, with Resume, plays the error episodes (a policy that
+	// crashed, a bad action) again. Default false: an error episode stays
+	// recorded and counts at the study's worst return, so that errors that
+	// rise with stress are not retried away (survivorship).
+	RetryErrors bool
 	// Shard restricts the run to one part of the study.
 	Shard study.Shard
 	// Env makes each worker's games and policies. Default: the
@@ -176,7 +181,7 @@ func playEpisodes(ctx context.Context, p *study.Plan, opt Options) (*Outcome, []
 	}
 	done := map[unit]bool{}
 	for _, r := range study.Latest(old) {
-		if !r.Failed() {
+		if !r.Failed() || !opt.RetryErrors {
 			done[unit{r.Cell, r.Episode}] = true
 		}
 	}

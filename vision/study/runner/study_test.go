@@ -292,8 +292,17 @@ func TestFailedEpisodesRecordedAndRetried(t *testing.T) {
 			t.Fatalf("failure reason %q", r.Failure)
 		}
 	}
+	// --resume alone keeps the error episodes: they count, they are not
+	// retried away.
 	var calls atomic.Int64
 	out, err = Run(context.Background(), p, Options{Dir: dir, Resume: true, Env: fakeFactory(&fakeEnv{calls: &calls})})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if out.Ran != 0 || out.Failed != wantFailed || calls.Load() != 0 {
+		t.Fatalf("resume without retrying errors: %+v, played %d", out, calls.Load())
+	}
+	out, err = Run(context.Background(), p, Options{Dir: dir, Resume: true, RetryErrors: true, Env: fakeFactory(&fakeEnv{calls: &calls})})
 	if err != nil {
 		t.Fatal(err)
 	}
