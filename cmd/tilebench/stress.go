@@ -72,7 +72,7 @@ func addStudyFlags(fs *flag.FlagSet, defPolicy, defPatch string, defEpisodes int
 		family:       fs.String("family", "attention", "network `FAMILY` for --policy fresh and for training: attention, posattention, mlp, meanpool"),
 		patch:        fs.String("patch", defPatch, "patch `SIZES` in pixels, a list, e.g. 4,8,16 or 4:16:4"),
 		variations:   fs.String("variations", "", "`LIST` of game variations (held-out palettes), e.g. default,dusk"),
-		seeds:        fs.String("seeds", "", "game seed `RANGE`: held-out (default), train, or START:COUNT"),
+		seeds:        fs.String("seeds", "", "game seed `RANGE`: sealed (default: the sealed test range of held-out seeds), dev (the development range), held-out (both), train, or START:COUNT"),
 		episodes:     fs.Int("episodes", defEpisodes, "episodes per cell"),
 		seed:         fs.Uint64("seed", 0, "study seed; every episode's seeds derive from it (docs/studies.md)"),
 		workers:      fs.Int("workers", 0, "parallel workers (0: one per core); results do not depend on it"),

@@ -32,8 +32,11 @@ type Definition struct {
 	Seed uint64 `toml:"seed" json:"seed"`
 	// Episodes is the number of episodes per cell. Default 30.
 	Episodes int `toml:"episodes" json:"episodes"`
-	// Seeds is the range game seeds are drawn from: "held-out" (default,
-	// games.HeldOut), "train", or "START:COUNT" (COUNT ≥ Episodes).
+	// Seeds is the range game seeds are drawn from: "sealed" (default:
+	// the sealed test range of held-out seeds, games.Sealed), "dev" (the
+	// development range, games.Dev, where experts and defaults were
+	// designed), "held-out" (both), "train", or "START:COUNT"
+	// (COUNT ≥ Episodes).
 	Seeds string `toml:"seeds" json:"seeds"`
 	// Workers is the number of parallel workers; 0 means one per core.
 	// It never changes results and is not part of the study's identity.

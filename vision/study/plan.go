@@ -59,7 +59,7 @@ func (d *Definition) Normalize() error {
 		return fieldErr("episodes", fmt.Errorf("%d: want 1..1000000", d.Episodes))
 	}
 	if d.Seeds == "" {
-		d.Seeds = "held-out"
+		d.Seeds = "sealed"
 	}
 	if _, _, err := seedRange(d.Seeds, d.Episodes); err != nil {
 		return fieldErr("seeds", err)
@@ -172,6 +172,10 @@ func (d *Definition) Normalize() error {
 // seedRange resolves the Seeds field into the first seed and the count.
 func seedRange(s string, episodes int) (start, count uint64, err error) {
 	switch s {
+	case "sealed":
+		start, count = games.SealedSeedStart, games.SealedSeedLen
+	case "dev":
+		start, count = games.DevSeedStart, games.DevSeedLen
 	case "held-out":
 		start, count = games.HeldOutSeedStart, games.SeedRangeLen
 	case "train":
@@ -182,7 +186,7 @@ func seedRange(s string, episodes int) (start, count uint64, err error) {
 		start, e1 = strconv.ParseUint(strings.TrimSpace(a), 10, 64)
 		count, e2 = strconv.ParseUint(strings.TrimSpace(b), 10, 64)
 		if !ok || e1 != nil || e2 != nil || count == 0 || start+count < start {
-			return 0, 0, fmt.Errorf("%q: want held-out, train or START:COUNT", s)
+			return 0, 0, fmt.Errorf("%q: want sealed, dev, held-out, train or START:COUNT", s)
 		}
 	}
 	if uint64(episodes) > count {
