@@ -118,7 +118,7 @@ func TestPolicySourcesTable(t *testing.T) {
 	}
 	pol := filepath.Join(reftest.Root(), "testdata", "policies")
 	sources := map[string]string{
-		"expert": "expert", "fresh": "fresh", "FAMILY": "meanpool",
+		"expert": "expert", "idle": "idle", "random": "random", "fresh": "fresh", "FAMILY": "meanpool",
 		"FILE.safetensors":          filepath.Join(pol, "paddle-attention-p7.safetensors"),
 		"FILE-p{patch}.safetensors": filepath.Join(pol, "paddle-attention-p{patch}.safetensors"),
 		"exec:COMMAND ARGS":         "exec:" + exe,

@@ -20,7 +20,7 @@ func TestStudyFailedEpisodesExitStatus(t *testing.T) {
 	if code != ExitFailedEpisodes {
 		t.Fatalf("exit %d, want %d (stdout %q, stderr %q)", code, ExitFailedEpisodes, stdout, stderr)
 	}
-	oneLine(t, stderr, "2 of 2 episodes failed")
+	oneLine(t, stderr, "2 of 2 episodes could not be played")
 	if _, err := os.Stat(filepath.Join(out, "report.html")); err != nil {
 		t.Fatalf("no report: %v", err)
 	}
