@@ -30,6 +30,27 @@ func TestDemo(t *testing.T) {
 	if b, err := os.ReadFile(filepath.Join(out, "stress", "report.html")); err != nil || !strings.Contains(string(b), "shift:s3") {
 		t.Fatalf("stress report does not show the shift:s3 corruption (%v)", err)
 	}
+	// Every report shows the normalised scale, the pairing and the
+	// failure rates; the sizes report the margin and the evidence.
+	for _, f := range []string{"sizes", "stress", "paddle-stress"} {
+		b, err := os.ReadFile(filepath.Join(out, f, "summary.md"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		for _, want := range []string{"Normalised scale: floor and reference", "floor: idle", "Paired comparisons with the clean cell",
+			"paired bootstrap", "game failures", "time-ups", "CVaR 10%", "errors"} {
+			if !strings.Contains(string(b), want) {
+				t.Errorf("%s/summary.md does not show %q", f, want)
+			}
+		}
+		if f == "sizes" {
+			for _, want := range []string{"Evidence for the recommendation", "non-inferiority margin", "Holm-adjusted p", "pooled"} {
+				if !strings.Contains(string(b), want) {
+					t.Errorf("sizes/summary.md does not show %q", want)
+				}
+			}
+		}
+	}
 	// Again on the same folder: nothing to play, the reports re-made.
 	code, _, stderr = runCLI(t, "", "demo", "--out", out, "--episodes", "1")
 	if code != 0 {
