@@ -203,8 +203,8 @@ func TestRecommend(t *testing.T) {
 // fifth of its episodes (normalised score 0 there) is not shown
 // non-inferior once a crash is seen, at 10 episodes as at 30.
 func TestRecommendCrashingCandidate(t *testing.T) {
-	for _, n := range []int{10, 30} {
-		picks := 0
+	for _, n := range []int{10, 20, 30} {
+		picks, seen := 0, 0
 		const trials = 40
 		for tr := 0; tr < trials; tr++ {
 			good := paired(uint64(100+tr), 1, n, 1, 0.02, 0.01, 1)
@@ -221,6 +221,7 @@ func TestRecommendCrashingCandidate(t *testing.T) {
 				// No crash seen: nothing tells the two apart.
 				continue
 			}
+			seen++
 			ch, err := Recommender{Bootstrap: Bootstrap{Resamples: 500, Seed: uint64(tr)}, Statistic: StatMean}.Recommend(
 				[]Candidate{{Name: "crash", Cost: 1, Scores: crash}, {Name: "good", Cost: 2, Scores: good}})
 			if err != nil {
@@ -230,8 +231,9 @@ func TestRecommendCrashingCandidate(t *testing.T) {
 				picks++
 			}
 		}
+		t.Logf("n=%d: the crashing candidate recommended %d of %d trials that saw a crash", n, picks, seen)
 		if picks > 3 {
-			t.Errorf("n=%d: the crashing candidate recommended %d of %d times", n, picks, trials)
+			t.Errorf("n=%d: the crashing candidate recommended %d of %d times", n, picks, seen)
 		}
 	}
 }
@@ -334,5 +336,29 @@ func TestEstimateString(t *testing.T) {
 		if got := c.e.String(); got != c.want {
 			t.Errorf("%#v.String() = %q, want %q", c.e, got, c.want)
 		}
+	}
+}
+
+// A candidate one point worse on a scale of about a thousand (0.001 on
+// the normalised scale) is shown non-inferior, and so recommended, in
+// most trials at 30 episodes: the margin is what it is for.
+func TestRecommendNearlyEqualCandidate(t *testing.T) {
+	picks := 0
+	const trials = 40
+	for tr := 0; tr < trials; tr++ {
+		best := paired(uint64(500+tr), 2, 30, 1, 0.1, 0.02, 1)
+		near := paired(uint64(500+tr), 2, 30, 0.999, 0.1, 0.02, 2)
+		ch, err := Recommender{Bootstrap: Bootstrap{Resamples: 500, Seed: uint64(tr)}}.Recommend(
+			[]Candidate{{Name: "near", Cost: 1, Scores: near}, {Name: "best", Cost: 2, Scores: best}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if ch.Pick == 0 {
+			picks++
+		}
+	}
+	t.Logf("the nearly equal cheaper candidate recommended in %d of %d trials", picks, trials)
+	if picks < trials*3/4 {
+		t.Errorf("nearly equal candidate recommended %d of %d times", picks, trials)
 	}
 }
