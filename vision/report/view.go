@@ -57,6 +57,9 @@ type breakView struct {
 	// threshold), a secondary figure.
 	Dip     string
 	Reached bool
+	// Undefined marks a row whose breaking point could not be computed
+	// (Sub says why).
+	Undefined bool
 }
 
 // maxFactCards is the most headline facts shown as cards of their own.
@@ -153,7 +156,7 @@ func (v *view) buildBreaks(bs []Break) {
 			if bv.Context == "" {
 				bv.Axis, bv.Context = splitContext(b.Axis)
 			}
-			bv.Big, bv.Dip, bv.Text = "undefined", "—", b.Note
+			bv.Big, bv.Dip, bv.Text, bv.Undefined = "undefined", "—", b.Note, true
 			bv.Sub = b.Note
 			v.Breaks = append(v.Breaks, bv)
 			continue

@@ -821,7 +821,7 @@ func (a *Analysis) curveSections(rd *report.Data) {
 		byName[cv.Axis] = append(byName[cv.Axis], cv)
 	}
 	for _, n := range names {
-		ch := report.Curves{Title: "Retention against " + n, XLabel: n, YLabel: "retention (IQM stressed / IQM clean)", Threshold: a.Plan.Def.Stats.Threshold}
+		ch := report.Curves{Title: "Retention against " + n, XLabel: n, YLabel: "normalised retention ((IQM − floor) / (clean IQM − floor))", Threshold: a.Plan.Def.Stats.Threshold}
 		hm := report.Heatmap{Title: "IQM return: " + n, XLabel: n, YLabel: "condition"}
 		cols := map[float64]bool{}
 		for _, cv := range byName[n] {
