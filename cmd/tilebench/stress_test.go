@@ -134,3 +134,36 @@ func TestStressHelp(t *testing.T) {
 		t.Fatalf("help: %d %q", code, stdout)
 	}
 }
+
+// --floor names the floor policy recorded in floors.json and the report;
+// --retry-errors without --resume and a negative --margin are one-line
+// usage errors.
+func TestStressFloorAndMarginFlags(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "s")
+	code, _, stderr := runCLI(t, "", "stress", "--game", "paddle", "--policy", "expert", "--patch", "7", "--occlude", "none,random:0.5",
+		"--episodes", "3", "--resamples", "200", "--floor", "random", "--out", out)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, stderr)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "floors.json"))
+	if err != nil || !strings.Contains(string(b), `"floor": "random"`) {
+		t.Fatalf("floors.json %s (%v)", b, err)
+	}
+	if md, _ := os.ReadFile(filepath.Join(out, "summary.md")); !strings.Contains(string(md), "floor: random") {
+		t.Fatal("summary.md does not name the random floor")
+	}
+	for _, c := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"--retry-errors"}, "--retry-errors goes with --resume"},
+		{[]string{"--margin", "-0.1"}, "stats.margin"},
+		{[]string{"--floor", "exec:"}, "floor"},
+	} {
+		code, _, stderr := runCLI(t, "", append(stressArgs(filepath.Join(t.TempDir(), "x")), c.args...)...)
+		if code != 2 {
+			t.Fatalf("%v: exit %d, want 2 (%s)", c.args, code, stderr)
+		}
+		oneLine(t, stderr, c.want)
+	}
+}
