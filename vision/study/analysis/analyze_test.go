@@ -7,6 +7,7 @@ import (
 	"strings"
 	"testing"
 
+	"tilebench/vision/report"
 	"tilebench/vision/study"
 )
 
@@ -86,6 +87,18 @@ func TestAnalyzeHandWrittenFolder(t *testing.T) {
 	rd := a.ReportData(dir)
 	if len(rd.Breaks) != 1 || rd.Breaks[0].Note == "" {
 		t.Errorf("undefined breaking point not a row saying why: %+v", rd.Breaks)
+	}
+	// The tables are all there, the undefined retention a row saying why.
+	ids := map[string]report.Table{}
+	for _, tb := range rd.Tables {
+		ids[tb.ID] = tb
+	}
+	if _, ok := ids["scale"]; !ok {
+		t.Error("no normalisation table")
+	}
+	pt, ok := ids["paired"]
+	if !ok || len(pt.Rows) != 1 || !strings.Contains(strings.Join(pt.Rows[0], " "), "does not exceed the floor") {
+		t.Errorf("paired table %+v", pt)
 	}
 	// The report writes from the same analysis.
 	if err := WriteReport(dir); err != nil {

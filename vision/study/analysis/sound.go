@@ -138,7 +138,7 @@ func (a *Analysis) normalise() {
 			} else {
 				sp, err = a.boot(ref, "span").CI(r, stats.StatIQM)
 			}
-			if err == nil && stats.NearZero(sp) {
+			if err == nil && sp.Value > 0 && stats.NearZero(sp) {
 				w = fmt.Sprintf("unstable ratio: the clean score's interval above the floor, %s, comes near zero", sp)
 			}
 			spanWarn[ref] = w
@@ -158,6 +158,9 @@ func (a *Analysis) normalise() {
 func joinNote(a, b string) string {
 	if a == "" {
 		return b
+	}
+	if b == "" {
+		return a
 	}
 	return a + "; " + b
 }
@@ -414,7 +417,7 @@ func (a *Analysis) soundTables(rd *report.Data) {
 			method = "normal approx."
 		}
 		pt.Rows = append(pt.Rows, []string{id, strconv.Itoa(pc.Seeds), pc.Diff.String(), fmtG(pc.Diff.Hi - pc.Diff.Lo),
-			fmtG(pc.Unpaired.Hi - pc.Unpaired.Lo), fmt.Sprintf("%s (%s)", fmtP(pc.Test.P), method), cs.Warn})
+			fmtG(pc.Unpaired.Hi - pc.Unpaired.Lo), fmt.Sprintf("%s (%s)", fmtP(pc.Test.P), method), joinNote(cs.Note, cs.Warn)})
 	}
 	if len(pt.Rows) == 0 {
 		pt.Rows = append(pt.Rows, []string{"—", "—", "—", "—", "—", "—", "the study has only clean cells"})
