@@ -74,6 +74,18 @@ func TestAnalyzeHandWrittenFolder(t *testing.T) {
 	if r := a.Cells[1].Retention; r == nil || math.Abs(r.Value-0.5) > 1e-9 || a.WorstReturn != -10 {
 		t.Errorf("normalised retention %+v (worst %v), want 0.5", r, a.WorstReturn)
 	}
+	// A floor just under the clean score (IQM 25 over 20): retention is
+	// (7.5 − 20) / (25 − 20) = −2.5, with a warning that the ratio is
+	// unstable.
+	if err := WriteFloors(dir, &FloorTable{Study: p.Fingerprint, Floor: "idle", Floors: []Baseline{{Returns: []float64{20, 20, 20, 20}}}}); err != nil {
+		t.Fatal(err)
+	}
+	if a, err = Analyze(dir); err != nil {
+		t.Fatal(err)
+	}
+	if c := a.Cells[1]; c.Retention == nil || math.Abs(c.Retention.Value+2.5) > 1e-9 || !strings.Contains(c.Warn, "unstable ratio") {
+		t.Errorf("retention near the floor: %+v, warning %q", c.Retention, c.Warn)
+	}
 	// A floor above the clean score: retention is undefined, and says so.
 	if err := WriteFloors(dir, &FloorTable{Study: p.Fingerprint, Floor: "idle", Floors: []Baseline{{Returns: []float64{50, 50, 50, 50}}}}); err != nil {
 		t.Fatal(err)
