@@ -381,3 +381,37 @@ func normalize(s []float64) float64 {
 func NearZero(den Estimate) bool {
 	return !(den.Lo > 0.1*math.Abs(den.Value))
 }
+
+// PairedComparison is a comparison of two arms on shared seeds, as the
+// reports show it.
+type PairedComparison struct {
+	// Seeds is the number of shared seeds (over all strata).
+	Seeds int
+	// Diff is stat(x) − stat(y) by the paired bootstrap; Unpaired the
+	// same difference with x and y resampled independently, to show what
+	// the pairing buys.
+	Diff, Unpaired Estimate
+	// Test is the Wilcoxon signed-rank test of the per-seed differences
+	// x − y, pooled over strata.
+	Test SignedRank
+}
+
+// Compare compares x and y played on the same seeds (stratum k, index i
+// one seed in both): the paired difference of stat with its interval,
+// the unpaired interval beside it, and the signed-rank test. It is the
+// one call for a policy-against-policy or cell-against-cell comparison.
+func (b Bootstrap) Compare(x, y Strata, st Statistic) (PairedComparison, error) {
+	d, err := b.PairedDiff(x, y, st)
+	if err != nil {
+		return PairedComparison{}, err
+	}
+	u, err := b.Diff(x, y, st)
+	if err != nil {
+		return PairedComparison{}, err
+	}
+	t, err := SignedRankTest(x.Pool(), y.Pool())
+	if err != nil {
+		return PairedComparison{}, err
+	}
+	return PairedComparison{Seeds: x.N(), Diff: d, Unpaired: u, Test: t}, nil
+}

@@ -228,6 +228,10 @@ func TestPairedNarrower(t *testing.T) {
 	if w1, w2 := p.Hi-p.Lo, u.Hi-u.Lo; !(w1 < w2/3) || !(p.Lo > 0) {
 		t.Fatalf("paired %v (width %.3g), unpaired %v (width %.3g)", p, w1, u, w2)
 	}
+	c, err := Bootstrap{}.Compare(x, y, StatIQM)
+	if err != nil || c.Diff != p || c.Unpaired != u || c.Seeds != 40 || !(c.Test.P < 0.01) {
+		t.Fatalf("Compare %+v %v", c, err)
+	}
 	if _, err := (Bootstrap{}).PairedDiff(x, Strata{y[0][:10]}, StatIQM); err == nil {
 		t.Fatal("unmatched seeds accepted")
 	}

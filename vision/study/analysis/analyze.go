@@ -98,21 +98,9 @@ type CellStats struct {
 	// floor), paired over seeds; nil when there is no expert baseline.
 	Expert *stats.Estimate
 	// VsClean compares the cell with its clean reference on shared seeds.
-	VsClean *Paired
+	VsClean *stats.PairedComparison
 	// Note explains a missing statistic; Warn flags an unstable one.
 	Note, Warn string
-}
-
-// Paired is a comparison of two cells on the seeds they share.
-type Paired struct {
-	// Seeds is the number of seeds both cells played.
-	Seeds int
-	// Diff is IQM(clean) − IQM(cell) by the paired bootstrap; Unpaired is
-	// the same difference with the cells resampled independently, to show
-	// what the pairing buys.
-	Diff, Unpaired stats.Estimate
-	// Test is the Wilcoxon signed-rank test of the per-seed differences.
-	Test stats.SignedRank
 }
 
 // Analysis is what the report shows, computed from recorded results only.

@@ -145,13 +145,9 @@ func (a *Analysis) normalise() {
 			cs.Warn = w
 		}
 		// The paired comparison with the clean cell.
-		pc := &Paired{Seeds: len(col[0])}
-		if pc.Diff, err = bs.PairedDiff(r, x, stats.StatIQM); err != nil {
-			continue
+		if pc, err := bs.Compare(r, x, stats.StatIQM); err == nil {
+			cs.VsClean = &pc
 		}
-		pc.Unpaired, _ = bs.Diff(r, x, stats.StatIQM)
-		pc.Test, _ = stats.SignedRankTest(col[1], col[0])
-		cs.VsClean = pc
 	}
 }
 
