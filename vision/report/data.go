@@ -70,8 +70,10 @@ type Data struct {
 
 // Table is a titled table of text cells.
 type Table struct {
-	// ID is the HTML anchor ("failures"); Title heads the table.
-	ID, Title string
+	// ID is the HTML anchor ("failures"); Title heads the table; Nav
+	// names it in the page's navigation ("" means the title up to a colon
+	// or parenthesis).
+	ID, Title, Nav string
 	// Caption is one or two sentences under the title: what is counted,
 	// how intervals were made, what pairing was used.
 	Caption string

@@ -346,9 +346,12 @@ func buildView(d *Data) (*view, error) {
 	}
 	v.buildCells(d)
 	for _, t := range d.Tables {
-		tv := tableView{Table: t, Short: t.Title}
-		if i := strings.IndexAny(t.Title, ":("); i > 0 {
-			tv.Short = strings.TrimSpace(t.Title[:i])
+		tv := tableView{Table: t, Short: t.Nav}
+		if tv.Short == "" {
+			tv.Short = t.Title
+			if i := strings.IndexAny(t.Title, ":("); i > 0 {
+				tv.Short = strings.TrimSpace(t.Title[:i])
+			}
 		}
 		for r, row := range t.Rows {
 			if len(row) != len(t.Columns) {

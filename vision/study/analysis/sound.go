@@ -385,7 +385,7 @@ func (a *Analysis) soundTables(rd *report.Data) {
 	rd.Tables = append(rd.Tables, nt)
 
 	// Paired comparisons with the clean cell.
-	pt := report.Table{ID: "paired", Title: "Paired comparisons with the clean cell",
+	pt := report.Table{ID: "paired", Title: "Paired comparisons with the clean cell", Nav: "Pairing",
 		Caption: "Every cell plays the same game seeds (common random numbers, Glasserman & Yao 1992), so a cell and its clean cell are compared seed by seed: " +
 			"the interval of IQM(clean) − IQM(cell) resamples seeds, each drawn seed bringing both its episodes (paired bootstrap); the unpaired width, resampling the two cells independently, is shown beside it. " +
 			"The test is Wilcoxon's signed-rank test of the per-seed differences (two-sided).",
@@ -427,7 +427,7 @@ func (a *Analysis) soundTables(rd *report.Data) {
 	if margin == 0 {
 		margin = stats.DefaultMargin
 	}
-	et := report.Table{ID: "evidence", Title: "Evidence for the recommendation",
+	et := report.Table{ID: "evidence", Title: "Evidence for the recommendation", Nav: "Evidence",
 		Caption: fmt.Sprintf("Non-inferiority (Schuirmann 1987): a patch size counts as good as the best when the upper bound of (normalised IQM of the best − its normalised IQM) lies below the margin δ = %s, "+
 			"each comparison one-sided at the Holm-adjusted level (Holm 1979; family-wise α = %s), by the paired bootstrap over the seeds every size played (BCa below %d seeds). "+
 			"The pooled rows decide the recommendation; the rows per condition show where a size falls short. "+
