@@ -106,11 +106,19 @@ func fmtDims(dims []int) string {
 // header length, then the dict literal padded with spaces and a final
 // newline so that the preamble's length is a multiple of 64.
 func NPYHeader(dims []int) []byte {
-	return appendNPYHeader(nil, dims)
+	return appendNPYHeader(nil, "|u1", dims)
 }
 
-func appendNPYHeader(dst []byte, dims []int) []byte {
-	dict := "{'descr': '|u1', 'fortran_order': False, 'shape': " + fmtDims(dims) + ", }"
+// NPYHeaderOf is NPYHeader for an array of any NumPy type descr ('<f4',
+// '<i2', '|b1', ...). Like NPYHeader it leaves room after the dict for a
+// first axis of up to 21 digits, so that a writer can patch the count in
+// place without moving the data.
+func NPYHeaderOf(descr string, dims []int) []byte {
+	return appendNPYHeader(nil, descr, dims)
+}
+
+func appendNPYHeader(dst []byte, descr string, dims []int) []byte {
+	dict := "{'descr': '" + descr + "', 'fortran_order': False, 'shape': " + fmtDims(dims) + ", }"
 	if len(dims) > 0 {
 		dict += strings.Repeat(" ", max(0, npyGrowthDigits-len(strconv.Itoa(dims[0]))))
 	}
