@@ -30,6 +30,9 @@ type column struct {
 
 // newColumn describes a column; open creates or reopens its file.
 func newColumn(name, descr string, shape ...int) *column {
+	if shape == nil {
+		shape = []int{} // a scalar per row: [] in the manifest, not null
+	}
 	item := map[string]int{"|u1": 1, "|b1": 1, "<i2": 2, "<i4": 4, "<f4": 4, "<u8": 8}[descr]
 	c := &column{name: name, descr: descr, shape: shape, item: item}
 	c.row = item
