@@ -3,9 +3,9 @@
 
 The observation arrives as a NumPy array: a frame (height, width, channels)
 or, with obs "tokens", the token set (n, patch_h, patch_w, channels) and
-each token's grid cell (n, 2). Replace `Policy.act` with your model (a
-PyTorch or JAX forward pass); the rest is the protocol
-(docs/policy-protocol.md).
+each token's grid cell (n, 2). Replace `Policy.hand` with your model (a
+PyTorch or JAX forward pass); the protocol (docs/policy-protocol.md) is
+handled by python/tilebench_protocol.py.
 
 As shipped it plays the paddle game with the same hand rule as
 policy_stdlib.py: move the paddle towards the ball. On recorded frames
@@ -29,72 +29,44 @@ per connection, and point tilebench at it:
 
 Logs go to stderr; stdout carries protocol messages only.
 """
-import json
-import socket
+import argparse
+import os
 import sys
 
 import numpy as np
 
-PROTOCOL = 1
-MAX_LINE = 65536
+try:
+    import tilebench_protocol as tp
+except ImportError:  # not installed: use the copy in this repository
+    sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "python"))
+    import tilebench_protocol as tp
+
 PADDLE_ROW = 76  # the paddle's row in the 84x84 paddle field
-BATCH = 64  # observations per batch message offered in ready (--batch N; 0: none)
 
 
 def log(*args):
     print("policy_numpy:", *args, file=sys.stderr)
 
 
-def read_message(inp):
-    line = inp.readline(MAX_LINE + 1)
-    if not line:
-        return None, None
-    if not line.endswith(b"\n"):
-        raise ValueError("header line too long or cut off")
-    header = json.loads(line)
-    n = header.get("len", 0)
-    payload = inp.read(n) if n else b""
-    if len(payload) != n:
-        raise EOFError("payload cut off")
-    return header, payload
+class Decoder:
+    """Observations as arrays with values scaled to [0, 1]."""
 
-
-def send(out, message):
-    out.write(json.dumps(message, separators=(",", ":")).encode("utf-8") + b"\n")
-    out.flush()
-
-
-class Observation:
-    """Decodes step payloads into arrays (values scaled to [0, 1])."""
-
-    def __init__(self, hello):
-        self.kind = hello["obs"]
-        self.dtype = np.uint8 if hello["dtype"] == "uint8" else np.dtype("<f4")
-        self.frame_shape = tuple(hello["frame"])
-        tk = hello["tokens"]
+    def __init__(self, session):
+        tk = session.grid
+        self.frame_shape = session.frame_shape
         self.patch = (tk["patch"][0], tk["patch"][1], tk["channels"])
         self.stride = tuple(tk["stride"])
-        self.dim = tk["dim"]
         self.rows, self.cols = tk["rows"], tk["cols"]
 
-    def size(self, n):
-        """Payload bytes of one observation (n tokens for obs tokens)."""
-        item = np.dtype(self.dtype).itemsize
-        if self.kind == "frame":
-            return int(np.prod(self.frame_shape)) * item
-        return n * self.dim * item + 4 * n
-
-    def decode(self, header, payload):
-        """Returns (frame, tokens, cells); frame is rebuilt from tokens."""
-        scale = 255.0 if self.dtype == np.uint8 else 1.0
-        if self.kind == "frame":
-            frame = np.frombuffer(payload, dtype=self.dtype).reshape(self.frame_shape) / scale
-            return frame, None, None
-        n = header["n"]
-        size = np.dtype(self.dtype).itemsize
-        values = np.frombuffer(payload, dtype=self.dtype, count=n * self.dim)
-        tokens = values.reshape((n,) + self.patch) / scale
-        cells = np.frombuffer(payload, dtype="<i2", offset=n * self.dim * size).reshape(n, 2)
+    def decode(self, obs):
+        """Returns (frame, tokens, cells); with obs tokens the frame is
+        rebuilt from the tokens."""
+        if obs.session.obs == "frame":
+            return obs.pixels(), None, None
+        tokens = obs.tokens.astype(np.float32)
+        if obs.session.dtype == "uint8":
+            tokens = tokens / 255
+        cells = obs.cells
         # Put each token back in its cell (what a position-aware model
         # would see); a set model would use `tokens` as they come.
         frame = np.zeros(self.frame_shape)
@@ -148,36 +120,38 @@ def brightness_rule(frames, action):
 
 
 class Policy:
-    def __init__(self, hello):
-        self.action = hello["action"]
-        self.recording = hello["game"] == "recording"
+    """The hand rule (paddle) or the brightness rule (recorded frames);
+    neither keeps state, so it takes batches."""
 
-    def act_batch(self, obs, header, payload, k, dim):
-        """The actions for the k observations of one step or batch
-        message (header and payload as received). The last observation
-        decoded is kept in self.last (None if not decoded), for weights."""
-        self.last = None
-        if self.recording and obs.kind == "frame" and obs.dtype == np.uint8:
-            raw = np.frombuffer(payload, dtype=np.uint8).reshape((k,) + obs.frame_shape)
-            return brightness_rule(raw, self.action)
-        ns = header.get("n") if k > 1 or header["msg"] == "batch" else [header.get("n", 0)]
-        prev = header.get("prev") or [0] * (k * dim)
-        decoded, off = [], 0
-        for i in range(k):
-            n = ns[i] if ns else 0
-            size = obs.size(n)
-            decoded.append(obs.decode({"n": n}, payload[off:off + size]))
-            off += size
-        self.last = decoded[-1]
+    def setup(self, session):
+        self.recording = session.game == "recording"
+        if not self.recording and (session.game != "paddle" or session.frame_shape[2] != 3
+                                   or session.frame_shape[0] <= PADDLE_ROW):
+            return "the hand rule needs the paddle game in RGB"
+        self.action = session.action
+        self.decoder = Decoder(session)
+        return {"name": "numpy brightness rule" if self.recording else "numpy hand rule"}
+
+    def end(self, header):
+        log("episode", header.get("episode"), "return", header.get("return"))
+
+    def act(self, batch):
+        """The actions for a list of observations (one for a step
+        message, which also gets the weights)."""
+        s = batch[0].session
+        if self.recording and s.obs == "frame" and s.dtype == "uint8":
+            return brightness_rule(np.stack([o.frame for o in batch]), self.action)
+        decoded = [self.decoder.decode(o) for o in batch]
         if self.recording:
             raw = np.stack([np.rint(f * 255).astype(np.uint8) for f, _, _ in decoded])
             return brightness_rule(raw, self.action)
-        return [self.act(f, t, c, prev[i * dim:(i + 1) * dim]) for i, (f, t, c) in enumerate(decoded)]
+        out = [self.hand(f, o.prev) for (f, _, _), o in zip(decoded, batch)]
+        if len(batch) == 1:
+            frame, tokens, _ = decoded[0]
+            return [{"action": out[0], "weights": self.decoder.weights(frame, tokens)}]
+        return out
 
-    def reset(self, seed):
-        self.rng = np.random.default_rng(seed)
-
-    def act(self, frame, tokens, cells, prev):
+    def hand(self, frame, prev):
         field = frame[:PADDLE_ROW]
         bright = np.all(field >= 200 / 255, axis=2)
         ys, xs = np.nonzero(bright)
@@ -194,79 +168,15 @@ class Policy:
         return [float(np.clip(move, lo, hi))] + [0.0] * (self.action["dim"] - 1)
 
 
-def session(inp, out):
-    """Answers one session: hello, episodes, bye."""
-    hello, _ = read_message(inp)
-    if hello is None or hello.get("msg") != "hello":
-        log("no hello")
-        return 1
-    if hello.get("protocol") != PROTOCOL:
-        send(out, {"msg": "refuse", "reason": "speaks protocol %d only" % PROTOCOL})
-        return 0
-    recording = hello["game"] == "recording"
-    if not recording and (hello["game"] != "paddle" or hello["frame"][2] != 3 or hello["frame"][0] <= PADDLE_ROW):
-        send(out, {"msg": "refuse", "reason": "the hand rule needs the paddle game in RGB"})
-        return 0
-    obs = Observation(hello)
-    policy = Policy(hello)
-    policy.reset(0)
-    ready = {"msg": "ready", "protocol": PROTOCOL, "name": "numpy brightness rule" if recording else "numpy hand rule"}
-    if BATCH > 1:
-        ready["batch"] = BATCH  # both rules keep no state between frames
-    send(out, ready)
-    dim = hello["action"]["dim"]
-    while True:
-        header, payload = read_message(inp)
-        if header is None or header["msg"] == "bye":
-            return 0
-        kind = header["msg"]
-        if kind == "start":
-            policy.reset(header["seed"])
-        elif kind == "step":
-            action = policy.act_batch(obs, header, payload, 1, dim)[0]
-            reply = {"msg": "action", "t": header["t"], "action": action}
-            if policy.last is not None:
-                frame, tokens, _ = policy.last
-                reply["weights"] = obs.weights(frame, tokens)
-            send(out, reply)
-        elif kind == "batch":
-            flat = [v for a in policy.act_batch(obs, header, payload, header["count"], dim) for v in a]
-            send(out, {"msg": "actions", "t": header["t"][0], "count": header["count"], "action": flat})
-        elif kind == "end":
-            log("episode", header.get("episode"), "return", header.get("return"))
-
-
-def serve(address, sessions):
-    """Listens on HOST:PORT and answers sessions one after another (0:
-    forever). Port 0 picks a free port; the address is logged."""
-    host, port = address.rsplit(":", 1)
-    with socket.create_server((host, int(port))) as srv:
-        log("listening on %s:%d" % srv.getsockname()[:2])
-        done = 0
-        while sessions == 0 or done < sessions:
-            conn, peer = srv.accept()
-            conn.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
-            with conn, conn.makefile("rb") as inp, conn.makefile("wb") as out:
-                try:
-                    session(inp, out)
-                except (OSError, ValueError, EOFError) as err:
-                    log("session from %s ended: %s" % (peer[0], err))
-            done += 1
-    return 0
-
-
 def main(argv):
-    global BATCH
-    if argv[:1] == ["--batch"] and len(argv) >= 2:
-        BATCH = int(argv[1])
-        argv = argv[2:]
-    if argv[:1] == ["--listen"] and len(argv) in (2, 4):
-        sessions = int(argv[3]) if len(argv) == 4 and argv[2] == "--sessions" else 0
-        return serve(argv[1], sessions)
-    if argv:
-        log("usage: policy_numpy.py [--batch N] [--listen HOST:PORT [--sessions N]]")
-        return 2
-    return session(sys.stdin.buffer, sys.stdout.buffer)
+    ap = argparse.ArgumentParser(description="tilebench policy with NumPy (docs/policy-protocol.md)")
+    ap.add_argument("--batch", type=int, default=64, help="observations per batch message offered in ready (0: none)")
+    ap.add_argument("--listen", metavar="HOST:PORT", help="serve over TCP, one session per connection")
+    ap.add_argument("--sessions", type=int, default=0, help="with --listen: stop after N sessions (0: never)")
+    args = ap.parse_args(argv)
+    # The rules are stateless: with --batch 0 they are still called with
+    # lists, one observation at a time.
+    return tp.serve(Policy(), batch=args.batch if args.batch > 1 else 1, listen=args.listen, sessions=args.sessions)
 
 
 if __name__ == "__main__":

@@ -19,13 +19,21 @@ Without --lead the rule keeps no state from frame to frame, so it offers
 batches of up to 32 frames in one message ("batch" in ready; see
 docs/policy-protocol.md, "Batches").
 
+The protocol itself is handled by python/tilebench_protocol.py (standard
+library only), found next to this repository's examples or installed with
+pip install --no-build-isolation ./python.
+
 Logs go to stderr; stdout carries protocol messages only.
 """
-import json
+import os
 import sys
 
-PROTOCOL = 1
-MAX_LINE = 65536
+try:
+    import tilebench_protocol as tp
+except ImportError:  # not installed: use the copy in this repository
+    sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "python"))
+    import tilebench_protocol as tp
+
 PADDLE_ROW = 76  # the paddle's row in the 84x84 paddle field
 
 
@@ -33,38 +41,33 @@ def log(*args):
     print("policy_stdlib:", *args, file=sys.stderr)
 
 
-def read_message(inp):
-    """One header line and its payload, or (None, None) at the end."""
-    line = inp.readline(MAX_LINE + 1)
-    if not line:
-        return None, None
-    if not line.endswith(b"\n"):
-        raise ValueError("header line too long or cut off")
-    header = json.loads(line)
-    n = header.get("len", 0)
-    payload = inp.read(n) if n else b""
-    if len(payload) != n:
-        raise EOFError("payload cut off")
-    return header, payload
-
-
-def send(out, message):
-    out.write(json.dumps(message, separators=(",", ":")).encode("utf-8") + b"\n")
-    out.flush()
-
-
 # Bytes >= 200 become 1, others 0: the ball is bright in every channel.
 BRIGHT = bytes(1 if b >= 200 else 0 for b in range(256))
 
 
 class HandRule:
-    def __init__(self, hello, lead, deadzone):
-        self.h, self.w, self.c = hello["frame"]
-        self.action = hello["action"]
-        self.tokens = hello["tokens"]
+    def __init__(self, lead, deadzone):
         self.lead = lead
         self.deadzone = deadzone
         self.last_ball = None
+
+    def setup(self, session):
+        """Called at hello: refuse what the rule cannot read."""
+        h = session.hello
+        if session.game != "paddle" or session.obs != "frame" or session.dtype != "uint8" \
+                or h["frame"][2] != 3 or h["frame"][1] < PADDLE_ROW or h["frame"][0] <= PADDLE_ROW:
+            return "needs the paddle game as uint8 RGB frames, got %s %s %s %s" % (
+                session.game, session.obs, session.dtype, h["frame"])
+        self.h, self.w, self.c = h["frame"]
+        self.action = session.action
+        self.tokens = session.grid
+        return None
+
+    def start(self, seed):
+        self.reset()
+
+    def end(self, header):
+        log("episode", header.get("episode"), "return", header.get("return"))
 
     def reset(self):
         self.last_ball = None
@@ -149,45 +152,22 @@ def main(argv):
         else:
             log("unknown argument", a)
             return 2
-    inp, out = sys.stdin.buffer, sys.stdout.buffer
-    hello, _ = read_message(inp)
-    if hello is None or hello.get("msg") != "hello":
-        log("no hello")
-        return 1
-    if hello.get("protocol") != PROTOCOL:
-        send(out, {"msg": "refuse", "reason": "speaks protocol %d only" % PROTOCOL})
-        return 0
-    if hello["game"] != "paddle" or hello["obs"] != "frame" or hello["dtype"] != "uint8" \
-            or hello["frame"][2] != 3 or hello["frame"][1] < PADDLE_ROW or hello["frame"][0] <= PADDLE_ROW:
-        send(out, {"msg": "refuse",
-                   "reason": "needs the paddle game as uint8 RGB frames, got %s %s %s %s" % (
-                       hello["game"], hello["obs"], hello["dtype"], hello["frame"])})
-        return 0
-    policy = HandRule(hello, lead, deadzone)
-    ready = {"msg": "ready", "protocol": PROTOCOL, "name": "stdlib hand rule"}
-    if lead == 0:
-        ready["batch"] = 32  # stateless: the last ball is only used to lead
-    send(out, ready)
-    size = hello["frame"][0] * hello["frame"][1] * hello["frame"][2]
-    while True:
-        header, payload = read_message(inp)
-        if header is None or header["msg"] == "bye":
-            return 0
-        kind = header["msg"]
-        if kind == "start":
-            policy.reset()
-        elif kind == "step":
-            action = policy.act(payload)
-            send(out, {"msg": "action", "t": header["t"], "action": action,
-                       "weights": policy.last_weights})
-        elif kind == "batch":
-            k = header["count"]
-            flat = []
-            for i in range(k):
-                flat.extend(policy.act(payload[i * size:(i + 1) * size]))
-            send(out, {"msg": "actions", "t": header["t"][0], "count": k, "action": flat})
-        elif kind == "end":
-            log("episode", header.get("episode"), "return", header.get("return"))
+    rule = HandRule(lead, deadzone)
+    if lead:
+        # Leading uses the last ball position: state, so no batches.
+        return tp.serve(rule, name="stdlib hand rule")
+
+    class Stateless:
+        """The rule without lead keeps no state: it takes batches."""
+        setup, start, end = rule.setup, rule.start, rule.end
+
+        @staticmethod
+        def act(batch):
+            out = [rule.act(o.raw) for o in batch]
+            if len(batch) == 1:
+                return [{"action": out[0], "weights": rule.last_weights}]
+            return out
+    return tp.serve(Stateless(), batch=32, name="stdlib hand rule")
 
 
 if __name__ == "__main__":
