@@ -164,6 +164,8 @@ func sourceCommand(t *testing.T, cmd, src string) []string {
 	switch cmd {
 	case "play":
 		return []string{"play", "--game", "paddle", "--episodes", "1", "--patch", "7", "--json", "--policy", src}
+	case "record":
+		return []string{"record", "--game", "paddle", "--episodes", "1", "--patch", "7", "--json", "--out", filepath.Join(t.TempDir(), "r"), "--policy", src}
 	case "verify":
 		return []string{"verify", "--game", "paddle", "--perms", "2", "--seeds", "1", "--frames", "1", "--patch", "7", "--json", "--policy", src}
 	case "stress", "sizes":
