@@ -12,9 +12,12 @@ accelerator; this example runs on the CPU):
     python3 examples/policy_torch.py --model drive.pt --listen 127.0.0.1:7000
     tilebench play --game drive --policy tcp://127.0.0.1:7000
 
-The model keeps no state between frames, so it offers batches (--batch,
-default 64): commands that have several observations at once (probe)
-send them in one message and get them back from one forward pass.
+A model trained with --stack 1 keeps no state between frames, so it
+offers batches (--batch, default 64): commands that have several
+observations at once (probe) send them in one message and get them back
+from one forward pass. A model of two frames (--stack 2, the default: the
+frame and its change since the last step, which shows speed) keeps the
+last frame and is sent steps one by one.
 
 It refuses a session for another game, frame size or action space than
 the model was trained on (run play with the grid the recording used).
@@ -41,7 +44,8 @@ class Served:
         ck = torch.load(path, map_location="cpu")
         cfg = ck["config"]
         self.game = ck["game"]
-        self.model = PatchPolicy(cfg["frame_shape"], cfg["patch"], cfg["action"])
+        self.model = PatchPolicy(cfg["frame_shape"], cfg["patch"], cfg["action"], stack=cfg.get("stack", 1))
+        self.last = None
         self.model.load_state_dict(ck["state"])
         self.model.eval()
         self.name = "torch patch policy %s (p%d)" % (os.path.basename(path), cfg["patch"])
@@ -56,10 +60,19 @@ class Served:
             return "trained on %s %s %s:%d, this session is %s %s %s:%d" % (want + got)
         return None
 
+    def start(self, seed):
+        self.last = None  # a new episode: no frame before
+
     def act(self, batch):
+        """A list of observations (stack 1, stateless, batched) or one
+        (stack 2: it keeps the last frame)."""
         x = torch.from_numpy(np.stack([o.pixels() for o in batch]).astype(np.float32))
+        before = None
+        if self.model.stack == 2:
+            before = x if self.last is None else self.last
+            self.last = x
         with torch.no_grad():
-            a = self.model.to_action(self.model(x))
+            a = self.model.to_action(self.model(x, before))
         return a.numpy().tolist()
 
 
@@ -73,7 +86,9 @@ def main(argv):
     args = ap.parse_args(argv)
     torch.set_num_threads(args.threads)
     served = Served(args.model)
-    return tp.serve(served, batch=max(1, args.batch), name=served.name, listen=args.listen, sessions=args.sessions)
+    # A model of two frames keeps the last one: state, so no batches.
+    batch = max(1, args.batch) if served.model.stack == 1 else 1
+    return tp.serve(served, batch=batch, name=served.name, listen=args.listen, sessions=args.sessions)
 
 
 if __name__ == "__main__":

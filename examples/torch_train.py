@@ -40,26 +40,39 @@ except ImportError:  # not installed: use the copy in this repository
 class PatchPolicy(nn.Module):
     """Patches -> tokens -> token MLP -> attention pooling -> action."""
 
-    def __init__(self, frame_shape, patch, action, dim=32, queries=4):
+    def __init__(self, frame_shape, patch, action, stack=2, dim=32, queries=4):
         super().__init__()
         h, w, c = frame_shape
-        self.frame_shape, self.patch, self.action = tuple(frame_shape), patch, action
+        self.frame_shape, self.patch, self.action, self.stack = tuple(frame_shape), patch, action, stack
         self.pad = (0, (-w) % patch, 0, (-h) % patch)  # right, bottom, for F.pad
         n = math.ceil(h / patch) * math.ceil(w / patch)
-        self.embed = nn.Conv2d(c, dim, patch, stride=patch)
+        self.embed = nn.Conv2d(c * stack, dim, patch, stride=patch)
         self.pos = nn.Parameter(torch.randn(1, n, dim) * 0.02)
         self.mix = nn.Sequential(nn.LayerNorm(dim), nn.Linear(dim, 2 * dim), nn.GELU(), nn.Linear(2 * dim, dim))
         self.score = nn.Linear(dim, queries)  # one attention-pooling query per column
         self.discrete = action["kind"] == "discrete"
         out = len(action["names"]) if self.discrete else action["dim"]
         self.head = nn.Sequential(nn.LayerNorm(queries * dim), nn.Linear(queries * dim, 64), nn.GELU(), nn.Linear(64, out))
-        if not self.discrete:
-            self.register_buffer("low", torch.tensor(action["low"], dtype=torch.float32))
-            self.register_buffer("high", torch.tensor(action["high"], dtype=torch.float32))
+        if self.discrete:
+            low, high = [0.0], [len(action["names"]) - 1.0]
+        else:
+            low, high = action["low"], action["high"]
+        self.register_buffer("low", torch.tensor(low, dtype=torch.float32))
+        self.register_buffer("high", torch.tensor(high, dtype=torch.float32))
 
-    def forward(self, frames):
-        """frames: (B, H, W, C) float in [0, 1]. Returns logits (discrete)
-        or actions in [-1, 1] per dimension (continuous; see to_action)."""
+    def scale(self, actions):
+        """Game actions to [-1, 1] per dimension (the model's units)."""
+        return (2 * (actions - self.low) / (self.high - self.low).clamp(min=1e-6) - 1).clamp(-1, 1)
+
+    def forward(self, frames, before=None):
+        """frames: (B, H, W, C) float in [0, 1]; before: the frames of the
+        step before (stack 2; the same frames at an episode's start).
+        Returns logits (discrete) or actions in [-1, 1] per dimension
+        (continuous; see to_action)."""
+        if self.stack == 2:
+            # The change since the last frame shows motion (speed), which
+            # one frame cannot.
+            frames = torch.cat([frames, frames - before], dim=3)
         x = nn.functional.pad(frames.permute(0, 3, 1, 2), self.pad)
         tokens = self.embed(x).flatten(2).transpose(1, 2) + self.pos
         tokens = tokens + self.mix(tokens)
@@ -75,12 +88,12 @@ class PatchPolicy(nn.Module):
         return self.low + (out + 1) / 2 * (self.high - self.low)
 
     def config(self):
-        return {"frame_shape": list(self.frame_shape), "patch": self.patch, "action": self.action}
+        return {"frame_shape": list(self.frame_shape), "patch": self.patch, "action": self.action, "stack": self.stack}
 
 
 def load(folders):
     """Frames and targets of every folder, checked to be one game."""
-    frames, targets, first = [], [], None
+    frames, befores, targets, first, rows = [], [], [], None, 0
     for d in folders:
         rec = tp.load_recording(d)
         m = rec["manifest"]
@@ -91,8 +104,13 @@ def load(folders):
             raise SystemExit("%s: %s, but %s was %s" % (d, key, folders[0], first[0]))
         first = first or (key, m)
         frames.append(rec["frames"])
+        # Row of the frame before each step: the step itself at an
+        # episode's start.
+        idx = np.arange(len(rec["frames"]))
+        befores.append(rows + np.where(rec["episode_starts"], idx, idx - 1))
+        rows += len(rec["frames"])
         targets.append(rec["labels"] if "labels" in rec else rec["actions"])
-    return np.concatenate(frames), np.concatenate(targets), first[1]
+    return np.concatenate(frames), np.concatenate(befores), np.concatenate(targets), first[1]
 
 
 def main(argv):
@@ -106,12 +124,20 @@ def main(argv):
     ap.add_argument("--lr", type=float, default=2e-3)
     ap.add_argument("--threads", type=int, default=1, help="torch threads (on a busy machine 1 is often fastest)")
     ap.add_argument("--seed", type=int, default=0)
+    ap.add_argument("--init", help="start from this model (.pt) instead of fresh weights")
+    ap.add_argument("--stack", type=int, choices=(1, 2), default=2,
+                    help="frames the model sees: 2 (this one and its change since the last, which shows speed) or 1 (stateless: served in batches)")
     args = ap.parse_args(argv)
     torch.manual_seed(args.seed)
     torch.set_num_threads(args.threads)
-    frames, targets, m = load(args.data)
+    frames, befores, targets, m = load(args.data)
     action = m["action"]
-    model = PatchPolicy(m["frame"], args.patch, action)
+    model = PatchPolicy(m["frame"], args.patch, action, stack=args.stack)
+    if args.init:
+        ck = torch.load(args.init, map_location="cpu")
+        if ck["config"] != model.config():
+            raise SystemExit("--init %s: a model of %s, this data wants %s" % (args.init, ck["config"], model.config()))
+        model.load_state_dict(ck["state"])
     if action["kind"] == "discrete":
         y = torch.from_numpy(targets[:, 0].astype(np.int64))
         counts = torch.bincount(y, minlength=len(action["names"])).float()
@@ -138,7 +164,8 @@ def main(argv):
         for i in range(0, len(order), args.batch):
             idx = np.sort(order[i:i + args.batch])
             x = torch.from_numpy(frames[idx]).float() / 255
-            loss = loss_fn(model(x), y[idx])
+            before = torch.from_numpy(frames[befores[idx]]).float() / 255 if args.stack == 2 else None
+            loss = loss_fn(model(x, before), y[idx])
             opt.zero_grad()
             loss.backward()
             # Cosine decay over whichever ends first, the epochs or the

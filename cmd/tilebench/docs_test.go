@@ -1,17 +1,20 @@
 package main
 
 import (
+	"fmt"
 	"image/png"
 	"net"
 	"os"
 	"path/filepath"
 	"regexp"
 	"slices"
+	"strconv"
 	"strings"
 	"testing"
 
 	"tilebench/internal/reftest"
 	"tilebench/vision"
+	"tilebench/vision/policies"
 	"tilebench/vision/remote"
 	"tilebench/vision/study"
 )
@@ -22,7 +25,14 @@ const serveEnv = "TILEBENCH_TEST_SERVE_POLICY"
 
 func TestMain(m *testing.M) {
 	if os.Getenv(serveEnv) == "1" {
-		if err := remote.Serve(os.Stdin, os.Stdout, zeroPolicy{}, remote.ServeOptions{Name: "zero"}); err != nil {
+		var pol vision.Policy = zeroPolicy{}
+		// "--want-patch N": fail every step on a grid of another patch size
+		// (to see that a {patch} template reached the process).
+		if len(os.Args) == 3 && os.Args[1] == "--want-patch" {
+			n, _ := strconv.Atoi(os.Args[2])
+			pol = patchPolicy{n}
+		}
+		if err := remote.Serve(os.Stdin, os.Stdout, pol, remote.ServeOptions{Name: "zero"}); err != nil {
 			os.Stderr.WriteString(err.Error() + "\n")
 			os.Exit(1)
 		}
@@ -37,6 +47,19 @@ type zeroPolicy struct{}
 func (zeroPolicy) Info() vision.Info { return vision.Info{Family: "external", Label: "zero"} }
 func (zeroPolicy) Reset(uint64)      {}
 func (zeroPolicy) Act(_ *vision.Observation, a []float64) error {
+	clear(a)
+	return nil
+}
+
+// patchPolicy is zeroPolicy on grids of one patch size, an error on others.
+type patchPolicy struct{ want int }
+
+func (patchPolicy) Info() vision.Info { return vision.Info{Family: "external", Label: "patch check"} }
+func (patchPolicy) Reset(uint64)      {}
+func (p patchPolicy) Act(obs *vision.Observation, a []float64) error {
+	if obs.Grid.PatchW != p.want {
+		return fmt.Errorf("started for patch %d, sent a grid of patch %d", p.want, obs.Grid.PatchW)
+	}
 	clear(a)
 	return nil
 }
@@ -169,7 +192,11 @@ func sourceCommand(t *testing.T, cmd, src string) []string {
 	case "verify":
 		return []string{"verify", "--game", "paddle", "--perms", "2", "--seeds", "1", "--frames", "1", "--patch", "7", "--json", "--policy", src}
 	case "stress", "sizes":
-		return []string{cmd, "--game", "paddle", "--episodes", "1", "--patch", "7", "--occlude", "none,random:0.5", "--resamples", "100",
+		ps := "7"
+		if policies.IsTemplate(src) {
+			ps = "7,12" // a template names one policy per size: a study of one size refuses it
+		}
+		return []string{cmd, "--game", "paddle", "--episodes", "1", "--patch", ps, "--occlude", "none,random:0.5", "--resamples", "100",
 			"--json", "--out", filepath.Join(t.TempDir(), "s"), "--policy", src}
 	}
 	t.Fatalf("table column %q: not a command the test knows", cmd)

@@ -169,6 +169,11 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	if err := d.Normalize(); err != nil {
 		return nil, usagef("%v", err)
 	}
+	if policies.IsTemplate(d.Policy.Source) {
+		if ps, err := d.Patch.Values(""); err == nil && len(ps) == 1 {
+			return nil, usagef("%s: policy %q holds {patch}, but the study has one patch size (%s): give several with --patch (e.g. --patch 4,8,16), or name the policy without {patch}", kind, d.Policy.Source, ps[0])
+		}
+	}
 	return d, nil
 }
 

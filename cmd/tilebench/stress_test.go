@@ -115,6 +115,11 @@ func TestStressBadInput(t *testing.T) {
 		{stressArgs(out, "--game", "croquet"), 1, "unknown game"},
 		{stressArgs(out, "--policy", filepath.Join(dir, "missing.safetensors")), 1, "missing.safetensors"},
 		{stressArgs(out, "--episodes", "-1"), 2, "episodes"},
+		// A {patch} template names one policy per patch size: with one size
+		// it is a mistake (docs/policies.md).
+		{stressArgs(out, "--policy", "exec:python3 my_policy.py --patch {patch}", "--patch", "8"), 2, "one patch size (8)"},
+		{stressArgs(out, "--policy", "tcp://127.0.0.1:70{patch}"), 2, "one patch size"},
+		{[]string{"sizes", "--game", "paddle", "--patch", "7,12", "--episodes", "1", "--out", out, "--policy", "exec:python3 my_policy.py --patch {patch}"}, 2, "cost model"},
 	} {
 		code, _, stderr := runCLI(t, "", c.args...)
 		if code != c.code {
@@ -125,6 +130,32 @@ func TestStressBadInput(t *testing.T) {
 	}
 	if _, err := os.Stat(out); !os.IsNotExist(err) {
 		t.Fatal("bad input left an output folder")
+	}
+}
+
+// TestStressPatchTemplateExternal: in "exec:COMMAND --want-patch {patch}"
+// each patch size of the study starts its own process with its own size
+// (the test binary serving a policy that fails on any other size); a
+// process named without the template fails the other size's cells.
+func TestStressPatchTemplateExternal(t *testing.T) {
+	t.Setenv(serveEnv, "1") // for the exec: children only
+	exe, err := os.Executable()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		policy string
+		code   int
+	}{
+		{"exec:" + exe + " --want-patch {patch}", 0},
+		{"exec:" + exe + " --want-patch 7", 3},
+	} {
+		out := filepath.Join(t.TempDir(), "s")
+		code, _, stderr := runCLI(t, "", "stress", "--game", "paddle", "--patch", "7,12", "--episodes", "1", "--occlude", "none",
+			"--resamples", "100", "--json", "--out", out, "--policy", c.policy)
+		if code != c.code {
+			t.Fatalf("%s: exit %d, want %d (%s)", c.policy, code, c.code, stderr)
+		}
 	}
 }
 

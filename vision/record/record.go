@@ -218,9 +218,6 @@ func (cfg *Config) check() error {
 	if cfg.Grid.Width != sp.Width || cfg.Grid.Height != sp.Height {
 		return fmt.Errorf("record: patch grid is for %dx%d frames, game %s renders %dx%d", cfg.Grid.Width, cfg.Grid.Height, sp.Name, sp.Width, sp.Height)
 	}
-	if cfg.Relabel && cfg.Policy == nil {
-		return errors.New("record: relabelling needs a policy other than the expert to drive")
-	}
 	return nil
 }
 
@@ -384,6 +381,9 @@ func Run(cfg Config) (*Manifest, error) {
 	pipe, err := patch.NewPipeline(cfg.Grid, cfg.Spec)
 	if err != nil {
 		return nil, fmt.Errorf("record: transforms: %w", err)
+	}
+	if cfg.Relabel && cfg.Policy == nil {
+		return nil, errors.New("record: relabelling needs a policy other than the expert to drive")
 	}
 	r := &recorder{cfg: cfg}
 	if cfg.Policy == nil || cfg.Relabel {

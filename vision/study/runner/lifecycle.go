@@ -100,5 +100,8 @@ func CheckSizesPolicy(p *study.Plan) error {
 	if policies.IsBaseline(p.Def.Policy.Source) {
 		return &policies.SourceError{Err: fmt.Errorf("a sizes study needs a network with a cost model; %q is a baseline policy (use it as --floor)", p.Def.Policy.Source)}
 	}
+	if policies.Kind(p.Def.Policy.Source) == policies.KindExternal {
+		return &policies.SourceError{Err: fmt.Errorf("a sizes study measures each patch size's compute (FLOPs, parameters) with tilebench's cost model, which %q, a process of its own, does not have; compare its patch sizes' scores with stress --patch 4,8,16 and a {patch} template instead", p.Def.Policy.Source)}
+	}
 	return &policies.SourceError{Err: fmt.Errorf("a sizes study needs a network with a cost model (fresh, a family, a weights file or --train), not %q", p.Def.Policy.Source)}
 }
