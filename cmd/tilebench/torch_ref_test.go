@@ -1,0 +1,147 @@
+package main
+
+import (
+	"bufio"
+	"encoding/json"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"testing"
+	"time"
+
+	"tilebench/internal/reftest"
+)
+
+// Round trip bar: the trained PyTorch policy's mean return on held-out
+// seeds as a share of the scripted expert's on the same seeds. Measured
+// with this test's budget (docs/recording.md): see roundTripShare's log.
+const (
+	roundTripShare    = 0.60
+	roundTripHeldOut  = 10
+	roundTripDemos    = 30
+	roundTripDagger   = 8
+	roundTripTrainSec = 75 // per training round; two rounds
+)
+
+// playMean plays --episodes n from the first held-out seed and returns
+// the episodes' returns and their mean.
+func playMean(t *testing.T, game, policy string, n int) ([]float64, float64) {
+	t.Helper()
+	code, out, errs := runCLI(t, "", "play", "--game", game, "--episodes", strconv.Itoa(n), "--json",
+		"--policy-timeout", "30s", "--policy-start-timeout", "2m", "--policy", policy)
+	if code != 0 {
+		t.Fatalf("play %s: exit %d: %s", policy, code, errs)
+	}
+	var s playSummary
+	if err := json.Unmarshal([]byte(out), &s); err != nil {
+		t.Fatal(err)
+	}
+	var rets []float64
+	for _, e := range s.Episodes {
+		rets = append(rets, e.Return)
+	}
+	return rets, s.Mean
+}
+
+// trainTorch runs examples/torch_train.py and returns its wall time.
+func trainTorch(t *testing.T, args ...string) time.Duration {
+	t.Helper()
+	start := time.Now()
+	cmd := exec.Command(reftest.Python, append([]string{filepath.Join(reftest.Root(), "examples", "torch_train.py")}, args...)...)
+	cmd.Env = append(os.Environ(), "OMP_NUM_THREADS=1")
+	out, err := cmd.CombinedOutput()
+	if err != nil {
+		t.Fatalf("torch_train.py %v: %v\n%s", args, err, out)
+	}
+	lines := strings.Split(strings.TrimSpace(string(out)), "\n")
+	t.Logf("torch_train.py: %s", lines[len(lines)-1])
+	return time.Since(start)
+}
+
+// TestRefTorchRoundTrip is the PyTorch round trip of docs/recording.md,
+// live: record the drive expert's demonstrations, train the example's
+// patch-based policy by behaviour cloning (examples/torch_train.py, CPU),
+// record one DAgger round (the trained policy drives over exec:, the
+// expert labels) and train on both, then play it with tilebench play
+// (exec:) on held-out seeds against the expert's mean return there, play
+// it once more over TCP (examples/policy_torch.py --listen) and check
+// the same return, and run a small stress study on it. Everything reads
+// the game's Spec (frame size, action kind, dimension, bounds) from the
+// recording, so the test holds whatever the game's numbers.
+func TestRefTorchRoundTrip(t *testing.T) {
+	if testing.Short() {
+		t.Skip("the PyTorch round trip trains for minutes")
+	}
+	reftest.Need(t, "numpy", "torch")
+	dir := t.TempDir()
+	py := reftest.Python
+	serve := filepath.Join(reftest.Root(), "examples", "policy_torch.py")
+	demos, dagger := filepath.Join(dir, "demos"), filepath.Join(dir, "dagger")
+	m1, m2 := filepath.Join(dir, "m1.pt"), filepath.Join(dir, "m2.pt")
+
+	if code, _, errs := runCLI(t, "", "record", "--game", "drive", "--episodes", strconv.Itoa(roundTripDemos), "--out", demos); code != 0 {
+		t.Fatalf("record: exit %d: %s", code, errs)
+	}
+	budget := strconv.Itoa(roundTripTrainSec)
+	took := trainTorch(t, "--data", demos, "--out", m1, "--time-limit", budget)
+	// DAgger round on other training seeds: the policy drives, the expert labels.
+	if code, _, errs := runCLI(t, "", "record", "--game", "drive", "--episodes", strconv.Itoa(roundTripDagger), "--seed", "1000",
+		"--relabel", "--policy-timeout", "30s", "--policy", "exec:"+py+" "+serve+" --model "+m1, "--out", dagger); code != 0 {
+		t.Fatalf("record --relabel: exit %d: %s", code, errs)
+	}
+	took += trainTorch(t, "--data", demos, "--data", dagger, "--init", m1, "--out", m2, "--time-limit", budget)
+	if took > 3*time.Minute {
+		t.Errorf("training took %v in all, over the 3 minutes allowed", took.Round(time.Second))
+	}
+
+	policy := "exec:" + py + " " + serve + " --model " + m2
+	_, expert := playMean(t, "drive", "expert", roundTripHeldOut)
+	rets, got := playMean(t, "drive", policy, roundTripHeldOut)
+	share := got / expert
+	t.Logf("torch policy %.1f, expert %.1f on %d held-out seeds: %.0f%% of the expert (bar %.0f%%); training %v",
+		got, expert, roundTripHeldOut, 100*share, 100*roundTripShare, took.Round(time.Second))
+	if expert <= 0 || share < roundTripShare {
+		t.Fatalf("torch policy reaches %.0f%% of the expert's mean return, want at least %.0f%%", 100*share, 100*roundTripShare)
+	}
+
+	// The same model over TCP: the same first episode, to the bit.
+	srv := exec.Command(py, serve, "--model", m2, "--listen", "127.0.0.1:0", "--sessions", "1")
+	srv.Env = append(os.Environ(), "OMP_NUM_THREADS=1")
+	stderr, err := srv.StderrPipe()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := srv.Start(); err != nil {
+		t.Fatal(err)
+	}
+	defer func() { srv.Process.Kill(); srv.Wait() }()
+	line, err := bufio.NewReader(stderr).ReadString('\n')
+	addr, ok := strings.CutPrefix(strings.TrimSpace(line), "policy_torch: listening on ")
+	if err != nil || !ok {
+		t.Fatalf("server said %q (%v)", line, err)
+	}
+	tcp, _ := playMean(t, "drive", "tcp://"+addr, 1)
+	if tcp[0] != rets[0] {
+		t.Errorf("over tcp the first held-out episode returns %v, over exec %v", tcp[0], rets[0])
+	}
+
+	// A small stress study of the trained policy.
+	out := filepath.Join(dir, "stress")
+	code, _, errs := runCLI(t, "", "stress", "--game", "drive", "--patch", "8", "--occlude", "none,random:0.3", "--episodes", "2",
+		"--resamples", "200", "--json", "--policy-timeout", "30s", "--policy", policy, "--out", out)
+	if code != 0 {
+		t.Fatalf("stress: exit %d: %s", code, errs)
+	}
+	b, err := os.ReadFile(filepath.Join(out, "results.jsonl"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n := strings.Count(string(b), "\n"); n != 4 {
+		t.Fatalf("stress recorded %d episodes, want 2 cells × 2", n)
+	}
+	if _, err := os.Stat(filepath.Join(out, "report.html")); err != nil {
+		t.Fatal(err)
+	}
+}
