@@ -117,7 +117,7 @@ def main(argv):
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--data", action="append", required=True, help="a recording folder (several allowed)")
     ap.add_argument("--out", required=True, help="where to save the model (.pt)")
-    ap.add_argument("--patch", type=int, default=8, help="patch size in pixels")
+    ap.add_argument("--patch", type=int, default=12, help="patch size in pixels (frames are padded to a multiple)")
     ap.add_argument("--epochs", type=int, default=30)
     ap.add_argument("--time-limit", type=float, default=170, help="stop after this many seconds of training")
     ap.add_argument("--batch", type=int, default=64)
