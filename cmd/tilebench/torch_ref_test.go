@@ -18,10 +18,10 @@ import (
 // seeds as a share of the scripted expert's on the same seeds. Measured
 // with this test's budget (docs/recording.md): see roundTripShare's log.
 const (
-	roundTripShare    = 0.60
-	roundTripHeldOut  = 10
-	roundTripDemos    = 30
-	roundTripDagger   = 8
+	roundTripShare   = 0.60
+	roundTripHeldOut = 10
+	roundTripDemos   = 30
+	roundTripDagger  = 8
 	// Training time limits of the two rounds (behaviour cloning, then on
 	// the demonstrations and the DAgger round together), 165 s in all.
 	roundTripTrainSec  = 90
