@@ -180,7 +180,7 @@ def main(argv):
                 break
         print("torch_train: epoch %d loss %.4f (%.0f s)" % (epoch + 1, total / n, time.monotonic() - start), file=sys.stderr)
         if time.monotonic() - start > args.time_limit:
-            print("torch_train: time limit reached", file=sys.stderr)
+            print("torch_train: time limit reached after %d batches" % done, file=sys.stderr)
             break
     tmp = args.out + ".tmp"
     torch.save({"format": 1, "game": m["game"], "config": model.config(), "state": model.state_dict()}, tmp)
