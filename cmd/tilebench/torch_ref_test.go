@@ -3,6 +3,7 @@ package main
 import (
 	"bufio"
 	"encoding/json"
+	"fmt"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -18,19 +19,22 @@ import (
 // seeds as a share of the scripted expert's on the same seeds. Measured
 // with this test's budget (docs/recording.md): see roundTripShare's log.
 const (
-	roundTripShare   = 0.60
+	roundTripShare   = 0.70
 	roundTripHeldOut = 10
 	roundTripDemos   = 30
-	roundTripDagger  = 8
-	// The two training rounds (behaviour cloning, then the demonstrations
-	// and the DAgger round together) run a fixed number of epochs, so that
-	// the result does not depend on the machine's load, each capped in
-	// time (145 s in all) to stay within 3 minutes with start-up.
-	roundTripEpochs       = "6"
-	roundTripDaggerEpochs = "4"
-	roundTripTrainSec     = 80
-	roundTripDaggerSec    = 65
+	roundTripDagger  = 8 // episodes per DAgger round
 )
+
+// roundTripRounds are the training rounds: behaviour cloning on the
+// expert's demonstrations, then two DAgger rounds (the last model drives,
+// the expert labels, and training goes on over everything recorded so
+// far). Each runs a fixed number of epochs, so that the result does not
+// depend on the machine's load, capped in time (165 s in all) to stay
+// within 3 minutes with start-up on a busy machine. Measured without the
+// caps binding: 99.7% of the expert after the third round (934.4 against
+// 936.8 on 10 held-out seeds), 90% after the second; the bar leaves room
+// for capped rounds on a loaded machine and for other PyTorch builds.
+var roundTripRounds = []struct{ epochs, capSec int }{{4, 65}, {3, 50}, {3, 50}}
 
 // playMean plays --episodes n from the first held-out seed and returns
 // the episodes' returns and their mean.
@@ -63,15 +67,15 @@ func trainTorch(t *testing.T, args ...string) time.Duration {
 		t.Fatalf("torch_train.py %v: %v\n%s", args, err, out)
 	}
 	lines := strings.Split(strings.TrimSpace(string(out)), "\n")
-	t.Logf("torch_train.py: %s", lines[len(lines)-1])
+	t.Logf("torch_train.py: %s", strings.Join(lines[max(0, len(lines)-3):], " | "))
 	return time.Since(start)
 }
 
 // TestRefTorchRoundTrip is the PyTorch round trip of docs/recording.md,
 // live: record the drive expert's demonstrations, train the example's
 // patch-based policy by behaviour cloning (examples/torch_train.py, CPU),
-// record one DAgger round (the trained policy drives over exec:, the
-// expert labels) and train on both, then play it with tilebench play
+// record two DAgger rounds (the trained policy drives over exec:, the
+// expert labels), training on to each, then play it with tilebench play
 // (exec:) on held-out seeds against the expert's mean return there, play
 // it once more over TCP (examples/policy_torch.py --listen) and check
 // the same return, and run a small stress study on it. Everything reads
@@ -85,24 +89,39 @@ func TestRefTorchRoundTrip(t *testing.T) {
 	dir := t.TempDir()
 	py := reftest.Python
 	serve := filepath.Join(reftest.Root(), "examples", "policy_torch.py")
-	demos, dagger := filepath.Join(dir, "demos"), filepath.Join(dir, "dagger")
-	m1, m2 := filepath.Join(dir, "m1.pt"), filepath.Join(dir, "m2.pt")
+	demos := filepath.Join(dir, "demos")
 
 	if code, _, errs := runCLI(t, "", "record", "--game", "drive", "--episodes", strconv.Itoa(roundTripDemos), "--out", demos); code != 0 {
 		t.Fatalf("record: exit %d: %s", code, errs)
 	}
-	took := trainTorch(t, "--data", demos, "--patch", "12", "--epochs", roundTripEpochs, "--out", m1, "--time-limit", strconv.Itoa(roundTripTrainSec))
-	// DAgger round on other training seeds: the policy drives, the expert labels.
-	if code, _, errs := runCLI(t, "", "record", "--game", "drive", "--episodes", strconv.Itoa(roundTripDagger), "--seed", "1000",
-		"--relabel", "--policy-timeout", "30s", "--policy", "exec:"+py+" "+serve+" --model "+m1, "--out", dagger); code != 0 {
-		t.Fatalf("record --relabel: exit %d: %s", code, errs)
+	var took time.Duration
+	data := []string{"--data", demos}
+	model := ""
+	for i, r := range roundTripRounds {
+		if i > 0 {
+			// The last model drives on other training seeds; the expert labels.
+			dagger := filepath.Join(dir, fmt.Sprintf("dagger%d", i))
+			if code, _, errs := runCLI(t, "", "record", "--game", "drive", "--episodes", strconv.Itoa(roundTripDagger),
+				"--seed", strconv.Itoa(1000*i), "--relabel", "--policy-timeout", "30s",
+				"--policy", "exec:"+py+" "+serve+" --model "+model, "--out", dagger); code != 0 {
+				t.Fatalf("record --relabel: exit %d: %s", code, errs)
+			}
+			data = append(data, "--data", dagger)
+		}
+		next := filepath.Join(dir, fmt.Sprintf("m%d.pt", i+1))
+		args := append(append([]string{}, data...), "--patch", "12", "--epochs", strconv.Itoa(r.epochs),
+			"--time-limit", strconv.Itoa(r.capSec), "--out", next)
+		if model != "" {
+			args = append(args, "--init", model)
+		}
+		took += trainTorch(t, args...)
+		model = next
 	}
-	took += trainTorch(t, "--data", demos, "--data", dagger, "--patch", "12", "--epochs", roundTripDaggerEpochs, "--init", m1, "--out", m2, "--time-limit", strconv.Itoa(roundTripDaggerSec))
 	if took > 3*time.Minute {
 		t.Errorf("training took %v in all, over the 3 minutes allowed", took.Round(time.Second))
 	}
 
-	policy := "exec:" + py + " " + serve + " --model " + m2
+	policy := "exec:" + py + " " + serve + " --model " + model
 	_, expert := playMean(t, "drive", "expert", roundTripHeldOut)
 	rets, got := playMean(t, "drive", policy, roundTripHeldOut)
 	share := got / expert
@@ -113,7 +132,7 @@ func TestRefTorchRoundTrip(t *testing.T) {
 	}
 
 	// The same model over TCP: the same first episode, to the bit.
-	srv := exec.Command(py, serve, "--model", m2, "--listen", "127.0.0.1:0", "--sessions", "1")
+	srv := exec.Command(py, serve, "--model", model, "--listen", "127.0.0.1:0", "--sessions", "1")
 	srv.Env = append(os.Environ(), "OMP_NUM_THREADS=1")
 	stderr, err := srv.StderrPipe()
 	if err != nil {
