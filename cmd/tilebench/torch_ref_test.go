@@ -29,12 +29,12 @@ const (
 // expert's demonstrations, then two DAgger rounds (the last model drives,
 // the expert labels, and training goes on over everything recorded so
 // far). Each runs a fixed number of epochs, so that the result does not
-// depend on the machine's load, capped in time (165 s in all) to stay
+// depend on the machine's load, capped in time (150 s in all) to stay
 // within 3 minutes with start-up on a busy machine. Measured without the
 // caps binding: 99.7% of the expert after the third round (934.4 against
 // 936.8 on 10 held-out seeds), 90% after the second; the bar leaves room
 // for capped rounds on a loaded machine and for other PyTorch builds.
-var roundTripRounds = []struct{ epochs, capSec int }{{4, 65}, {3, 50}, {3, 50}}
+var roundTripRounds = []struct{ epochs, capSec int }{{4, 60}, {3, 45}, {3, 45}}
 
 // playMean plays --episodes n from the first held-out seed and returns
 // the episodes' returns and their mean.
