@@ -80,8 +80,9 @@ func (c *Car) Centre() Vec {
 	return Vec{c.Pos.X + h*math.Cos(c.Heading), c.Pos.Y + h*math.Sin(c.Heading)}
 }
 
-// Advance moves the car one time step dt with steer ∈ [−1,1], throttle
-// and brake ∈ [0,1] (already clamped by the caller). It returns the
+// Advance moves the car one time step dt with steer and pedal ∈ [−1,1]
+// (already clamped by the caller): a positive pedal is that fraction of
+// MaxAccel, a negative one that fraction of MaxBrake. It returns the
 // distance driven.
 //
 // The acceleration is held constant over the step and integrated
@@ -89,7 +90,8 @@ func (c *Car) Centre() Vec {
 // path over the step is the exact circular arc of curvature tan δ / L
 // (capped by Grip) for the distance driven, so a steady turn traces a
 // circle of radius L / tan δ with no integration drift.
-func (c *Car) Advance(steer, throttle, brake, dt float64) float64 {
+func (c *Car) Advance(steer, pedal, dt float64) float64 {
+	throttle, brake := math.Max(pedal, 0), math.Max(-pedal, 0)
 	p := &c.P
 	delta := steer * p.MaxSteer
 	c.Steer = delta

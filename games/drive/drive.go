@@ -17,30 +17,45 @@ const Name = "drive"
 const (
 	// DT is the fixed time step in seconds.
 	DT = 0.05
-	// MaxSteps is the step limit of one episode.
-	MaxSteps = 1000
-	// LapReward is the reward for one full lap of centreline progress.
-	LapReward = 1000.0
-	// StepCost is subtracted from the reward at every step.
-	StepCost = 0.1
-	// OffRoadLimit is how many consecutive steps the car's centre may be
-	// off the road before the episode fails (2 s).
-	OffRoadLimit = 40
-	// ViewMetres is the width of ground the frame shows.
-	ViewMetres = 48.0
-	// CarRow is where the car's centre sits in the frame, as a fraction
-	// of the height from the top (below the centre: more road ahead).
-	CarRow = 0.68
-	// DefaultSize is the default frame width and height in pixels.
-	DefaultSize = 96
+	// TimeLimit is the length of an episode in simulated seconds; an
+	// episode that neither finishes its lap nor fails ends then.
+	TimeLimit = 45.0
+	// OffRoadPenalty is subtracted from the reward for every simulated
+	// second the car's centre spends off the road (metres of progress per
+	// second).
+	OffRoadPenalty = 4.0
+	// OffRoadAllowance is how many simulated seconds in all, over the
+	// episode, the car's centre may spend off the road; beyond it the
+	// episode fails.
+	OffRoadAllowance = 3.0
+	// ViewMetres is the width of ground the frame shows, in metres.
+	ViewMetres = 64.0
+	// ViewLead is how far ahead of the car's centre the frame's centre
+	// lies, in metres: with it the car's nose (2.1 m ahead of its centre)
+	// sits about a metre short of the frame's centre, so the car is drawn
+	// in the middle tokens of every patch grid, and the ground ahead
+	// (23 m) outweighs the ground behind (17 m) by the distance the car
+	// covers in a quarter of a second at cruising speed… twice over.
+	ViewLead = 3.0
+	// DefaultWidth and DefaultHeight are the default frame size in
+	// pixels: a landscape frame, since on a circuit of bends the road
+	// swings sideways out of a view that turns with the car sooner than
+	// it runs out ahead.
+	DefaultWidth, DefaultHeight = 112, 80
 )
+
+// MaxSteps is the step limit of one episode: TimeLimit / DT.
+const MaxSteps = int(TimeLimit / DT)
+
+// offRoadSteps is OffRoadAllowance in steps.
+const offRoadSteps = int(OffRoadAllowance / DT)
 
 // Config is a fully resolved game setup. Variations are named edits of
 // the default Config.
 type Config struct {
 	// Palette is the look.
 	Palette Palette
-	// Track shapes the circuit (its Width is the road width).
+	// Track shapes the circuit (its Width is the mean road width).
 	Track TrackConfig
 	// Car holds the car's constants.
 	Car CarParams
@@ -51,7 +66,7 @@ type Config struct {
 	Noise float64
 	// EdgeWidth is the width of the edge bands in metres (default 0.8).
 	EdgeWidth float64
-	// Width and Height are the frame size (default 96×96).
+	// Width and Height are the frame size (default 112×80).
 	Width, Height int
 }
 
@@ -61,23 +76,23 @@ func vary(name, doc, group string, edit func(*Config)) games.Variation[Config] {
 
 // Variations are the named edits of DefaultConfig.
 var Variations = games.VariationSet[Config]{
-	vary("glacier", "held-out palette: slate ground, lavender road, coral edges", "palette", func(c *Config) { c.Palette = Palettes[1] }),
-	vary("saffron", "held-out palette: ochre ground, deep teal road, cream edges", "palette", func(c *Config) { c.Palette = Palettes[2] }),
-	vary("ember", "held-out palette: indigo ground, rust road, gold edges", "palette", func(c *Config) { c.Palette = Palettes[3] }),
-	vary("narrow", "road 6.5 m wide instead of 9 m", "road", func(c *Config) { c.Track.Width = 6.5 }),
-	vary("broad", "road 12 m wide instead of 9 m", "road", func(c *Config) { c.Track.Width = 12 }),
-	vary("twisty", "wave-shaped circuits: 16 points bent into ovals, beans and peanuts, bends both ways", "circuit", func(c *Config) {
-		c.Track.Points, c.Track.Shape, c.Track.RadiusJitter, c.Track.AngleJitter, c.Track.SamplesPerSegment = 16, 0.45, 0.03, 0.2, 32
+	vary("tarn", "held-out palette: slate ground, lavender road, coral edges", "palette", func(c *Config) { c.Palette = Palettes[1] }),
+	vary("ochre", "held-out palette: ochre ground, deep teal road, cream edges", "palette", func(c *Config) { c.Palette = Palettes[2] }),
+	vary("cinder", "held-out palette: indigo ground, rust road, gold edges", "palette", func(c *Config) { c.Palette = Palettes[3] }),
+	vary("narrow", "road 6.5 m wide on average instead of 9 m", "road", func(c *Config) { c.Track.Width = 6.5 }),
+	vary("broad", "road 12 m wide on average instead of 9 m", "road", func(c *Config) { c.Track.Width = 12 }),
+	vary("twisty", "harder circuits: 7 or 8 bends, two of them turning the other way, radii 16–28 m, shorter straights, the width swinging ±30%", "circuit", func(c *Config) {
+		c.Track.Bends, c.Track.Reverse, c.Track.MaxRadius, c.Track.WidthSwing, c.Track.MaxStraight = 7, 2, 28, 0.3, 24
 	}),
 	vary("clutter", "160 distractor shapes scattered on the terrain", "shapes", func(c *Config) { c.Shapes = 160 }),
 	vary("grain", "textured terrain (value noise)", "texture", func(c *Config) { c.Noise = 1 }),
-	vary("small", "64×64 frames", "frame size", func(c *Config) { c.Width, c.Height = 64, 64 }),
-	vary("large", "128×128 frames", "frame size", func(c *Config) { c.Width, c.Height = 128, 128 }),
+	vary("small", "64×48 frames", "frame size", func(c *Config) { c.Width, c.Height = 64, 48 }),
+	vary("large", "160×112 frames", "frame size", func(c *Config) { c.Width, c.Height = 160, 112 }),
 }
 
 // DefaultConfig is the training setup.
 func DefaultConfig() Config {
-	return Config{Palette: Palettes[0], EdgeWidth: 0.8, Width: DefaultSize, Height: DefaultSize}
+	return Config{Palette: Palettes[0], EdgeWidth: 0.8, Width: DefaultWidth, Height: DefaultHeight}
 }
 
 // ParseVariation applies a variation string (see Variations; names
@@ -102,13 +117,14 @@ type Game struct {
 	lateral   float64 // signed offset of the car's centre from the centreline
 	progress  float64 // metres of progress this episode
 	steps     int
-	offSteps  int
+	offSteps  int // steps off the road this episode
 	done      bool
 	reason    games.EndReason
 	sprite    []spritePx
 	expert    *Expert
 	frameView viewGeom
 	trackErr  error
+	episode   uint64 // counts Resets, from 1
 }
 
 type spritePx struct {
@@ -147,23 +163,30 @@ func NewConfig(cfg Config, variation string) (*Game, error) {
 	if cfg.Width < 16 || cfg.Height < 16 || cfg.Width > 256 || cfg.Height > 256 {
 		return nil, fmt.Errorf("drive: frame %dx%d: want 16..256 pixels a side", cfg.Width, cfg.Height)
 	}
-	if cfg.Noise < 0 || cfg.Noise > 1 || cfg.Shapes < 0 || cfg.EdgeWidth < 0 {
+	if cfg.Noise < 0 || cfg.Noise > 1 || cfg.Shapes < 0 || cfg.Shapes > 2000 || cfg.EdgeWidth < 0 || cfg.EdgeWidth > 4 {
 		return nil, fmt.Errorf("drive: noise %v, shapes %d, edge %v out of range", cfg.Noise, cfg.Shapes, cfg.EdgeWidth)
 	}
 	cfg.Track = cfg.Track.withDefaults()
+	if err := cfg.Track.check(); err != nil {
+		return nil, fmt.Errorf("drive: %w", err)
+	}
 	cfg.Car = cfg.Car.withDefaults()
-	g := &Game{cfg: cfg, variation: variation}
+	g := &Game{cfg: cfg, variation: variation, track: &Track{}}
 	g.spec = games.Spec{
 		Name: Name, Variation: variation, Width: cfg.Width, Height: cfg.Height,
 		Action: games.ActionSpace{
 			Kind:  games.Continuous,
-			Names: []string{"steer", "throttle", "brake"},
-			Low:   []float64{-1, 0, 0},
-			High:  []float64{1, 1, 1},
+			Names: []string{"steering", "pedal"},
+			Low:   []float64{-1, -1},
+			High:  []float64{1, 1},
 		},
 		MaxSteps: MaxSteps,
+		Floors:   floors,
 	}
-	g.frameView = viewGeom{ppm: float64(cfg.Width) / ViewMetres, ax: float64(cfg.Width) / 2, ay: float64(cfg.Height) * CarRow}
+	ppm := float64(cfg.Width) / ViewMetres
+	g.frameView = viewGeom{ppm: ppm, ax: float64(cfg.Width) / 2, ay: float64(cfg.Height)/2 + ViewLead*ppm}
+	look := worldLook{pal: cfg.Palette, shapes: cfg.Shapes, noise: cfg.Noise, edgeWidth: cfg.EdgeWidth}
+	g.world = newWorld(look, ppm, cfg.Track.Extent)
 	g.buildSprite()
 	g.expert = &Expert{g: g}
 	g.Reset(games.HeldOut(0))
@@ -179,7 +202,8 @@ func (g *Game) Spec() games.Spec { return g.spec }
 // Config returns the resolved configuration.
 func (g *Game) Config() Config { return g.cfg }
 
-// Track returns the current episode's circuit.
+// Track returns the current episode's circuit. It is reused by the next
+// Reset.
 func (g *Game) Track() *Track { return g.track }
 
 // Car returns the car's current state.
@@ -193,39 +217,29 @@ func (g *Game) Progress() float64 { return g.progress }
 func (g *Game) Lateral() float64 { return g.lateral }
 
 // OnRoad reports whether the car's centre is on the road.
-func (g *Game) OnRoad() bool { return math.Abs(g.lateral) <= g.track.Width/2 }
+func (g *Game) OnRoad() bool { return math.Abs(g.lateral) <= g.track.Half[g.idx] }
 
-// Reset starts the episode for seed: generates the circuit, rasterises the
-// world image once and puts the car at rest on the start band, facing
-// along the road.
+// Reset starts the episode for seed: generates the circuit, clears the
+// last episode's road from the world image (the new road is drawn when a
+// frame first needs it) and puts the car at rest on the start line,
+// facing along the road.
 func (g *Game) Reset(seed uint64) {
-	tr, err := NewTrack(seed, g.cfg.Track)
-	if err != nil {
+	if err := g.track.Generate(seed, g.cfg.Track); err != nil {
 		// Only reachable with extreme configs; NewConfig reports it.
 		g.trackErr = err
-		tr = fallbackTrack(g.cfg.Track)
+		g.track.fallback(g.cfg.Track)
 	}
-	g.track = tr
-	look := worldLook{pal: g.cfg.Palette, shapes: g.cfg.Shapes, noise: g.cfg.Noise, edgeWidth: g.cfg.EdgeWidth}
-	g.world = rasterise(tr, look, g.frameView.ppm, seed)
+	tr := g.track
+	g.episode++
+	g.world.reset(tr, seed)
 	g.car = NewCar(g.cfg.Car)
 	g.car.Heading = tr.Heading()
 	h := g.car.P.Wheelbase / 2
-	g.car.Pos = Vec{tr.Pts[0].X - h*math.Cos(g.car.Heading), tr.Pts[0].Y - h*math.Sin(g.car.Heading)}
+	g.car.Pos = Vec{tr.Start.X - h*math.Cos(g.car.Heading), tr.Start.Y - h*math.Sin(g.car.Heading)}
 	g.idx, g.s, g.lateral = tr.Project(g.car.Centre(), 0, 0)
 	g.progress = 0
 	g.steps, g.offSteps = 0, 0
 	g.done, g.reason = false, games.NotEnded
-}
-
-// fallbackTrack is a plain circle, used only if generation failed.
-func fallbackTrack(cfg TrackConfig) *Track {
-	ctrl := make([]Vec, cfg.Points)
-	for k := range ctrl {
-		a := 2 * math.Pi * float64(k) / float64(cfg.Points)
-		ctrl[k] = Vec{cfg.Radius * math.Cos(a), cfg.Radius * math.Sin(a)}
-	}
-	return buildTrack(ctrl, cfg.Width, cfg.SamplesPerSegment)
 }
 
 func clamp(v, lo, hi float64) float64 {
@@ -238,9 +252,12 @@ func clamp(v, lo, hi float64) float64 {
 	return v
 }
 
-// Step applies steer, throttle, brake (clamped to their bounds) for one
-// time step of DT seconds. After the episode has ended it changes nothing
-// and reports the end again with zero reward.
+// Step applies steering and pedal (clamped to [−1,1]; a positive pedal
+// drives, a negative one brakes) for one time step of DT seconds. The
+// reward is the signed centreline progress in metres, less
+// OffRoadPenalty·DT if the car's centre is off the road after the step.
+// After the episode has ended Step changes nothing and reports the end
+// again with zero reward.
 func (g *Game) Step(action []float64) (games.Step, error) {
 	if err := g.spec.Action.Check(action); err != nil {
 		return games.Step{}, fmt.Errorf("drive: %w", err)
@@ -249,9 +266,8 @@ func (g *Game) Step(action []float64) (games.Step, error) {
 		return games.Step{Done: true, Reason: g.reason}, nil
 	}
 	steer := clamp(action[0], -1, 1)
-	throttle := clamp(action[1], 0, 1)
-	brake := clamp(action[2], 0, 1)
-	g.car.Advance(steer, throttle, brake, DT)
+	pedal := clamp(action[1], -1, 1)
+	g.car.Advance(steer, pedal, DT)
 	idx, s, lat := g.track.Project(g.car.Centre(), g.idx, 24)
 	ds := s - g.s
 	L := g.track.Length
@@ -263,16 +279,15 @@ func (g *Game) Step(action []float64) (games.Step, error) {
 	g.idx, g.s, g.lateral = idx, s, lat
 	g.progress += ds
 	g.steps++
-	reward := ds*LapReward/L - StepCost
-	if math.Abs(lat) > g.track.Width/2 {
+	reward := ds
+	if math.Abs(lat) > g.track.Half[idx] {
 		g.offSteps++
-	} else {
-		g.offSteps = 0
+		reward -= OffRoadPenalty * DT
 	}
 	switch {
 	case g.progress >= L:
 		g.done, g.reason = true, games.Completed
-	case g.offSteps > OffRoadLimit:
+	case g.offSteps > offRoadSteps:
 		g.done, g.reason = true, games.Failed
 	case g.steps >= MaxSteps:
 		g.done, g.reason = true, games.TimeUp
@@ -280,9 +295,11 @@ func (g *Game) Step(action []float64) (games.Step, error) {
 	return games.Step{Reward: reward, Done: g.done, Reason: g.reason}, nil
 }
 
-// Render draws the heading-up view around the car into dst by sampling the
-// world image (nearest neighbour, one fixed-point rotation per frame), then
-// the car sprite. It does not allocate. A dst of another size than the
+// Render draws the view that turns with the car, its centre ViewLead
+// metres ahead of the car, into dst by sampling the world image (nearest
+// neighbour, one fixed-point rotation per frame), then the car sprite.
+// Stretches of road the frame reaches for the first time this episode
+// are drawn into the world image first. It does not allocate. A dst of another size than the
 // game's frame is left untouched.
 func (g *Game) Render(dst *image.RGBA) {
 	W, H := g.cfg.Width, g.cfg.Height
@@ -312,6 +329,16 @@ func (g *Game) Render(dst *image.RGBA) {
 		fillFrame(dst, wd.border)
 		g.drawSprite(dst)
 		return
+	}
+	// The frame's box in world pixels: draw the road there if need be.
+	{
+		uw, vh := float64(W)*duc, float64(W)*dvc
+		ur, vr := float64(H)*dur, float64(H)*dvr
+		lu := min(u0, u0+uw, u0+ur, u0+uw+ur)
+		hu := max(u0, u0+uw, u0+ur, u0+uw+ur)
+		lv := min(v0, v0+vh, v0+vr, v0+vh+vr)
+		hv := max(v0, v0+vh, v0+vr, v0+vh+vr)
+		wd.ensure(image.Rect(int(lu)-2, int(lv)-2, int(hu)+2, int(hv)+2), g.track)
 	}
 	// Sample at pixel centres: the +0.5 world pixel offset is implicit in
 	// flooring the continuous coordinate.

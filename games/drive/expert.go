@@ -17,8 +17,8 @@ type ExpertParams struct {
 	PlanBrake float64
 	// TopSpeed caps the planned speed, m/s. Default 17.
 	TopSpeed float64
-	// SpeedGain is the proportional gain from speed error (m/s) to
-	// throttle or brake. Default 0.6.
+	// SpeedGain is the proportional gain from speed error (m/s) to the
+	// pedal. Default 0.6.
 	SpeedGain float64
 }
 
@@ -40,10 +40,10 @@ func (p ExpertParams) withDefaults() ExpertParams {
 // look-ahead distance ahead, and a speed plan from the curvature ahead.
 type Expert struct {
 	// P tunes the expert; zero fields take their defaults.
-	P     ExpertParams
-	g     *Game
-	track *Track
-	plan  []float64 // planned speed at each centreline sample
+	P       ExpertParams
+	g       *Game
+	episode uint64    // the game's episode the plan is for
+	plan    []float64 // planned speed at each centreline sample
 }
 
 // PurePursuitCurvature returns the curvature κ = 2 sin α / l_d of the
@@ -93,12 +93,12 @@ func SpeedPlan(tr *Track, latAccel, brake, top float64, dst []float64) []float64
 	return dst
 }
 
-// Act writes steer, throttle and brake for the current state.
+// Act writes steering and pedal for the current state.
 func (e *Expert) Act(dst []float64) {
 	g := e.g
 	p := e.P.withDefaults()
-	if e.track != g.track {
-		e.track = g.track
+	if e.episode != g.episode {
+		e.episode = g.episode
 		e.plan = SpeedPlan(g.track, p.LatAccel, p.PlanBrake, p.TopSpeed, e.plan)
 	}
 	car := &g.car
@@ -113,7 +113,5 @@ func (e *Expert) Act(dst []float64) {
 	if n := len(e.plan); n > 0 {
 		target = math.Min(target, e.plan[(g.idx+1)%n])
 	}
-	dv := target - v
-	dst[1] = clamp(p.SpeedGain*dv, 0, 1)
-	dst[2] = clamp(-p.SpeedGain*dv, 0, 1)
+	dst[1] = clamp(p.SpeedGain*(target-v), -1, 1)
 }

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"math/rand/v2"
 
 	"tilebench/internal/seeds"
 )
@@ -18,75 +19,114 @@ func (a Vec) dot(b Vec) float64   { return a.X*b.X + a.Y*b.Y }
 func (a Vec) cross(b Vec) float64 { return a.X*b.Y - a.Y*b.X }
 func (a Vec) norm() float64       { return math.Hypot(a.X, a.Y) }
 
+func unit(h float64) Vec { return Vec{math.Cos(h), math.Sin(h)} }
+
 // TrackConfig shapes the generated circuits. The zero value gives the
 // default circuit family.
 type TrackConfig struct {
-	// Points is the number of control points. Default 9.
-	Points int
-	// Radius is the mean distance of the control points from the centre,
-	// in metres. Default 58.
-	Radius float64
-	// Shape, when positive, bends the circle by two slow waves (2 and 3
-	// per turn, each of seeded phase and of seeded amplitude up to Shape
-	// relative to Radius) into ovals, beans, peanuts and rounded
-	// triangles; RadiusJitter then adds to that. Default 0 (no waves).
-	Shape float64
-	// RadiusJitter is the largest relative change of each point's radius
-	// (0.25 puts radii in [0.75, 1.25]·Radius). Default 0.25.
-	RadiusJitter float64
-	// AngleJitter is the largest shift of each point's angle, as a
-	// fraction of the even spacing 2π/Points. Default 0.25.
-	AngleJitter float64
-	// Width is the road width in metres. Default 9.
+	// Bends is the number of constant-radius bends in a circuit; each
+	// circuit draws Bends or Bends+1. Default 5.
+	Bends int
+	// Reverse is the number of those bends that turn the other way
+	// (right-handers on an anticlockwise circuit). Default 0.
+	Reverse int
+	// MinRadius and MaxRadius bound the bends' centreline radii in metres.
+	// Defaults 16 (about three times the car's smallest turning radius at
+	// full lock) and 42.
+	MinRadius, MaxRadius float64
+	// MinStraight and MaxStraight bound the drawn straights in metres; the
+	// two straights solved for to close the circuit may reach twice
+	// MaxStraight or 80 m, whichever is longer. Defaults 6 and 42.
+	MinStraight, MaxStraight float64
+	// Width is the mean road width in metres. Default 9.
 	Width float64
-	// MinRadius is the tightest centreline radius of curvature accepted,
-	// in metres; tighter circuits are regenerated. Default 14 (about three
-	// times the car's smallest turning radius at full lock).
-	MinRadius float64
-	// SamplesPerSegment is how finely each spline segment is sampled for
-	// the centreline polyline. Default 48.
-	SamplesPerSegment int
+	// WidthSwing is the largest relative change of the road width round
+	// the circuit (0.2 puts it in [0.8, 1.2]·Width). Default 0.18.
+	WidthSwing float64
+	// Extent is the largest side of the circuit's bounding box in metres;
+	// larger circuits are drawn again. Default 190.
+	Extent float64
+	// Spacing is the distance between centreline samples in metres.
+	// Default 1.
+	Spacing float64
 }
 
 func (c TrackConfig) withDefaults() TrackConfig {
-	for _, f := range []struct {
-		v *int
-		d int
-	}{{&c.Points, 9}, {&c.SamplesPerSegment, 48}} {
-		if *f.v == 0 {
-			*f.v = f.d
-		}
+	if c.Bends == 0 {
+		c.Bends = 5
 	}
-	orDefault(&c.Radius, 58, false)
-	orDefault(&c.RadiusJitter, 0.25, false)
-	orDefault(&c.AngleJitter, 0.25, false)
+	orDefault(&c.MinRadius, 16, false)
+	orDefault(&c.MaxRadius, 42, false)
+	orDefault(&c.MinStraight, 6, false)
+	orDefault(&c.MaxStraight, 42, false)
 	orDefault(&c.Width, 9, false)
-	orDefault(&c.MinRadius, 14, false)
+	orDefault(&c.WidthSwing, 0.18, false)
+	orDefault(&c.Extent, 190, false)
+	orDefault(&c.Spacing, 1, false)
 	return c
 }
 
-// Track is a closed circuit: the Catmull–Rom spline through Control,
-// sampled into a centreline polyline with arc length and curvature at each
-// sample.
+func (c TrackConfig) check() error {
+	switch {
+	case c.Bends < 3 || c.Bends > 16:
+		return fmt.Errorf("track config: %d bends, want 3..16", c.Bends)
+	case c.Reverse < 0 || 2*c.Reverse >= c.Bends:
+		return fmt.Errorf("track config: %d reverse bends of %d, want fewer than half", c.Reverse, c.Bends)
+	case c.MinRadius <= 0 || c.MaxRadius < c.MinRadius:
+		return fmt.Errorf("track config: radii %v..%v m", c.MinRadius, c.MaxRadius)
+	case c.MinStraight < 0 || c.MaxStraight < c.MinStraight:
+		return fmt.Errorf("track config: straights %v..%v m", c.MinStraight, c.MaxStraight)
+	case c.Width <= 0 || c.WidthSwing < 0 || c.WidthSwing >= 0.5:
+		return fmt.Errorf("track config: width %v m, swing %v", c.Width, c.WidthSwing)
+	case c.Spacing <= 0 || c.Spacing > 4 || c.Extent <= 0:
+		return fmt.Errorf("track config: spacing %v m, extent %v m", c.Spacing, c.Extent)
+	}
+	return nil
+}
+
+// Piece is one stretch of a circuit: a straight (Kappa 0) or a bend of
+// constant curvature Kappa (1/m, positive turning left), Length metres
+// long along the centreline.
+type Piece struct {
+	Length, Kappa float64
+}
+
+// Track is a closed circuit of straights and constant-radius bends,
+// sampled into a centreline polyline with arc length, curvature and road
+// half-width at each sample.
 type Track struct {
-	// Control holds the control points, in order around the circuit.
-	Control []Vec
-	// Width is the road width in metres.
+	// Pieces are the straights and bends in order from the start line.
+	Pieces []Piece
+	// Start and StartHeading place the start line (the beginning of
+	// Pieces[0]).
+	Start        Vec
+	StartHeading float64
+	// Width is the mean road width in metres.
 	Width float64
-	// Pts are the centreline samples; Pts[k*SamplesPerSegment] is
-	// Control[k]. The polyline closes from the last sample to Pts[0].
+	// Pts are the centreline samples, the first on the start line; the
+	// polyline closes from the last sample to Pts[0].
 	Pts []Vec
-	// S[i] is the arc length of the polyline from Pts[0] to Pts[i].
+	// S[i] is the arc length from the start line to Pts[i].
 	S []float64
-	// Kappa[i] is the signed curvature of the spline at Pts[i] (1/m,
+	// Kappa[i] is the signed curvature of the centreline at Pts[i] (1/m,
 	// positive turning left).
 	Kappa []float64
-	// Length is the closed polyline's length in metres.
+	// Half[i] is half the road width at Pts[i], in metres.
+	Half []float64
+	// Length is the centreline's length in metres.
 	Length float64
-	// Attempts is how many circuits were generated before one passed the
+	// Min and Max bound the centreline.
+	Min, Max Vec
+	// Attempts is how many circuits were drawn before one passed the
 	// checks (1 if the first did).
 	Attempts int
-	per      int
+	// scratch for the checks and for the width profile.
+	coarse  []Vec
+	coarseS []float64
+	swing   [2]float64 // relative amplitude and phase of the width wave
+	waves   float64    // width waves per lap
+	pcg     rand.PCG   // the attempts' generator, reseeded (no allocation)
+	rng     *rand.Rand
 }
 
 // ErrNoTrack is returned when no acceptable circuit was found within the
@@ -96,118 +136,250 @@ var ErrNoTrack = errors.New("no acceptable circuit")
 // maxAttempts bounds the regeneration loop.
 const maxAttempts = 400
 
-// NewTrack generates the circuit for seed. Each attempt draws its control
-// points from seeds.DeriveSeed(seed, StreamKey("circuit"), attempt);
-// attempts that self-intersect, come too close to themselves or bend
-// tighter than MinRadius are thrown away.
+// NewTrack generates the circuit for seed into a new Track.
 func NewTrack(seed uint64, cfg TrackConfig) (*Track, error) {
+	tr := &Track{}
+	return tr, tr.Generate(seed, cfg)
+}
+
+// Generate draws the circuit for seed into tr, reusing its buffers. Each
+// attempt draws from seeds.DeriveSeed(seed, StreamKey("circuit"),
+// attempt): Bends (or Bends+1) bends of radius in [MinRadius, MaxRadius]
+// whose turning angles add up to one full turn, each followed by a
+// straight; all straights but two are drawn in [MinStraight,
+// MaxStraight], and the two whose directions are furthest from parallel
+// are solved for so that the circuit closes. Attempts whose solved
+// straights come out too short or too long, that come too close to
+// themselves, or whose box exceeds Extent are thrown away.
+func (tr *Track) Generate(seed uint64, cfg TrackConfig) error {
 	cfg = cfg.withDefaults()
-	if cfg.Points < 4 || cfg.Width <= 0 || cfg.Radius <= 0 || cfg.SamplesPerSegment < 2 {
-		return nil, fmt.Errorf("track config %+v: need ≥4 points, positive width, radius and sampling", cfg)
+	if err := cfg.check(); err != nil {
+		return err
+	}
+	if tr.rng == nil {
+		tr.rng = rand.New(&tr.pcg)
 	}
 	for a := 0; a < maxAttempts; a++ {
-		rng := seeds.NewRand(seeds.DeriveSeed(seed, seeds.StreamKey("circuit"), uint64(a)))
-		var a2, p2, a3, p3 float64
-		if cfg.Shape > 0 { // (drawn only then: the plain family's stream is unchanged)
-			a2, p2 = cfg.Shape*rng.Float64(), 2*math.Pi*rng.Float64()
-			a3, p3 = cfg.Shape*rng.Float64(), 2*math.Pi*rng.Float64()
+		// The stream of seeds.NewRand(DeriveSeed(seed, "circuit", a)).
+		s := seeds.DeriveSeed(seed, seeds.StreamKey("circuit"), uint64(a))
+		tr.pcg.Seed(seeds.DeriveSeed(s, 1), seeds.DeriveSeed(s, 2))
+		if !tr.draw(tr.rng, cfg) {
+			continue
 		}
-		ctrl := make([]Vec, cfg.Points)
-		step := 2 * math.Pi / float64(cfg.Points)
-		for k := range ctrl {
-			ang := float64(k)*step + (2*rng.Float64()-1)*cfg.AngleJitter*step
-			wave := 0.0
-			if cfg.Shape > 0 {
-				wave = a2*math.Cos(2*ang+p2) + a3*math.Cos(3*ang+p3)
-			}
-			r := cfg.Radius * (1 + wave + (2*rng.Float64()-1)*cfg.RadiusJitter)
-			ctrl[k] = Vec{r * math.Cos(ang), r * math.Sin(ang)}
-		}
-		t := buildTrack(ctrl, cfg.Width, cfg.SamplesPerSegment)
-		t.Attempts = a + 1
-		if t.acceptable(cfg.MinRadius) {
-			return t, nil
+		tr.sample(cfg)
+		if tr.acceptable(cfg) {
+			tr.Attempts = a + 1
+			return nil
 		}
 	}
-	return nil, fmt.Errorf("seed %d: %w after %d attempts", seed, ErrNoTrack, maxAttempts)
+	return fmt.Errorf("seed %d: %w after %d attempts", seed, ErrNoTrack, maxAttempts)
 }
 
-// CatmullRom evaluates the uniform Catmull–Rom segment between p1 and p2
-// (Catmull & Rom 1974) at t ∈ [0,1], with its first and second
-// derivatives with respect to t.
-func CatmullRom(p0, p1, p2, p3 Vec, t float64) (pos, d1, d2 Vec) {
-	// P(t) = ½[2p1 + (−p0+p2)t + (2p0−5p1+4p2−p3)t² + (−p0+3p1−3p2+p3)t³]
-	a := p1.scale(2)
-	b := p2.sub(p0)
-	c := p0.scale(2).sub(p1.scale(5)).add(p2.scale(4)).sub(p3)
-	d := p1.scale(3).sub(p0).sub(p2.scale(3)).add(p3)
-	t2, t3 := t*t, t*t*t
-	pos = a.add(b.scale(t)).add(c.scale(t2)).add(d.scale(t3)).scale(0.5)
-	d1 = b.add(c.scale(2 * t)).add(d.scale(3 * t2)).scale(0.5)
-	d2 = c.scale(2).add(d.scale(6 * t)).scale(0.5)
-	return
-}
-
-// Eval evaluates the closed spline of tr at segment k (from Control[k] to
-// Control[k+1]) and t ∈ [0,1].
-func (tr *Track) Eval(k int, t float64) (pos, d1, d2 Vec) {
-	n := len(tr.Control)
-	at := func(i int) Vec { return tr.Control[((i%n)+n)%n] }
-	return CatmullRom(at(k-1), at(k), at(k+1), at(k+2), t)
-}
-
-func buildTrack(ctrl []Vec, width float64, per int) *Track {
-	n := len(ctrl)
-	tr := &Track{Control: ctrl, Width: width, per: per}
-	tr.Pts = make([]Vec, 0, n*per)
-	tr.Kappa = make([]float64, 0, n*per)
-	for k := 0; k < n; k++ {
-		for j := 0; j < per; j++ {
-			p, d1, d2 := tr.Eval(k, float64(j)/float64(per))
-			if j == 0 {
-				p = ctrl[k] // exact, not just to rounding
-			}
-			sp := d1.norm()
-			kap := 0.0
-			if sp > 0 {
-				kap = d1.cross(d2) / (sp * sp * sp)
-			}
-			tr.Pts = append(tr.Pts, p)
-			tr.Kappa = append(tr.Kappa, kap)
+// draw fills tr.Pieces with one closed layout, or reports false if the
+// closing straights cannot be solved within bounds.
+func (tr *Track) draw(rng *rand.Rand, cfg TrackConfig) bool {
+	rnd := rng.Float64
+	m := cfg.Bends
+	if rnd() < 0.5 {
+		m++
+	}
+	rev := cfg.Reverse
+	// Turning angles: weights for the forward bends, reverse bends of
+	// 35°–80°, scaled so the forward ones make up one turn plus what the
+	// reverse ones take back.
+	var ang [20]float64
+	var back float64
+	revAt := -1
+	if rev > 0 {
+		revAt = int(rnd() * float64(m))
+	}
+	var wsum float64
+	for j := 0; j < m; j++ {
+		// Reverse bends sit at every other position from revAt.
+		isRev := rev > 0 && (j-revAt+m)%m%2 == 0 && (j-revAt+m)%m/2 < rev
+		if isRev {
+			ang[j] = -(35 + 45*rnd()) * math.Pi / 180
+			back -= ang[j]
+		} else {
+			ang[j] = 0.45 + rnd()
+			wsum += ang[j]
 		}
 	}
-	tr.S = make([]float64, len(tr.Pts))
-	for i := 1; i < len(tr.Pts); i++ {
-		tr.S[i] = tr.S[i-1] + tr.Pts[i].sub(tr.Pts[i-1]).norm()
+	for j := 0; j < m; j++ {
+		if ang[j] > 0 {
+			ang[j] *= (2*math.Pi + back) / wsum
+			if ang[j] > 0.95*math.Pi {
+				return false // tighter than a hairpin
+			}
+		}
 	}
-	tr.Length = tr.S[len(tr.S)-1] + tr.Pts[0].sub(tr.Pts[len(tr.Pts)-1]).norm()
-	return tr
+	// Pieces: straight j then bend j.
+	tr.Pieces = tr.Pieces[:0]
+	h := 0.0
+	var dirs [20]Vec
+	var sum Vec // displacement of everything but the two solved straights
+	var lens [20]float64
+	for j := 0; j < m; j++ {
+		dirs[j] = unit(h)
+		lens[j] = cfg.MinStraight + (cfg.MaxStraight-cfg.MinStraight)*rnd()
+		R := cfg.MinRadius + (cfg.MaxRadius-cfg.MinRadius)*rnd()
+		k := 1 / R
+		if ang[j] < 0 {
+			k = -k
+		}
+		// Chord of the bend: 2R sin(|φ|/2) along h + φ/2.
+		sum = sum.add(unit(h + ang[j]/2).scale(2 * R * math.Sin(math.Abs(ang[j])/2)))
+		tr.Pieces = append(tr.Pieces, Piece{}, Piece{Length: math.Abs(ang[j]) * R, Kappa: k})
+		h += ang[j]
+	}
+	// Solve two straights so that the circuit closes:
+	// L_a·u_a + L_b·u_b = −(everything else). Of all pairs, take the one
+	// whose shorter solved straight is longest.
+	for j := 0; j < m; j++ {
+		sum = sum.add(dirs[j].scale(lens[j]))
+	}
+	ba, bb, la, lb := -1, -1, 0.0, 0.0
+	longest := max(2*cfg.MaxStraight, 80)
+	for i := 0; i < m; i++ {
+		for j := i + 1; j < m; j++ {
+			det := dirs[i].cross(dirs[j])
+			if math.Abs(det) < 0.3 {
+				continue
+			}
+			rhs := sum.sub(dirs[i].scale(lens[i])).sub(dirs[j].scale(lens[j])).scale(-1)
+			li, lj := rhs.cross(dirs[j])/det, dirs[i].cross(rhs)/det
+			if li > longest || lj > longest {
+				continue
+			}
+			if ba < 0 || min(li, lj) > min(la, lb) {
+				ba, bb, la, lb = i, j, li, lj
+			}
+		}
+	}
+	if ba < 0 || la < cfg.MinStraight || lb < cfg.MinStraight {
+		return false
+	}
+	lens[ba], lens[bb] = la, lb
+	// The start line lies on the first straight, which must be long
+	// enough to start on.
+	if lens[0] < 12 {
+		return false
+	}
+	for j := 0; j < m; j++ {
+		tr.Pieces[2*j].Length = lens[j]
+	}
+	tr.Start, tr.StartHeading = Vec{}, 0
+	tr.Width = cfg.Width
+	tr.waves = float64(2 + int(2*rnd()))
+	tr.swing = [2]float64{cfg.WidthSwing * (0.5 + 0.5*rnd()), 2 * math.Pi * rnd()}
+	return true
 }
 
-// acceptable reports whether the circuit has no self-intersection, keeps
-// non-neighbouring stretches of road apart, and bends no tighter than
-// minRadius.
-func (tr *Track) acceptable(minRadius float64) bool {
+// sample fills the centreline samples from the pieces.
+func (tr *Track) sample(cfg TrackConfig) {
+	var total float64
+	for _, pc := range tr.Pieces {
+		total += pc.Length
+	}
+	tr.Length = total
+	tr.Pts, tr.S, tr.Kappa, tr.Half = tr.Pts[:0], tr.S[:0], tr.Kappa[:0], tr.Half[:0]
+	p, h, s := tr.Start, tr.StartHeading, 0.0
+	for _, pc := range tr.Pieces {
+		n := int(math.Ceil(pc.Length / cfg.Spacing))
+		if n < 1 {
+			n = 1
+		}
+		ds := pc.Length / float64(n)
+		for j := 0; j < n; j++ {
+			q, _ := advance(p, h, pc.Kappa, float64(j)*ds)
+			tr.Pts = append(tr.Pts, q)
+			tr.S = append(tr.S, s+float64(j)*ds)
+			tr.Kappa = append(tr.Kappa, pc.Kappa)
+		}
+		p, h = advance(p, h, pc.Kappa, pc.Length)
+		s += pc.Length
+	}
+	tr.Min, tr.Max = Vec{math.Inf(1), math.Inf(1)}, Vec{math.Inf(-1), math.Inf(-1)}
+	for i, q := range tr.Pts {
+		tr.Half = append(tr.Half, tr.halfAt(tr.S[i]))
+		tr.Min = Vec{math.Min(tr.Min.X, q.X), math.Min(tr.Min.Y, q.Y)}
+		tr.Max = Vec{math.Max(tr.Max.X, q.X), math.Max(tr.Max.Y, q.Y)}
+	}
+}
+
+// halfAt is half the road width at arc length s: a slow wave of seeded
+// phase round the lap.
+func (tr *Track) halfAt(s float64) float64 {
+	return tr.Width / 2 * (1 + tr.swing[0]*math.Sin(2*math.Pi*tr.waves*s/tr.Length+tr.swing[1]))
+}
+
+// advance moves from p along heading h on a path of constant curvature k
+// for distance d (exact: a straight or a circular arc) and returns the end
+// point and heading.
+func advance(p Vec, h, k, d float64) (Vec, float64) {
+	if math.Abs(k*d) < 1e-12 {
+		return p.add(unit(h).scale(d)), h
+	}
+	nh := h + k*d
+	return Vec{p.X + (math.Sin(nh)-math.Sin(h))/k, p.Y + (math.Cos(h)-math.Cos(nh))/k}, nh
+}
+
+// End is where the pieces end: the position and heading after the last
+// piece. On a closed circuit it is the start line again, one turn round.
+func (tr *Track) End() (Vec, float64) {
+	p, h := tr.Start, tr.StartHeading
+	for _, pc := range tr.Pieces {
+		p, h = advance(p, h, pc.Kappa, pc.Length)
+	}
+	return p, h
+}
+
+// acceptable reports whether the circuit fits in Extent, bends no tighter
+// than MinRadius and keeps stretches of road that are not neighbours
+// along it apart (which also rules out crossings).
+func (tr *Track) acceptable(cfg TrackConfig) bool {
 	for _, k := range tr.Kappa {
-		if math.Abs(k)*minRadius > 1 {
+		if math.Abs(k)*cfg.MinRadius > 1+1e-9 {
 			return false
 		}
 	}
-	if tr.SelfIntersects() {
+	if tr.Max.X-tr.Min.X > cfg.Extent || tr.Max.Y-tr.Min.Y > cfg.Extent {
 		return false
 	}
-	// Stretches further apart along the road than 3 widths must stay 1.6
-	// widths apart in the plane, so two roads never touch.
-	n := len(tr.Pts)
-	gap := 1.6 * tr.Width
-	along := 3 * tr.Width
-	for i := 0; i < n; i += 2 {
-		for j := i + 1; j < n; j += 2 {
-			ds := tr.S[j] - tr.S[i]
+	return tr.clear(cfg.Width * (1 + cfg.WidthSwing))
+}
+
+// clearStep is the sample spacing of the clearance check in metres.
+const clearStep = 3.0
+
+// clear reports whether every two points of the centreline further apart
+// along the road than three road widths (and a bend's worth) are at least
+// 1.6·width + clearStep apart in the plane; the margin covers the coarse
+// spacing of the check, and since the spacing is far below the gap, no
+// two stretches can cross either.
+func (tr *Track) clear(width float64) bool {
+	tr.coarse, tr.coarseS = tr.coarse[:0], tr.coarseS[:0]
+	next := 0.0
+	for i, p := range tr.Pts {
+		if tr.S[i] >= next {
+			tr.coarse = append(tr.coarse, p)
+			tr.coarseS = append(tr.coarseS, tr.S[i])
+			next = tr.S[i] + clearStep
+		}
+	}
+	gap := 1.6*width + clearStep
+	gap2 := gap * gap
+	along := 3*width + math.Pi/2*gap
+	n := len(tr.coarse)
+	for i := 0; i < n; i++ {
+		a := tr.coarse[i]
+		for j := i + 1; j < n; j++ {
+			ds := tr.coarseS[j] - tr.coarseS[i]
 			if ds < along || tr.Length-ds < along {
 				continue
 			}
-			if tr.Pts[i].sub(tr.Pts[j]).norm() < gap {
+			d := a.sub(tr.coarse[j])
+			if d.X*d.X+d.Y*d.Y < gap2 {
 				return false
 			}
 		}
@@ -292,9 +464,9 @@ func (tr *Track) At(s float64, hint int) (Vec, float64, int) {
 	i := ((hint % n) + n) % n
 	// Walk from the hint; s rarely moves more than a few samples.
 	for steps := 0; steps < 2*n; steps++ {
-		next := tr.S[(i+1)%n]
-		if i == n-1 {
-			next = tr.Length
+		next := tr.Length
+		if i < n-1 {
+			next = tr.S[i+1]
 		}
 		if s >= tr.S[i] && s < next {
 			break
@@ -316,7 +488,19 @@ func (tr *Track) At(s float64, hint int) (Vec, float64, int) {
 }
 
 // Heading is the road's direction of travel at the start (radians).
-func (tr *Track) Heading() float64 {
-	d := tr.Pts[1].sub(tr.Pts[0])
-	return math.Atan2(d.Y, d.X)
+func (tr *Track) Heading() float64 { return tr.StartHeading }
+
+// HalfWidth is half the road width at sample i, in metres.
+func (tr *Track) HalfWidth(i int) float64 { return tr.Half[i] }
+
+// fallback makes tr a plain rounded square (four 40 m straights and four
+// quarter turns of 30 m radius), used only if generation failed.
+func (tr *Track) fallback(cfg TrackConfig) {
+	tr.Pieces = tr.Pieces[:0]
+	for k := 0; k < 4; k++ {
+		tr.Pieces = append(tr.Pieces, Piece{Length: 40}, Piece{Length: math.Pi / 2 * 30, Kappa: 1.0 / 30})
+	}
+	tr.Start, tr.StartHeading, tr.Width = Vec{}, 0, cfg.Width
+	tr.waves, tr.swing = 2, [2]float64{}
+	tr.sample(cfg)
 }

@@ -3,10 +3,7 @@ package drive
 import (
 	"image"
 	"image/color"
-	"image/draw"
 	"math"
-
-	"golang.org/x/image/vector"
 
 	"tilebench/internal/seeds"
 )
@@ -29,43 +26,33 @@ type Palette struct {
 
 func rgb(r, g, b uint8) color.RGBA { return color.RGBA{r, g, b, 255} }
 
-// Palettes lists every palette; the first ("ember") is the training
+// Palettes lists every palette; the first ("heather") is the training
 // palette, the others are held out for generalisation tests.
 var Palettes = []Palette{
 	{
-		Name: "ember", Terrain: rgb(58, 34, 66), Texture: rgb(92, 52, 88),
+		Name: "heather", Terrain: rgb(58, 34, 66), Texture: rgb(92, 52, 88),
 		Road: rgb(226, 170, 112), Seam: rgb(240, 196, 146), Edge: rgb(38, 150, 140),
 		Body: rgb(24, 44, 92), Cabin: rgb(150, 214, 236),
 		Shapes: [3]color.RGBA{rgb(196, 80, 92), rgb(112, 76, 148), rgb(214, 130, 70)},
 	},
 	{
-		Name: "glacier", Terrain: rgb(34, 62, 92), Texture: rgb(62, 98, 128),
+		Name: "tarn", Terrain: rgb(34, 62, 92), Texture: rgb(62, 98, 128),
 		Road: rgb(200, 194, 232), Seam: rgb(222, 218, 246), Edge: rgb(230, 110, 80),
 		Body: rgb(120, 24, 48), Cabin: rgb(250, 220, 160),
 		Shapes: [3]color.RGBA{rgb(120, 170, 200), rgb(240, 240, 250), rgb(90, 120, 180)},
 	},
 	{
-		Name: "saffron", Terrain: rgb(128, 92, 30), Texture: rgb(168, 126, 48),
+		Name: "ochre", Terrain: rgb(128, 92, 30), Texture: rgb(168, 126, 48),
 		Road: rgb(30, 80, 96), Seam: rgb(46, 104, 120), Edge: rgb(244, 232, 200),
 		Body: rgb(220, 60, 160), Cabin: rgb(255, 236, 120),
 		Shapes: [3]color.RGBA{rgb(200, 70, 40), rgb(90, 60, 20), rgb(230, 190, 90)},
 	},
 	{
-		Name: "ember", Terrain: rgb(20, 18, 44), Texture: rgb(42, 36, 80),
+		Name: "cinder", Terrain: rgb(20, 18, 44), Texture: rgb(42, 36, 80),
 		Road: rgb(140, 58, 44), Seam: rgb(166, 80, 60), Edge: rgb(234, 196, 106),
 		Body: rgb(236, 236, 240), Cabin: rgb(60, 200, 210),
 		Shapes: [3]color.RGBA{rgb(80, 60, 140), rgb(200, 90, 160), rgb(60, 110, 120)},
 	},
-}
-
-// world is the circuit rasterised once per episode, as packed RGBA words
-// (R in the low byte, the byte order of image.RGBA.Pix).
-type world struct {
-	pix        []uint32
-	w, h       int
-	ppm        float64 // pixels per metre
-	minX, maxY float64 // world coordinates of the image's top-left corner
-	border     uint32
 }
 
 func pack(c color.RGBA) uint32 {
@@ -81,217 +68,418 @@ type worldLook struct {
 }
 
 const (
-	worldMargin = 44.0 // metres of terrain around the circuit's bounding box
-	roadPad     = 12.0 // metres around the centreline's box that the road layers may cover
+	// worldMargin is the terrain kept round the largest circuit box, in
+	// metres: more than the view reaches from a car on the road.
+	worldMargin = 44.0
+	// shoulder is the width of the darker ground strip outside the edge
+	// bands, in metres.
+	shoulder = 1.4
+	// seamHalf is half the width of the seam along the road's middle.
+	seamHalf = 0.3
+	// stampStep is the spacing of the polyline the road is stamped from,
+	// in metres (its chords stray at most 4/(8·16) m from a bend of the
+	// smallest radius).
+	stampStep = 2.0
+	// chunkSegs is how many stamping segments make one lazily drawn
+	// stretch of road.
+	chunkSegs = 10
+	// texSide is the side of the terrain texture tile in pixels (a power
+	// of two: the tile repeats).
+	texSide = 512
 )
 
-// rasterise draws tr into a world image at ppm pixels per metre.
-func rasterise(tr *Track, look worldLook, ppm float64, seed uint64) *world {
-	minX, minY := math.Inf(1), math.Inf(1)
-	maxX, maxY := math.Inf(-1), math.Inf(-1)
-	for _, p := range tr.Pts {
-		minX, maxX = math.Min(minX, p.X), math.Max(maxX, p.X)
-		minY, maxY = math.Min(minY, p.Y), math.Max(maxY, p.Y)
-	}
-	minX -= worldMargin
-	minY -= worldMargin
-	maxX += worldMargin
-	maxY += worldMargin
-	w := int(math.Ceil((maxX - minX) * ppm))
-	h := int(math.Ceil((maxY - minY) * ppm))
-	img := image.NewRGBA(image.Rect(0, 0, w, h))
-	wd := &world{w: w, h: h, ppm: ppm, minX: minX, maxY: maxY, border: pack(look.pal.Terrain)}
-	toPx := func(p Vec) (float32, float32) {
-		return float32((p.X - minX) * ppm), float32((maxY - p.Y) * ppm)
-	}
+// world is the ground round one circuit as packed RGBA words (R in the
+// low byte, the byte order of image.RGBA.Pix), in a buffer sized once per
+// game for the largest circuit and reused by every episode.
+//
+// Nothing is drawn at Reset beyond the distractor shapes: the road is
+// stamped stretch by stretch (chunks) when a frame first needs it, and
+// the next Reset restores only the pixels the last episode wrote.
+type world struct {
+	pix        []uint32
+	w, h       int
+	ppm        float64 // pixels per metre
+	minX, maxY float64 // world coordinates of the image's top-left corner
+	border     uint32
+	look       worldLook
+	flat       uint32   // terrain colour when there is no texture
+	tex        []uint32 // texSide² terrain tile, nil for flat ground
 
-	// Terrain, with optional two-octave value noise blending towards the
-	// texture tone.
-	draw.Draw(img, img.Bounds(), image.NewUniform(look.pal.Terrain), image.Point{}, draw.Src)
+	// Per-pixel stamping state: gen[p] == cur marks pixels written this
+	// episode, best[p] their smallest distance from the road edge.
+	gen     []uint32
+	best    []float32
+	cur     uint32
+	touched []int32
+
+	// The stamping polyline (a subset of the centreline samples with
+	// their half widths) and its chunks.
+	sp      []Vec
+	sh      []float64
+	chunks  []chunk
+	started bool // the start band is drawn
+	// colours, packed
+	cShoulder, cEdge, cRoad, cSeam uint32
+}
+
+type chunk struct {
+	lo, hi int // stamping segments [lo, hi)
+	box    image.Rectangle
+	done   bool
+}
+
+// newWorld allocates the world buffer for circuits of at most extent
+// metres a side at ppm pixels per metre.
+func newWorld(look worldLook, ppm, extent float64) *world {
+	side := int(math.Ceil((extent + 2*worldMargin) * ppm))
+	wd := &world{w: side, h: side, ppm: ppm, look: look, border: pack(look.pal.Terrain), flat: pack(look.pal.Terrain)}
+	wd.pix = make([]uint32, side*side)
+	wd.gen = make([]uint32, side*side)
+	wd.best = make([]float32, side*side)
 	if look.noise > 0 {
-		n1 := newValueNoise(seeds.DeriveSeed(seed, seeds.StreamKey("terrain"), 1), 9)
-		n2 := newValueNoise(seeds.DeriveSeed(seed, seeds.StreamKey("terrain"), 2), 2.5)
-		a, b := look.pal.Terrain, look.pal.Texture
-		for y := 0; y < h; y++ {
-			wy := maxY - (float64(y)+0.5)/ppm
-			row := img.Pix[y*img.Stride:]
-			for x := 0; x < w; x++ {
-				wx := minX + (float64(x)+0.5)/ppm
-				t := 0.65*n1.at(wx, wy) + 0.35*n2.at(wx, wy)
-				t = look.noise * smooth(math.Max(0, math.Min(1, (t-0.35)*2.2)))
-				row[4*x] = lerp8(a.R, b.R, t)
-				row[4*x+1] = lerp8(a.G, b.G, t)
-				row[4*x+2] = lerp8(a.B, b.B, t)
-			}
+		wd.tex = terrainTile(look)
+	}
+	for y := 0; y < side; y++ {
+		row := wd.pix[y*side : (y+1)*side]
+		for x := range row {
+			row[x] = wd.terrainAt(x, y)
 		}
 	}
-
-	// Each layer is rasterised into an alpha mask (the rasteriser's plain
-	// coverage path) and blended in by hand where the mask is not empty.
-	// The road layers use a rasteriser over the circuit's bounding box
-	// only; the terrain shapes one over the whole image.
-	full := image.Rect(0, 0, w, h)
-	roadR := image.Rect(int((worldMargin-roadPad)*ppm), int((worldMargin-roadPad)*ppm),
-		w-int((worldMargin-roadPad)*ppm), h-int((worldMargin-roadPad)*ppm)).Intersect(full)
-	mask := image.NewAlpha(full)
-	fillIn := func(r *vector.Rasterizer, area image.Rectangle, c color.RGBA) {
-		r.DrawOp = draw.Src
-		m := mask.SubImage(area).(*image.Alpha)
-		r.Draw(m, area, image.Opaque, image.Point{})
-		r.Reset(area.Dx(), area.Dy())
-		for y := area.Min.Y; y < area.Max.Y; y++ {
-			mrow := mask.Pix[mask.PixOffset(area.Min.X, y):mask.PixOffset(area.Max.X, y)]
-			prow := img.Pix[img.PixOffset(area.Min.X, y):]
-			for x, a := range mrow {
-				if a == 0 {
-					continue
-				}
-				px := prow[4*x : 4*x+3 : 4*x+3]
-				if a == 255 {
-					px[0], px[1], px[2] = c.R, c.G, c.B
-					continue
-				}
-				k := uint32(a)
-				px[0] = uint8((uint32(px[0])*(255-k) + uint32(c.R)*k + 127) / 255)
-				px[1] = uint8((uint32(px[1])*(255-k) + uint32(c.G)*k + 127) / 255)
-				px[2] = uint8((uint32(px[2])*(255-k) + uint32(c.B)*k + 127) / 255)
-			}
-		}
-	}
-
-	// Distractor shapes, kept clear of the road, filled one colour at a
-	// time (one rasteriser pass per colour).
-	if look.shapes > 0 {
-		r := vector.NewRasterizer(w, h)
-		type shape struct {
-			c            Vec
-			size, rot    float64
-			kind, colour int
-		}
-		var shapes []shape
-		rng := seeds.NewRand(seeds.DeriveSeed(seed, seeds.StreamKey("shapes")))
-		clear := tr.Width/2 + look.edgeWidth + 1.5
-		for tries := 0; len(shapes) < look.shapes && tries < look.shapes*20; tries++ {
-			sh := shape{size: 1.2 + 2.6*rng.Float64()}
-			sh.c = Vec{minX + (maxX-minX)*rng.Float64(), minY + (maxY-minY)*rng.Float64()}
-			sh.kind = rng.IntN(3)
-			sh.rot = 2 * math.Pi * rng.Float64()
-			sh.colour = rng.IntN(len(look.pal.Shapes))
-			if _, _, lat := tr.Project(sh.c, 0, 0); math.Abs(lat) >= clear+sh.size {
-				shapes = append(shapes, sh)
-			}
-		}
-		for colour, col := range look.pal.Shapes {
-			for _, sh := range shapes {
-				if sh.colour != colour {
-					continue
-				}
-				switch sh.kind {
-				case 0: // disc
-					polygon(r, toPx, sh.c, sh.size, sh.rot, 20, false)
-				case 1: // triangle
-					polygon(r, toPx, sh.c, sh.size, sh.rot, 3, false)
-				default: // ring: a pentagon with a pentagonal hole
-					polygon(r, toPx, sh.c, sh.size, sh.rot, 5, false)
-					polygon(r, toPx, sh.c, sh.size*0.5, sh.rot, 5, true)
-				}
-			}
-			fillIn(r, full, col)
-		}
-	}
-
-	// Road: a darker shoulder, edge band, surface, seam, then the start
-	// band across.
-	r := vector.NewRasterizer(roadR.Dx(), roadR.Dy())
-	ox, oy := float32(roadR.Min.X), float32(roadR.Min.Y)
-	toPx = func(p Vec) (float32, float32) {
-		return float32((p.X-minX)*ppm) - ox, float32((maxY-p.Y)*ppm) - oy
-	}
-	fill := func(c color.RGBA) { fillIn(r, roadR, c) }
-	band(r, toPx, tr, tr.Width/2+look.edgeWidth+1.4)
-	fill(shade(look.pal.Terrain, 0.72))
-	band(r, toPx, tr, tr.Width/2+look.edgeWidth)
-	fill(look.pal.Edge)
-	band(r, toPx, tr, tr.Width/2)
-	fill(look.pal.Road)
-	band(r, toPx, tr, 0.3)
-	fill(look.pal.Seam)
-	p0, _, _ := tr.Eval(0, 0)
-	_, d, _ := tr.Eval(0, 0)
-	t := d.scale(1 / d.norm())
-	nrm := Vec{-t.Y, t.X}
-	hw := tr.Width/2 + look.edgeWidth*0.5
-	quadrilateral(r, toPx, p0.add(nrm.scale(hw)).sub(t.scale(0.6)), p0.add(nrm.scale(hw)).add(t.scale(0.6)),
-		p0.sub(nrm.scale(hw)).add(t.scale(0.6)), p0.sub(nrm.scale(hw)).sub(t.scale(0.6)))
-	fill(look.pal.Edge)
-
-	wd.pix = make([]uint32, w*h)
-	for y := 0; y < h; y++ {
-		row := img.Pix[y*img.Stride:]
-		for x := 0; x < w; x++ {
-			wd.pix[y*w+x] = uint32(row[4*x]) | uint32(row[4*x+1])<<8 | uint32(row[4*x+2])<<16 | 0xff<<24
-		}
-	}
+	wd.cShoulder = pack(shade(look.pal.Terrain, 0.72))
+	wd.cEdge, wd.cRoad, wd.cSeam = pack(look.pal.Edge), pack(look.pal.Road), pack(look.pal.Seam)
 	return wd
 }
 
-// band adds to r the ring between the offsets ±half of the centreline:
-// the outer loop one way round, the inner loop the other, so the
-// rasteriser's winding leaves the middle empty.
-func band(r *vector.Rasterizer, toPx func(Vec) (float32, float32), tr *Track, half float64) {
-	n := len(tr.Pts)
-	normal := func(i int) Vec {
-		d := tr.Pts[(i+1)%n].sub(tr.Pts[(i-1+n)%n])
-		d = d.scale(1 / d.norm())
-		return Vec{-d.Y, d.X}
+// terrainAt is the bare ground colour of buffer pixel (x, y).
+func (wd *world) terrainAt(x, y int) uint32 {
+	if wd.tex == nil {
+		return wd.flat
 	}
-	for side, sign := range []float64{1, -1} {
-		for k := 0; k <= n; k++ {
-			i := k % n
-			if side == 1 {
-				i = (n - k) % n
+	return wd.tex[(y&(texSide-1))*texSide+(x&(texSide-1))]
+}
+
+// terrainTile is the repeating ground texture: two octaves of lattice
+// value noise with periods that divide the tile, blending the terrain
+// tone towards the texture tone.
+func terrainTile(look worldLook) []uint32 {
+	n1 := newValueNoise(seeds.DeriveSeed(0, seeds.StreamKey("terrain"), 1), 32)
+	n2 := newValueNoise(seeds.DeriveSeed(0, seeds.StreamKey("terrain"), 2), 8)
+	a, b := look.pal.Terrain, look.pal.Texture
+	tex := make([]uint32, texSide*texSide)
+	for y := 0; y < texSide; y++ {
+		for x := 0; x < texSide; x++ {
+			t := 0.65*n1.at(float64(x)+0.5, float64(y)+0.5) + 0.35*n2.at(float64(x)+0.5, float64(y)+0.5)
+			t = look.noise * smooth(math.Max(0, math.Min(1, (t-0.35)*2.2)))
+			tex[y*texSide+x] = uint32(lerp8(a.R, b.R, t)) | uint32(lerp8(a.G, b.G, t))<<8 | uint32(lerp8(a.B, b.B, t))<<16 | 0xff<<24
+		}
+	}
+	return tex
+}
+
+// reset restores the pixels the last episode wrote, centres the buffer on
+// tr, lays out the road's chunks and draws the distractor shapes.
+func (wd *world) reset(tr *Track, seed uint64) {
+	for _, p := range wd.touched {
+		wd.pix[p] = wd.terrainAt(int(p)%wd.w, int(p)/wd.w)
+	}
+	wd.touched = wd.touched[:0]
+	wd.cur++
+	if wd.cur == 0 { // wrapped: forget every old mark
+		clear(wd.gen)
+		wd.cur = 1
+	}
+	cx, cy := (tr.Min.X+tr.Max.X)/2, (tr.Min.Y+tr.Max.Y)/2
+	wd.minX = cx - float64(wd.w/2)/wd.ppm
+	wd.maxY = cy + float64(wd.h/2)/wd.ppm
+
+	// The stamping polyline: every k-th sample, closing on the first.
+	k := int(math.Max(1, math.Round(stampStep/(tr.Length/float64(len(tr.Pts))))))
+	wd.sp, wd.sh = wd.sp[:0], wd.sh[:0]
+	for i := 0; i < len(tr.Pts); i += k {
+		wd.sp = append(wd.sp, tr.Pts[i])
+		wd.sh = append(wd.sh, tr.Half[i])
+	}
+	wd.sp = append(wd.sp, tr.Pts[0])
+	wd.sh = append(wd.sh, tr.Half[0])
+	nseg := len(wd.sp) - 1
+	wd.chunks, wd.started = wd.chunks[:0], false
+	for lo := 0; lo < nseg; lo += chunkSegs {
+		hi := min(lo+chunkSegs, nseg)
+		c := chunk{lo: lo, hi: hi}
+		for i := lo; i < hi; i++ {
+			q := wd.quad(i)
+			for _, v := range q {
+				r := image.Rect(int(math.Floor(v.X))-1, int(math.Floor(v.Y))-1, int(math.Ceil(v.X))+1, int(math.Ceil(v.Y))+1)
+				c.box = c.box.Union(r)
 			}
-			x, y := toPx(tr.Pts[i].add(normal(i).scale(sign * half)))
-			if k == 0 {
-				r.MoveTo(x, y)
-			} else {
-				r.LineTo(x, y)
+		}
+		wd.chunks = append(wd.chunks, c)
+	}
+	if wd.look.shapes > 0 {
+		wd.drawShapes(tr, seed)
+	}
+}
+
+// reach is how far past the road's edge the stamp reaches, in metres.
+func (wd *world) reach() float64 { return wd.look.edgeWidth + shoulder + 1.5/wd.ppm }
+
+// toPx maps a world point to buffer pixel coordinates (not rounded).
+func (wd *world) toPx(p Vec) Vec { return Vec{(p.X - wd.minX) * wd.ppm, (wd.maxY - p.Y) * wd.ppm} }
+
+// normalAt is the unit normal of the stamping polyline at vertex i (the
+// perpendicular of the chord through its neighbours).
+func (wd *world) normalAt(i int) Vec {
+	n := len(wd.sp) - 1 // the last vertex repeats the first
+	a, b := wd.sp[(i-1+n)%n], wd.sp[(i+1)%n]
+	d := b.sub(a)
+	d = d.scale(1 / d.norm())
+	return Vec{-d.Y, d.X}
+}
+
+// quad is the quadrilateral, in buffer pixels, that segment i's stamp
+// covers: its ends pushed out along the vertex normals as far as the
+// stamp reaches, so that consecutive quads leave no gap.
+func (wd *world) quad(i int) [4]Vec {
+	n0, n1 := wd.normalAt(i), wd.normalAt(i+1)
+	r0, r1 := wd.sh[i]+wd.reach()+0.2, wd.sh[i+1]+wd.reach()+0.2
+	a, b := wd.sp[i], wd.sp[i+1]
+	return [4]Vec{
+		wd.toPx(a.add(n0.scale(r0))), wd.toPx(b.add(n1.scale(r1))),
+		wd.toPx(b.sub(n1.scale(r1))), wd.toPx(a.sub(n0.scale(r0))),
+	}
+}
+
+// ensure stamps every chunk not yet drawn whose box meets r (buffer
+// pixels), then the start band once both chunks beside it are drawn (any
+// visible pixel of it lies in both chunks' boxes).
+func (wd *world) ensure(r image.Rectangle, tr *Track) {
+	start := false
+	for k := range wd.chunks {
+		c := &wd.chunks[k]
+		if c.done || !c.box.Overlaps(r) {
+			continue
+		}
+		for i := c.lo; i < c.hi; i++ {
+			wd.stampSegment(i)
+		}
+		c.done = true
+		start = true
+	}
+	if start && !wd.started && wd.chunks[0].done && wd.chunks[len(wd.chunks)-1].done {
+		wd.stampStart(tr)
+		wd.started = true
+	}
+}
+
+// mark records that pixel p is written this episode and reports whether
+// it was already.
+func (wd *world) mark(p int) bool {
+	if wd.gen[p] == wd.cur {
+		return true
+	}
+	wd.gen[p] = wd.cur
+	wd.touched = append(wd.touched, int32(p))
+	return false
+}
+
+// stampSegment draws the road round stamping segment i: every pixel in
+// its quad takes the colour of its distance from this segment unless a
+// segment already stamped is nearer to it (measured from the road's
+// edge, which moves as the width changes).
+func (wd *world) stampSegment(i int) {
+	q := wd.quad(i)
+	a, b := wd.sp[i], wd.sp[i+1]
+	ha, hb := wd.sh[i], wd.sh[i+1]
+	ab := b.sub(a)
+	l2 := ab.dot(ab)
+	reach := wd.reach()
+	inv := 1 / wd.ppm
+	ymin, ymax := q[0].Y, q[0].Y
+	for _, v := range q[1:] {
+		ymin, ymax = math.Min(ymin, v.Y), math.Max(ymax, v.Y)
+	}
+	y0 := max(0, int(math.Ceil(ymin-0.5)))
+	y1 := min(wd.h-1, int(math.Floor(ymax-0.5)))
+	for y := y0; y <= y1; y++ {
+		yc := float64(y) + 0.5
+		xl, xr := math.Inf(1), math.Inf(-1)
+		for e := 0; e < 4; e++ {
+			p, r := q[e], q[(e+1)%4]
+			if (p.Y-yc)*(r.Y-yc) > 0 || p.Y == r.Y {
+				continue
 			}
+			x := p.X + (yc-p.Y)*(r.X-p.X)/(r.Y-p.Y)
+			xl, xr = math.Min(xl, x), math.Max(xr, x)
 		}
-		r.ClosePath()
+		if xl > xr {
+			continue
+		}
+		x0 := max(0, int(math.Ceil(xl-0.5)))
+		x1 := min(wd.w-1, int(math.Floor(xr-0.5)))
+		wy := wd.maxY - yc*inv
+		row := y * wd.w
+		for x := x0; x <= x1; x++ {
+			wx := wd.minX + (float64(x)+0.5)*inv
+			px, py := wx-a.X, wy-a.Y
+			u := (px*ab.X + py*ab.Y) / l2
+			u = math.Max(0, math.Min(1, u))
+			dx, dy := px-u*ab.X, py-u*ab.Y
+			d := math.Sqrt(dx*dx + dy*dy)
+			e := d - (ha + u*(hb-ha))
+			if e >= reach {
+				continue
+			}
+			p := row + x
+			if wd.mark(p) && float32(e) >= wd.best[p] {
+				continue
+			}
+			wd.best[p] = float32(e)
+			wd.pix[p] = wd.roadColour(wd.terrainAt(x, y), e, d)
+		}
 	}
 }
 
-// polygon adds a regular polygon of the given radius and rotation to r;
-// rev traces it the other way round (a hole under the winding rule).
-func polygon(r *vector.Rasterizer, toPx func(Vec) (float32, float32), c Vec, rad, rot float64, sides int, rev bool) {
-	for k := 0; k <= sides; k++ {
-		kk := k
-		if rev {
-			kk = sides - k
-		}
-		a := rot + 2*math.Pi*float64(kk)/float64(sides)
-		x, y := toPx(c.add(Vec{rad * math.Cos(a), rad * math.Sin(a)}))
-		if k == 0 {
-			r.MoveTo(x, y)
-		} else {
-			r.LineTo(x, y)
-		}
+// roadColour is the colour at distance d from the centreline and e from
+// the road's edge over ground colour bg: shoulder, edge band, surface and
+// seam, each edge smoothed over one pixel.
+func (wd *world) roadColour(bg uint32, e, d float64) uint32 {
+	aa := wd.ppm // coverage per metre
+	ew := wd.look.edgeWidth
+	if e < -0.5/aa && d > seamHalf+0.5/aa {
+		return wd.cRoad
 	}
-	r.ClosePath()
+	c := bg
+	c = blend(c, wd.cShoulder, (ew+shoulder-e)*aa+0.5)
+	c = blend(c, wd.cEdge, (ew-e)*aa+0.5)
+	c = blend(c, wd.cRoad, -e*aa+0.5)
+	c = blend(c, wd.cSeam, (seamHalf-d)*aa+0.5)
+	return c
 }
 
-func quadrilateral(r *vector.Rasterizer, toPx func(Vec) (float32, float32), a, b, c, d Vec) {
-	x, y := toPx(a)
-	r.MoveTo(x, y)
-	for _, p := range []Vec{b, c, d} {
-		x, y = toPx(p)
-		r.LineTo(x, y)
+// blend mixes over into c by coverage k (clamped to [0,1]).
+func blend(c, over uint32, k float64) uint32 {
+	if k <= 0 {
+		return c
 	}
-	r.ClosePath()
+	if k >= 1 {
+		return over
+	}
+	a := uint32(k*256 + 0.5)
+	var out uint32
+	for sh := 0; sh < 24; sh += 8 {
+		x, y := c>>sh&0xff, over>>sh&0xff
+		out |= ((x*(256-a) + y*a) >> 8) << sh
+	}
+	return out | 0xff<<24
 }
 
-// valueNoise is lattice value noise with smoothstep interpolation.
+// stampStart draws the start band across the road at the start line.
+func (wd *world) stampStart(tr *Track) {
+	hw := tr.Half[0] + wd.look.edgeWidth*0.5
+	wd.fillShape(shape{kind: shapeBand, c: tr.Start, size: hw, rot: tr.StartHeading}, hw+2, wd.cEdge, true)
+}
+
+// Shape kinds.
+const (
+	shapeDisc = iota
+	shapeTriangle
+	shapeRing
+	shapeBand // the start band: 1.2 m along the heading rot, 2·size across
+)
+
+// shape is one filled figure of the world: a distractor or the start band.
+type shape struct {
+	kind      int
+	c         Vec
+	size, rot float64
+}
+
+// sdf is the signed distance from p to the shape in metres (negative
+// inside; for the polygons the largest half-plane distance, exact along
+// the edges, which is all the one-pixel smoothing needs).
+func (s shape) sdf(p Vec) float64 {
+	d := p.sub(s.c)
+	switch s.kind {
+	case shapeDisc:
+		return d.norm() - s.size
+	case shapeTriangle:
+		m := math.Inf(-1)
+		for j := 0; j < 3; j++ {
+			m = math.Max(m, d.dot(unit(s.rot+2*math.Pi*float64(j)/3))-s.size/2)
+		}
+		return m
+	case shapeRing:
+		return math.Abs(d.norm()-0.72*s.size) - 0.28*s.size
+	}
+	t := unit(s.rot)
+	n := Vec{-t.Y, t.X}
+	return math.Max(math.Abs(d.dot(t))-0.6, math.Abs(d.dot(n))-s.size)
+}
+
+// fillShape draws sh within radius rad of its centre, smoothing its edge
+// over one pixel. Over the road (overRoad) it blends with what is there;
+// on open ground with the bare terrain.
+func (wd *world) fillShape(sh shape, rad float64, col uint32, overRoad bool) {
+	pc := wd.toPx(sh.c)
+	r := rad * wd.ppm
+	x0, x1 := max(0, int(pc.X-r)), min(wd.w-1, int(pc.X+r)+1)
+	y0, y1 := max(0, int(pc.Y-r)), min(wd.h-1, int(pc.Y+r)+1)
+	inv := 1 / wd.ppm
+	for y := y0; y <= y1; y++ {
+		for x := x0; x <= x1; x++ {
+			p := Vec{wd.minX + (float64(x)+0.5)*inv, wd.maxY - (float64(y)+0.5)*inv}
+			k := -sh.sdf(p)*wd.ppm + 0.5
+			if k <= 0 {
+				continue
+			}
+			i := y*wd.w + x
+			had := wd.mark(i)
+			if !overRoad && !had {
+				wd.best[i] = float32(math.Inf(1))
+			}
+			wd.pix[i] = blend(wd.pix[i], col, k)
+		}
+	}
+}
+
+// drawShapes scatters the distractor shapes on the ground, clear of the
+// road: discs, triangles and rings.
+func (wd *world) drawShapes(tr *Track, seed uint64) {
+	rng := seeds.NewRand(seeds.DeriveSeed(seed, seeds.StreamKey("shapes")))
+	pal := wd.look.pal.Shapes
+	x0, y0 := wd.minX, wd.maxY-float64(wd.h)/wd.ppm
+	wm, hm := float64(wd.w)/wd.ppm, float64(wd.h)/wd.ppm
+	placed := 0
+	for tries := 0; placed < wd.look.shapes && tries < wd.look.shapes*20; tries++ {
+		sh := shape{size: 1.2 + 2.6*rng.Float64()}
+		sh.c = Vec{x0 + wm*rng.Float64(), y0 + hm*rng.Float64()}
+		sh.kind = rng.IntN(3)
+		sh.rot = 2 * math.Pi * rng.Float64()
+		col := pack(pal[rng.IntN(len(pal))])
+		if wd.roadDistance(sh.c) < tr.Width*1.5/2+wd.reach()+1+sh.size {
+			continue
+		}
+		placed++
+		wd.fillShape(sh, sh.size+1, col, false)
+	}
+}
+
+// roadDistance is the distance from p to the stamping polyline.
+func (wd *world) roadDistance(p Vec) float64 {
+	best := math.Inf(1)
+	for i := 0; i+1 < len(wd.sp); i++ {
+		a, b := wd.sp[i], wd.sp[i+1]
+		ab := b.sub(a)
+		u := math.Max(0, math.Min(1, p.sub(a).dot(ab)/ab.dot(ab)))
+		if d := p.sub(a.add(ab.scale(u))).norm(); d < best {
+			best = d
+		}
+	}
+	return best
+}
+
+// valueNoise is lattice value noise with smoothstep interpolation on a
+// 64×64 lattice that repeats.
 type valueNoise struct {
 	cell float64
 	vals [64 * 64]float64
@@ -306,12 +494,19 @@ func newValueNoise(seed uint64, cell float64) *valueNoise {
 	return n
 }
 
+// at samples the noise; with a cell dividing texSide/…, the lattice
+// wraps every texSide pixels when cell·(texSide/cell mod 64) fits, so
+// the tile is seamless for the cells used (32 and 8: 16 and 64 cells).
 func (n *valueNoise) at(x, y float64) float64 {
 	fx, fy := x/n.cell, y/n.cell
 	ix, iy := math.Floor(fx), math.Floor(fy)
 	tx, ty := smooth(fx-ix), smooth(fy-iy)
-	i, j := int(ix)&63, int(iy)&63
-	v := func(a, b int) float64 { return n.vals[((j+b)&63)*64+((i+a)&63)] }
+	per := int(texSide / n.cell)
+	if per > 64 {
+		per = 64
+	}
+	i, j := int(ix)%per, int(iy)%per
+	v := func(a, b int) float64 { return n.vals[((j+b)%per)*64+((i+a)%per)] }
 	top := v(0, 0) + (v(1, 0)-v(0, 0))*tx
 	bot := v(0, 1) + (v(1, 1)-v(0, 1))*tx
 	return top + (bot-top)*ty
