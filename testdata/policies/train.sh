@@ -42,7 +42,7 @@ go build -o "$bin" ./cmd/tilebench
 
 # Hyper-parameters shared by every reference policy (see docs/training.md).
 common=(--method clone --centre --seed 1 --workers 2 --budget 5m --heldout 50 --patience -1 --epochs 4 --batch 32 --episodes-per-round 4)
-drive=(--iters 20)
+drive=(--iters 20 --budget 10m)
 paddle=(--iters 14)
 
 games=("$@")
