@@ -8,12 +8,6 @@ import (
 	"tilebench/games/internal/gametest"
 )
 
-// The same seed and actions give identical frames and rewards.
-func TestDeterminism(t *testing.T) {
-	gametest.CheckDeterminism(t, Name, "clutter+grain", games.HeldOut(8), games.HeldOut(9), 300)
-	gametest.CheckDeterminism(t, Name, "", games.HeldOut(1), games.HeldOut(2), 300)
-}
-
 // An episode's frames do not depend on what the game played before: the
 // world image is restored exactly between episodes, whichever stretches
 // of road the last one drew.

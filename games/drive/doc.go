@@ -1,21 +1,33 @@
 // Package drive is the top-down driving game: a car on a closed circuit
-// generated from the seed, seen from above in a view that turns with it.
+// generated from the seed, seen from above in a landscape view that turns
+// with it.
 //
-// The circuit is a uniform Catmull–Rom spline (Catmull & Rom 1974) through
-// jittered control points around a centre; circuits that cross themselves,
-// crowd themselves or bend tighter than TrackConfig.MinRadius are drawn
-// again. The car is the kinematic bicycle model (Rajamani, Vehicle Dynamics
-// and Control, §2.2) stepped every DT seconds, in metres and seconds.
+// A circuit is a chain of straights and constant-radius bends: five or
+// six bends (more, some turning the other way, in the harder family)
+// whose turning angles add up to one full turn, each followed by a
+// straight; all straights but two are drawn at random and those two are
+// solved for so that the chain closes on its start line. Layouts that
+// come too close to themselves (which also rules out crossings), bend
+// tighter than TrackConfig.MinRadius or outgrow TrackConfig.Extent are
+// drawn again. The road's width swings slowly round the lap. The car is
+// the kinematic bicycle model (Rajamani, Vehicle Dynamics and Control,
+// §2.2) stepped every DT seconds, in metres and seconds.
 //
-// Actions: steer ∈ [−1,1], throttle ∈ [0,1], brake ∈ [0,1] (clamped).
-// Reward: centreline progress scaled so one lap is worth LapReward, minus
-// StepCost per step. The episode ends on a lap (games.Completed), after
-// more than OffRoadLimit steps off the road (games.Failed) or at MaxSteps
-// (games.TimeUp).
+// Actions: steering ∈ [−1,1] and pedal ∈ [−1,1] (positive drives,
+// negative brakes; both clamped). Reward: the signed metres of
+// centreline progress of each step, less OffRoadPenalty per simulated
+// second with the car's centre off the road. The episode ends when a
+// lap's distance is done (games.Completed), when the car's centre has
+// spent more than OffRoadAllowance seconds in all off the road
+// (games.Failed), or at TimeLimit seconds (games.TimeUp).
 //
-// The world is rasterised once per episode (golang.org/x/image/vector);
-// Render only samples it, heading up, the car below the frame's centre.
-// Variations (Variations) change the palette, the road width, scatter
+// The frame's centre lies ViewLead metres ahead of the car, which is
+// drawn near the middle of the frame pointing up. The world image is a
+// buffer sized once per game; each stretch of road is drawn into it when
+// a frame first reaches it, and Reset restores only the pixels the last
+// episode wrote, so starting an episode costs little and allocates
+// nothing. Render only samples the world image. Variations (Variations)
+// change the palette, the road width, the circuit family, scatter
 // shapes, texture the ground and change the frame size. The scripted
 // expert (Game.Expert) is pure pursuit (Coulter 1992) with a speed plan
 // from the curvature ahead.

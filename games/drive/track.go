@@ -418,7 +418,8 @@ func segmentsCross(a, b, c, d Vec) bool {
 // Project finds the point of the centreline nearest p, searching the
 // segments within window samples of hint (all segments if window ≤ 0). It
 // returns the sample index of the segment's start, the arc length of the
-// projection, and the signed lateral offset (positive left of the
+// projection (interpolated between the samples' arc lengths), and the
+// signed lateral offset (positive left of the
 // direction of travel).
 func (tr *Track) Project(p Vec, hint, window int) (idx int, s, lateral float64) {
 	n := len(tr.Pts)
@@ -443,7 +444,11 @@ func (tr *Track) Project(p Vec, hint, window int) (idx int, s, lateral float64) 
 		if d2 < best {
 			best = d2
 			idx = i
-			s = tr.S[i] + u*math.Sqrt(l2)
+			next := tr.Length
+			if i+1 < n {
+				next = tr.S[i+1]
+			}
+			s = tr.S[i] + u*(next-tr.S[i]) // arc length, not chord length
 			lateral = math.Sqrt(d2)
 			if ab.cross(d) < 0 {
 				lateral = -lateral
@@ -503,4 +508,14 @@ func (tr *Track) fallback(cfg TrackConfig) {
 	tr.Start, tr.StartHeading, tr.Width = Vec{}, 0, cfg.Width
 	tr.waves, tr.swing = 2, [2]float64{}
 	tr.sample(cfg)
+}
+
+// measure sets S and Length from Pts as a closed polyline (for circuits
+// built from points alone).
+func (tr *Track) measure() {
+	tr.S = append(tr.S[:0], 0)
+	for i := 1; i < len(tr.Pts); i++ {
+		tr.S = append(tr.S, tr.S[i-1]+tr.Pts[i].sub(tr.Pts[i-1]).norm())
+	}
+	tr.Length = tr.S[len(tr.S)-1] + tr.Pts[0].sub(tr.Pts[len(tr.Pts)-1]).norm()
 }
