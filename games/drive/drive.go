@@ -31,11 +31,11 @@ const (
 	// ViewMetres is the width of ground the frame shows, in metres.
 	ViewMetres = 64.0
 	// ViewLead is how far ahead of the car's centre the frame's centre
-	// lies, in metres: with it the car's nose (2.1 m ahead of its centre)
-	// sits about a metre short of the frame's centre, so the car is drawn
-	// in the middle tokens of every patch grid, and the ground ahead
-	// (23 m) outweighs the ground behind (17 m) by the distance the car
-	// covers in a quarter of a second at cruising speed… twice over.
+	// lies, in metres: the car's nose (2.1 m ahead of its centre) sits
+	// just short of the frame's centre, so the car falls in the middle
+	// tokens of every patch grid, and the view reaches 23 m ahead against
+	// 17 m behind: a little more of the road to come than of the road
+	// driven.
 	ViewLead = 3.0
 	// DefaultWidth and DefaultHeight are the default frame size in
 	// pixels: a landscape frame, since on a circuit of bends the road

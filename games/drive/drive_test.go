@@ -6,7 +6,6 @@ import (
 	"math"
 	"testing"
 
-
 	"tilebench/games"
 	"tilebench/games/internal/gametest"
 	"tilebench/internal/seeds"

@@ -30,7 +30,7 @@ GEN = torch.Generator().manual_seed(20171206)
 GRID = {"width": 24, "height": 16, "patch": 4}
 COLS, ROWS, D = 6, 4, 48
 
-CONT = {"kind": "continuous", "names": ["steer", "gas", "brake"], "low": [-1.0, 0.0, 0.0], "high": [1.0, 1.0, 1.0]}
+CONT = {"kind": "continuous", "names": ["yaw", "reach", "grip"], "low": [-1.0, 0.0, 0.0], "high": [1.0, 1.0, 1.0]}
 DISC = {"kind": "discrete", "names": ["left", "stay", "right", "wait"]}
 
 

@@ -171,7 +171,7 @@ func TestTokenWeightsDoNotAllocate(t *testing.T) {
 }
 
 func BenchmarkAttentionActWithWeights(b *testing.B) {
-	g := testGrid(b, 96, 96, 8)
+	g := testGrid(b, 112, 80, 8)
 	n := mustNew(b, Config{Family: Attention}, g, contSpace, 1)
 	rep := n.(vision.AttentionReporter)
 	obs := randomObs(g, 2, 3)

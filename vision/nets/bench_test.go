@@ -5,11 +5,11 @@ import (
 )
 
 // BenchmarkAttentionActDefault times one step of the default set-attention
-// policy: 96×96×3 frames at patch 8 (144 tokens of 192 values), key 16,
+// policy: 112×80×3 frames at patch 8 (140 tokens of 192 values), key 16,
 // 16 queries, hidden 32, three continuous actions, batch 1, one goroutine.
 // testdata/ref/nets_speed.py runs it beside the same network in PyTorch.
 func BenchmarkAttentionActDefault(b *testing.B) {
-	g := testGrid(b, 96, 96, 8)
+	g := testGrid(b, 112, 80, 8)
 	n := mustNew(b, Config{}, g, contSpace, 1)
 	obs := RandomObservation(g, contSpace, 2)
 	a := make([]float64, 3)
@@ -22,9 +22,9 @@ func BenchmarkAttentionActDefault(b *testing.B) {
 }
 
 // BenchmarkAttentionActCentre is the default step with the token set
-// centred first (Config.Centre): one more pass over the 144×192 inputs.
+// centred first (Config.Centre): one more pass over the 140×192 inputs.
 func BenchmarkAttentionActCentre(b *testing.B) {
-	g := testGrid(b, 96, 96, 8)
+	g := testGrid(b, 112, 80, 8)
 	n := mustNew(b, Config{Centre: true}, g, contSpace, 1)
 	obs := RandomObservation(g, contSpace, 2)
 	a := make([]float64, 3)
@@ -48,7 +48,7 @@ func BenchmarkAttentionActPlain(b *testing.B) {
 // BenchmarkForwardBackward times one training step (forward and backward)
 // of each family at the default sizes.
 func BenchmarkForwardBackward(b *testing.B) {
-	g := testGrid(b, 96, 96, 8)
+	g := testGrid(b, 112, 80, 8)
 	for _, fam := range Families {
 		b.Run(fam, func(b *testing.B) {
 			n := mustNew(b, Config{Family: fam}, g, contSpace, 1)
@@ -66,7 +66,7 @@ func BenchmarkForwardBackward(b *testing.B) {
 
 // Act and a training step allocate nothing once the buffers exist.
 func TestNoAllocationsPerStep(t *testing.T) {
-	g := testGrid(t, 96, 96, 8)
+	g := testGrid(t, 112, 80, 8)
 	for _, cfg := range []Config{{}, {Family: PosAttention, PrevAction: true, Context: 2}, {Family: MeanPool}, {Family: MLP}, {KeyHidden: 8, Value: "identity"}, {Centre: true}, {Family: MeanPool, Centre: true, Context: 2}} {
 		n := mustNew(t, cfg, g, contSpace, 1)
 		obs := RandomObservation(g, contSpace, 2)

@@ -51,19 +51,20 @@ func TestEstimateFLOPsMatchInstrumentedForward(t *testing.T) {
 	}
 }
 
-// The default policy on 96×96×3 frames at patch 8, worked out by hand:
-// key 144·192·16, value 144·192·16, query projection 16·16·16, attention
-// 16·16·144 + 16·144·16, head 256·32 + 32·3 multiply-adds.
+// The default policy on 112×80×3 frames at patch 8 (14×10 = 140 tokens
+// of 8·8·3 = 192 values), worked out by hand: key 140·192·16, value
+// 140·192·16, query projection 16·16·16, attention 16·16·140 + 16·140·16,
+// head 256·32 + 32·3 multiply-adds.
 func TestEstimateDefaultByHand(t *testing.T) {
-	g := testGrid(t, 96, 96, 8)
+	g := testGrid(t, 112, 80, 8)
 	c, err := Estimate(Config{}, g, contSpace)
 	if err != nil {
 		t.Fatal(err)
 	}
-	macs := int64(144*192*16 + 144*192*16 + 16*16*16 + 16*16*144 + 16*144*16 + 256*32 + 32*3)
+	macs := int64(140*192*16 + 140*192*16 + 16*16*16 + 16*16*140 + 16*140*16 + 256*32 + 32*3)
 	params := (192*16+16)*2 /* key, value */ + 16*16 /* query.proj */ + 256*32 + 32 + 32*3 + 3
-	if c.FLOPs != 2*macs || c.Params != params || c.Tokens != 144 || c.TokenDim != 192 {
-		t.Errorf("default cost %+v: want %d FLOPs, %d params, 144 tokens of 192", c, 2*macs, params)
+	if c.FLOPs != 2*macs || c.Params != params || c.Tokens != 140 || c.TokenDim != 192 {
+		t.Errorf("default cost %+v: want %d FLOPs, %d params, 140 tokens of 192", c, 2*macs, params)
 	}
 }
 

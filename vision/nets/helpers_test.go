@@ -20,8 +20,11 @@ func testGrid(t testing.TB, w, h, p int) *patch.Grid {
 }
 
 var (
-	contSpace = games.ActionSpace{Kind: games.Continuous, Names: []string{"steer", "gas", "brake"},
-		Low: []float64{-1, 0, 0}, High: []float64{1, 1, 1}}
+	// contSpace is a three-channel continuous space with unequal bounds
+	// (one symmetric, one shifted, one of width 2), so that the affine map
+	// from the head's tanh outputs is exercised in every form.
+	contSpace = games.ActionSpace{Kind: games.Continuous, Names: []string{"yaw", "reach", "grip"},
+		Low: []float64{-1, -0.5, 0}, High: []float64{1, 0.5, 2}}
 	discSpace = games.ActionSpace{Kind: games.Discrete, Names: []string{"left", "stay", "right"}}
 )
 

@@ -206,7 +206,7 @@ func (e *env) replay(gameSeed, pipeSeed uint64, actions []float32, keep int, ds 
 // mean over dimensions of ((out−label)/s_j)² for continuous actions, where
 // s_j is the spread of dimension j's labels (dataset.spread), so that a
 // dimension the expert moves little (steering) weighs as much as one it
-// moves a lot (throttle);
+// moves a lot (the pedal);
 // the class-weighted cross-entropy of the softmax of the logits for
 // discrete ones (dataset.setClassWeights).
 // scale multiplies the gradient (1/batch size).

@@ -78,10 +78,17 @@ func TestShippedPolicies(t *testing.T) {
 // The shipped references meet the training targets, by the scores
 // recorded in them (50 held-out episodes; TestShippedPolicies checks that
 // the files still play as recorded): the set-attention policy at patch 8
-// on drive at least 80% of the expert's mean return, and every paddle
-// policy at least 90% of the expert's.
+// on drive at least 85% of the expert's mean return, every other drive
+// policy at least 80%, and every paddle policy at least 90% of the
+// expert's.
 func TestShippedPoliciesMeetTargets(t *testing.T) {
-	targets := map[string]float64{"drive-attention-p8": 0.8}
+	targets := map[string]float64{}
+	for _, fam := range []string{"attention", "posattention"} {
+		for _, p := range []string{"4", "8", "16"} {
+			targets["drive-"+fam+"-p"+p] = 0.8
+		}
+	}
+	targets["drive-attention-p8"] = 0.85
 	for _, fam := range []string{"attention", "posattention"} {
 		for _, p := range []string{"4", "7", "12"} {
 			targets["paddle-"+fam+"-p"+p] = 0.9

@@ -43,7 +43,7 @@ func (f *fakeRemote) Act(obs *vision.Observation, a []float64) error {
 		os.Exit(3)
 	}
 	a[0] = math.Sin(float64(obs.Step)/10 + float64(f.seed%7))
-	a[1], a[2] = 0.6, 0
+	a[1] = 0.6
 	return nil
 }
 

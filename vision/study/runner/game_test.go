@@ -93,12 +93,12 @@ func TestGameStudyDeterministic(t *testing.T) {
 			t.Fatalf("replay of cell %d:\n%s\nrecorded:\n%s", c, a, b)
 		}
 	}
-	if _, m := analysis.LoadStrip(one, 0); m == nil || len(m.Steps) != 2 || m.Width != 96 {
+	if _, m := analysis.LoadStrip(one, 0); m == nil || len(m.Steps) != 2 || m.Width != 112 {
 		t.Fatalf("strip of cell 0: %+v", m)
 	}
 }
 
-// tokenPolicy drives at a steady throttle and steers by the first
+// tokenPolicy drives with a steady pedal and steers by the first
 // tokens it is given, so its return depends on the transforms and the
 // pipeline's seeds.
 func tokenPolicy(int, games.Game, *patch.Grid) (vision.Policy, error) { return &firstTokens{}, nil }
@@ -116,12 +116,12 @@ func (firstTokens) Act(obs *vision.Observation, a []float64) error {
 		}
 	}
 	a[0] = math.Sin(s + float64(obs.Step)/10)
-	a[1], a[2] = 0.6, 0
+	a[1] = 0.6
 	return nil
 }
 
 func TestWeightsGeometryMismatch(t *testing.T) {
-	// A network cut for 64×64 frames cannot play the 96×96 driving game.
+	// A network cut for 64×64 frames cannot play the 112×80 driving game.
 	g, err := games.New("drive", games.Options{})
 	if err != nil {
 		t.Fatal(err)
@@ -141,14 +141,14 @@ func TestWeightsGeometryMismatch(t *testing.T) {
 	p := gamePlan(t, wpath)
 	dir := filepath.Join(t.TempDir(), "out")
 	_, err = Run(context.Background(), p, Options{Dir: dir, Env: DefaultEnv(p, dir)})
-	if err == nil || !strings.Contains(err.Error(), "64x64") || !strings.Contains(err.Error(), "96x96") || strings.Contains(err.Error(), "\n") {
+	if err == nil || !strings.Contains(err.Error(), "64x64") || !strings.Contains(err.Error(), "112x80") || strings.Contains(err.Error(), "\n") {
 		t.Fatalf("err %v: want one line naming both frame sizes", err)
 	}
 	if _, err := os.Stat(dir); !os.IsNotExist(err) {
 		t.Fatal("a refused study wrote its folder")
 	}
 	// The same file at the right geometry but the wrong patch size.
-	grid, _ = patch.NewGrid(patch.GridConfig{Width: 96, Height: 96, PatchW: 8})
+	grid, _ = patch.NewGrid(patch.GridConfig{Width: 112, Height: 80, PatchW: 8})
 	n, _ = nets.New(nets.Config{Family: "attention"}, grid, g.Spec().Action, 1)
 	if err := nets.Save(wpath, n, nil); err != nil {
 		t.Fatal(err)
@@ -170,7 +170,7 @@ func TestReferencePolicies(t *testing.T) {
 	dir := t.TempDir()
 	for _, fam := range []string{"attention", "posattention"} {
 		for _, ps := range []int{4, 8, 16} {
-			grid, _ := patch.NewGrid(patch.GridConfig{Width: 96, Height: 96, PatchW: ps})
+			grid, _ := patch.NewGrid(patch.GridConfig{Width: 112, Height: 80, PatchW: ps})
 			n, err := nets.New(nets.Config{Family: fam}, grid, g.Spec().Action, 1)
 			if err != nil {
 				t.Fatal(err)
