@@ -307,7 +307,7 @@ func (vs VariationSet[C]) Doc(name string) string {
 }
 
 // Apply reads a variation string — names joined with "+"
-// ("glacier+clutter"; "" and "default" name none) — and applies each
+// ("tarn+clutter"; "" and "default" name none) — and applies each
 // named edit to c in sorted order. It returns the canonical spelling:
 // names sorted, duplicates dropped. Unknown names and two names of one
 // group are errors naming the game.

@@ -32,7 +32,7 @@ Episodes use seeds S, S+1, ...; the default S is the first held-out seed
 examples:
   tilebench play --game drive --policy expert --episodes 5
   tilebench play --game paddle --policy expert --episodes 20 --seed 1000000 --variation orchid+drifter --json
-  tilebench play --game drive --variation glacier+clutter --episodes 1 --gif drive.gif --frames frames/
+  tilebench play --game drive --variation tarn+clutter --episodes 1 --gif drive.gif --frames frames/
   tilebench play --game drive --policy testdata/policies/drive-attention-p8.safetensors --occlude random:0.3 --gif seen.gif
 
 options:`
@@ -81,7 +81,7 @@ func addPlayFlags(ctx *runContext) (*playFlags, func([]string) error) {
 		game:      fs.String("game", "", "game to play: "+strings.Join(games.Names(), " or ")+" (e.g. --game drive)"),
 		episodes:  fs.Int("episodes", 5, "number of episodes, 1 to 100000 (e.g. --episodes 20)"),
 		seed:      fs.Uint64("seed", games.HeldOutSeedStart, "seed of the first episode; the next ones count up (e.g. --seed 1000000)"),
-		variation: fs.String("variation", "", "game variation, names joined with + (e.g. --variation glacier+clutter)"),
+		variation: fs.String("variation", "", "game variation, names joined with + (e.g. --variation tarn+clutter)"),
 		size:      fs.String("size", "", "frame size WxH instead of the game's default (drive only) (e.g. --size 64x64)"),
 		patch:     fs.String("patch", "", "patch size N or WxH the frames are cut into; default a weights file's own, else a size that divides the frame (e.g. --patch 8)"),
 		gif:       fs.String("gif", "", "write the frames the policy saw, all episodes in a row, as an animated GIF (e.g. --gif play.gif)"),

@@ -38,8 +38,9 @@ func TestSizesStudy(t *testing.T) {
 	if err := json.Unmarshal(data, &costs); err != nil || costs.Format != 1 || len(costs.Costs) != 2 {
 		t.Fatalf("costs.json %s: %v", data, err)
 	}
-	// 96×96 frames: 36 tokens at patch 16, 9 at patch 32.
-	if costs.Costs[0].Tokens != 36 || costs.Costs[1].Tokens != 9 || !(costs.Costs[0].MFLOP > 0) || !(costs.Costs[0].LatencyUS > 0) {
+	// 112×80 frames: 7×5 = 35 tokens at patch 16, 4×3 = 12 at patch 32
+	// (the frame padded on the right and bottom).
+	if costs.Costs[0].Tokens != 35 || costs.Costs[1].Tokens != 12 || !(costs.Costs[0].MFLOP > 0) || !(costs.Costs[0].LatencyUS > 0) {
 		t.Fatalf("costs %+v", costs.Costs)
 	}
 }

@@ -42,7 +42,7 @@ func runWatch(ctx *runContext, args []string) error {
 	fs := newFlags(ctx, "watch", watchUsage)
 	game := fs.String("game", "", "game to play: "+strings.Join(games.Names(), " or ")+" (e.g. --game drive)")
 	seed := fs.Uint64("seed", games.HeldOutSeedStart, "game seed of the first episode; the next ones count up (e.g. --seed 1000000)")
-	variation := fs.String("variation", "", "game variation, names joined with + (e.g. --variation glacier+clutter)")
+	variation := fs.String("variation", "", "game variation, names joined with + (e.g. --variation tarn+clutter)")
 	size := fs.String("size", "", "frame size WxH instead of the game's default (drive only) (e.g. --size 64x64)")
 	patchSz := fs.String("patch", "", "patch size N or WxH; default the weights file's, else a size that divides the frame (e.g. --patch 8)")
 	pf := policies.AddFlags(fs, policies.FlagConfig{Default: policies.Expert, InitSeed: true})

@@ -316,13 +316,17 @@ func (wd *world) stampSegment(i int) {
 		}
 		x0 := max(0, int(math.Ceil(xl-0.5)))
 		x1 := min(wd.w-1, int(math.Floor(xr-0.5)))
-		wy := wd.maxY - yc*inv
+		py := wd.maxY - yc*inv - a.Y
 		row := y * wd.w
+		il2 := 1 / l2
 		for x := x0; x <= x1; x++ {
-			wx := wd.minX + (float64(x)+0.5)*inv
-			px, py := wx-a.X, wy-a.Y
-			u := (px*ab.X + py*ab.Y) / l2
-			u = math.Max(0, math.Min(1, u))
+			px := wd.minX + (float64(x)+0.5)*inv - a.X
+			u := (px*ab.X + py*ab.Y) * il2
+			if u < 0 {
+				u = 0
+			} else if u > 1 {
+				u = 1
+			}
 			dx, dy := px-u*ab.X, py-u*ab.Y
 			d := math.Sqrt(dx*dx + dy*dy)
 			e := d - (ha + u*(hb-ha))

@@ -25,7 +25,7 @@ func TestExpandList(t *testing.T) {
 		{"mask:a:b.png", []string{"mask:a:b.png"}},
 		{"1e-1", []string{"0.1"}},
 		{"3:3:1", []string{"3"}},
-		{"default,glacier+narrow", []string{"default", "glacier+narrow"}},
+		{"default,tarn+narrow", []string{"default", "tarn+narrow"}},
 	}
 	for _, c := range cases {
 		got, err := ExpandList(c.in)
