@@ -18,7 +18,7 @@ func shippedPolicy(name string) string {
 func TestExportOverlay(t *testing.T) {
 	pol := shippedPolicy("drive-attention-p8.safetensors")
 	plain, marked := t.TempDir(), t.TempDir()
-	common := []string{"export", "--in", "builtin:drift", "--frames", "6", "--patch", "8", "--scramble", "full", "--occlude", "random:0.2", "--as", "png,sheet,gif"}
+	common := []string{"export", "--in", "builtin:drift", "--frames", "6", "--size", "112x80", "--patch", "8", "--scramble", "full", "--occlude", "random:0.2", "--as", "png,sheet,gif"}
 	if code, _, stderr := runCLI(t, "", append(common, "--out", plain)...); code != 0 {
 		t.Fatalf("plain export: %d %s", code, stderr)
 	}

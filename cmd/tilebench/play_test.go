@@ -109,12 +109,12 @@ func TestPlayRecordsFrames(t *testing.T) {
 		t.Fatal(err)
 	}
 	g.Reset(s.Episodes[0].Seed)
-	want := image.NewRGBA(image.Rect(0, 0, 64, 64))
+	want := image.NewRGBA(image.Rect(0, 0, 64, 48))
 	g.Render(want)
 	if got.Bounds() != want.Bounds() {
 		t.Fatalf("frame %v, want %v", got.Bounds(), want.Bounds())
 	}
-	for y := 0; y < 64; y++ {
+	for y := 0; y < 48; y++ {
 		for x := 0; x < 64; x++ {
 			r1, g1, b1, _ := got.At(x, y).RGBA()
 			r2, g2, b2, _ := want.At(x, y).RGBA()
@@ -161,7 +161,7 @@ func TestPlayWeightsFile(t *testing.T) {
 	}
 	// The same file on the paddle game: one line naming both frame sizes.
 	code, _, stderr = runCLI(t, "", "play", "--game", "paddle", "--policy", file, "--episodes", "1")
-	if code != 1 || strings.Count(stderr, "\n") != 1 || !strings.Contains(stderr, "96x96") || !strings.Contains(stderr, "84x84") {
-		t.Fatalf("exit %d, stderr %q: want one runtime-error line naming 96x96 and 84x84", code, stderr)
+	if code != 1 || strings.Count(stderr, "\n") != 1 || !strings.Contains(stderr, "112x80") || !strings.Contains(stderr, "84x84") {
+		t.Fatalf("exit %d, stderr %q: want one runtime-error line naming 112x80 and 84x84", code, stderr)
 	}
 }

@@ -128,7 +128,7 @@ while True:
         break
     if m["msg"] == "step":
         first = struct.unpack_from("<f", data, 0)[0]
-        send({"msg": "action", "t": m["t"], "action": [0.3 * first, 0.5, 0.0]})
+        send({"msg": "action", "t": m["t"], "action": [0.3 * first, 0.5]})
 `
 
 func TestRefVerifyExternalPolicy(t *testing.T) {
