@@ -2,68 +2,78 @@ package paddle
 
 import "math"
 
-// Expert moves the paddle under the ball: its target is the ball's
-// current x, read from the true game state. Over the held-out seeds this
-// returns as many balls as steering to the predicted intercept (see
-// Intercept), and unlike that planner its choice is a function of what one
-// frame shows (the ball's and the paddle's positions), so a student can
-// learn it from single frames.
+// Expert keeps the paddle under the ball and aims: its target on the
+// track is the ball's bearing from the track's centre, shifted so that a
+// ball hit there now would leave towards the gate (straight, or by one
+// bounce off a rail, whichever needs the smaller turn). It reads the true
+// game state, but every input of its choice — the ball's, the paddle's
+// and the gate's positions — shows in one frame, so a student can learn
+// it from single frames.
 type Expert struct {
 	g *Game
+	// NoAim tracks the ball's bearing only (the baseline the aim is
+	// measured against in the tests).
+	NoAim bool
 }
 
-// Fold maps a coordinate of a straight path into [lo, hi] as reflections
-// off walls at lo and hi would (method of images): the path's image is
-// periodic with period 2(hi−lo) and mirrored in every other cell.
-func Fold(x, lo, hi float64) float64 {
-	w := hi - lo
-	m := math.Mod(x-lo, 2*w)
-	if m < 0 {
-		m += 2 * w
+// Act writes the action: for the discrete game up (0), stay (1) or down
+// (2) towards the target, staying when within half a step's move; for the
+// analog game the velocity that reaches it, clamped to [−1,1].
+func (e *Expert) Act(dst []float64) {
+	g := e.g
+	b := g.ball
+	th := math.Atan2(b.Y-TrackCY, b.X-TrackCX)
+	target := th
+	if !e.NoAim {
+		target = th - g.AimOffset(th)*(g.cfg.PaddleHalf+g.cfg.BallRadius)/TrackR
 	}
-	if m > w {
-		m = 2*w - m
-	}
-	return lo + m
+	g.steerTowards(target, dst)
 }
 
-// Intercept predicts the x at which the centre of a ball with state b and
-// radius r next reaches the paddle line, bouncing off the side walls and
-// the top wall. It returns the step count until then as well.
-func Intercept(b Ball, r float64) (x, steps float64) {
-	line := PaddleY - r
-	if b.VY == 0 {
-		return b.X, math.Inf(1)
+// AimOffset is the hit offset (in [−0.85, 0.85] of the paddle's reach,
+// as the return rule reads it) that sends a ball met at bearing th on the
+// track towards the gate's centre as it is now.
+func (g *Game) AimOffset(th float64) float64 {
+	r := g.cfg.BallRadius
+	rho := TrackR - r
+	px, py := TrackCX+rho*math.Cos(th), TrackCY+rho*math.Sin(th)
+	normal := th + math.Pi // inward
+	gx := Left + r
+	best := math.Inf(1)
+	// The gate and its mirror images in the two rails (method of images).
+	for _, gy := range [3]float64{g.gateY, 2*(Top+r) - g.gateY, 2*(Bottom-r) - g.gateY} {
+		d := remainder(math.Atan2(gy-py, gx-px) - normal)
+		if math.Abs(d) < math.Abs(best) {
+			best = d
+		}
 	}
-	var dist float64
-	if b.VY > 0 {
-		dist = line - b.Y
-	} else {
-		dist = (b.Y - (Top + r)) + (line - (Top + r))
-	}
-	t := dist / math.Abs(b.VY)
-	return Fold(b.X+b.VX*t, Left+r, Right-r), t
+	return math.Max(-0.85, math.Min(0.85, best/g.cfg.MaxAngle))
 }
 
-// Act writes the action: for the discrete game left (0), stay (1) or
-// right (2) towards the ball's x, staying when within half a step's move;
-// for the analog game the velocity that reaches it, clamped to [−1,1].
-func (e *Expert) Act(dst []float64) { e.g.steerTowards(e.g.ball.X, dst) }
+// remainder maps an angle into (−π, π].
+func remainder(a float64) float64 {
+	a = math.Mod(a+math.Pi, 2*math.Pi)
+	if a < 0 {
+		a += 2 * math.Pi
+	}
+	return a - math.Pi
+}
 
 // steerTowards writes the action that moves the paddle's centre towards
-// x: discrete left/stay/right with a dead zone of half a step's move, or
-// the analog velocity that reaches it, clamped to [−1,1].
-func (g *Game) steerTowards(x float64, dst []float64) {
-	dx := x - g.paddleX
+// the track angle phi: discrete up/stay/down with a dead zone of half a
+// step's move, or the analog velocity that reaches it, clamped to [−1,1].
+func (g *Game) steerTowards(phi float64, dst []float64) {
+	phi = math.Max(-g.phiMax, math.Min(g.phiMax, phi))
+	d := (phi - g.phi) * TrackR // pixels of arc
 	sp := g.cfg.PaddleSpeed
 	if g.cfg.Analog {
-		dst[0] = math.Max(-1, math.Min(1, dx/sp))
+		dst[0] = math.Max(-1, math.Min(1, d/sp))
 		return
 	}
 	switch {
-	case dx > sp/2:
+	case d > sp/2:
 		dst[0] = 2
-	case dx < -sp/2:
+	case d < -sp/2:
 		dst[0] = 0
 	default:
 		dst[0] = 1
