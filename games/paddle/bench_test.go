@@ -6,10 +6,10 @@ import (
 	"tilebench/games/internal/gametest"
 )
 
-// BenchmarkPaddleStep measures one step plus one render of the 84×84
+// BenchmarkPaddleStep measures one step plus one render of the 120×80
 // field with the expert playing (its cost included).
 func BenchmarkPaddleStep(b *testing.B) { gametest.BenchStep(b, newGame(b, "")) }
 
-// BenchmarkPaddleFrameCopy is the yardstick: a plain copy of one 84×84
+// BenchmarkPaddleFrameCopy is the yardstick: a plain copy of one 120×80
 // RGBA frame's bytes.
-func BenchmarkPaddleFrameCopy(b *testing.B) { gametest.BenchFrameCopy(b, Size, Size) }
+func BenchmarkPaddleFrameCopy(b *testing.B) { gametest.BenchFrameCopy(b, Width, Height) }

@@ -2,16 +2,16 @@ package paddle
 
 import "math"
 
-// Expert keeps the paddle under the ball and aims: its target on the
-// track is the ball's bearing from the track's centre, shifted so that a
-// ball hit there now would leave towards the gate (straight, or by one
+// Expert keeps the paddle level with the ball and aims: its target on
+// the track is the point at the ball's height, shifted so that a ball met
+// there would leave towards the gate as it is now (straight, or by one
 // bounce off a rail, whichever needs the smaller turn). It reads the true
 // game state, but every input of its choice — the ball's, the paddle's
 // and the gate's positions — shows in one frame, so a student can learn
 // it from single frames.
 type Expert struct {
 	g *Game
-	// NoAim tracks the ball's bearing only (the baseline the aim is
+	// NoAim keeps level with the ball only (the baseline the aim is
 	// measured against in the tests).
 	NoAim bool
 }
@@ -22,7 +22,9 @@ type Expert struct {
 func (e *Expert) Act(dst []float64) {
 	g := e.g
 	b := g.ball
-	th := math.Atan2(b.Y-TrackCY, b.X-TrackCX)
+	// The point of the track level with the ball.
+	rho := TrackR - g.cfg.BallRadius
+	th := math.Asin(math.Max(-1, math.Min(1, (b.Y-TrackCY)/rho)))
 	target := th
 	if !e.NoAim {
 		target = th - g.AimOffset(th)*(g.cfg.PaddleHalf+g.cfg.BallRadius)/TrackR

@@ -12,7 +12,7 @@ import (
 // FuzzParseVariation: any string either parses to a canonical spelling
 // that parses to itself, or is refused with an error naming the game.
 func FuzzParseVariation(f *testing.F) {
-	for _, s := range []string{"", "default", "lagoon", "drifter+orchid", "short+long", "bricks", "+", "analog+analog", "brisk+tinyball+long+lagoon"} {
+	for _, s := range []string{"", "default", "lagoon", "drifter+orchid", "short+long", "slot+brisk", "bricks", "+", "analog+analog", "brisk+tinyball+long+lagoon"} {
 		f.Add(s)
 	}
 	parse := func(s string) (string, error) {
@@ -23,8 +23,9 @@ func FuzzParseVariation(f *testing.F) {
 }
 
 // FuzzStep: any action value either steps both the discrete and the
-// analog game or is refused with ErrBadAction; the ball stays in the
-// field's columns and keeps a finite speed.
+// analog game or is refused with ErrBadAction; the ball stays between
+// the rails and inside the frame's columns (until the last ball is out)
+// and keeps a finite speed within the cap.
 func FuzzStep(f *testing.F) {
 	f.Add(1.0, uint16(100))
 	f.Add(2.0, uint16(3000))
@@ -50,7 +51,10 @@ func FuzzStep(f *testing.F) {
 				}
 				b := g.Ball()
 				r := g.Config().BallRadius
-				if b.X < Left+r-1e-6 || b.X > Right-r+1e-6 || math.IsNaN(b.Speed()) || b.Speed() > g.Config().MaxSpeed+1e-9 {
+				if g.done && g.reason == games.Completed {
+					break
+				}
+				if b.X < Left+r-1e-6 || b.X > Width || b.Y < Top+r-1e-6 || b.Y > Bottom-r+1e-6 || math.IsNaN(b.Speed()) || b.Speed() > g.Config().MaxSpeed+1e-9 {
 					t.Fatalf("step %d: ball %+v", k, b)
 				}
 			}

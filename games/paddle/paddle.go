@@ -105,7 +105,7 @@ type Config struct {
 	StartSpeed, SpeedUp, MaxSpeed float64
 	// MaxAngle is the largest angle between the track's inward normal and
 	// the direction a ball leaves the paddle at (hit at the very end),
-	// radians. Default 0.7.
+	// radians. Default 0.4.
 	MaxAngle float64
 	// GateHalf is half the height of the gate in the far wall (pixels).
 	// Default 12.
@@ -129,7 +129,7 @@ type Config struct {
 // DefaultConfig is the training setup.
 func DefaultConfig() Config {
 	return Config{Palette: Palettes[0], BallRadius: 1.6, PaddleHalf: 8, PaddleSpeed: 2.4,
-		StartSpeed: 2.2, SpeedUp: 1.03, MaxSpeed: 4.0, MaxAngle: 0.7, GateHalf: 12, GateSpeed: 0.12,
+		StartSpeed: 2.2, SpeedUp: 1.03, MaxSpeed: 4.0, MaxAngle: 0.4, GateHalf: 12, GateSpeed: 0.12,
 		Balls: 10, MaxSteps: 1200}
 }
 

@@ -1,0 +1,16 @@
+package paddle
+
+import (
+	"testing"
+
+	"tilebench/games"
+)
+
+func newGame(t testing.TB, variation string) *Game {
+	t.Helper()
+	g, err := New(games.Options{Variation: variation})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return g
+}
