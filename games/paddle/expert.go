@@ -4,8 +4,7 @@ import "math"
 
 // Expert keeps the paddle level with the ball and aims: its target on
 // the track is the point at the ball's height, shifted so that a ball met
-// there would leave towards the gate as it is now (straight, or by one
-// bounce off a rail, whichever needs the smaller turn). It reads the true
+// there would leave straight towards the gate as it is now. It reads the true
 // game state, but every input of its choice — the ball's, the paddle's
 // and the gate's positions — shows in one frame, so a student can learn
 // it from single frames.
@@ -34,22 +33,15 @@ func (e *Expert) Act(dst []float64) {
 
 // AimOffset is the hit offset (in [−0.85, 0.85] of the paddle's reach,
 // as the return rule reads it) that sends a ball met at bearing th on the
-// track towards the gate's centre as it is now.
+// track straight towards the gate's centre as it is now. (Aiming off a
+// rail as well scores no more goals at this MaxAngle, and makes the
+// target jump where the two aims swap.)
 func (g *Game) AimOffset(th float64) float64 {
 	r := g.cfg.BallRadius
 	rho := TrackR - r
 	px, py := TrackCX+rho*math.Cos(th), TrackCY+rho*math.Sin(th)
-	normal := th + math.Pi // inward
-	gx := Left + r
-	best := math.Inf(1)
-	// The gate and its mirror images in the two rails (method of images).
-	for _, gy := range [3]float64{g.gateY, 2*(Top+r) - g.gateY, 2*(Bottom-r) - g.gateY} {
-		d := remainder(math.Atan2(gy-py, gx-px) - normal)
-		if math.Abs(d) < math.Abs(best) {
-			best = d
-		}
-	}
-	return math.Max(-0.85, math.Min(0.85, best/g.cfg.MaxAngle))
+	d := remainder(math.Atan2(g.gateY-py, Left+r-px) - (th + math.Pi))
+	return math.Max(-0.85, math.Min(0.85, d/g.cfg.MaxAngle))
 }
 
 // remainder maps an angle into (−π, π].
