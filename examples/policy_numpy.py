@@ -8,7 +8,7 @@ PyTorch or JAX forward pass); the protocol (docs/policy-protocol.md) is
 handled by python/tilebench_protocol.py.
 
 As shipped it plays the paddle game with the same hand rule as
-policy_stdlib.py: move the paddle towards the ball. On recorded frames
+policy_stdlib.py: slide the paddle towards the ball's height. On recorded frames
 ("tilebench probe", game "recording") it answers with a plain rule of
 the picture's brightness: how much brighter the left half is than the
 right, and the top than the bottom (a choice: the brightest vertical
@@ -41,7 +41,8 @@ except ImportError:  # not installed: use the copy in this repository
     sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "python"))
     import tilebench_protocol as tp
 
-PADDLE_ROW = 76  # the paddle's row in the 84x84 paddle field
+TRACK_X0, TRACK_X1 = 98, 118  # the columns of the paddle's track in the 120x80 field
+RAIL = 3  # rows of rail at the top and the bottom
 
 
 def log(*args):
@@ -126,7 +127,7 @@ class Policy:
     def setup(self, session):
         self.recording = session.game == "recording"
         if not self.recording and (session.game != "paddle" or session.frame_shape[2] != 3
-                                   or session.frame_shape[0] <= PADDLE_ROW):
+                                   or session.frame_shape[1] < TRACK_X1 or session.frame_shape[0] <= 2 * RAIL):
             return "the hand rule needs the paddle game in RGB"
         self.action = session.action
         self.decoder = Decoder(session)
@@ -152,15 +153,15 @@ class Policy:
         return out
 
     def hand(self, frame, prev):
-        field = frame[:PADDLE_ROW]
-        bright = np.all(field >= 200 / 255, axis=2)
+        bright = np.all(frame >= 200 / 255, axis=2)
         ys, xs = np.nonzero(bright)
-        row = frame[PADDLE_ROW]
-        far = np.abs(row - np.median(row, axis=0)).sum(axis=1) > 90 / 255
-        if len(xs) == 0 or not far.any():
+        band = frame[RAIL:frame.shape[0] - RAIL, TRACK_X0:TRACK_X1]
+        far = np.abs(band - np.median(band, axis=0)).sum(axis=2) > 90 / 255
+        far &= ~np.all(band >= 200 / 255, axis=2)
+        if len(ys) == 0 or not far.any():
             move = 0.0
         else:
-            gap = xs.mean() - np.nonzero(far)[0].mean()
+            gap = ys.mean() - (RAIL + np.nonzero(far)[0].mean())
             move = 0.0 if abs(gap) <= 2 else float(np.clip(gap / 4.0, -1, 1))
         if self.action["kind"] == "discrete":
             return [int(np.sign(move)) + 1]

@@ -3,8 +3,9 @@
 
 It plays the paddle game from the pixels it is shown with a hand rule:
 find the ball (the pixels that are bright in all three channels), find the
-paddle (the run of pixels on the paddle's row that stand out from that
-row's usual colour), and move the paddle towards the ball.
+paddle (the pixels in the columns of its curved track that stand out from
+their column's usual colour), and slide the paddle towards the ball's
+height.
 
 Run it through tilebench, which starts it and speaks the protocol
 (docs/policy-protocol.md) over its stdin and stdout:
@@ -13,7 +14,7 @@ Run it through tilebench, which starts it and speaks the protocol
 
 Options:
     --lead N      aim N pixels ahead of the ball's motion (default 0)
-    --deadzone D  stay when the paddle is within D pixels of the ball (default 2)
+    --deadzone D  stay when the paddle is within D pixels of the ball's height (default 2)
 
 Without --lead the rule keeps no state from frame to frame, so it offers
 batches of up to 32 frames in one message ("batch" in ready; see
@@ -34,7 +35,8 @@ except ImportError:  # not installed: use the copy in this repository
     sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "python"))
     import tilebench_protocol as tp
 
-PADDLE_ROW = 76  # the paddle's row in the 84x84 paddle field
+TRACK_X0, TRACK_X1 = 98, 118  # the columns of the paddle's track in the 120x80 field
+RAIL = 3  # rows of rail at the top and the bottom
 
 
 def log(*args):
@@ -55,7 +57,7 @@ class HandRule:
         """Called at hello: refuse what the rule cannot read."""
         h = session.hello
         if session.game != "paddle" or session.obs != "frame" or session.dtype != "uint8" \
-                or h["frame"][2] != 3 or h["frame"][1] < PADDLE_ROW or h["frame"][0] <= PADDLE_ROW:
+                or h["frame"][2] != 3 or h["frame"][1] < TRACK_X1 or h["frame"][0] <= 2 * RAIL:
             return "needs the paddle game as uint8 RGB frames, got %s %s %s %s" % (
                 session.game, session.obs, session.dtype, h["frame"])
         self.h, self.w, self.c = h["frame"]
@@ -72,11 +74,12 @@ class HandRule:
     def reset(self):
         self.last_ball = None
 
-    def ball_x(self, frame):
-        """Mean x of the pixels bright in all channels above the paddle."""
-        mask = frame[: PADDLE_ROW * self.w * 3].translate(BRIGHT)
+    def ball_y(self, frame):
+        """Mean y of the pixels bright in all channels (and their mean x
+        in self.ball_x)."""
+        mask = frame.translate(BRIGHT)
         xs = []
-        self.ball_y = None
+        self.ball_x = None
         ys = []
         i = mask.find(b"\x01\x01\x01")
         while i >= 0:
@@ -88,8 +91,8 @@ class HandRule:
                 i = mask.find(b"\x01\x01\x01", i + 1)
         if not xs:
             return None
-        self.ball_y = sum(ys) / len(ys)
-        return sum(xs) / len(xs)
+        self.ball_x = sum(xs) / len(xs)
+        return sum(ys) / len(ys)
 
     def weights(self, ball, paddle):
         """Optional per-cell weights for the action reply: what the rule
@@ -104,25 +107,32 @@ class HandRule:
             r, c = min(int(y) // sy, rows - 1), min(int(x) // sx, cols - 1)
             w[r * cols + c] += v
         if ball is not None:
-            mark(ball, self.ball_y, 1.0)
+            mark(self.ball_x, ball, 1.0)
         if paddle is not None:
-            mark(paddle, PADDLE_ROW, 0.5)
+            mark(self.paddle_x, paddle, 0.5)
         return w
 
-    def paddle_x(self, frame):
-        """Centre of the pixels on the paddle row far from the row's median."""
-        row = frame[PADDLE_ROW * self.w * 3:(PADDLE_ROW + 1) * self.w * 3]
-        pixels = [row[3 * x:3 * x + 3] for x in range(self.w)]
-        med = [sorted(p[k] for p in pixels)[self.w // 2] for k in range(3)]
-        xs = [x for x, p in enumerate(pixels)
-              if abs(p[0] - med[0]) + abs(p[1] - med[1]) + abs(p[2] - med[2]) > 90]
-        if not xs:
+    def paddle_y(self, frame):
+        """Centre of the pixels between the rails, in the track's columns,
+        far from their column's median and not bright in every channel
+        (the ball); its mean x in self.paddle_x."""
+        xs, ys = [], []
+        n = self.h - 2 * RAIL
+        for x in range(TRACK_X0, min(TRACK_X1, self.w)):
+            pixels = [frame[3 * (y * self.w + x):3 * (y * self.w + x) + 3] for y in range(RAIL, self.h - RAIL)]
+            med = [sorted(p[k] for p in pixels)[n // 2] for k in range(3)]
+            for i, p in enumerate(pixels):
+                if min(p) < 200 and abs(p[0] - med[0]) + abs(p[1] - med[1]) + abs(p[2] - med[2]) > 90:
+                    xs.append(x)
+                    ys.append(RAIL + i)
+        self.paddle_x = sum(xs) / len(xs) if xs else None
+        if not ys:
             return None
-        return sum(xs) / len(xs)
+        return sum(ys) / len(ys)
 
     def act(self, frame):
-        ball = self.ball_x(frame)
-        paddle = self.paddle_x(frame)
+        ball = self.ball_y(frame)
+        paddle = self.paddle_y(frame)
         target = ball
         if ball is not None and self.last_ball is not None:
             target = ball + self.lead * (ball - self.last_ball)
@@ -134,7 +144,7 @@ class HandRule:
             gap = target - paddle
             move = 0.0 if abs(gap) <= self.deadzone else max(-1.0, min(1.0, gap / 4.0))
         if self.action["kind"] == "discrete":
-            # left / stay / right
+            # up / stay / down
             return [0 if move < 0 else (2 if move > 0 else 1)]
         lo, hi = self.action["low"][0], self.action["high"][0]
         return [max(lo, min(hi, move))] + [0.0] * (self.action["dim"] - 1)

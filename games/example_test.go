@@ -19,7 +19,7 @@ func ExampleNew() {
 	frame := image.NewRGBA(image.Rect(0, 0, sp.Width, sp.Height))
 	g.Reset(games.HeldOut(0))
 	g.Render(frame)
-	st, err := g.Step([]float64{2}) // right
+	st, err := g.Step([]float64{2}) // down
 	fmt.Println(games.Names(), sp.Variation, sp.Width, sp.Height, sp.Action.Kind, sp.Action.Names, st.Done, err)
-	// Output: [drive paddle] drifter+orchid 84 84 discrete [left stay right] false <nil>
+	// Output: [drive paddle] drifter+orchid 120 80 discrete [up stay down] false <nil>
 }

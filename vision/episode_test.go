@@ -13,7 +13,7 @@ import (
 )
 
 // newPaddleEpisode builds an episode of the default paddle game with a
-// patch-7 identity pipeline (or the given spec) around pol; pol nil means
+// patch-10 identity pipeline (or the given spec) around pol; pol nil means
 // the game's expert.
 func newPaddleEpisode(t testing.TB, spec patch.Spec, pol func(g games.Game) vision.Policy) *vision.Episode {
 	t.Helper()
@@ -22,7 +22,7 @@ func newPaddleEpisode(t testing.TB, spec patch.Spec, pol func(g games.Game) visi
 		t.Fatal(err)
 	}
 	sp := g.Spec()
-	grid, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: 7})
+	grid, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: 10})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -100,9 +100,9 @@ func TestEpisodeTellsPolicyTheEnd(t *testing.T) {
 	if rec.ends != 1 || rec.endRet != res.Return || rec.endSteps != res.Steps {
 		t.Fatalf("End called %d times with (%v, %d); episode returned %v in %d steps", rec.ends, rec.endRet, rec.endSteps, res.Return, res.Steps)
 	}
-	// 84x84 at patch 7 is 144 cells; dropping half leaves 72 (round half even).
-	if rec.tokensN != 72 {
-		t.Fatalf("policy saw %d tokens, want 72 after dropping half of 144", rec.tokensN)
+	// 120x80 at patch 10 is 96 cells; dropping half leaves 48.
+	if rec.tokensN != 48 {
+		t.Fatalf("policy saw %d tokens, want 48 after dropping half of 96", rec.tokensN)
 	}
 }
 

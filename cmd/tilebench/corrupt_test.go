@@ -93,7 +93,7 @@ func TestVerifyCorruptShift(t *testing.T) {
 // stress --corrupt sweeps the range syntax into cells.
 func TestStressCorruptAxis(t *testing.T) {
 	out := filepath.Join(t.TempDir(), "s")
-	code, _, stderr := runCLI(t, "", "stress", "--game", "paddle", "--policy", "expert", "--patch", "7", "--corrupt", "none,blur:s1:s2",
+	code, _, stderr := runCLI(t, "", "stress", "--game", "paddle", "--policy", "expert", "--patch", "10", "--corrupt", "none,blur:s1:s2",
 		"--episodes", "1", "--resamples", "100", "--out", out)
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, stderr)

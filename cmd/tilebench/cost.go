@@ -28,7 +28,7 @@ activation memory of one forward pass, and the median latency per step
 measured on this machine (one goroutine, random tokens).
 
   tilebench cost --game drive --family attention --patch 4,6,8,12,16
-  tilebench cost --game paddle --family meanpool --patch 4,7,12 --json
+  tilebench cost --game paddle --family meanpool --patch 5,10,20 --json
   tilebench cost --game drive --family attention --key-size 32 --queries 8 --patch 8 --layers
 
 options:`

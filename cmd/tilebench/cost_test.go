@@ -20,7 +20,7 @@ func TestCostTableAndJSON(t *testing.T) {
 			t.Errorf("table lacks %q:\n%s", want, out)
 		}
 	}
-	code, out, errOut = runCLI(t, "", "cost", "--game", "paddle", "--family", "meanpool", "--patch", "4,7", "--json", "--reps", "1", "--steps", "1")
+	code, out, errOut = runCLI(t, "", "cost", "--game", "paddle", "--family", "meanpool", "--patch", "5,10", "--json", "--reps", "1", "--steps", "1")
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errOut)
 	}
@@ -49,7 +49,7 @@ func TestCostTableAndJSON(t *testing.T) {
 		t.Fatal(err)
 	}
 	sp := g.Spec()
-	grid, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: 7})
+	grid, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: 10})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -62,7 +62,7 @@ func TestCostTableAndJSON(t *testing.T) {
 		t.Errorf("row %+v, cost model %+v", r, c)
 	}
 	if res.Sizes[0].Tokens <= r.Tokens {
-		t.Errorf("patch 4 gives %d tokens, patch 7 %d: smaller patches should give more", res.Sizes[0].Tokens, r.Tokens)
+		t.Errorf("patch 5 gives %d tokens, patch 10 %d: smaller patches should give more", res.Sizes[0].Tokens, r.Tokens)
 	}
 }
 

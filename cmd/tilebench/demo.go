@@ -23,7 +23,7 @@ Runs, on 2 cores in about a minute: on the built-in driving game a
 patch-size study (patch 4, 8, 16; clean and under random occlusion and
 scrambling) and a stress study of the patch-8 policy (random occlusion
 0 to 0.75 and a block, each with and without a full scramble), and the
-same stress study of the patch-7 policy on the paddle game. Uses the
+same stress study of the patch-10 policy on the paddle game. Uses the
 reference policies in testdata/policies when they are there, untrained
 networks otherwise (the report says which). Writes DIR/index.html with
 links to DIR/sizes/report.html, DIR/stress/report.html and
@@ -70,7 +70,7 @@ func demoStudies(refDir string, episodes int) []demoStudy {
 	return []demoStudy{
 		{"sizes", "Patch-size study", sizes},
 		{"stress", "Stress study", drive},
-		{"paddle-stress", "Stress study", stress("demo: paddle stress", "paddle", 7)},
+		{"paddle-stress", "Stress study", stress("demo: paddle stress", "paddle", 10)},
 	}
 }
 

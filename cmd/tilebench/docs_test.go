@@ -142,7 +142,7 @@ func TestPolicySourcesTable(t *testing.T) {
 	pol := filepath.Join(reftest.Root(), "testdata", "policies")
 	sources := map[string]string{
 		"expert": "expert", "idle": "idle", "random": "random", "fresh": "fresh", "FAMILY": "meanpool",
-		"FILE.safetensors":          filepath.Join(pol, "paddle-attention-p7.safetensors"),
+		"FILE.safetensors":          filepath.Join(pol, "paddle-attention-p10.safetensors"),
 		"FILE-p{patch}.safetensors": filepath.Join(pol, "paddle-attention-p{patch}.safetensors"),
 		"exec:COMMAND ARGS":         "exec:" + exe,
 		"tcp://HOST:PORT":           serveTCP(t),
@@ -186,15 +186,15 @@ func TestPolicySourcesTable(t *testing.T) {
 func sourceCommand(t *testing.T, cmd, src string) []string {
 	switch cmd {
 	case "play":
-		return []string{"play", "--game", "paddle", "--episodes", "1", "--patch", "7", "--json", "--policy", src}
+		return []string{"play", "--game", "paddle", "--episodes", "1", "--patch", "10", "--json", "--policy", src}
 	case "record":
-		return []string{"record", "--game", "paddle", "--episodes", "1", "--patch", "7", "--json", "--out", filepath.Join(t.TempDir(), "r"), "--policy", src}
+		return []string{"record", "--game", "paddle", "--episodes", "1", "--patch", "10", "--json", "--out", filepath.Join(t.TempDir(), "r"), "--policy", src}
 	case "verify":
-		return []string{"verify", "--game", "paddle", "--perms", "2", "--seeds", "1", "--frames", "1", "--patch", "7", "--json", "--policy", src}
+		return []string{"verify", "--game", "paddle", "--perms", "2", "--seeds", "1", "--frames", "1", "--patch", "10", "--json", "--policy", src}
 	case "stress", "sizes":
-		ps := "7"
+		ps := "10"
 		if policies.IsTemplate(src) {
-			ps = "7,12" // a template names one policy per size: a study of one size refuses it
+			ps = "10,20" // a template names one policy per size: a study of one size refuses it
 		}
 		return []string{cmd, "--game", "paddle", "--episodes", "1", "--patch", ps, "--occlude", "none,random:0.5", "--resamples", "100",
 			"--json", "--out", filepath.Join(t.TempDir(), "s"), "--policy", src}
@@ -264,7 +264,7 @@ func TestHelpMatchesDocs(t *testing.T) {
 func TestPlayFramesShowTheTransform(t *testing.T) {
 	blackFrame0 := func(extra ...string) int {
 		dir := filepath.Join(t.TempDir(), "f")
-		args := append([]string{"play", "--game", "paddle", "--episodes", "1", "--patch", "7", "--frames", dir, "--gif", filepath.Join(dir + ".gif")}, extra...)
+		args := append([]string{"play", "--game", "paddle", "--episodes", "1", "--patch", "10", "--frames", dir, "--gif", filepath.Join(dir + ".gif")}, extra...)
 		if code, _, errs := runCLI(t, "", args...); code != 0 {
 			t.Fatalf("%v: exit %d %s", args, code, errs)
 		}
@@ -278,11 +278,11 @@ func TestPlayFramesShowTheTransform(t *testing.T) {
 			t.Fatal(err)
 		}
 		n := 0
-		for y := 0; y < 84; y += 7 {
-			for x := 0; x < 84; x += 7 {
+		for y := 0; y < 80; y += 10 {
+			for x := 0; x < 120; x += 10 {
 				black := true
-				for dy := range 7 {
-					for dx := range 7 {
+				for dy := range 10 {
+					for dx := range 10 {
 						if r, g, b, _ := img.At(x+dx, y+dy).RGBA(); r|g|b != 0 {
 							black = false
 						}
@@ -296,9 +296,9 @@ func TestPlayFramesShowTheTransform(t *testing.T) {
 		return n
 	}
 	clean, occluded := blackFrame0(), blackFrame0("--occlude", "random:0.5")
-	// 144 cells, round-half-even(0.5·144) = 72 of them hidden.
-	if occluded < 72 || clean >= 72 {
-		t.Fatalf("black cells: %d clean, %d under random:0.5 (want < 72 and ≥ 72)", clean, occluded)
+	// 96 cells, 0.5·96 = 48 of them hidden.
+	if occluded < 48 || clean >= 48 {
+		t.Fatalf("black cells: %d clean, %d under random:0.5 (want < 48 and ≥ 48)", clean, occluded)
 	}
 }
 
@@ -312,7 +312,7 @@ func TestStressRecordsPolicyOptions(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := filepath.Join(t.TempDir(), "s")
-	code, _, errs := runCLI(t, "", "stress", "--game", "paddle", "--episodes", "1", "--patch", "7", "--resamples", "100",
+	code, _, errs := runCLI(t, "", "stress", "--game", "paddle", "--episodes", "1", "--patch", "10", "--resamples", "100",
 		"--policy", "exec:"+exe, "--policy-obs", "tokens", "--policy-dtype", "float32", "--policy-timeout", "20s", "--out", out)
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errs)

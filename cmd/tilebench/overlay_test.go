@@ -120,7 +120,7 @@ func TestPlayOverlayGIF(t *testing.T) {
 
 func TestStressOverlayStrips(t *testing.T) {
 	out := filepath.Join(t.TempDir(), "st")
-	code, _, stderr := runCLI(t, "", "stress", "--game", "paddle", "--policy", shippedPolicy("paddle-attention-p7.safetensors"),
+	code, _, stderr := runCLI(t, "", "stress", "--game", "paddle", "--policy", shippedPolicy("paddle-attention-p10.safetensors"),
 		"--occlude", "random:0,random:0.5", "--episodes", "1", "--resamples", "200", "--workers", "1", "--overlay", "top:2", "--out", out)
 	if code != 0 {
 		t.Fatalf("stress: %d %s", code, stderr)

@@ -161,7 +161,7 @@ func TestPlayWeightsFile(t *testing.T) {
 	}
 	// The same file on the paddle game: one line naming both frame sizes.
 	code, _, stderr = runCLI(t, "", "play", "--game", "paddle", "--policy", file, "--episodes", "1")
-	if code != 1 || strings.Count(stderr, "\n") != 1 || !strings.Contains(stderr, "112x80") || !strings.Contains(stderr, "84x84") {
-		t.Fatalf("exit %d, stderr %q: want one runtime-error line naming 112x80 and 84x84", code, stderr)
+	if code != 1 || strings.Count(stderr, "\n") != 1 || !strings.Contains(stderr, "112x80") || !strings.Contains(stderr, "120x80") {
+		t.Fatalf("exit %d, stderr %q: want one runtime-error line naming 112x80 and 120x80", code, stderr)
 	}
 }

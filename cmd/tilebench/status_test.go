@@ -102,7 +102,7 @@ func TestPolicyStartTimeoutFlag(t *testing.T) {
 // file's patch size through --config, as docs/studies.md says.
 func TestConfigTakesWeightsPatch(t *testing.T) {
 	dir := t.TempDir()
-	src, _ := filepath.Abs(filepath.Join("..", "..", "testdata", "policies", "paddle-attention-p12.safetensors"))
+	src, _ := filepath.Abs(filepath.Join("..", "..", "testdata", "policies", "paddle-attention-p20.safetensors"))
 	cfg := filepath.Join(dir, "s.toml")
 	os.WriteFile(cfg, []byte("game = \"paddle\"\nepisodes = 1\n[policy]\nsource = '"+src+"'\n[stats]\nresamples = 200\n"), 0o644)
 	out := filepath.Join(dir, "s")

@@ -61,7 +61,7 @@ func TestVerifyWeightsFile(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	grid, err := patch.NewGrid(patch.GridConfig{Width: 84, Height: 84, PatchW: 12})
+	grid, err := patch.NewGrid(patch.GridConfig{Width: 120, Height: 80, PatchW: 20})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -74,12 +74,12 @@ func TestVerifyWeightsFile(t *testing.T) {
 		t.Fatal(err)
 	}
 	code, m, errs := verifyJSON(t, "--policy", path, "--game", "paddle", "--perms", "3", "--seeds", "1", "--frames", "1")
-	if code != 0 || m["family"] != "meanpool" || !strings.Contains(m["grid"].(string), "7x7") {
+	if code != 0 || m["family"] != "meanpool" || !strings.Contains(m["grid"].(string), "6x4") {
 		t.Fatalf("weights file: exit %d %v %s", code, m, errs)
 	}
 	// A paddle policy cannot verify on drive.
 	code, _, errs = runCLI(t, "", "verify", "--policy", path, "--game", "drive", "--perms", "1")
-	if code != 1 || !strings.Contains(errs, "weights are for 84x84 frames") {
+	if code != 1 || !strings.Contains(errs, "weights are for 120x80 frames") {
 		t.Fatalf("wrong game: exit %d %s", code, errs)
 	}
 	bad := filepath.Join(t.TempDir(), "bad.safetensors")

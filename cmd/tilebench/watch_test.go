@@ -132,7 +132,7 @@ func TestWatchStopEndsExternalProcessGroup(t *testing.T) {
 	pidFile := filepath.Join(dir, "helper.pid")
 	// The policy starts a helper of its own, as real ones do.
 	policy := "exec:/bin/sh -c 'sleep 300 & echo $! > " + pidFile + "; exec " + reftest.Python + " " + script + "'"
-	url, stop := startWatch(t, "--game", "paddle", "--patch", "12", "--policy", policy)
+	url, stop := startWatch(t, "--game", "paddle", "--patch", "20", "--policy", policy)
 	if ev := firstEvent(t, url); !strings.Contains(ev, `"has_weights":true`) {
 		t.Fatalf("the example's weights did not arrive: %.300s", ev)
 	}

@@ -35,7 +35,7 @@ func paddleScore(t *testing.T, mk func(games.Spec, *patch.Grid) vision.Policy, s
 	if err != nil {
 		t.Fatal(err)
 	}
-	grid, err := patch.NewGrid(patch.GridConfig{Width: 84, Height: 84, PatchW: 12})
+	grid, err := patch.NewGrid(patch.GridConfig{Width: 120, Height: 80, PatchW: 20})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -90,7 +90,7 @@ func TestShippedPoliciesMeetTargets(t *testing.T) {
 	}
 	targets["drive-attention-p8"] = 0.85
 	for _, fam := range []string{"attention", "posattention"} {
-		for _, p := range []string{"4", "7", "12"} {
+		for _, p := range []string{"5", "10", "20"} {
 			targets["paddle-"+fam+"-p"+p] = 0.9
 		}
 	}

@@ -129,7 +129,7 @@ func TestNewRejectsBadConfig(t *testing.T) {
 // TestInitMustFit: starting weights from another game or patch size are
 // refused with an error naming them.
 func TestInitMustFit(t *testing.T) {
-	g, _ := patch.NewGrid(patch.GridConfig{Width: 84, Height: 84, PatchW: 4})
+	g, _ := patch.NewGrid(patch.GridConfig{Width: 120, Height: 80, PatchW: 5})
 	paddleNet, err := nets.New(nets.Config{}, g, games.ActionSpace{Kind: games.Discrete, Names: []string{"l", "s", "r"}}, 1)
 	if err != nil {
 		t.Fatal(err)

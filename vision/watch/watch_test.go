@@ -55,7 +55,7 @@ func paddle(t testing.TB) (games.Game, *patch.Grid) {
 		t.Fatal(err)
 	}
 	sp := g.Spec()
-	grid, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: 12})
+	grid, err := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: 20})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -485,7 +485,7 @@ func loadShipped(t testing.TB, name string) nets.Net {
 // ordered: mapped back onto the game frame, its overlay is the same with
 // and without scrambling.
 func TestInvariantOverlaySurvivesScrambling(t *testing.T) {
-	for _, name := range []string{"paddle-attention-p7.safetensors", "drive-attention-p8.safetensors"} {
+	for _, name := range []string{"paddle-attention-p10.safetensors", "drive-attention-p8.safetensors"} {
 		net := loadShipped(t, name)
 		gname := strings.Split(name, "-")[0]
 		var cells [2][]float32

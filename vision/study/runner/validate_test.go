@@ -56,13 +56,13 @@ func TestParseExplicitValues(t *testing.T) {
 // patch size, as docs/studies.md says, whether it comes from a file or
 // from the flags; it used to take patch 8 from a file.
 func TestPatchFromWeightsFile(t *testing.T) {
-	src := filepath.Join("..", "..", "..", "testdata", "policies", "paddle-attention-p12.safetensors")
+	src := filepath.Join("..", "..", "..", "testdata", "policies", "paddle-attention-p20.safetensors")
 	d, err := study.Parse([]byte("game = \"paddle\"\n[policy]\nsource = '" + src + "'\n"))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if len(d.Patch) != 1 || d.Patch[0] != "12" {
-		t.Fatalf("patch %v, want the file's 12", d.Patch)
+	if len(d.Patch) != 1 || d.Patch[0] != "20" {
+		t.Fatalf("patch %v, want the file's 20", d.Patch)
 	}
 	d, err = study.Parse([]byte("game = \"paddle\"\npatch = 4\n[policy]\nsource = '" + src + "'\n"))
 	if err != nil || d.Patch[0] != "4" {
@@ -74,7 +74,7 @@ func TestPatchFromWeightsFile(t *testing.T) {
 // when played, even when its geometry happens to fit; it used to load
 // and play.
 func TestWeightsGameMismatch(t *testing.T) {
-	src := filepath.Join("..", "..", "..", "testdata", "policies", "paddle-attention-p12.safetensors")
+	src := filepath.Join("..", "..", "..", "testdata", "policies", "paddle-attention-p20.safetensors")
 	f, err := weights.ReadFile(src)
 	if err != nil {
 		t.Fatal(err)
