@@ -166,6 +166,7 @@ type Game struct {
 	spec    games.Spec
 	bg      []byte // the static background frame, RGBA
 	gateBg  []byte // the far wall's columns drawn open, RGBA rows of 4·farCols bytes
+	pcg     *rand.PCG // re-seeded by Reset, so that a reset allocates nothing
 	rng     *rand.Rand
 	ball    Ball
 	phi     float64 // the paddle centre's angle on the track (rad, positive downwards)
@@ -262,7 +263,8 @@ func NewConfig(cfg Config, variation string) (*Game, error) {
 	case cfg.Balls < 1 || cfg.MaxSteps < 1:
 		return nil, fmt.Errorf("paddle: ball count %d and step limit %d must be positive", cfg.Balls, cfg.MaxSteps)
 	}
-	g := &Game{cfg: cfg, rng: seeds.NewRand(0)}
+	g := &Game{cfg: cfg, pcg: rand.NewPCG(0, 0)}
+	g.rng = rand.New(g.pcg)
 	act := games.ActionSpace{Kind: games.Discrete, Names: []string{"up", "stay", "down"}}
 	if cfg.Analog {
 		act = games.ActionSpace{Kind: games.Continuous, Names: []string{"slide"}, Low: []float64{-1}, High: []float64{1}}
@@ -306,11 +308,16 @@ func (g *Game) Lost() int { return g.lost }
 // Events returns the collisions of the last step (valid until the next).
 func (g *Game) Events() []Event { return g.events[:g.nEvents] }
 
+// serveKey names the stream every random draw of an episode comes from.
+var serveKey = seeds.StreamKey("serve")
+
 // Reset starts an episode: paddle at the middle of the track, gate and
 // post (if any) at seeded places, and the first serve drawn from the
-// seed's "serve" stream.
+// seed's "serve" stream (the generator seeds.NewRand would make, re-seeded
+// in place). It allocates nothing.
 func (g *Game) Reset(seed uint64) {
-	g.rng = seeds.NewRand(seeds.DeriveSeed(seed, seeds.StreamKey("serve")))
+	s := seeds.DeriveSeed(seed, serveKey)
+	g.pcg.Seed(seeds.DeriveSeed(s, 1), seeds.DeriveSeed(s, 2))
 	g.phi = 0
 	lo, hi := g.gateRange()
 	g.gateY = lo + (hi-lo)*g.rng.Float64()

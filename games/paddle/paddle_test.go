@@ -516,6 +516,31 @@ func TestGoldenFrames(t *testing.T) {
 	})
 }
 
+// Reset draws from the stream seeds.NewRand gives for the episode's
+// "serve" key, and allocates nothing.
+func TestResetStreamAndAllocs(t *testing.T) {
+	g := newGame(t, "")
+	for _, seed := range []uint64{0, 7, games.HeldOut(3)} {
+		g.Reset(seed)
+		want := seeds.NewRand(seeds.DeriveSeed(seed, seeds.StreamKey("serve")))
+		// Reset's draws: the gate, its direction, the post, its
+		// direction, the serve's x, y and tilt.
+		want.Float64()
+		want.IntN(2)
+		want.Float64()
+		want.IntN(2)
+		want.Float64()
+		want.Float64()
+		want.Float64()
+		if got, w := g.rng.Uint64(), want.Uint64(); got != w {
+			t.Fatalf("seed %d: stream gives %x, seeds.NewRand %x", seed, got, w)
+		}
+	}
+	if n := testing.AllocsPerRun(200, func() { g.Reset(9) }); n != 0 {
+		t.Fatalf("Reset: %v allocations", n)
+	}
+}
+
 // Step plus Render allocate nothing.
 func TestStepRenderAllocs(t *testing.T) {
 	g := newGame(t, "drifter")
