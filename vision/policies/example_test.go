@@ -40,5 +40,5 @@ func ExampleOpen() {
 	}
 	defer policies.Close(pol)
 	fmt.Println(pol.Info().Family, grid.PatchW)
-	// Output: meanpool 7
+	// Output: meanpool 8
 }

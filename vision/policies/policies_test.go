@@ -66,8 +66,8 @@ func TestOpenNetworks(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if grid.PatchW != 7 {
-		t.Fatalf("automatic patch on %dx%d: %d, want 7", sp.Width, sp.Height, grid.PatchW)
+	if grid.PatchW != 8 {
+		t.Fatalf("automatic patch on %dx%d: %d, want 8", sp.Width, sp.Height, grid.PatchW)
 	}
 	ex, err := policies.Open("expert", g, grid, policies.Options{})
 	if err != nil || !ex.Info().ReadsState {
