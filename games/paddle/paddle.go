@@ -851,7 +851,7 @@ func mix(a, b color.RGBA, t float64) color.RGBA {
 	return color.RGBA{l(a.R, b.R), l(a.G, b.G), l(a.B, b.B), 255}
 }
 
-// Expert returns the aiming expert bound to this game.
+// Expert returns the level-keeping expert bound to this game.
 func (g *Game) Expert() games.Expert { return g.expert }
 
 // floorsOf returns the measured baseline returns of the default game
