@@ -164,8 +164,8 @@ func ParseVariation(s string) (Config, string, error) {
 type Game struct {
 	cfg     Config
 	spec    games.Spec
-	bg      []byte // the static background frame, RGBA
-	gateBg  []byte // the far wall's columns drawn open, RGBA rows of 4·farCols bytes
+	bg      []byte    // the static background frame, RGBA
+	gateBg  []byte    // the far wall's columns drawn open, RGBA rows of 4·farCols bytes
 	pcg     *rand.PCG // re-seeded by Reset, so that a reset allocates nothing
 	rng     *rand.Rand
 	ball    Ball
