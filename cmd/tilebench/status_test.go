@@ -111,7 +111,7 @@ func TestConfigTakesWeightsPatch(t *testing.T) {
 		t.Fatalf("exit %d: %q %q", code, stdout, stderr)
 	}
 	b, err := os.ReadFile(filepath.Join(out, "study.json"))
-	if err != nil || !strings.Contains(string(b), `"patch": [`) && !strings.Contains(string(b), `"patch":[`) || !strings.Contains(string(b), `"12"`) {
-		t.Fatalf("study.json does not record patch 12: %v %.300s", err, b)
+	if err != nil || !strings.Contains(string(b), `"patch": [`) && !strings.Contains(string(b), `"patch":[`) || !strings.Contains(string(b), `"20"`) {
+		t.Fatalf("study.json does not record patch 20: %v %.300s", err, b)
 	}
 }
