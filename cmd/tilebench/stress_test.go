@@ -171,7 +171,7 @@ func TestStressHelp(t *testing.T) {
 // usage errors.
 func TestStressFloorAndMarginFlags(t *testing.T) {
 	out := filepath.Join(t.TempDir(), "s")
-	code, _, stderr := runCLI(t, "", "stress", "--game", "paddle", "--policy", "expert", "--patch", "7", "--occlude", "none,random:0.5",
+	code, _, stderr := runCLI(t, "", "stress", "--game", "paddle", "--policy", "expert", "--patch", "10", "--occlude", "none,random:0.5",
 		"--episodes", "3", "--resamples", "200", "--floor", "random", "--out", out)
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, stderr)
