@@ -9,7 +9,7 @@ import (
 // iteration (2000 steps, frames streamed to disk); its allocations
 // (files, buffers, manifest) number far fewer than its steps.
 func BenchmarkRecordPaddle(b *testing.B) {
-	g, grid := setup(b, "paddle", 12)
+	g, grid := setup(b, "paddle", 20)
 	b.ReportAllocs()
 	for i := 0; i < b.N; i++ {
 		if _, err := Run(Config{Game: g, Grid: grid, Episodes: 1, Dir: filepath.Join(b.TempDir(), "r")}); err != nil {

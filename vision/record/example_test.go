@@ -15,7 +15,7 @@ import (
 // the files NumPy will read.
 func ExampleRun() {
 	g, _ := games.New("paddle", games.Options{})
-	grid, _ := patch.NewGrid(patch.GridConfig{Width: 84, Height: 84, PatchW: 12})
+	grid, _ := patch.NewGrid(patch.GridConfig{Width: 120, Height: 80, PatchW: 20})
 	dir, _ := os.MkdirTemp("", "demos")
 	defer os.RemoveAll(dir)
 	m, err := record.Run(record.Config{Game: g, Grid: grid, Spec: patch.Spec{Occlude: "random:0.2"},
@@ -28,8 +28,8 @@ func ExampleRun() {
 		fmt.Println(f.Name, f.Dtype, f.Shape)
 	}
 	// Output:
-	// 4000 true occlude=random:0.2
-	// frames.npy |u1 [84 84 3]
+	// 2400 true occlude=random:0.2
+	// frames.npy |u1 [80 120 3]
 	// actions.npy <f4 [1]
 	// prev_actions.npy <f4 [1]
 	// rewards.npy <f4 []

@@ -10,7 +10,7 @@ import (
 // into it returns an error or a consistent plan, and never panics; a
 // refused folder keeps its bytes.
 func FuzzResumeManifest(f *testing.F) {
-	g, grid := setup(f, "paddle", 12)
+	g, grid := setup(f, "paddle", 20)
 	dir := filepath.Join(f.TempDir(), "seed")
 	if _, err := Run(Config{Game: g, Grid: grid, Episodes: 1, Dir: dir}); err != nil {
 		f.Fatal(err)

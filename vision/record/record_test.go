@@ -71,7 +71,7 @@ func f32s(b []byte) []float32 {
 // episode starts, seeds and step indices line up, and the frames are the
 // game's own renders (no transforms).
 func TestExpertActionsAndBoundaries(t *testing.T) {
-	g, grid := setup(t, "paddle", 7)
+	g, grid := setup(t, "paddle", 10)
 	dir := filepath.Join(t.TempDir(), "rec")
 	m, err := Run(Config{Game: g, Grid: grid, Episodes: 3, Seed: 40, Dir: dir})
 	if err != nil {
@@ -175,7 +175,7 @@ func dirBytes(t *testing.T, dir string) map[string][]byte {
 // an episode left in its files, resumed to four episodes, is byte for byte
 // the recording made in one go (transforms included, tokens kept).
 func TestResumeSameBytes(t *testing.T) {
-	g, grid := setup(t, "paddle", 12)
+	g, grid := setup(t, "paddle", 20)
 	spec := patch.Spec{Scramble: "full", Occlude: "random:0.3", Fill: "drop", NoiseTokens: 2}
 	cfg := Config{Game: g, Grid: grid, Spec: spec, Obs: ObsTokens, Episodes: 4, Seed: 7}
 	cfg.Dir = filepath.Join(t.TempDir(), "whole")
@@ -242,9 +242,9 @@ func TestResumeSameBytes(t *testing.T) {
 // TestBadFolders: a folder that exists and is not resumable is refused
 // with one line, and nothing in it changes.
 func TestBadFolders(t *testing.T) {
-	g, grid := setup(t, "paddle", 12)
+	g, grid := setup(t, "paddle", 20)
 	base := Config{Game: g, Grid: grid, Episodes: 1}
-	oblong, err := patch.NewGrid(patch.GridConfig{Width: 84, Height: 84, PatchW: 12, PatchH: 7})
+	oblong, err := patch.NewGrid(patch.GridConfig{Width: 120, Height: 80, PatchW: 20, PatchH: 10})
 	if err != nil {
 		t.Fatal(err)
 	}
