@@ -10,8 +10,8 @@ import (
 
 // Build a registered game by name, with a variation, and draw its first
 // frame into a caller-owned image.
-func ExampleNew() {
-	g, err := games.New("paddle", games.Options{Variation: "orchid+drifter"})
+func ExampleBuild() {
+	g, err := games.Build("paddle", games.Setup{Variation: "orchid+drifter"})
 	if err != nil {
 		panic(err)
 	}

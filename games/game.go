@@ -33,12 +33,12 @@ func (k ActionKind) String() string {
 	return "continuous"
 }
 
-// ActionSpace describes the actions a game accepts.
+// Controls describes the actions a game accepts.
 //
 // An action is always passed as a []float64: for a continuous space it
 // holds Dim() values; for a discrete space it holds one value, the index of
 // the choice (0, 1, ...).
-type ActionSpace struct {
+type Controls struct {
 	Kind ActionKind
 	// Names names each continuous dimension ("steer", "throttle", ...) or
 	// each discrete choice ("left", "stay", "right").
@@ -49,7 +49,7 @@ type ActionSpace struct {
 
 // Dim is the length of an action vector: the number of continuous
 // dimensions, or 1 for a discrete space.
-func (a ActionSpace) Dim() int {
+func (a Controls) Dim() int {
 	if a.Kind == Discrete {
 		return 1
 	}
@@ -57,7 +57,7 @@ func (a ActionSpace) Dim() int {
 }
 
 // Choices is the number of discrete choices (0 for a continuous space).
-func (a ActionSpace) Choices() int {
+func (a Controls) Choices() int {
 	if a.Kind == Discrete {
 		return len(a.Names)
 	}
@@ -71,7 +71,7 @@ var ErrBadAction = errors.New("bad action")
 // Check returns an error wrapping ErrBadAction if action does not fit a.
 // Continuous values outside [Low, High] are allowed (games clamp them);
 // non-finite values are not.
-func (a ActionSpace) Check(action []float64) error {
+func (a Controls) Check(action []float64) error {
 	if len(action) != a.Dim() {
 		return fmt.Errorf("%w: %d values, want %d", ErrBadAction, len(action), a.Dim())
 	}
@@ -129,9 +129,9 @@ type Spec struct {
 	// Width and Height are the observation frame size in pixels.
 	Width, Height int
 	// Action is the action space.
-	Action ActionSpace
-	// MaxSteps is the step limit of one episode.
-	MaxSteps int
+	Action Controls
+	// StepLimit is the step limit of one episode.
+	StepLimit int
 	// Floors are the game's documented baseline returns (docs/games.md),
 	// measured on the development range of held-out seeds; zero values
 	// mean not measured. Studies that normalise scores measure their own
@@ -184,9 +184,9 @@ type WithExpert interface {
 	Expert() Expert
 }
 
-// Options configure a game at construction. The zero value gives the
+// Setup configure a game at construction. The zero value gives the
 // default game.
-type Options struct {
+type Setup struct {
 	// Variation names a variation (palette set, sizes, distractors); ""
 	// means the default. Each game documents its variations.
 	Variation string
@@ -195,7 +195,7 @@ type Options struct {
 }
 
 // Constructor builds a game from options.
-type Constructor func(Options) (Game, error)
+type Constructor func(Setup) (Game, error)
 
 var registry = map[string]registered{}
 
@@ -204,18 +204,18 @@ type registered struct {
 	variations []string
 }
 
-// Register makes a game available by name. It is called from the init
+// Provide makes a game available by name. It is called from the init
 // function of each game's package and panics on a duplicate name
 // (a programming error, never user input).
-func Register(name string, variations []string, make Constructor) {
+func Provide(name string, variations []string, make Constructor) {
 	if _, dup := registry[name]; dup {
 		panic("games: duplicate game " + name)
 	}
 	registry[name] = registered{make: make, variations: variations}
 }
 
-// New builds the named game.
-func New(name string, opt Options) (Game, error) {
+// Build builds the named game.
+func Build(name string, opt Setup) (Game, error) {
 	r, ok := registry[name]
 	if !ok {
 		return nil, fmt.Errorf("unknown game %q (have %v)", name, Names())

@@ -7,11 +7,11 @@ import (
 	"testing"
 )
 
-func TestActionSpaceCheck(t *testing.T) {
-	cont := ActionSpace{Kind: Continuous, Names: []string{"a", "b"}, Low: []float64{-1, 0}, High: []float64{1, 1}}
-	disc := ActionSpace{Kind: Discrete, Names: []string{"l", "s", "r"}}
+func TestControlsCheck(t *testing.T) {
+	cont := Controls{Kind: Continuous, Names: []string{"a", "b"}, Low: []float64{-1, 0}, High: []float64{1, 1}}
+	disc := Controls{Kind: Discrete, Names: []string{"l", "s", "r"}}
 	good := []struct {
-		sp ActionSpace
+		sp Controls
 		a  []float64
 	}{{cont, []float64{0, 0.5}}, {cont, []float64{-7, 9}}, {disc, []float64{0}}, {disc, []float64{2}}}
 	for _, c := range good {
@@ -20,7 +20,7 @@ func TestActionSpaceCheck(t *testing.T) {
 		}
 	}
 	bad := []struct {
-		sp ActionSpace
+		sp Controls
 		a  []float64
 	}{{cont, []float64{0}}, {cont, []float64{math.NaN(), 0}}, {cont, []float64{0, math.Inf(-1)}},
 		{disc, []float64{3}}, {disc, []float64{-1}}, {disc, []float64{1.5}}, {disc, []float64{}}, {disc, []float64{math.NaN()}}}

@@ -45,11 +45,11 @@ func photoFrame(t testing.TB) *image.RGBA {
 func gameFrames(t testing.TB) []*image.RGBA {
 	t.Helper()
 	var out []*image.RGBA
-	for _, mk := range []func(games.Options) (games.Game, error){
-		func(o games.Options) (games.Game, error) { return drive.New(o) },
-		func(o games.Options) (games.Game, error) { return paddle.New(o) },
+	for _, mk := range []func(games.Setup) (games.Game, error){
+		func(o games.Setup) (games.Game, error) { return drive.New(o) },
+		func(o games.Setup) (games.Game, error) { return paddle.New(o) },
 	} {
-		g, err := mk(games.Options{})
+		g, err := mk(games.Setup{})
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -69,7 +69,7 @@ func (e *Episode) Run(gameSeed, pipeSeed uint64, hook StepHook) (Result, error) 
 	e.Policy.Reset(pipeSeed)
 	clear(e.prev)
 	res := Result{Seed: gameSeed}
-	maxSteps := e.Game.Spec().MaxSteps
+	maxSteps := e.Game.Spec().StepLimit
 	for t := 0; ; t++ {
 		e.Game.Render(e.frame)
 		if err := e.Pipe.TokenizeFrame(t, e.Tok, e.frame, e.clean); err != nil {

@@ -17,7 +17,7 @@ import (
 // the game's expert.
 func newPaddleEpisode(t testing.TB, spec patch.Spec, pol func(g games.Game) vision.Policy) *vision.Episode {
 	t.Helper()
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

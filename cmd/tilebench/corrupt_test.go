@@ -60,7 +60,7 @@ func TestExportCorrupt(t *testing.T) {
 // a whole patch with wrap-around edges and moves under a shift by part of
 // a patch.
 func TestVerifyCorruptShift(t *testing.T) {
-	g, err := games.New("drive", games.Options{})
+	g, err := games.Build("drive", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

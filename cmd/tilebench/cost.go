@@ -100,7 +100,7 @@ func runCost(ctx *runContext, args []string) error {
 	if err != nil {
 		return usagef("cost: --edge: %v", err)
 	}
-	g, err := games.New(f.game, games.Options{Variation: f.variation})
+	g, err := games.Build(f.game, games.Setup{Variation: f.variation})
 	if err != nil {
 		return usagef("cost: --game: %v", err)
 	}

@@ -44,7 +44,7 @@ func TestCostTableAndJSON(t *testing.T) {
 	}
 	// The figures are the cost model's for the paddle game's frame, with
 	// centring (the default, as tilebench train makes policies).
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

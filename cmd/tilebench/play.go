@@ -122,7 +122,7 @@ func (f *playFlags) check() error {
 
 // openGame is the game of --game, --variation and --size.
 func openGame(name, variation, size string) (games.Game, error) {
-	opt := games.Options{Variation: variation}
+	opt := games.Setup{Variation: variation}
 	if size != "" {
 		w, h, err := patch.ParseSize(size)
 		if err != nil {
@@ -130,7 +130,7 @@ func openGame(name, variation, size string) (games.Game, error) {
 		}
 		opt.Width, opt.Height = w, h
 	}
-	g, err := games.New(name, opt)
+	g, err := games.Build(name, opt)
 	if err != nil {
 		return nil, usagef("%v", err)
 	}

@@ -104,7 +104,7 @@ func TestPlayRecordsFrames(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	g, err := games.New("drive", games.Options{Variation: "small"})
+	g, err := games.Build("drive", games.Setup{Variation: "small"})
 	if err != nil {
 		t.Fatal(err)
 	}

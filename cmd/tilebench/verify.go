@@ -144,7 +144,7 @@ func runVerify(ctx *runContext, args []string) error {
 	if spec.Fill == "drop" {
 		return usagef("verify: --fill drop: the base transform must keep one token per cell (the drop test is --drop)")
 	}
-	g, err := games.New(*f.game, games.Options{Variation: *f.variation})
+	g, err := games.Build(*f.game, games.Setup{Variation: *f.variation})
 	if err != nil {
 		return usagef("verify: %v", err)
 	}

@@ -57,7 +57,7 @@ func TestVerifyFamilies(t *testing.T) {
 }
 
 func TestVerifyWeightsFile(t *testing.T) {
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

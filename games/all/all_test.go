@@ -23,13 +23,13 @@ func TestEveryGameKeepsTheContract(t *testing.T) {
 	}
 	for _, name := range names {
 		for _, v := range append([]string{""}, games.Variations(name)...) {
-			g, err := games.New(name, games.Options{Variation: v})
+			g, err := games.Build(name, games.Setup{Variation: v})
 			if err != nil {
 				t.Fatalf("%s/%s: %v", name, v, err)
 			}
 			sp := g.Spec()
 			act := sp.Action
-			if sp.Name != name || sp.Variation != v || sp.Width <= 0 || sp.Height <= 0 || sp.MaxSteps <= 0 || act.Dim() < 1 {
+			if sp.Name != name || sp.Variation != v || sp.Width <= 0 || sp.Height <= 0 || sp.StepLimit <= 0 || act.Dim() < 1 {
 				t.Fatalf("%s/%s: spec %+v", name, v, sp)
 			}
 			if act.Kind == games.Continuous && (len(act.Low) != act.Dim() || len(act.High) != act.Dim()) {
@@ -74,8 +74,8 @@ func TestEveryGameKeepsTheContract(t *testing.T) {
 					t.Fatalf("%s/%s: ended without a reason", name, v)
 				}
 			}
-			if steps > sp.MaxSteps {
-				t.Fatalf("%s/%s: episode ran %d steps, limit %d", name, v, steps, sp.MaxSteps)
+			if steps > sp.StepLimit {
+				t.Fatalf("%s/%s: episode ran %d steps, limit %d", name, v, steps, sp.StepLimit)
 			}
 			g.Reset(games.HeldOut(0))
 			nan := make([]float64, act.Dim())
@@ -101,7 +101,7 @@ func TestEveryGameKeepsTheContract(t *testing.T) {
 // far below the scripted expert on the same held-out seeds.
 func TestRandomPolicyFallsShort(t *testing.T) {
 	for _, name := range games.Names() {
-		g, err := games.New(name, games.Options{})
+		g, err := games.Build(name, games.Setup{})
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -11,7 +11,7 @@ import (
 // BenchmarkDriveStep measures one step plus one render at 112×80 with the
 // expert driving (the expert's own cost included).
 func BenchmarkDriveStep(b *testing.B) {
-	g, err := New(games.Options{})
+	g, err := New(games.Setup{})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -24,7 +24,7 @@ func BenchmarkDriveFrameCopy(b *testing.B) { gametest.BenchFrameCopy(b, DefaultW
 
 // BenchmarkDriveRender measures the render alone.
 func BenchmarkDriveRender(b *testing.B) {
-	g, err := New(games.Options{})
+	g, err := New(games.Setup{})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -45,7 +45,7 @@ func BenchmarkDriveRender(b *testing.B) {
 // BenchmarkDriveReset measures starting an episode: generating the
 // circuit and clearing the last episode's road from the world image (the road is drawn lazily by Render).
 func BenchmarkDriveReset(b *testing.B) {
-	g, err := New(games.Options{})
+	g, err := New(games.Setup{})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -59,7 +59,7 @@ func BenchmarkDriveReset(b *testing.B) {
 // BenchmarkDriveResetRender is a reset and the episode's first frame,
 // which draws the stretches of road in view.
 func BenchmarkDriveResetRender(b *testing.B) {
-	g, err := New(games.Options{})
+	g, err := New(games.Setup{})
 	if err != nil {
 		b.Fatal(err)
 	}

@@ -104,7 +104,7 @@ func ParseVariation(s string) (Config, string, error) {
 	return c, canon, err
 }
 
-// Game is the driving game. Build it with New or games.New("drive", ...).
+// Game is the driving game. Build it with New or games.Build("drive", ...).
 type Game struct {
 	cfg       Config
 	variation string
@@ -139,11 +139,11 @@ type viewGeom struct {
 }
 
 func init() {
-	games.Register(Name, Variations.Names(), func(o games.Options) (games.Game, error) { return New(o) })
+	games.Provide(Name, Variations.Names(), func(o games.Setup) (games.Game, error) { return New(o) })
 }
 
 // New builds the driving game for o (variation, frame size).
-func New(o games.Options) (*Game, error) {
+func New(o games.Setup) (*Game, error) {
 	cfg, canon, err := ParseVariation(o.Variation)
 	if err != nil {
 		return nil, err
@@ -174,14 +174,14 @@ func NewConfig(cfg Config, variation string) (*Game, error) {
 	g := &Game{cfg: cfg, variation: variation, track: &Track{}}
 	g.spec = games.Spec{
 		Name: Name, Variation: variation, Width: cfg.Width, Height: cfg.Height,
-		Action: games.ActionSpace{
+		Action: games.Controls{
 			Kind:  games.Continuous,
 			Names: []string{"steering", "pedal"},
 			Low:   []float64{-1, -1},
 			High:  []float64{1, 1},
 		},
-		MaxSteps: MaxSteps,
-		Floors:   floors,
+		StepLimit: MaxSteps,
+		Floors:    floors,
 	}
 	ppm := float64(cfg.Width) / ViewMetres
 	g.frameView = viewGeom{ppm: ppm, ax: float64(cfg.Width) / 2, ay: float64(cfg.Height)/2 + ViewLead*ppm}

@@ -429,22 +429,22 @@ func TestVariationsAndOptions(t *testing.T) {
 		}
 	}
 	for _, bad := range []string{"grass", "tarn+ochre", "narrow+broad", "small+large", "clutter+"} {
-		if _, err := New(games.Options{Variation: bad}); err == nil {
+		if _, err := New(games.Setup{Variation: bad}); err == nil {
 			t.Errorf("variation %q accepted", bad)
 		}
 	}
-	g, err := New(games.Options{Width: 80, Height: 60})
+	g, err := New(games.Setup{Width: 80, Height: 60})
 	if err != nil || g.Spec().Width != 80 || g.Spec().Height != 60 {
 		t.Fatalf("80x60: %v", err)
 	}
 	img := image.NewRGBA(image.Rect(0, 0, 80, 60))
 	g.Render(img)
-	for _, o := range []games.Options{{Width: 4}, {Height: 300}, {Width: 2000, Height: 2000}} {
+	for _, o := range []games.Setup{{Width: 4}, {Height: 300}, {Width: 2000, Height: 2000}} {
 		if _, err := New(o); err == nil {
 			t.Errorf("frame %dx%d accepted", o.Width, o.Height)
 		}
 	}
-	if gg, err := games.New(Name, games.Options{Variation: "broad"}); err != nil || gg.Spec().Name != Name {
+	if gg, err := games.Build(Name, games.Setup{Variation: "broad"}); err != nil || gg.Spec().Name != Name {
 		t.Errorf("registry: %v", err)
 	}
 }

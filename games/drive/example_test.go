@@ -11,7 +11,7 @@ import (
 // Play one held-out episode with the pure-pursuit expert and render the
 // last frame.
 func ExampleNew() {
-	g, err := drive.New(games.Options{Variation: "tarn+clutter"})
+	g, err := drive.New(games.Setup{Variation: "tarn+clutter"})
 	if err != nil {
 		panic(err)
 	}

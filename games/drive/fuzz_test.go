@@ -30,7 +30,7 @@ func FuzzStep(f *testing.F) {
 	f.Add(1e300, -1e300, uint8(200))
 	f.Add(-0.3, 0.7, uint8(255))
 	f.Add(0.2, -0.5, uint8(40))
-	g, err := New(games.Options{})
+	g, err := New(games.Setup{})
 	if err != nil {
 		f.Fatal(err)
 	}

@@ -8,7 +8,7 @@ import (
 
 func newGame(t testing.TB, variation string) *Game {
 	t.Helper()
-	g, err := New(games.Options{Variation: variation})
+	g, err := New(games.Setup{Variation: variation})
 	if err != nil {
 		t.Fatal(err)
 	}

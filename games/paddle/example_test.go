@@ -10,7 +10,7 @@ import (
 // Play one held-out episode of the default paddle game with the aiming
 // expert.
 func ExampleNew() {
-	g, err := paddle.New(games.Options{})
+	g, err := paddle.New(games.Setup{})
 	if err != nil {
 		panic(err)
 	}

@@ -32,11 +32,11 @@ func FuzzStep(f *testing.F) {
 	f.Add(math.Inf(1), uint16(1))
 	f.Add(-7.5, uint16(500))
 	f.Add(0.5, uint16(10))
-	dg, err := New(games.Options{Variation: "drifter"})
+	dg, err := New(games.Setup{Variation: "drifter"})
 	if err != nil {
 		f.Fatal(err)
 	}
-	ag, err := New(games.Options{Variation: "analog+drifter"})
+	ag, err := New(games.Setup{Variation: "analog+drifter"})
 	if err != nil {
 		f.Fatal(err)
 	}

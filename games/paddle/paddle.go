@@ -230,12 +230,12 @@ type Event struct {
 }
 
 func init() {
-	games.Register(Name, Variations.Names(), func(o games.Options) (games.Game, error) { return New(o) })
+	games.Provide(Name, Variations.Names(), func(o games.Setup) (games.Game, error) { return New(o) })
 }
 
 // New builds the paddle game. The field is always 120×80: other frame
 // sizes are refused.
-func New(o games.Options) (*Game, error) {
+func New(o games.Setup) (*Game, error) {
 	cfg, canon, err := ParseVariation(o.Variation)
 	if err != nil {
 		return nil, err
@@ -265,11 +265,11 @@ func NewConfig(cfg Config, variation string) (*Game, error) {
 	}
 	g := &Game{cfg: cfg, pcg: rand.NewPCG(0, 0)}
 	g.rng = rand.New(g.pcg)
-	act := games.ActionSpace{Kind: games.Discrete, Names: []string{"up", "stay", "down"}}
+	act := games.Controls{Kind: games.Discrete, Names: []string{"up", "stay", "down"}}
 	if cfg.Analog {
-		act = games.ActionSpace{Kind: games.Continuous, Names: []string{"slide"}, Low: []float64{-1}, High: []float64{1}}
+		act = games.Controls{Kind: games.Continuous, Names: []string{"slide"}, Low: []float64{-1}, High: []float64{1}}
 	}
-	g.spec = games.Spec{Name: Name, Variation: variation, Width: Width, Height: Height, Action: act, MaxSteps: cfg.MaxSteps,
+	g.spec = games.Spec{Name: Name, Variation: variation, Width: Width, Height: Height, Action: act, StepLimit: cfg.MaxSteps,
 		Floors: floorsOf(variation)}
 	// The paddle's outer corners stay between the rails.
 	a := cfg.PaddleHalf / TrackR

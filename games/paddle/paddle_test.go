@@ -485,12 +485,12 @@ func TestVariations(t *testing.T) {
 			t.Errorf("spec variation %q, want %q", g.Spec().Variation, v)
 		}
 	}
-	for _, o := range []games.Options{{Width: 84}, {Height: 84}, {Width: 80, Height: 120}} {
+	for _, o := range []games.Setup{{Width: 84}, {Height: 84}, {Width: 80, Height: 120}} {
 		if _, err := New(o); err == nil {
 			t.Errorf("a %dx%d paddle frame was accepted", o.Width, o.Height)
 		}
 	}
-	if g, err := New(games.Options{Width: Width, Height: Height}); err != nil || g.Spec().Width != 120 || g.Spec().Height != 80 {
+	if g, err := New(games.Setup{Width: Width, Height: Height}); err != nil || g.Spec().Width != 120 || g.Spec().Height != 80 {
 		t.Errorf("the game's own size: %v", err)
 	}
 	bad := DefaultConfig()
@@ -498,7 +498,7 @@ func TestVariations(t *testing.T) {
 	if _, err := NewConfig(bad, ""); err == nil {
 		t.Error("a 2 px gate was accepted")
 	}
-	if g, err := games.New(Name, games.Options{Variation: "analog"}); err != nil || g.Spec().Action.Kind != games.Continuous {
+	if g, err := games.Build(Name, games.Setup{Variation: "analog"}); err != nil || g.Spec().Action.Kind != games.Continuous {
 		t.Errorf("registry: %v", err)
 	}
 }

@@ -339,7 +339,7 @@ func Run(g games.Game, tok *patch.Tokenizer, pol vision.Policy, cfg Config) (*Re
 type meter struct {
 	pol      vision.Policy
 	cfg      Config
-	space    games.ActionSpace
+	space    games.Controls
 	grid     *patch.Grid
 	tok      *patch.Tokenizer
 	clean    *patch.TokenSet

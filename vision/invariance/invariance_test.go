@@ -25,11 +25,11 @@ type blobs struct {
 }
 
 func (b *blobs) Spec() games.Spec {
-	sp := games.Spec{Name: "blobs", Width: 32, Height: 32, MaxSteps: 100}
+	sp := games.Spec{Name: "blobs", Width: 32, Height: 32, StepLimit: 100}
 	if b.discrete {
-		sp.Action = games.ActionSpace{Kind: games.Discrete, Names: []string{"a", "b", "c"}}
+		sp.Action = games.Controls{Kind: games.Discrete, Names: []string{"a", "b", "c"}}
 	} else {
-		sp.Action = games.ActionSpace{Kind: games.Continuous, Names: []string{"x", "y"}, Low: []float64{-1, -1}, High: []float64{1, 1}}
+		sp.Action = games.Controls{Kind: games.Continuous, Names: []string{"x", "y"}, Low: []float64{-1, -1}, High: []float64{1, 1}}
 	}
 	return sp
 }
@@ -316,7 +316,7 @@ func BenchmarkRun(b *testing.B) {
 // within the permutation bound; a shift by part of a patch changes what
 // every token holds, and the action moves.
 func TestCorruptShiftOnInvariantFamilies(t *testing.T) {
-	g, err := games.New("drive", games.Options{})
+	g, err := games.Build("drive", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -45,7 +45,7 @@ type Cost struct {
 // Estimate returns the cost of cfg's family on grid with space: parameter
 // count, FLOPs per step per layer and activation memory, for a full token
 // set (grid.N() tokens).
-func Estimate(cfg Config, grid *patch.Grid, space games.ActionSpace) (Cost, error) {
+func Estimate(cfg Config, grid *patch.Grid, space games.Controls) (Cost, error) {
 	n, err := plan(cfg, grid, space)
 	if err != nil {
 		return Cost{}, err
@@ -165,7 +165,7 @@ func MeasureLatency(n Net, obs *vision.Observation, samples, steps int) (time.Du
 // RandomObservation returns an observation of the full grid with token
 // values uniform in [0, 1) drawn from seed and zero previous action, for
 // timing and checks.
-func RandomObservation(grid *patch.Grid, space games.ActionSpace, seed uint64) *vision.Observation {
+func RandomObservation(grid *patch.Grid, space games.Controls, seed uint64) *vision.Observation {
 	rng := patch.NewRand(seed)
 	ts := patch.NewTokenSet(grid.N(), grid.D())
 	ts.N = grid.N()

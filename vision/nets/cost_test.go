@@ -20,7 +20,7 @@ func TestEstimateFLOPsMatchInstrumentedForward(t *testing.T) {
 			cfg  Config
 		}{{"default", Config{}}, {"pos-default", Config{Family: PosAttention}}, {"meanpool-default", Config{Family: MeanPool}}, {"mlp-default", Config{Family: MLP}}}, smallConfigs...)
 		for _, sc := range configs {
-			for _, sp := range []games.ActionSpace{contSpace, discSpace} {
+			for _, sp := range []games.Controls{contSpace, discSpace} {
 				c, err := Estimate(sc.cfg, g, sp)
 				if err != nil {
 					t.Fatal(err)

@@ -13,7 +13,7 @@ import (
 // observation.
 func ExampleNew() {
 	grid, _ := patch.NewGrid(patch.GridConfig{Width: 112, Height: 80, PatchW: 8})
-	space := games.ActionSpace{Kind: games.Continuous, Names: []string{"steering", "pedal"},
+	space := games.Controls{Kind: games.Continuous, Names: []string{"steering", "pedal"},
 		Low: []float64{-1, -1}, High: []float64{1, 1}}
 	net, err := nets.New(nets.Config{Family: nets.Attention}, grid, space, 42)
 	if err != nil {
@@ -37,7 +37,7 @@ func ExampleNew() {
 // The cost of the default policy on 112×80 frames at patch 8.
 func ExampleEstimate() {
 	grid, _ := patch.NewGrid(patch.GridConfig{Width: 112, Height: 80, PatchW: 8})
-	space := games.ActionSpace{Kind: games.Discrete, Names: []string{"left", "stay", "right"}}
+	space := games.Controls{Kind: games.Discrete, Names: []string{"left", "stay", "right"}}
 	c, _ := nets.Estimate(nets.Config{}, grid, space)
 	fmt.Printf("%d tokens of %d, %d params, %.3f MFLOP\n", c.Tokens, c.TokenDim, c.Params, float64(c.FLOPs)/1e6)
 	// Output:

@@ -127,9 +127,9 @@ func FromFile(f *weights.File) (Net, error) {
 }
 
 // describe reads the policy description from the metadata.
-func describe(f *weights.File) (Config, *patch.Grid, games.ActionSpace, error) {
+func describe(f *weights.File) (Config, *patch.Grid, games.Controls, error) {
 	var cfg Config
-	var space games.ActionSpace
+	var space games.Controls
 	if v, err := f.Meta("format"); err != nil || v != "1" {
 		if err != nil {
 			return cfg, nil, space, errors.New("weights metadata has no \"format\": not a tilebench policy file")

@@ -23,9 +23,9 @@ var (
 	// contSpace is a three-channel continuous space with unequal bounds
 	// (one symmetric, one shifted, one of width 2), so that the affine map
 	// from the head's tanh outputs is exercised in every form.
-	contSpace = games.ActionSpace{Kind: games.Continuous, Names: []string{"yaw", "reach", "grip"},
+	contSpace = games.Controls{Kind: games.Continuous, Names: []string{"yaw", "reach", "grip"},
 		Low: []float64{-1, -0.5, 0}, High: []float64{1, 0.5, 2}}
-	discSpace = games.ActionSpace{Kind: games.Discrete, Names: []string{"left", "stay", "right"}}
+	discSpace = games.Controls{Kind: games.Discrete, Names: []string{"left", "stay", "right"}}
 )
 
 // randomObs returns an observation of the full grid with uniform token
@@ -47,7 +47,7 @@ func randomObs(g *patch.Grid, seed uint64, dim int) *vision.Observation {
 	return &vision.Observation{Tokens: ts, Grid: g, PrevAction: prev}
 }
 
-func mustNew(t testing.TB, cfg Config, g *patch.Grid, s games.ActionSpace, seed uint64) Net {
+func mustNew(t testing.TB, cfg Config, g *patch.Grid, s games.Controls, seed uint64) Net {
 	t.Helper()
 	n, err := New(cfg, g, s, seed)
 	if err != nil {

@@ -22,7 +22,7 @@ type Net interface {
 	// Grid returns the patch geometry the net was built for.
 	Grid() *patch.Grid
 	// Space returns the action space the net was built for.
-	Space() games.ActionSpace
+	Space() games.Controls
 	// OutputDim is the length of Forward's output: the action dimension
 	// for a continuous space, the number of choices (logits) for a
 	// discrete one.
@@ -53,7 +53,7 @@ type Net interface {
 // space, with parameters drawn from seed: every weight and bias uniform in
 // ±1/√fan_in (the default of torch.nn.Linear, from memory), the position
 // embedding of posattention uniform in ±0.1.
-func New(cfg Config, grid *patch.Grid, space games.ActionSpace, seed uint64) (Net, error) {
+func New(cfg Config, grid *patch.Grid, space games.Controls, seed uint64) (Net, error) {
 	n, err := build(cfg, grid, space)
 	if err != nil {
 		return nil, err
@@ -79,7 +79,7 @@ type net interface {
 }
 
 // build constructs an untrained net (zero parameters).
-func build(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
+func build(cfg Config, grid *patch.Grid, space games.Controls) (net, error) {
 	n, err := plan(cfg, grid, space)
 	if err != nil {
 		return nil, err
@@ -115,7 +115,7 @@ func ready(n net) {
 // plan declares a net's layers and tensors without allocating its
 // parameters or buffers (alloc does), so that a weights file can be
 // checked against the family before anything large is allocated.
-func plan(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
+func plan(cfg Config, grid *patch.Grid, space games.Controls) (net, error) {
 	if grid == nil {
 		return nil, errors.New("new policy: no patch grid")
 	}
@@ -159,7 +159,7 @@ func plan(cfg Config, grid *patch.Grid, space games.ActionSpace) (net, error) {
 // of float32 each).
 const maxValues = 1 << 27
 
-func checkSpace(s games.ActionSpace) error {
+func checkSpace(s games.Controls) error {
 	switch s.Kind {
 	case games.Continuous:
 		if len(s.Names) == 0 {
@@ -198,7 +198,7 @@ type tensorSpec struct {
 type core struct {
 	cfg    Config
 	grid   *patch.Grid
-	space  games.ActionSpace
+	space  games.Controls
 	specs  []tensorSpec
 	params []float32
 	grads  []float32
@@ -210,7 +210,7 @@ type core struct {
 
 func (c *core) Config() Config            { return c.cfg }
 func (c *core) Grid() *patch.Grid         { return c.grid }
-func (c *core) Space() games.ActionSpace  { return c.space }
+func (c *core) Space() games.Controls     { return c.space }
 func (c *core) Params() []float32         { return c.params }
 func (c *core) Grads() []float32          { return c.grads }
 func (c *core) ZeroGrads()                { clear(c.grads) }
@@ -304,7 +304,7 @@ type inputs struct {
 	capacity      int
 }
 
-func (in *inputs) init(cfg Config, g *patch.Grid, s games.ActionSpace) {
+func (in *inputs) init(cfg Config, g *patch.Grid, s games.Controls) {
 	in.d, in.k = g.D(), cfg.Context
 	in.cells = g.N()
 	if cfg.PrevAction {

@@ -36,7 +36,7 @@ var smallConfigs = []struct {
 func TestFamilyGradients(t *testing.T) {
 	g := testGrid(t, 8, 6, 2) // 4×3 cells of 12 values
 	for _, sc := range smallConfigs {
-		for _, sp := range []games.ActionSpace{contSpace, discSpace} {
+		for _, sp := range []games.Controls{contSpace, discSpace} {
 			t.Run(sc.name+"/"+sp.Kind.String(), func(t *testing.T) {
 				n := mustNew(t, sc.cfg, g, sp, 7)
 				obs := randomObs(g, 8, sp.Dim())
@@ -213,7 +213,7 @@ func TestTokenCounts(t *testing.T) {
 // max of the logits.
 func TestHeads(t *testing.T) {
 	g := testGrid(t, 32, 32, 8)
-	wide := games.ActionSpace{Kind: games.Continuous, Names: []string{"a", "b"}, Low: []float64{-3, 10}, High: []float64{-2, 50}}
+	wide := games.Controls{Kind: games.Continuous, Names: []string{"a", "b"}, Low: []float64{-3, 10}, High: []float64{-2, 50}}
 	n := mustNew(t, Config{}, g, wide, 1)
 	for i := range n.Params() {
 		n.Params()[i] *= 20 // saturate
@@ -254,7 +254,7 @@ func TestNewRejectsBadConfigs(t *testing.T) {
 	g := testGrid(t, 32, 32, 8)
 	bad := []struct {
 		cfg  Config
-		sp   games.ActionSpace
+		sp   games.Controls
 		want string
 	}{
 		{Config{Family: "convnet"}, contSpace, "unknown policy family"},
@@ -262,8 +262,8 @@ func TestNewRejectsBadConfigs(t *testing.T) {
 		{Config{QueryDim: 5}, contSpace, "even"},
 		{Config{KeySize: -1}, contSpace, "key size"},
 		{Config{Context: 99}, contSpace, "context"},
-		{Config{}, games.ActionSpace{Kind: games.Continuous, Names: []string{"x"}, Low: []float64{1}, High: []float64{0}}, "bounds"},
-		{Config{}, games.ActionSpace{Kind: games.Discrete, Names: []string{"only"}}, "choices"},
+		{Config{}, games.Controls{Kind: games.Continuous, Names: []string{"x"}, Low: []float64{1}, High: []float64{0}}, "bounds"},
+		{Config{}, games.Controls{Kind: games.Discrete, Names: []string{"only"}}, "choices"},
 	}
 	for _, b := range bad {
 		_, err := New(b.cfg, g, b.sp, 1)
@@ -340,7 +340,7 @@ func TestSaveLoadRoundTrip(t *testing.T) {
 	g := testGrid(t, 48, 32, 8)
 	dir := t.TempDir()
 	for _, sc := range smallConfigs {
-		for _, sp := range []games.ActionSpace{contSpace, discSpace} {
+		for _, sp := range []games.Controls{contSpace, discSpace} {
 			n := mustNew(t, sc.cfg, g, sp, 5)
 			path := filepath.Join(dir, sc.name+sp.Kind.String()+".safetensors")
 			if err := Save(path, n, map[string]string{"method": "clone", "seed": "5"}); err != nil {

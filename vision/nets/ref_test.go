@@ -84,9 +84,9 @@ func checkRef(t *testing.T, data []byte) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		sp := games.ActionSpace{Kind: games.Continuous, Names: c.Action.Names, Low: c.Action.Low, High: c.Action.High}
+		sp := games.Controls{Kind: games.Continuous, Names: c.Action.Names, Low: c.Action.Low, High: c.Action.High}
 		if c.Action.Kind == "discrete" {
-			sp = games.ActionSpace{Kind: games.Discrete, Names: c.Action.Names}
+			sp = games.Controls{Kind: games.Discrete, Names: c.Action.Names}
 		}
 		n, err := build(cfg, g, sp)
 		if err != nil {

@@ -16,7 +16,7 @@ func TestValidateNegatives(t *testing.T) {
 			t.Errorf("%+v: %v", c, err)
 		}
 		grid, _ := patch.NewGrid(patch.GridConfig{Width: 16, Height: 16, PatchW: 4})
-		if _, err := Estimate(c, grid, games.ActionSpace{Kind: games.Discrete, Names: []string{"a", "b"}}); err == nil {
+		if _, err := Estimate(c, grid, games.Controls{Kind: games.Discrete, Names: []string{"a", "b"}}); err == nil {
 			t.Errorf("Estimate took %+v", c)
 		}
 	}
@@ -30,7 +30,7 @@ func TestValidateNegatives(t *testing.T) {
 // take the grid's default (patch_h = patch_w, stride = patch) and load.
 func TestFileGeometryZeros(t *testing.T) {
 	grid, _ := patch.NewGrid(patch.GridConfig{Width: 16, Height: 12, PatchW: 4})
-	n, err := New(Config{}, grid, games.ActionSpace{Kind: games.Discrete, Names: []string{"a", "b"}}, 1)
+	n, err := New(Config{}, grid, games.Controls{Kind: games.Discrete, Names: []string{"a", "b"}}, 1)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -13,7 +13,7 @@ import (
 // patches are hidden from the policy (the expert reads the game state, so
 // it does not mind).
 func ExampleRun() {
-	g, _ := games.New("paddle", games.Options{})
+	g, _ := games.Build("paddle", games.Setup{})
 	grid, _ := policies.GridFor("expert", g.Spec(), "")
 	pol, _ := policies.Open("expert", g, grid, policies.Options{})
 	sum, err := play.Run(play.Config{Game: g, Grid: grid, Policy: pol, Episodes: 2, Seed: games.HeldOutSeedStart,

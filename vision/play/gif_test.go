@@ -52,7 +52,7 @@ const maxGIFFrames = 240
 // saw and the GIF written of them.
 func playGIF(t *testing.T, name string) gifCase {
 	t.Helper()
-	g, err := games.New(name, games.Options{})
+	g, err := games.Build(name, games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

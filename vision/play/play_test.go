@@ -17,7 +17,7 @@ import (
 
 func setup(t *testing.T) (games.Game, *patch.Grid, vision.Policy) {
 	t.Helper()
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

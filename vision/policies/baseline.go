@@ -47,7 +47,7 @@ func NewBaseline(name string, sp games.Spec) (vision.Policy, bool) {
 }
 
 type idlePolicy struct {
-	act    games.ActionSpace
+	act    games.Controls
 	choice float64
 }
 
@@ -67,7 +67,7 @@ func (p *idlePolicy) Act(_ *vision.Observation, action []float64) error {
 }
 
 type randomPolicy struct {
-	act games.ActionSpace
+	act games.Controls
 	r   *rand.Rand
 }
 

@@ -21,7 +21,7 @@ func ExampleKind() {
 }
 
 func ExampleOpen() {
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		fmt.Println(err)
 		return

@@ -19,7 +19,7 @@ import (
 
 func paddle(t *testing.T) games.Game {
 	t.Helper()
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -142,7 +142,7 @@ func TestOpenFileAndTemplate(t *testing.T) {
 		}
 	}
 	// A frame size from another game is refused.
-	drive, _ := games.New("drive", games.Options{})
+	drive, _ := games.Build("drive", games.Setup{})
 	dg, _ := policies.GridFor("fresh", drive.Spec(), "6")
 	if _, err := policies.Open(one, drive, dg, policies.Options{}); err == nil || !strings.Contains(err.Error(), "frames") {
 		t.Fatalf("wrong game: %v", err)

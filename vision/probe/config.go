@@ -124,22 +124,22 @@ type ActionSpace struct {
 }
 
 // Games returns the space as the games package spells it.
-func (a ActionSpace) Games() games.ActionSpace {
+func (a ActionSpace) Games() games.Controls {
 	if a.Kind == "discrete" {
 		names := make([]string, a.Choices)
 		for i := range names {
 			names[i] = "choice" + strconv.Itoa(i)
 		}
-		return games.ActionSpace{Kind: games.Discrete, Names: names}
+		return games.Controls{Kind: games.Discrete, Names: names}
 	}
 	names := make([]string, a.Dim)
 	for i := range names {
 		names[i] = "a" + strconv.Itoa(i)
 	}
-	return games.ActionSpace{Kind: games.Continuous, Names: names, Low: a.Low, High: a.High}
+	return games.Controls{Kind: games.Continuous, Names: names, Low: a.Low, High: a.High}
 }
 
-func fromGames(s games.ActionSpace) ActionSpace {
+func fromGames(s games.Controls) ActionSpace {
 	if s.Kind == games.Discrete {
 		return ActionSpace{Kind: "discrete", Dim: 1, Choices: s.Choices()}
 	}

@@ -14,7 +14,7 @@ import (
 // Record two expert episodes of paddle, with random occlusion, and list
 // the files NumPy will read.
 func ExampleRun() {
-	g, _ := games.New("paddle", games.Options{})
+	g, _ := games.Build("paddle", games.Setup{})
 	grid, _ := patch.NewGrid(patch.GridConfig{Width: 120, Height: 80, PatchW: 20})
 	dir, _ := os.MkdirTemp("", "demos")
 	defer os.RemoveAll(dir)

@@ -571,7 +571,7 @@ func packRGB(dst []byte, img *image.RGBA) []byte {
 }
 
 // clampLabel keeps a continuous label within the action bounds.
-func clampLabel(space games.ActionSpace, a []float64) {
+func clampLabel(space games.Controls, a []float64) {
 	if space.Kind != games.Continuous {
 		return
 	}

@@ -19,7 +19,7 @@ import (
 
 func setup(t testing.TB, name string, patchSize int) (games.Game, *patch.Grid) {
 	t.Helper()
-	g, err := games.New(name, games.Options{})
+	g, err := games.Build(name, games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -93,7 +93,7 @@ func TestExpertActionsAndBoundaries(t *testing.T) {
 	_, steps := readArray(t, dir, "steps")
 	a, p, r := f32s(acts), f32s(prevs), f32s(rews)
 	dim := sp.Action.Dim()
-	replay, _ := games.New("paddle", games.Options{})
+	replay, _ := games.Build("paddle", games.Setup{})
 	ex := replay.(games.WithExpert).Expert()
 	frame := newRGBA(sp.Width, sp.Height)
 	act := make([]float64, dim)
@@ -316,7 +316,7 @@ func TestRelabel(t *testing.T) {
 	a, l := f32s(acts), f32s(labs)
 	sp := g.Spec()
 	dim := sp.Action.Dim()
-	replay, _ := games.New("drive", games.Options{})
+	replay, _ := games.Build("drive", games.Setup{})
 	ex := replay.(games.WithExpert).Expert()
 	replay.Reset(m.Episodes[0].Seed)
 	act, lab := make([]float64, dim), make([]float64, dim)

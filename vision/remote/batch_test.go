@@ -211,7 +211,7 @@ func FuzzBatchReply(f *testing.F) {
 	f.Add([]byte(`{"msg":"actions","t":"0","count":2}`))
 	f.Add([]byte(`{"msg":"error","reason":"out of memory"}`))
 	grid, _ := patch.NewGrid(patch.GridConfig{Width: 32, Height: 24, PatchW: 8})
-	spec := games.Spec{Name: "g", Width: 32, Height: 24, Action: games.ActionSpace{Kind: games.Continuous,
+	spec := games.Spec{Name: "g", Width: 32, Height: 24, Action: games.Controls{Kind: games.Continuous,
 		Names: []string{"x", "y"}, Low: []float64{-1, -1}, High: []float64{1, 1}}}
 	f.Fuzz(func(t *testing.T, line []byte) {
 		p := &Policy{target: "fuzz", cfg: Config{Game: spec, Grid: grid}, dim: 2, batch: 2}
@@ -237,7 +237,7 @@ func FuzzServeBatch(f *testing.F) {
 	grid, _ := patch.NewGrid(patch.GridConfig{Width: 16, Height: 8, PatchW: 8})
 	for _, obs := range []string{ObsFrame, ObsTokens} {
 		h := Hello{Msg: "hello", Protocol: Version, Game: "g", Obs: obs, Dtype: Uint8, Frame: [3]int{8, 16, 3},
-			Tokens: layoutOf(grid, 4), Action: specOf(games.ActionSpace{Kind: games.Discrete, Names: []string{"a", "b"}}),
+			Tokens: layoutOf(grid, 4), Action: specOf(games.Controls{Kind: games.Discrete, Names: []string{"a", "b"}}),
 			Limits: Limits{MaxLine: MaxLine, MaxPayload: 1024}}
 		b, _ := json.Marshal(h)
 		hello := append(b, '\n')
@@ -260,7 +260,7 @@ func FuzzServeBatch(f *testing.F) {
 // paddle game (its own frame size, whatever it is).
 func TestRefExampleBatches(t *testing.T) {
 	reftest.Need(t, "numpy")
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -45,7 +45,7 @@ func Example() {
 
 	grid, _ := patch.NewGrid(patch.GridConfig{Width: 16, Height: 16, PatchW: 8})
 	spec := games.Spec{Name: "demo", Width: 16, Height: 16,
-		Action: games.ActionSpace{Kind: games.Discrete, Names: []string{"left", "stay", "right"}}}
+		Action: games.Controls{Kind: games.Discrete, Names: []string{"left", "stay", "right"}}}
 	pol, err := remote.Open("tcp://"+ln.Addr().String(), remote.Config{Game: spec, Grid: grid})
 	if err != nil {
 		fmt.Println(err)

@@ -31,7 +31,7 @@ func (p *randomPolicy) Act(_ *vision.Observation, a []float64) error {
 // the mean return.
 func paddleScore(t *testing.T, mk func(games.Spec, *patch.Grid) vision.Policy, seeds int) float64 {
 	t.Helper()
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

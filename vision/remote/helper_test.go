@@ -293,11 +293,11 @@ type blobs struct {
 }
 
 func (b *blobs) Spec() games.Spec {
-	sp := games.Spec{Name: "blobs", Width: 32, Height: 24, MaxSteps: 20}
+	sp := games.Spec{Name: "blobs", Width: 32, Height: 24, StepLimit: 20}
 	if b.discrete {
-		sp.Action = games.ActionSpace{Kind: games.Discrete, Names: []string{"a", "b", "c"}}
+		sp.Action = games.Controls{Kind: games.Discrete, Names: []string{"a", "b", "c"}}
 	} else {
-		sp.Action = games.ActionSpace{Kind: games.Continuous, Names: []string{"x", "y"}, Low: []float64{-1, -1}, High: []float64{1, 1}}
+		sp.Action = games.Controls{Kind: games.Continuous, Names: []string{"x", "y"}, Low: []float64{-1, -1}, High: []float64{1, 1}}
 	}
 	return sp
 }

@@ -137,13 +137,13 @@ func (l TokenLayout) Grid() (*patch.Grid, error) {
 	return g, nil
 }
 
-func specOf(a games.ActionSpace) ActionSpec {
+func specOf(a games.Controls) ActionSpec {
 	return ActionSpec{Kind: a.Kind.String(), Names: a.Names, Low: a.Low, High: a.High, Dim: a.Dim()}
 }
 
 // Space rebuilds the action space.
-func (a ActionSpec) Space() (games.ActionSpace, error) {
-	s := games.ActionSpace{Names: a.Names, Low: a.Low, High: a.High}
+func (a ActionSpec) Space() (games.Controls, error) {
+	s := games.Controls{Names: a.Names, Low: a.Low, High: a.High}
 	switch a.Kind {
 	case "continuous":
 		s.Kind = games.Continuous

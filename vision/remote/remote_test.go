@@ -545,7 +545,7 @@ func benchSession(b *testing.B, obs, dtype string) (*Policy, *vision.Observation
 	if err != nil {
 		b.Fatal(err)
 	}
-	spec := games.Spec{Name: "bench", Width: 96, Height: 96, Action: games.ActionSpace{Kind: games.Continuous, Names: []string{"a", "b", "c"}, Low: []float64{-1, -1, -1}, High: []float64{1, 1, 1}}}
+	spec := games.Spec{Name: "bench", Width: 96, Height: 96, Action: games.Controls{Kind: games.Continuous, Names: []string{"a", "b", "c"}, Low: []float64{-1, -1, -1}, High: []float64{1, 1, 1}}}
 	p, err := Open(helperTarget(b), Config{Game: spec, Grid: grid, Obs: obs, Dtype: dtype, Env: []string{helperEnv + "=echo"}})
 	if err != nil {
 		b.Fatal(err)
@@ -689,7 +689,7 @@ func FuzzServe(f *testing.F) {
 	grid, _ := patch.NewGrid(patch.GridConfig{Width: 16, Height: 8, PatchW: 8})
 	for _, obs := range []string{ObsFrame, ObsTokens} {
 		h := Hello{Msg: "hello", Protocol: Version, Game: "g", Obs: obs, Dtype: Uint8, Frame: [3]int{8, 16, 3},
-			Tokens: layoutOf(grid, 4), Action: specOf(games.ActionSpace{Kind: games.Discrete, Names: []string{"a", "b"}}),
+			Tokens: layoutOf(grid, 4), Action: specOf(games.Controls{Kind: games.Discrete, Names: []string{"a", "b"}}),
 			Limits: Limits{MaxLine: MaxLine, MaxPayload: 1024}}
 		b, _ := json.Marshal(h)
 		hello := append(b, '\n')

@@ -142,7 +142,7 @@ func Serve(r io.Reader, w io.Writer, pol vision.Policy, opt ServeOptions) error 
 type server struct {
 	h       *Hello
 	grid    *patch.Grid
-	space   games.ActionSpace
+	space   games.Controls
 	pol     vision.Policy
 	tok     *patch.Tokenizer
 	hdr     header

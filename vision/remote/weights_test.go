@@ -166,7 +166,7 @@ func TestServedWeightsMatchBuiltIn(t *testing.T) {
 // examples weigh the cells their hand rule looked at).
 func TestRefExampleWeights(t *testing.T) {
 	reftest.Need(t, "numpy")
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

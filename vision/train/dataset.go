@@ -76,7 +76,7 @@ func (ds *dataset) setSpread() {
 // spread is the scale of label dimension j in the loss: its standard
 // deviation, floored at 2% of the action range (so a constant label does
 // not blow the loss up), or the range itself before setSpread.
-func (ds *dataset) spread(j int, space games.ActionSpace) float64 {
+func (ds *dataset) spread(j int, space games.Controls) float64 {
 	r := space.High[j] - space.Low[j]
 	if len(ds.sd) <= j {
 		return r

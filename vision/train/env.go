@@ -17,7 +17,7 @@ import (
 type env struct {
 	game   games.Game
 	expert games.Expert
-	space  games.ActionSpace
+	space  games.Controls
 	grid   *patch.Grid
 	tok    *patch.Tokenizer
 	pipe   *patch.Pipeline // train-time augmentation
@@ -36,7 +36,7 @@ type env struct {
 }
 
 func newEnv(s *setup, net nets.Net) (*env, error) {
-	g, err := games.New(s.game, s.opts)
+	g, err := games.Build(s.game, s.opts)
 	if err != nil {
 		return nil, err
 	}
@@ -98,7 +98,7 @@ func round32(a []float64) {
 
 // clampLabel keeps an expert label inside the action bounds (games clamp
 // actions anyway; the net's outputs cannot leave them).
-func clampLabel(space games.ActionSpace, a []float64) {
+func clampLabel(space games.Controls, a []float64) {
 	if space.Kind != games.Continuous {
 		return
 	}
@@ -129,7 +129,7 @@ func (e *env) rollout(gameSeed, pipeSeed, mixSeed uint64, beta float64, keep int
 	clear(e.prev)
 	mix := patch.NewRand(mixSeed)
 	ret := 0.0
-	maxSteps := e.game.Spec().MaxSteps
+	maxSteps := e.game.Spec().StepLimit
 	for t := 0; ; t++ {
 		e.game.Render(e.frame)
 		if err := e.pipe.TokenizeFrame(t, e.tok, e.frame, e.clean); err != nil {

@@ -20,7 +20,7 @@ func TestGradientThroughLoss(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	spaces := map[string]games.ActionSpace{
+	spaces := map[string]games.Controls{
 		"continuous": {Kind: games.Continuous, Names: []string{"a", "b"}, Low: []float64{-1, 0}, High: []float64{1, 2}},
 		"discrete":   {Kind: games.Discrete, Names: []string{"l", "s", "r"}},
 	}
@@ -95,7 +95,7 @@ func TestGradientThroughLoss(t *testing.T) {
 	}
 }
 
-func gradEnv(t *testing.T, grid *patch.Grid, space games.ActionSpace, net nets.Net) *env {
+func gradEnv(t *testing.T, grid *patch.Grid, space games.Controls, net nets.Net) *env {
 	t.Helper()
 	pipe, err := patch.NewPipeline(grid, patch.Spec{})
 	if err != nil {

@@ -21,7 +21,7 @@ func HeldOutReturns(net nets.Net, game, variation string, seed uint64, from, n, 
 	if n <= 0 || from < 0 {
 		return nil, fmt.Errorf("held-out episodes %d..%d: want a non-empty range from 0", from, from+n-1)
 	}
-	g, err := games.New(game, games.Options{Variation: variation})
+	g, err := games.Build(game, games.Setup{Variation: variation})
 	if err != nil {
 		return nil, err
 	}
@@ -30,7 +30,7 @@ func HeldOutReturns(net nets.Net, game, variation string, seed uint64, from, n, 
 	if ng.Width != sp.Width || ng.Height != sp.Height {
 		return nil, fmt.Errorf("the policy expects %dx%d frames, game %s renders %dx%d", ng.Width, ng.Height, game, sp.Width, sp.Height)
 	}
-	s := &setup{game: game, opts: games.Options{Variation: variation}, grid: ng, space: sp.Action}
+	s := &setup{game: game, opts: games.Setup{Variation: variation}, grid: ng, space: sp.Action}
 	t := &Trainer{cfg: Config{Seed: seed}}
 	for w := 0; w < workers; w++ {
 		e, err := newEnv(s, net.Clone())

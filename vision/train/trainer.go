@@ -178,9 +178,9 @@ func (c Config) earlyStop(st state) bool {
 // setup is the resolved, fixed part of a run.
 type setup struct {
 	game     string
-	opts     games.Options
+	opts     games.Setup
 	grid     *patch.Grid
-	space    games.ActionSpace
+	space    games.Controls
 	augment  patch.Spec
 	evalSpec patch.Spec
 }
@@ -284,7 +284,7 @@ func New(cfg Config) (*Trainer, error) {
 		// frame is recorded.
 		cfg.Clone.Keep = 1
 	}
-	g, err := games.New(cfg.Game, games.Options{Variation: cfg.Variation})
+	g, err := games.Build(cfg.Game, games.Setup{Variation: cfg.Variation})
 	if err != nil {
 		return nil, err
 	}
@@ -293,7 +293,7 @@ func New(cfg Config) (*Trainer, error) {
 	if err != nil {
 		return nil, err
 	}
-	s := &setup{game: cfg.Game, opts: games.Options{Variation: cfg.Variation}, grid: grid, space: sp.Action, augment: cfg.Augment}
+	s := &setup{game: cfg.Game, opts: games.Setup{Variation: cfg.Variation}, grid: grid, space: sp.Action, augment: cfg.Augment}
 	var net nets.Net
 	if cfg.Init != nil {
 		net = cfg.Init.Clone()
@@ -441,7 +441,7 @@ func (t *Trainer) ExpertHeldOut(n int) ([]float64, error) {
 		e := t.envs[w]
 		e.game.Reset(games.HeldOut(i))
 		ret := 0.0
-		for s := 0; s < 2*e.game.Spec().MaxSteps; s++ {
+		for s := 0; s < 2*e.game.Spec().StepLimit; s++ {
 			e.expert.Act(e.act)
 			st, err := e.game.Step(e.act)
 			if err != nil {

@@ -130,7 +130,7 @@ func TestNewRejectsBadConfig(t *testing.T) {
 // refused with an error naming them.
 func TestInitMustFit(t *testing.T) {
 	g, _ := patch.NewGrid(patch.GridConfig{Width: 120, Height: 80, PatchW: 5})
-	paddleNet, err := nets.New(nets.Config{}, g, games.ActionSpace{Kind: games.Discrete, Names: []string{"l", "s", "r"}}, 1)
+	paddleNet, err := nets.New(nets.Config{}, g, games.Controls{Kind: games.Discrete, Names: []string{"l", "s", "r"}}, 1)
 	if err != nil {
 		t.Fatal(err)
 	}

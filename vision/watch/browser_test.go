@@ -267,7 +267,7 @@ func sameRegion(a, b image.Image, r image.Rectangle) bool {
 func TestRefBrowser(t *testing.T) {
 	b := startBrowser(t)
 	net := loadShipped(t, "drive-attention-p8.safetensors")
-	g, err := games.New("drive", games.Options{})
+	g, err := games.Build("drive", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

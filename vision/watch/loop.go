@@ -96,7 +96,7 @@ func newLoop(cfg *Config) (*loop, error) {
 	l.prev = make([]float64, sp.Action.Dim())
 	l.weights = make([]float32, pipe.Capacity())
 	l.obs = vision.Observation{Tokens: l.tokens, Grid: g, PrevAction: l.prev}
-	l.maxSteps = sp.MaxSteps
+	l.maxSteps = sp.StepLimit
 	s := &l.snap
 	s.Seed = cfg.Seed
 	s.Severity = sev

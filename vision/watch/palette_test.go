@@ -18,7 +18,7 @@ func TestRingStandsOutOnEveryPalette(t *testing.T) {
 	ring := overlay.Ring
 	for _, name := range games.Names() {
 		for _, v := range append([]string{""}, games.Variations(name)...) {
-			g, err := games.New(name, games.Options{Variation: v})
+			g, err := games.Build(name, games.Setup{Variation: v})
 			if err != nil {
 				continue // a variation that does not stand alone
 			}

@@ -50,7 +50,7 @@ type snapCopy struct {
 
 func paddle(t testing.TB) (games.Game, *patch.Grid) {
 	t.Helper()
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -419,7 +419,7 @@ func TestPublishNeverBlocks(t *testing.T) {
 }
 
 func TestControls(t *testing.T) {
-	g, _ := games.New("paddle", games.Options{})
+	g, _ := games.Build("paddle", games.Setup{})
 	sp := g.Spec()
 	grid, _ := patch.NewGrid(patch.GridConfig{Width: sp.Width, Height: sp.Height, PatchW: 12})
 	r := start(t, Config{Game: g, Grid: grid, FPS: 50, Seed: 5, Spec: patch.Spec{Occlude: "block:0.2"}})
@@ -491,7 +491,7 @@ func TestInvariantOverlaySurvivesScrambling(t *testing.T) {
 		var cells [2][]float32
 		var heat [2][]byte
 		for i, spec := range []patch.Spec{{}, {Scramble: "full", Every: 1}} {
-			g, err := games.New(gname, games.Options{})
+			g, err := games.Build(gname, games.Setup{})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -546,7 +546,7 @@ func TestSpeedDriveP8(t *testing.T) {
 		t.Skip("timing test: TILEBENCH_SPEED=1")
 	}
 	net := loadShipped(t, "drive-attention-p8.safetensors")
-	g, err := games.New("drive", games.Options{})
+	g, err := games.Build("drive", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -104,7 +104,7 @@ type Case struct {
 func CheckCases(t *testing.T, game string, cases []Case) {
 	t.Helper()
 	for _, c := range cases {
-		g, err := games.New(game, games.Options{Variation: c.Variation})
+		g, err := games.Build(game, games.Setup{Variation: c.Variation})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -140,7 +140,7 @@ func FrameHash(img *image.RGBA) uint64 {
 // RandomAction fills a with a uniformly random action of act: a choice
 // index for a discrete space, values within the bounds for a continuous
 // one.
-func RandomAction(act games.ActionSpace, a []float64, rng *rand.Rand) {
+func RandomAction(act games.Controls, a []float64, rng *rand.Rand) {
 	for i := range a {
 		if act.Kind == games.Discrete {
 			a[i] = float64(rng.IntN(act.Choices()))
@@ -155,7 +155,7 @@ func RandomAction(act games.ActionSpace, a []float64, rng *rand.Rand) {
 // reward.
 func Trace(t testing.TB, game, variation string, seed uint64, steps int) (hashes []uint64, rewards []float64) {
 	t.Helper()
-	g, err := games.New(game, games.Options{Variation: variation})
+	g, err := games.Build(game, games.Setup{Variation: variation})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -55,7 +55,7 @@ func (e *GameEnv) Player(c study.Cell) (Player, error) {
 	g, ok := e.games[c.Variation]
 	if !ok {
 		var err error
-		g, err = games.New(e.game, games.Options{Variation: c.Variation})
+		g, err = games.Build(e.game, games.Setup{Variation: c.Variation})
 		if err != nil {
 			return nil, fmt.Errorf("game %s variation %q: %w", e.game, c.Variation, err)
 		}

@@ -26,7 +26,7 @@ type BaselineEnv interface {
 
 // Baseline plays source clean on a game instance of its own.
 func (e *GameEnv) Baseline(source, variation string, ps int) (Player, bool, error) {
-	g, err := games.New(e.game, games.Options{Variation: variation})
+	g, err := games.Build(e.game, games.Setup{Variation: variation})
 	if err != nil {
 		return nil, false, fmt.Errorf("game %s variation %q: %w", e.game, variation, err)
 	}

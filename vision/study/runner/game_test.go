@@ -122,7 +122,7 @@ func (firstTokens) Act(obs *vision.Observation, a []float64) error {
 
 func TestWeightsGeometryMismatch(t *testing.T) {
 	// A network cut for 64×64 frames cannot play the 112×80 driving game.
-	g, err := games.New("drive", games.Options{})
+	g, err := games.Build("drive", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -163,7 +163,7 @@ func TestWeightsGeometryMismatch(t *testing.T) {
 }
 
 func TestReferencePolicies(t *testing.T) {
-	g, err := games.New("drive", games.Options{})
+	g, err := games.Build("drive", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}

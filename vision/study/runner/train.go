@@ -25,7 +25,7 @@ import (
 // (nets.Estimate) and the median latency per step of Act measured here
 // (nets.MeasureLatency, 5 samples of 20 steps on random tokens).
 func MeasureCosts(p *study.Plan) ([]analysis.Cost, error) {
-	g, err := games.New(p.Def.Game, games.Options{Variation: p.Def.Variation})
+	g, err := games.Build(p.Def.Game, games.Setup{Variation: p.Def.Variation})
 	if err != nil {
 		return nil, err
 	}

@@ -86,7 +86,7 @@ func TestWeightsGameMismatch(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	g, err := games.New("paddle", games.Options{})
+	g, err := games.Build("paddle", games.Setup{})
 	if err != nil {
 		t.Fatal(err)
 	}
