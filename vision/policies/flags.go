@@ -27,7 +27,8 @@ type Flags struct {
 	Clamp      bool
 	LogDir     string
 
-	fs *flag.FlagSet
+	fs     *flag.FlagSet
+	values []string // every --policy value, when FlagConfig.Multi
 }
 
 // FlagConfig says how a command declares the policy flags.
@@ -39,6 +40,9 @@ type FlagConfig struct {
 	// InitSeed declares --init-seed (commands whose untrained networks
 	// take their seed from the user rather than from a study).
 	InitSeed bool
+	// Multi lets --policy be given several times, as LABEL=SOURCE (a
+	// study comparing policies); read them with List.
+	Multi bool
 }
 
 // SourceHelp is the standard description of --policy.
@@ -55,7 +59,12 @@ func AddFlags(fs *flag.FlagSet, cfg FlagConfig) *Flags {
 	if usage == "" {
 		usage = SourceHelp
 	}
-	fs.StringVar(&f.Source, "policy", cfg.Default, usage+" (e.g. --policy 'exec:python3 examples/policy_stdlib.py')")
+	if cfg.Multi {
+		f.Source = cfg.Default
+		fs.Var(listFlag{values: &f.values, last: &f.Source}, "policy", usage+"; repeat as --policy LABEL=SOURCE to compare several policies on the same seeds (e.g. --policy clean=a.safetensors --policy occl=b.safetensors)")
+	} else {
+		fs.StringVar(&f.Source, "policy", cfg.Default, usage+" (e.g. --policy 'exec:python3 examples/policy_stdlib.py')")
+	}
 	fs.Var(&f.Timeout, "policy-timeout", "external policy: longest wait (a `DURATION`) for one step's reply (default 5s) (e.g. --policy-timeout 10s)")
 	fs.Var(&f.StartTimeout, "policy-start-timeout", "external policy: longest wait (a `DURATION`) to start or connect and finish the handshake (default 30s) (e.g. --policy-start-timeout 2m)")
 	fs.StringVar(&f.Obs, "policy-obs", remote.ObsFrame, "external policy: what it is sent, frame (reassembled frame) or tokens (token set with grid cells) (e.g. --policy-obs tokens)")

@@ -10,6 +10,8 @@ import (
 	"strings"
 
 	"github.com/BurntSushi/toml"
+
+	"tilebench/vision/policies"
 )
 
 // Definition is a study as a user writes it, in a TOML file (see
@@ -44,8 +46,16 @@ type Definition struct {
 	Workers int `toml:"workers" json:"-"`
 	// ForceWorkers accepts a Workers count above vision.MaxWorkers().
 	ForceWorkers bool `toml:"force_workers" json:"-"`
-	// Policy says what plays.
+	// Policy says what plays; with Policies it keeps the options every
+	// listed policy shares (family, timeouts, obs, dtype, clamp) and its
+	// Source stays empty.
 	Policy PolicyDef `toml:"policy" json:"policy"`
+	// Policies, when set, are several policies compared in one study
+	// (TOML [[policies]] tables with label and source, or --policy
+	// LABEL=SOURCE repeated): the policy is one more axis, every policy
+	// plays the same seeds in every condition, and the report compares
+	// them. Default: the one policy of Policy.Source.
+	Policies []policies.Labelled `toml:"policies" json:"policies,omitempty"`
 	// Floor is the baseline policy whose score is 0 on the normalised
 	// scale, played clean on the study's own seeds: "idle" (default: the
 	// zero action, or the discrete choice "stay"), "random" (uniform

@@ -67,7 +67,14 @@ func (d *Definition) Normalize() error {
 	if err := vision.CheckWorkers(d.Workers, d.ForceWorkers); err != nil {
 		return fieldErr("workers", err)
 	}
-	if d.Policy.Source == "" {
+	if len(d.Policies) > 0 {
+		if d.Policy.Source != "" {
+			return fieldErr("policies", fmt.Errorf("give policy.source or a list of policies, not both (policy.source is %q)", d.Policy.Source))
+		}
+		if err := policies.CheckList(d.Policies); err != nil {
+			return fieldErr("policies", err)
+		}
+	} else if d.Policy.Source == "" {
 		d.Policy.Source = "expert"
 	}
 	if d.Policy.Family == "" {
@@ -104,11 +111,14 @@ func (d *Definition) Normalize() error {
 	if len(d.Patch) == 0 {
 		// A single weights file plays at its own patch size
 		// (docs/studies.md); anything else at DefaultPatch.
-		if ps, ok := policies.PatchOf(d.Policy.Source); ok {
-			d.Patch = Axis{strconv.Itoa(ps)}
-		} else {
-			d.Patch = Axis{strconv.Itoa(DefaultPatch)}
+		ps, err := d.OwnPatch()
+		if err != nil {
+			return fieldErr("patch", err)
 		}
+		if ps == 0 {
+			ps = DefaultPatch
+		}
+		d.Patch = Axis{strconv.Itoa(ps)}
 	}
 	if d.Axes.Fill == "" {
 		d.Axes.Fill = "black"
@@ -169,6 +179,37 @@ func (d *Definition) Normalize() error {
 	return err
 }
 
+// PolicyList is the study's policies: the labelled list, or the one
+// policy of Policy.Source with an empty label.
+func (d *Definition) PolicyList() []policies.Labelled {
+	if len(d.Policies) > 0 {
+		return d.Policies
+	}
+	return []policies.Labelled{{Source: d.Policy.Source}}
+}
+
+// Compares reports whether the study compares several policies.
+func (d *Definition) Compares() bool { return len(d.Policies) > 1 }
+
+// OwnPatch is the patch size the study's weights files fix when no patch
+// size is given: that of a single weights file (not a template), the
+// same for every policy that is one; 0 when no policy fixes it. Weights
+// files of different patch sizes are an error.
+func (d *Definition) OwnPatch() (int, error) {
+	ps, from := 0, ""
+	for _, l := range d.PolicyList() {
+		n, ok := policies.PatchOf(l.Source)
+		if !ok {
+			continue
+		}
+		if ps != 0 && n != ps {
+			return 0, fmt.Errorf("the policies' weights files are for different patch sizes (%s: %d, %s: %d): give the patch sizes", from, ps, l.Label, n)
+		}
+		ps, from = n, l.Label
+	}
+	return ps, nil
+}
+
 // seedRange resolves the Seeds field into the first seed and the count.
 func seedRange(s string, episodes int) (start, count uint64, err error) {
 	switch s {
@@ -216,13 +257,32 @@ type Cell struct {
 	// Corrupt is the frame corruption list in canonical spelling
 	// (patch.CanonCorrupt); "" or "none" for none.
 	Corrupt string `json:"corrupt,omitempty"`
+	// Policy is the label of the policy that plays the cell in a study
+	// comparing policies ("" in a study of one unlabelled policy). It is
+	// not part of Key: every policy plays the same seeds.
+	Policy string `json:"policy,omitempty"`
 }
+
+// ID identifies the cell within its study: Key, and the policy label
+// when there is one.
+func (c Cell) ID() string {
+	if c.Policy == "" {
+		return c.Key()
+	}
+	return c.Key() + " policy=" + c.Policy
+}
+
+// Condition is the cell without its policy: what is done to the input,
+// the same for every policy of a comparison.
+func (c Cell) Condition() Cell { c.Policy = ""; return c }
 
 // corrupted reports whether the cell corrupts frames.
 // Corrupted reports whether the cell applies a frame corruption.
 func (c Cell) Corrupted() bool { return c.Corrupt != "" && c.Corrupt != "none" }
 
-// Key is the cell's canonical description, which also keys its seeds.
+// Key is the canonical description of the cell's condition, which also
+// keys its seeds; it leaves out the policy label (see ID), so that every
+// policy of a comparison plays the same seeds.
 func (c Cell) Key() string {
 	return fmt.Sprintf("patch=%d variation=%s occlude=%s fill=%s scramble=%s every=%d noise_tokens=%d brightness=%s contrast=%s pixel_noise=%s",
 		c.Patch, c.Variation, c.Occlude, c.Fill, c.Scramble, c.Every, c.NoiseTokens,
@@ -299,7 +359,9 @@ func fnum(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 
 // Cells lists the study's cells in their fixed order: patch size, then
 // variation, occlusion, scramble, schedule, noise tokens, brightness,
-// contrast, pixel noise and corruption, the last varying fastest. Cells that do the
+// contrast, pixel noise and corruption, the last varying fastest; in a
+// study comparing policies that whole list once per policy, in the
+// order the policies are given. Cells that do the
 // same thing are listed once (a schedule without a scramble, a zero
 // ratio); for every patch size a clean cell on the study's variation is
 // added at the end if the axes hold none, so that every cell has a
@@ -379,15 +441,30 @@ func (d *Definition) Cells() ([]Cell, error) {
 	}
 	seen := map[string]bool{}
 	var cells []Cell
+	label := ""
 	add := func(c Cell) {
 		if c.Scramble == "none" {
 			c.Every = 0
 		}
-		if k := c.Key(); !seen[k] {
+		c.Policy = label
+		if k := c.ID(); !seen[k] {
 			seen[k] = true
 			cells = append(cells, c)
 		}
 	}
+	if len(d.Policies)*total > MaxRangeValues {
+		return nil, fieldErr("policies", fmt.Errorf("more than %d cells", MaxRangeValues))
+	}
+	for _, pol := range d.PolicyList() {
+		label = pol.Label
+		d.conditionCells(add, ps, vars, occ, scr, every, noise, bright, contrast, pnoise, corr)
+	}
+	return cells, nil
+}
+
+// conditionCells adds every condition of the axes, in the order Cells
+// documents, and the clean cell of every patch size.
+func (d *Definition) conditionCells(add func(Cell), ps []int, vars, occ, scr []string, every, noise []int, bright, contrast, pnoise []float64, corr []string) {
 	for _, p := range ps {
 		for _, v := range vars {
 			for _, o := range occ {
@@ -413,7 +490,6 @@ func (d *Definition) Cells() ([]Cell, error) {
 	for _, p := range ps {
 		add(Cell{Patch: p, Variation: d.Variation, Occlude: "none", Fill: d.Axes.Fill, Scramble: "none", Contrast: 1})
 	}
-	return cells, nil
 }
 
 // corruptValues expands the corruption axis (patch.ExpandCorrupt on each
@@ -587,8 +663,9 @@ func (p *Plan) GameSeed(e int) uint64 {
 //
 //	DeriveSeed(study seed, StreamKey("episode"), StreamKey(cell key), e)
 //
-// The cell key (Cell.Key) describes the cell, so the same cell gets the
-// same seeds in any study with the same study seed.
+// The cell key (Cell.Key) describes the cell's condition, so the same
+// condition gets the same seeds in any study with the same study seed,
+// and every policy of a comparison gets the same seeds.
 func (p *Plan) PipeSeed(c, e int) uint64 {
 	return patch.DeriveSeed(p.Def.Seed, patch.StreamKey("episode"), patch.StreamKey(p.Cells[c].Key()), uint64(e))
 }
@@ -600,11 +677,11 @@ func (p *Plan) PolicySeed(ps int) uint64 {
 }
 
 // Reference returns the index of the clean cell that cell c's retention
-// is measured against: the clean cell of the same patch size on the
-// study's variation.
+// is measured against: the clean cell of the same patch size and policy
+// on the study's variation.
 func (p *Plan) Reference(c int) int {
 	for i, x := range p.Cells {
-		if x.Clean() && x.Patch == p.Cells[c].Patch && x.Variation == p.Def.Variation {
+		if x.Clean() && x.Patch == p.Cells[c].Patch && x.Variation == p.Def.Variation && x.Policy == p.Cells[c].Policy {
 			return i
 		}
 	}

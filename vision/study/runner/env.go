@@ -37,16 +37,23 @@ type PolicyFunc func(patchSize int, g games.Game, grid *patch.Grid) (vision.Poli
 // pipeline (vision.Episode).
 type GameEnv struct {
 	game     string
-	policy   PolicyFunc
+	policy   map[string]PolicyFunc
 	games    map[string]games.Game
 	policies map[policyKey]vision.Policy
 	grids    map[int]*patch.Grid
 	closers  []func() error
 }
 
-// NewGameEnv returns an Env for the named game whose policies come from pol.
+// NewGameEnv returns an Env for the named game whose policies come from
+// pol (a study of one unlabelled policy).
 func NewGameEnv(game string, pol PolicyFunc) *GameEnv {
-	return &GameEnv{game: game, policy: pol, games: map[string]games.Game{},
+	return NewGameEnvSet(game, map[string]PolicyFunc{"": pol})
+}
+
+// NewGameEnvSet returns an Env for the named game that plays each cell
+// with the policy of its label (study.Cell.Policy).
+func NewGameEnvSet(game string, pols map[string]PolicyFunc) *GameEnv {
+	return &GameEnv{game: game, policy: pols, games: map[string]games.Game{},
 		policies: map[policyKey]vision.Policy{}, grids: map[int]*patch.Grid{}}
 }
 
@@ -71,14 +78,21 @@ func (e *GameEnv) Player(c study.Cell) (Player, error) {
 		}
 		e.grids[c.Patch] = grid
 	}
-	// One policy per patch size and game instance: the scripted experts
-	// are bound to the game they read.
-	pk := policyKey{c.Patch, c.Variation}
+	// One policy per label, patch size and game instance: the scripted
+	// experts are bound to the game they read.
+	pk := policyKey{c.Policy, c.Patch, c.Variation}
 	pol, ok := e.policies[pk]
 	if !ok {
+		pf, ok := e.policy[c.Policy]
+		if !ok {
+			return nil, fmt.Errorf("cell %s: no policy labelled %q", c.Label(), c.Policy)
+		}
 		var err error
-		pol, err = e.policy(c.Patch, g, grid)
+		pol, err = pf(c.Patch, g, grid)
 		if err != nil {
+			if c.Policy != "" {
+				return nil, fmt.Errorf("policy %s for patch %d: %w", c.Policy, c.Patch, err)
+			}
 			return nil, fmt.Errorf("policy for patch %d: %w", c.Patch, err)
 		}
 		if cl, ok := pol.(interface{ Close() error }); ok {
@@ -110,6 +124,7 @@ func (e *GameEnv) Close() error {
 }
 
 type policyKey struct {
+	label     string
 	patch     int
 	variation string
 }

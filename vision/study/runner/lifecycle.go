@@ -35,6 +35,9 @@ func Run(ctx context.Context, p *study.Plan, opt Options) (*Outcome, error) {
 		opt.Env = DefaultEnv(p, logDir)
 	}
 	if opt.Train != nil {
+		if len(p.Def.Policies) > 0 {
+			return nil, errors.New("study: training makes the study's one policy; a study with a list of policies plays the policies given")
+		}
 		if !opt.Shard.Whole() {
 			return nil, fmt.Errorf("study: training in shard %s would train different policies in every shard; train once, then run the shards on the weights files", opt.Shard)
 		}
@@ -63,7 +66,9 @@ func Run(ctx context.Context, p *study.Plan, opt Options) (*Outcome, error) {
 
 // finish measures a sizes study's costs, analyses recs and writes the report.
 func finish(p *study.Plan, dir string, recs []study.Record) (*analysis.Analysis, error) {
-	if p.Def.Kind == "sizes" {
+	// A sizes study comparing policies has no cost table: the
+	// recommendation is made for one policy (analysis says so).
+	if p.Def.Kind == "sizes" && !p.Def.Compares() {
 		costs, err := MeasureCosts(p)
 		if err != nil {
 			return nil, err
@@ -86,22 +91,35 @@ func finish(p *study.Plan, dir string, recs []study.Record) (*analysis.Analysis,
 	return a, nil
 }
 
-// CheckSizesPolicy refuses a sizes study whose policy has no cost model
-// (the scripted expert, an external process): its costs could not be
-// counted after every episode was played.
+// CheckSizesPolicy refuses a sizes study whose policy (any of its
+// policies) has no cost model (the scripted expert, an external
+// process): its costs could not be counted after every episode was
+// played.
 func CheckSizesPolicy(p *study.Plan) error {
 	if p.Def.Kind != "sizes" {
 		return nil
 	}
-	switch policies.Kind(p.Def.Policy.Source) {
+	for _, l := range p.Def.PolicyList() {
+		if err := sizesSource(l.Source); err != nil {
+			if l.Label != "" {
+				return &policies.SourceError{Err: fmt.Errorf("policy %s: %w", l.Label, err)}
+			}
+			return err
+		}
+	}
+	return nil
+}
+
+func sizesSource(src string) error {
+	switch policies.Kind(src) {
 	case policies.KindFresh, policies.KindFamily, policies.KindFile:
 		return nil
 	}
-	if policies.IsBaseline(p.Def.Policy.Source) {
-		return &policies.SourceError{Err: fmt.Errorf("a sizes study needs a network with a cost model; %q is a baseline policy (use it as --floor)", p.Def.Policy.Source)}
+	if policies.IsBaseline(src) {
+		return &policies.SourceError{Err: fmt.Errorf("a sizes study needs a network with a cost model; %q is a baseline policy (use it as --floor)", src)}
 	}
-	if policies.Kind(p.Def.Policy.Source) == policies.KindExternal {
-		return &policies.SourceError{Err: fmt.Errorf("a sizes study measures each patch size's compute (FLOPs, parameters) with tilebench's cost model, which %q, a process of its own, does not have; compare its patch sizes' scores with stress --patch 4,8,16 and a {patch} template instead", p.Def.Policy.Source)}
+	if policies.Kind(src) == policies.KindExternal {
+		return &policies.SourceError{Err: fmt.Errorf("a sizes study measures each patch size's compute (FLOPs, parameters) with tilebench's cost model, which %q, a process of its own, does not have; compare its patch sizes' scores with stress --patch 4,8,16 and a {patch} template instead", src)}
 	}
-	return &policies.SourceError{Err: fmt.Errorf("a sizes study needs a network with a cost model (fresh, a family, a weights file or --train), not %q", p.Def.Policy.Source)}
+	return &policies.SourceError{Err: fmt.Errorf("a sizes study needs a network with a cost model (fresh, a family, a weights file or --train), not %q", src)}
 }

@@ -1,6 +1,7 @@
 package runner
 
 import (
+	"path/filepath"
 	"time"
 
 	"tilebench/games"
@@ -28,25 +29,42 @@ func parseDuration(s string) (time.Duration, error) {
 	return time.ParseDuration(s)
 }
 
-// Policies resolves the study's policy into a PolicyFunc safe to call
-// from many workers (policies.Cache: weights files are read once per
-// patch size and copied for each worker). An untrained network for patch
-// size ps is seeded with p.PolicySeed(ps). logDir receives external
-// policies' stderr.
+// Policies resolves the study's policy (the first of a list) into a
+// PolicyFunc safe to call from many workers (policies.Cache: weights
+// files are read once per patch size and copied for each worker). An
+// untrained network for patch size ps is seeded with p.PolicySeed(ps).
+// logDir receives external policies' stderr.
 func Policies(p *study.Plan, logDir string) PolicyFunc {
+	l := p.Def.PolicyList()[0]
+	return PolicyByLabel(p, logDir)[l.Label]
+}
+
+// PolicyByLabel resolves every policy of the study, keyed by label (""
+// for a study of one unlabelled policy), as Policies does for one; the
+// policies share one cache, and an external policy labelled L keeps its
+// stderr in logDir/L.
+func PolicyByLabel(p *study.Plan, logDir string) map[string]PolicyFunc {
 	var cache policies.Cache
-	base := PolicyOptions(p.Def.Policy, logDir)
-	src := p.Def.Policy.Source
-	return func(ps int, g games.Game, grid *patch.Grid) (vision.Policy, error) {
-		opt := base
-		opt.InitSeed = p.PolicySeed(ps)
-		return cache.Open(src, g, grid, opt)
+	out := map[string]PolicyFunc{}
+	for _, l := range p.Def.PolicyList() {
+		dir := logDir
+		if dir != "" && l.Label != "" {
+			dir = filepath.Join(logDir, l.Label)
+		}
+		base := PolicyOptions(p.Def.Policy, dir)
+		src := l.Source
+		out[l.Label] = func(ps int, g games.Game, grid *patch.Grid) (vision.Policy, error) {
+			opt := base
+			opt.InitSeed = p.PolicySeed(ps)
+			return cache.Open(src, g, grid, opt)
+		}
 	}
+	return out
 }
 
 // DefaultEnv is the EnvFactory of a study on the registered games, with
-// the study's policy; logDir receives external policies' stderr.
+// the study's policies; logDir receives external policies' stderr.
 func DefaultEnv(p *study.Plan, logDir string) EnvFactory {
-	pol := Policies(p, logDir)
-	return func(int) (Env, error) { return NewGameEnv(p.Def.Game, pol), nil }
+	pols := PolicyByLabel(p, logDir)
+	return func(int) (Env, error) { return NewGameEnvSet(p.Def.Game, pols), nil }
 }

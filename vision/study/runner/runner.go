@@ -21,6 +21,7 @@ import (
 	"tilebench/internal/atomicfile"
 	"tilebench/patch"
 	"tilebench/vision"
+	"tilebench/vision/policies"
 	"tilebench/vision/study"
 	"tilebench/vision/study/analysis"
 )
@@ -347,6 +348,9 @@ func prepareDir(p *study.Plan, opt Options) error {
 		return fmt.Errorf("%s already holds study %s; continue it with --resume or choose another --out", opt.Dir, si.Fingerprint)
 	}
 	if si.Fingerprint != p.Fingerprint {
+		if was, now := policyListText(si.Definition), policyListText(p.Def); was != now {
+			return fmt.Errorf("%s holds study %s with policies %s; the policies given are %s: a study's policy list cannot change on --resume (start a new study with another --out); nothing changed", opt.Dir, si.Fingerprint, was, now)
+		}
 		return fmt.Errorf("%s holds a different study (%s, %q) than the one given (%s, %q); nothing changed", opt.Dir, si.Fingerprint, si.Definition.Name, p.Fingerprint, p.Def.Name)
 	}
 	var stored study.Shard
@@ -357,6 +361,14 @@ func prepareDir(p *study.Plan, opt Options) error {
 		return fmt.Errorf("%s holds shard %s of the study, not shard %s", opt.Dir, stored, opt.Shard)
 	}
 	return nil
+}
+
+// policyListText describes a study's policies for messages.
+func policyListText(d study.Definition) string {
+	if len(d.Policies) == 0 {
+		return fmt.Sprintf("%q (one, unlabelled)", d.Policy.Source)
+	}
+	return "[" + policies.ListString(d.Policies) + "]"
 }
 
 // preflight builds a player for every cell once.
