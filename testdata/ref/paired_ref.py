@@ -153,5 +153,17 @@ for x, alpha in [(list(range(1, 11)), 0.1), (list(range(1, 11)), 0.25), (r(np.ro
                  ([5.0, -3.0, 2.0], 0.5), ([4.0], 0.1)]:
     out["cvar"].append({"x": [float(v) for v in x], "alpha": alpha, "value": float(cvar(x, alpha))})
 
+# The difference of two normalised scores (two policies' retentions over
+# one floor) on the same 30 seeds, appended last so that the draws above
+# keep their values.
+eff = rng.normal(0, 10, size=30)
+floor = np.round(-100 + rng.normal(0, 3, size=30), 3)
+ref_a = np.round(40 + eff + rng.normal(0, 3, size=30), 3)
+x_a = np.round(-5 + eff + rng.normal(0, 6, size=30), 3)
+ref_b = np.round(45 + eff + rng.normal(0, 3, size=30), 3)
+x_b = np.round(-30 + eff + rng.normal(0, 6, size=30), 3)
+strat_boot("normalised difference, two policies", "normalised-diff", [[x_a], [ref_a], [x_b], [ref_b], [floor]],
+           lambda v: (v[0] - v[4]) / (v[1] - v[4]) - (v[2] - v[4]) / (v[3] - v[4]))
+
 json.dump(out, sys.stdout, indent=1)
 sys.stdout.write("\n")

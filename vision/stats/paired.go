@@ -356,6 +356,53 @@ func (b Bootstrap) Normalized(x, ref, floor Strata, st Statistic) (Estimate, err
 	return rep.Estimate(lv), nil
 }
 
+// NormalizedDiff estimates the difference of two normalised scores on
+// shared seeds,
+//
+//	(stat(xa) − f) / (stat(refa) − f) − (stat(xb) − f) / (stat(refb) − f)
+//
+// with f = stat(floor) (0 when floor is nil): two policies' retentions,
+// each against its own clean score, over one floor. All five arms are
+// resampled together (paired bootstrap), so the interval of a policy
+// against itself is exactly zero. Both references must score above the
+// floor (else ErrNoSpan); a resample where a span is not positive gives
+// that score ±Inf as in Normalized, and a resample where both scores are
+// the same infinity counts as no difference.
+func (b Bootstrap) NormalizedDiff(xa, refa, xb, refb, floor Strata, st Statistic) (Estimate, error) {
+	arms := Arms{xa, refa, xb, refb}
+	if floor != nil {
+		arms = append(arms, floor)
+	}
+	if err := arms.check("normalised difference"); err != nil {
+		return Estimate{}, err
+	}
+	fl := 0.0
+	if floor != nil {
+		fl = st.Of(floor.Pool())
+	}
+	for _, ref := range []Strata{refa, refb} {
+		if span := st.Of(ref.Pool()) - fl; !(span > 0) {
+			return Estimate{}, fmt.Errorf("normalised difference: %w (reference %s %.4g, floor %.4g)", ErrNoSpan, st, span+fl, fl)
+		}
+	}
+	rep, _, lv, err := b.paired("normalised difference", arms, st, func(s []float64) float64 {
+		var a, c float64
+		if len(s) > 4 {
+			a, c = normalize([]float64{s[0], s[1], s[4]}), normalize([]float64{s[2], s[3], s[4]})
+		} else {
+			a, c = normalize(s[0:2]), normalize(s[2:4])
+		}
+		if a == c {
+			return 0
+		}
+		return a - c
+	})
+	if err != nil {
+		return Estimate{}, err
+	}
+	return rep.Estimate(lv), nil
+}
+
 // normalize maps (x, ref[, floor]) statistics to the normalised score;
 // a span that is not positive gives -Inf or +Inf by the numerator's sign,
 // so that such resamples sit at the ends of the sorted replicates.

@@ -2,6 +2,7 @@ package stats
 
 import (
 	"encoding/json"
+	"errors"
 	"math"
 	"os"
 	"path/filepath"
@@ -159,6 +160,9 @@ func checkPaired(t *testing.T, d pairedRef) {
 		switch c.Stat {
 		case "normalised":
 			e, err = b.Normalized(c.Arms[0], c.Arms[1], c.Arms[2], StatIQM)
+		case "normalised-diff":
+			// Two policies' retentions over one floor, resampled together.
+			e, err = b.NormalizedDiff(c.Arms[0], c.Arms[1], c.Arms[2], c.Arms[3], c.Arms[4], StatIQM)
 		default:
 			e, err = b.PairedDiff(c.Arms[0], c.Arms[1], StatIQM)
 		}
@@ -297,5 +301,37 @@ func TestCoveragePairedAndNonInferiority(t *testing.T) {
 		if typeI > DefaultAlpha+3*se(DefaultAlpha)+0.03 {
 			t.Errorf("n=%d: type-I error %.3f above α = %.2f", n, typeI, DefaultAlpha)
 		}
+	}
+}
+
+// A policy against itself: every resample draws the same seeds for both,
+// so the difference of normalised scores is 0 in every replicate and the
+// interval is exactly [0, 0] (by construction of the paired bootstrap);
+// for two policies the value is the difference of the two Normalized
+// values computed alone (the definition).
+func TestNormalizedDiffSelfAndValue(t *testing.T) {
+	x := Strata{{3, 5, 1, 7, 2, 9, 4, 6}}
+	ref := Strata{{10, 12, 9, 14, 11, 13, 10, 12}}
+	fl := Strata{{0, 1, 0, 1, 0, 1, 0, 1}}
+	b := Bootstrap{Resamples: 500, Seed: 3}
+	e, err := b.NormalizedDiff(x, ref, x, ref, fl, StatIQM)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if e.Value != 0 || e.Lo != 0 || e.Hi != 0 {
+		t.Errorf("A − A = %v, want exactly 0 [0, 0]", e)
+	}
+	y := Strata{{1, 2, 0, 3, 1, 4, 2, 2}}
+	d, err := b.NormalizedDiff(x, ref, y, ref, fl, StatIQM)
+	if err != nil {
+		t.Fatal(err)
+	}
+	na, _ := b.Normalized(x, ref, fl, StatIQM)
+	nb, _ := b.Normalized(y, ref, fl, StatIQM)
+	if math.Abs(d.Value-(na.Value-nb.Value)) > 1e-12 || !(d.Lo > 0) {
+		t.Errorf("A − B = %v, want %v with the interval above 0", d, na.Value-nb.Value)
+	}
+	if _, err := b.NormalizedDiff(x, Strata{{0, 0, 0, 0, 0, 0, 0, 0}}, y, ref, fl, StatIQM); !errors.Is(err, ErrNoSpan) {
+		t.Errorf("a reference at the floor: %v, want ErrNoSpan", err)
 	}
 }

@@ -153,6 +153,9 @@ type AxisCurve struct {
 	// Axis is e.g. "random occlusion ratio"; Context what else is applied.
 	Axis, Kind, Context string
 	Patch               int
+	// Policy is the label of the policy the curve measures ("" in a
+	// study of one unlabelled policy).
+	Policy string
 	// Cells are indices into Analysis.Cells, sorted by severity.
 	Cells      []int
 	Severities []float64
@@ -167,7 +170,7 @@ type AxisCurve struct {
 func (a *Analysis) boot(c int, stream string) stats.Bootstrap {
 	d := a.Plan.Def
 	return stats.Bootstrap{Resamples: d.Stats.Resamples, Level: d.Stats.Confidence,
-		Seed: seeds.DeriveSeed(d.Seed, seeds.StreamKey(stream), seeds.StreamKey(a.Plan.Cells[c].Key()))}
+		Seed: seeds.DeriveSeed(d.Seed, seeds.StreamKey(stream), seeds.StreamKey(a.Plan.Cells[c].ID()))}
 }
 
 // Analyze reads a study folder and computes every statistic. Its result
@@ -293,6 +296,7 @@ func FromRecords(dir string, si *study.Info, p *study.Plan, recs []study.Record)
 	}
 	a.normalise()
 	a.curves()
+	a.comparePolicies()
 	a.StepsPerSecond = medianSPS(study.ReadTimings(dir))
 	if p.Def.Kind == "sizes" {
 		costs, err := readCosts(dir)
@@ -300,7 +304,9 @@ func FromRecords(dir string, si *study.Info, p *study.Plan, recs []study.Record)
 			return nil, err
 		}
 		a.Costs = costs
-		if err := a.recommend(); err != nil {
+		if p.Def.Compares() {
+			a.RecNote = "no recommendation: the study compares several policies; a patch size is recommended for one policy at a time (run sizes with that policy alone)"
+		} else if err := a.recommend(); err != nil {
 			return nil, err
 		}
 	}
@@ -424,7 +430,7 @@ func axisName(a axis, kind string) string {
 func (a *Analysis) curves() {
 	byKey := map[string]int{}
 	for i, c := range a.Plan.Cells {
-		byKey[c.Key()] = i
+		byKey[c.ID()] = i
 	}
 	thr := a.Plan.Def.Stats.Threshold
 	for _, ax := range axes {
@@ -441,11 +447,11 @@ func (a *Analysis) curves() {
 				continue
 			}
 			ctxCell := ax.zero(c)
-			ctx, ok := byKey[ctxCell.Key()]
+			ctx, ok := byKey[ctxCell.ID()]
 			if !ok {
 				ctx = -1
 			}
-			gk := ctxCell.Key() + "|" + kind
+			gk := ctxCell.ID() + "|" + kind
 			g := groups[gk]
 			if g == nil {
 				g = &group{ctx: ctx, kind: kind}
@@ -466,13 +472,16 @@ func (a *Analysis) curves() {
 			})
 			ctxCell := ax.zero(a.Plan.Cells[g.cells[len(g.cells)-1]])
 			ctxLabel := fmt.Sprintf("patch %d", ctxCell.Patch)
+			if ctxCell.Policy != "" {
+				ctxLabel = "policy " + ctxCell.Policy + ", " + ctxLabel
+			}
 			if l := ctxCell.Label(); l != "clean" {
 				ctxLabel += ", " + l
 			}
 			if ctxCell.Variation != a.Plan.Def.Variation {
 				ctxLabel += ", variation " + variationName(ctxCell.Variation)
 			}
-			cv := AxisCurve{Axis: axisName(ax, g.kind), Kind: g.kind, Context: ctxLabel, Patch: ctxCell.Patch, Cells: g.cells,
+			cv := AxisCurve{Axis: axisName(ax, g.kind), Kind: g.kind, Context: ctxLabel, Patch: ctxCell.Patch, Policy: ctxCell.Policy, Cells: g.cells,
 				Pure: ctxCell.Clean() && ctxCell.Variation == a.Plan.Def.Variation}
 			var levels []stats.Level
 			stressed := 0
@@ -525,7 +534,7 @@ func WriteReport(dir string) error {
 // where the strips were recorded.
 func (a *Analysis) ReportData(dir string) *report.Data {
 	d := a.Plan.Def
-	rd := &report.Data{Title: fmt.Sprintf("%s: %s / %s", d.Name, d.Game, policyLabel(d.Policy)), Kind: d.Kind + " study"}
+	rd := &report.Data{Title: fmt.Sprintf("%s: %s / %s", d.Name, d.Game, policiesLabel(d)), Kind: d.Kind + " study"}
 	if d.Kind == "sizes" {
 		rd.Kind = "patch-size study"
 	}
@@ -537,7 +546,7 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 		{Key: "study", Value: a.Plan.Fingerprint},
 		{Key: "game", Value: d.Game},
 		{Key: "variation", Value: variationName(d.Variation)},
-		{Key: "policy", Value: policyLabel(d.Policy)},
+		{Key: policyKey(d), Value: policiesLabel(d)},
 		{Key: "cells", Value: strconv.Itoa(len(a.Plan.Cells))},
 		{Key: "episodes per cell", Value: strconv.Itoa(d.Episodes)},
 		{Key: "game seeds", Value: d.Seeds},
@@ -556,11 +565,17 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 	if a.StepsPerSecond > 0 {
 		rd.Run.Params = append(rd.Run.Params, report.KV{Key: "speed", Value: fmt.Sprintf("%.0f steps/s per worker (median, timing.jsonl)", a.StepsPerSecond)})
 	}
-	if d.Policy.Source == "expert" {
-		rd.Notes = append(rd.Notes, "The scripted expert reads the game state, not pixels: transforms of the input do not reach it, so its cells show the game's spread, not robustness.")
-	}
-	if d.Policy.Source == "fresh" {
-		rd.Notes = append(rd.Notes, "The policy is an untrained network (fresh weights): its scores show the pipeline at work, not a trained policy's robustness.")
+	for _, l := range d.PolicyList() {
+		who := "The policy is"
+		if l.Label != "" {
+			who = "Policy " + l.Label + " is"
+		}
+		switch l.Source {
+		case "expert":
+			rd.Notes = append(rd.Notes, who+" the scripted expert, which reads the game state, not pixels: transforms of the input do not reach it, so its cells show the game's spread, not robustness.")
+		case "fresh":
+			rd.Notes = append(rd.Notes, who+" an untrained network (fresh weights): its scores show the pipeline at work, not a trained policy's robustness.")
+		}
 	}
 	for _, cs := range a.Cells {
 		rd.Run.Episodes += cs.Episodes - cs.Failures
@@ -575,14 +590,14 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 	}
 	for i := range a.Plan.Cells {
 		if ref := a.Plan.Reference(i); ref == i && a.Cells[i].Summary != nil {
-			rd.Findings = append(rd.Findings, report.KV{Key: fmt.Sprintf("clean IQM, patch %d", a.Plan.Cells[i].Patch), Value: a.Cells[i].Summary.IQM.String()})
+			rd.Findings = append(rd.Findings, report.KV{Key: withPolicy(a.Plan.Cells[i], fmt.Sprintf("clean IQM, patch %d", a.Plan.Cells[i].Patch)), Value: a.Cells[i].Summary.IQM.String()})
 		}
 	}
 	for i, c := range a.Plan.Cells {
 		// Held-out variations, otherwise clean: how much of the clean
 		// score carries over.
 		if r := a.Cells[i].Retention; r != nil && c.Clean() && c.Variation != d.Variation {
-			rd.Findings = append(rd.Findings, report.KV{Key: fmt.Sprintf("retention on variation %s, patch %d", variationName(c.Variation), c.Patch), Value: r.String()})
+			rd.Findings = append(rd.Findings, report.KV{Key: withPolicy(c, fmt.Sprintf("retention on variation %s, patch %d", variationName(c.Variation), c.Patch)), Value: r.String()})
 		}
 	}
 	// The headline: every axis on its own, and every combination that
@@ -598,6 +613,7 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 		}
 	}
 	a.costSection(rd)
+	a.comparisonSection(rd)
 	a.soundTables(rd)
 	a.curveSections(rd)
 	a.stripSections(rd, dir)
@@ -628,6 +644,9 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 // what it does, e.g. "3 p8/occlude=random:0.3/scramble=full".
 func cellID(i int, c study.Cell, base string) string {
 	id := fmt.Sprintf("%d p%d", i, c.Patch)
+	if c.Policy != "" {
+		id = fmt.Sprintf("%d %s/p%d", i, c.Policy, c.Patch)
+	}
 	if c.Variation != base {
 		id += "/variation=" + variationName(c.Variation)
 	}
@@ -676,6 +695,36 @@ func policyLabel(p study.PolicyDef) string {
 	return p.Source
 }
 
+// policiesLabel names the study's policies: the one policy, or the
+// labels side by side.
+func policiesLabel(d study.Definition) string {
+	if len(d.Policies) == 0 {
+		return policyLabel(d.Policy)
+	}
+	parts := make([]string, len(d.Policies))
+	for i, l := range d.Policies {
+		pd := d.Policy
+		pd.Source = l.Source
+		parts[i] = l.Label + " = " + policyLabel(pd)
+	}
+	return strings.Join(parts, " vs ")
+}
+
+func policyKey(d study.Definition) string {
+	if len(d.Policies) > 1 {
+		return "policies"
+	}
+	return "policy"
+}
+
+// withPolicy prefixes a finding's name with the cell's policy label.
+func withPolicy(c study.Cell, s string) string {
+	if c.Policy == "" {
+		return s
+	}
+	return c.Policy + ": " + s
+}
+
 func primaryAxis(c study.Cell) (string, string, float64) {
 	var found []string
 	var kind string
@@ -699,7 +748,11 @@ func primaryAxis(c study.Cell) (string, string, float64) {
 }
 
 func cellParams(c study.Cell) []report.KV {
-	kv := []report.KV{
+	var kv []report.KV
+	if c.Policy != "" {
+		kv = append(kv, report.KV{Key: "policy", Value: c.Policy})
+	}
+	kv = append(kv, []report.KV{
 		{Key: "patch", Value: strconv.Itoa(c.Patch)},
 		{Key: "variation", Value: variationName(c.Variation)},
 		{Key: "occlude", Value: c.Occlude},
@@ -710,7 +763,7 @@ func cellParams(c study.Cell) []report.KV {
 		{Key: "brightness", Value: fnum(c.Brightness)},
 		{Key: "contrast", Value: fnum(c.Contrast)},
 		{Key: "pixel_noise", Value: fnum(c.PixelNoise)},
-	}
+	}...)
 	if c.Corrupted() {
 		kv = append(kv, report.KV{Key: "corrupt", Value: c.Corrupt})
 	}
