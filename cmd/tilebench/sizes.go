@@ -82,7 +82,7 @@ func runSizes(ctx *runContext, args []string) error {
 		d.Axes = study.DefaultStressSet
 		d.Axes.Fill = fill
 	}
-	if !set["policy"] && (*sf.config == "" || d.Policy.Source == "expert") {
+	if !set["policy"] && len(d.Policies) == 0 && (*sf.config == "" || d.Policy.Source == "expert") {
 		switch {
 		case *trainM != "":
 			d.Policy.Source = runner.TrainTemplate(*sf.out)
@@ -101,8 +101,13 @@ func runSizes(ctx *runContext, args []string) error {
 			}
 		}
 	}
-	if d.Policy.Source == "expert" {
-		return usagef("sizes: the scripted expert does not read patches; give --policy, --train or a --family")
+	if *trainM != "" && len(d.Policies) > 0 {
+		return usagef("sizes: --train makes the study's one policy; a study file with a list of policies plays the policies given")
+	}
+	for _, l := range d.PolicyList() {
+		if l.Source == "expert" {
+			return usagef("sizes: the scripted expert does not read patches; give --policy, --train or a --family")
+		}
 	}
 	p, err := study.NewPlan(*d)
 	if err != nil {

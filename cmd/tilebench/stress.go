@@ -15,6 +15,7 @@ import (
 	"tilebench/vision/policies"
 	"tilebench/vision/remote"
 	"tilebench/vision/study"
+	"tilebench/vision/study/analysis"
 	"tilebench/vision/study/runner"
 	"tilebench/vision/train"
 )
@@ -89,7 +90,7 @@ func addStudyFlags(fs *flag.FlagSet, defPolicy, defPatch string, defEpisodes int
 		asJSON:       fs.Bool("json", false, "print a machine-readable summary"),
 		overlay:      fs.String("overlay", "", "draw the policy's attention on the report's strips: attention, top:K or attention+top:K"),
 	}
-	sf.pol = policies.AddFlags(fs, policies.FlagConfig{Default: defPolicy})
+	sf.pol = policies.AddFlags(fs, policies.FlagConfig{Default: defPolicy, Multi: true})
 	sf.tf = addSweepFlags(fs)
 	return sf
 }
@@ -117,7 +118,13 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	useStr("name", &d.Name, *sf.name)
 	useStr("game", &d.Game, *sf.game)
 	useStr("variation", &d.Variation, *sf.variation)
-	useStr("policy", &d.Policy.Source, sf.pol.Source)
+	if set["policy"] || all {
+		single, list, err := sf.pol.List()
+		if err != nil {
+			return nil, usagef("%s: %v", kind, err)
+		}
+		d.Policy.Source, d.Policies = single, list
+	}
 	useStr("family", &d.Policy.Family, *sf.family)
 	sf.policyOptions(&d.Policy, set)
 	useStr("seeds", &d.Seeds, *sf.seeds)
@@ -160,18 +167,16 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	if *sf.episodes <= 0 && set["episodes"] {
 		return nil, usagef("--episodes %d: want at least 1", *sf.episodes)
 	}
-	// A single weights file without --patch: take the patch size from it.
-	if !set["patch"] && len(d.Patch) == 0 {
-		if ps, ok := policies.PatchOf(d.Policy.Source); ok {
-			d.Patch = study.Axis{strconv.Itoa(ps)}
-		}
-	}
+	// Weights files without --patch: Normalize takes the patch size from
+	// them (Definition.OwnPatch).
 	if err := d.Normalize(); err != nil {
 		return nil, usagef("%v", err)
 	}
-	if policies.IsTemplate(d.Policy.Source) {
-		if ps, err := d.Patch.Values(""); err == nil && len(ps) == 1 {
-			return nil, usagef("%s: policy %q holds {patch}, but the study has one patch size (%s): give several with --patch (e.g. --patch 4,8,16), or name the policy without {patch}", kind, d.Policy.Source, ps[0])
+	for _, l := range d.PolicyList() {
+		if policies.IsTemplate(l.Source) {
+			if ps, err := d.Patch.Values(""); err == nil && len(ps) == 1 {
+				return nil, usagef("%s: policy %q holds {patch}, but the study has one patch size (%s): give several with --patch (e.g. --patch 4,8,16), or name the policy without {patch}", kind, l.Source, ps[0])
+			}
 		}
 	}
 	return d, nil
@@ -246,6 +251,8 @@ type studyJSON struct {
 	Failed   int     `json:"failed"`
 	Seconds  float64 `json:"seconds"`
 	StepsPer float64 `json:"steps_per_second"`
+	// Comparison is the policy comparison of a study of several policies.
+	Comparison *analysis.ComparisonJSON `json:"comparison,omitempty"`
 }
 
 // runStudyCLI runs a planned study (runner.Run: train, play, resume,
@@ -331,8 +338,12 @@ func printOutcome(ctx *runContext, p *study.Plan, dir string, shard study.Shard,
 		sps = float64(out.Steps) / out.Elapsed.Seconds()
 	}
 	if asJSON {
-		b, err := json.MarshalIndent(studyJSON{Format: 1, Dir: dir, Study: p.Fingerprint, Report: rep, Shard: shard.String(),
-			Total: out.Total, Kept: out.Kept, Ran: out.Ran, Failed: out.Failed, Seconds: out.Elapsed.Seconds(), StepsPer: sps}, "", "  ")
+		sj := studyJSON{Format: 1, Dir: dir, Study: p.Fingerprint, Report: rep, Shard: shard.String(),
+			Total: out.Total, Kept: out.Kept, Ran: out.Ran, Failed: out.Failed, Seconds: out.Elapsed.Seconds(), StepsPer: sps}
+		if out.Analysis != nil {
+			sj.Comparison = out.Analysis.Comparison()
+		}
+		b, err := json.MarshalIndent(sj, "", "  ")
 		if err != nil {
 			return err
 		}

@@ -132,6 +132,13 @@ type Analysis struct {
 	WorstReturn float64
 	// Errors counts error episodes over the study.
 	Errors int
+	// Diffs compare the policies of a study comparing several, pair by
+	// pair and condition by condition; Verdicts say which is more robust
+	// on each stress axis; CompareScale describes the common scale of
+	// the normalised scores (or why there is none).
+	Diffs        []PolicyDiff
+	Verdicts     []Robustness
+	CompareScale string
 }
 
 // CondTest is the non-inferiority test of the patch sizes in one

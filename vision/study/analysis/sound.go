@@ -201,36 +201,12 @@ func (a *Analysis) recommend() error {
 		}
 	}
 	// The scale.
-	fl := 0.0
-	if f := a.floorOf(d.Variation); f != nil {
-		if v := align(f)[0]; len(v) > 0 {
-			fl = stats.IQM(v)
-		}
-	}
-	ref, refName := nan, ""
-	if ex := a.expertOf(d.Variation); ex != nil {
-		if v := align(ex)[0]; len(v) > 0 {
-			ref, refName = stats.IQM(v), "the scripted expert's clean IQM"
-		}
-	}
-	if math.IsNaN(ref) {
-		for i, c := range a.Plan.Cells {
-			if c.Clean() && c.Variation == d.Variation && a.Cells[i].Summary != nil {
-				if v := a.Cells[i].Summary.IQM.Value; math.IsNaN(ref) || v > ref {
-					ref, refName = v, "the best patch size's clean IQM"
-				}
-			}
-		}
-	}
-	flName := "0 (no floor recorded)"
-	if a.Floors != nil {
-		flName = fmt.Sprintf("the %s policy's clean IQM", a.Floors.Floor)
-	}
-	if !(ref > fl) {
-		a.RecNote = fmt.Sprintf("no recommendation: the reference score %s does not exceed the floor %s, so the normalised scale is undefined", fmtG(ref), fmtG(fl))
+	fl, ref, scale, ok := a.commonScale("patch size")
+	if !ok {
+		a.RecNote = "no recommendation: " + scale
 		return nil
 	}
-	a.Scale = fmt.Sprintf("normalised score (x − floor) / (reference − floor): floor %s = %s, reference %s = %s", flName, fmtG(fl), refName, fmtG(ref))
+	a.Scale = scale
 	norm := func(v float64) float64 { return (v - fl) / (ref - fl) }
 	// Per condition, the seeds every patch size recorded.
 	var cands []stats.Candidate
@@ -333,6 +309,44 @@ func (a *Analysis) recommend() error {
 		a.Conds = append(a.Conds, ct)
 	}
 	return nil
+}
+
+// commonScale is the normalised scale whose ends are fixed numbers, the
+// same for every arm compared: the floor policy's clean IQM (0 without
+// one) and, as the reference, the scripted expert's clean IQM when it was
+// recorded, else the best clean IQM among the study's clean cells
+// (whose arms what names: "patch size", "policy"), all on the study's
+// variation. desc describes the scale, or why there is none (ok false).
+func (a *Analysis) commonScale(what string) (fl, ref float64, desc string, ok bool) {
+	d := a.Plan.Def
+	if f := a.floorOf(d.Variation); f != nil {
+		if v := align(f)[0]; len(v) > 0 {
+			fl = stats.IQM(v)
+		}
+	}
+	ref, refName := nan, ""
+	if ex := a.expertOf(d.Variation); ex != nil {
+		if v := align(ex)[0]; len(v) > 0 {
+			ref, refName = stats.IQM(v), "the scripted expert's clean IQM"
+		}
+	}
+	if math.IsNaN(ref) {
+		for i, c := range a.Plan.Cells {
+			if c.Clean() && c.Variation == d.Variation && a.Cells[i].Summary != nil {
+				if v := a.Cells[i].Summary.IQM.Value; math.IsNaN(ref) || v > ref {
+					ref, refName = v, "the best "+what+"'s clean IQM"
+				}
+			}
+		}
+	}
+	flName := "0 (no floor recorded)"
+	if a.Floors != nil {
+		flName = fmt.Sprintf("the %s policy's clean IQM", a.Floors.Floor)
+	}
+	if !(ref > fl) {
+		return fl, ref, fmt.Sprintf("the reference score %s does not exceed the floor %s, so the normalised scale is undefined", fmtG(ref), fmtG(fl)), false
+	}
+	return fl, ref, fmt.Sprintf("normalised score (x − floor) / (reference − floor): floor %s = %s, reference %s = %s", flName, fmtG(fl), refName, fmtG(ref)), true
 }
 
 // soundTables adds the tables behind the headline: the normalisation,
