@@ -104,17 +104,20 @@ func ParseList(values []string) (single string, list []Labelled, err error) {
 // CheckList refuses a labelled list with an empty or unsafe label (see
 // CheckLabel), the same label twice, or a bad source (Check).
 func CheckList(list []Labelled) error {
-	seen := map[string]bool{}
+	seen := map[string]string{}
 	for _, l := range list {
 		if err := CheckLabel(l.Label); err != nil {
 			return err
 		}
 		// Case-folded: labels name files, and some file systems fold case.
 		k := strings.ToLower(l.Label)
-		if seen[k] {
+		if was, ok := seen[k]; ok {
+			if was != l.Label {
+				return sourceErr("policy labels %q and %q differ only in case: every policy needs its own label (labels name files)", was, l.Label)
+			}
 			return sourceErr("policy label %q is given twice: every policy needs its own label", l.Label)
 		}
-		seen[k] = true
+		seen[k] = l.Label
 		if err := Check(l.Source); err != nil {
 			return sourceErr("policy %s: %v", l.Label, err)
 		}

@@ -46,6 +46,9 @@ type Robustness struct {
 	// is, or when the evidence points both ways: Mixed).
 	More  string
 	Mixed bool
+	// Undefined is true when no retention difference could be computed
+	// (a clean score at or below the floor); Statement says why.
+	Undefined bool
 	// Statement is the plain sentence; Evidence lists, per severity, the
 	// interval of retention(A) − retention(B) and whether it excludes 0.
 	Statement string
@@ -116,7 +119,15 @@ func (a *Analysis) comparePolicies() {
 						e, err := bs.NormalizedDiff(stats.Strata{cols[0]}, stats.Strata{cols[1]}, stats.Strata{cols[2]}, stats.Strata{cols[3]}, fs, stats.StatIQM)
 						switch {
 						case errors.Is(err, stats.ErrNoSpan):
-							pd.Note = joinNote(pd.Note, "retention difference undefined: a clean score does not exceed the floor")
+							fv := 0.0
+							if fs != nil {
+								fv = stats.IQM(cols[4])
+							}
+							who := la
+							if stats.IQM(cols[1]) > fv {
+								who = lb
+							}
+							pd.Note = joinNote(pd.Note, fmt.Sprintf("retention difference undefined: the clean IQM of %s does not exceed the floor's %s", who, fmtG(fv)))
 						case err != nil:
 							pd.Note = joinNote(pd.Note, "retention difference undefined: "+err.Error())
 						default:
@@ -149,9 +160,13 @@ func (a *Analysis) robustness(la, lb string) {
 		ctx := strings.TrimPrefix(cv.Context, "policy "+la+", ")
 		r := Robustness{A: la, B: lb, Axis: cv.Axis, Context: ctx}
 		var above, below, none []string
+		why := ""
 		for k, ci := range cv.Cells {
 			pd := diff[ci]
 			if pd == nil || pd.Retention == nil {
+				if pd != nil && pd.Note != "" && pd.CellA != a.Plan.Reference(pd.CellA) && why == "" {
+					why = pd.Note
+				}
 				continue
 			}
 			e := *pd.Retention
@@ -168,10 +183,17 @@ func (a *Analysis) robustness(la, lb string) {
 				r.Evidence = append(r.Evidence, fmt.Sprintf("%s: %s, includes 0", sev, e))
 			}
 		}
+		on := cv.Axis + " (" + ctx + ")"
 		if len(r.Evidence) == 0 {
+			if why == "" {
+				continue
+			}
+			r.Statement = fmt.Sprintf("On %s the robustness of %s and %s cannot be compared: %s.", on, la, lb, why)
+			r.Evidence = []string{why}
+			r.Undefined = true
+			a.Verdicts = append(a.Verdicts, r)
 			continue
 		}
-		on := cv.Axis + " (" + ctx + ")"
 		switch {
 		case len(above) > 0 && len(below) > 0:
 			r.Mixed = true
@@ -257,7 +279,7 @@ func (a *Analysis) comparisonSection(rd *report.Data) {
 
 	dt := report.Table{ID: "policy-diffs", Title: "Paired differences between policies", Nav: "Policy differences",
 		Caption: "Per condition, A − B on the seeds both played, each drawn seed bringing both policies' episodes (paired bootstrap, BCa below " + strconv.Itoa(stats.MinPercentileN) + " seeds). " +
-			"Normalised score: " + a.CompareScale + ". Retention difference: each policy against its own clean score over the same floor, all resampled together. " +
+			"The score difference is on one scale for both policies, " + a.CompareScale + ". Retention difference: each policy against its own clean score over the same floor, all resampled together. " +
 			"Signed-rank: Wilcoxon's test of the per-seed differences of normalised scores (two-sided). Intervals are per condition, not adjusted for the number of conditions.",
 		Columns: []string{"condition", "A − B", "seeds", "normalised score A − B [CI], paired", "paired width", "unpaired width", "signed-rank p", "retention A − B [CI]", "interval excludes 0", "note"}}
 	for _, pd := range a.Diffs {
@@ -289,6 +311,8 @@ func (a *Analysis) comparisonSection(rd *report.Data) {
 		switch {
 		case r.Mixed:
 			more = "mixed"
+		case r.Undefined:
+			more = "not comparable"
 		case more == "":
 			more = "no difference shown"
 		}
@@ -356,6 +380,7 @@ type VerdictJSON struct {
 	Context   string   `json:"context"`
 	More      string   `json:"more_robust"`
 	Mixed     bool     `json:"mixed,omitempty"`
+	Undefined bool     `json:"undefined,omitempty"`
 	Statement string   `json:"statement"`
 	Evidence  []string `json:"evidence"`
 }
@@ -388,7 +413,7 @@ func (a *Analysis) Comparison() *ComparisonJSON {
 		out.Diffs = append(out.Diffs, dj)
 	}
 	for _, r := range a.Verdicts {
-		out.Verdicts = append(out.Verdicts, VerdictJSON{A: r.A, B: r.B, Axis: r.Axis, Context: r.Context, More: r.More, Mixed: r.Mixed,
+		out.Verdicts = append(out.Verdicts, VerdictJSON{A: r.A, B: r.B, Axis: r.Axis, Context: r.Context, More: r.More, Mixed: r.Mixed, Undefined: r.Undefined,
 			Statement: r.Statement, Evidence: r.Evidence})
 	}
 	return out
