@@ -207,8 +207,34 @@ func (a *Analysis) robustness(la, lb string) {
 		default:
 			r.Statement = fmt.Sprintf("On %s no difference in robustness between %s and %s is shown: every interval of retention %s − %s includes 0.", on, la, lb, la, lb)
 		}
+		if w := unstable(a, cv.Cells, diff); w != "" {
+			r.Statement += " Read with care: " + w + "."
+		}
 		a.Verdicts = append(a.Verdicts, r)
 	}
+}
+
+// unstable names the policies of a curve's comparison whose retention is
+// a ratio over a clean score near the floor (CellStats.Warn).
+func unstable(a *Analysis, cells []int, diff map[int]*PolicyDiff) string {
+	var who []string
+	seen := map[string]bool{}
+	for _, ci := range cells {
+		pd := diff[ci]
+		if pd == nil {
+			continue
+		}
+		for _, c := range []int{pd.CellA, pd.CellB} {
+			if l := a.Plan.Cells[c].Policy; a.Cells[c].Warn != "" && !seen[l] {
+				seen[l] = true
+				who = append(who, l)
+			}
+		}
+	}
+	if len(who) == 0 {
+		return ""
+	}
+	return "the clean score of " + strings.Join(who, " and ") + " comes near the floor, so its retention is an unstable ratio; compare the normalised scores instead"
 }
 
 func restNote(none []string) string {
