@@ -282,6 +282,9 @@ func runStudyCLI(ctx *runContext, p *study.Plan, sf *studyFlags, args []string, 
 	}
 	if !*sf.asJSON && out.Analysis != nil {
 		printRecommendation(ctx, out.Analysis)
+		for _, v := range out.Analysis.Verdicts {
+			fmt.Fprintln(ctx.stdout, v.Statement)
+		}
 	}
 	return failedEpisodes(out, *sf.out)
 }
