@@ -311,6 +311,14 @@ func (a *Analysis) recommend() error {
 	return nil
 }
 
+// scaleSentence is " Scale." or nothing when there is no scale.
+func scaleSentence(scale string) string {
+	if scale == "" {
+		return ""
+	}
+	return " " + scale + "."
+}
+
 // commonScale is the normalised scale whose ends are fixed numbers, the
 // same for every arm compared: the floor policy's clean IQM (0 without
 // one) and, as the reference, the scripted expert's clean IQM when it was
@@ -445,8 +453,8 @@ func (a *Analysis) soundTables(rd *report.Data) {
 		Caption: fmt.Sprintf("Non-inferiority (Schuirmann 1987): a patch size counts as good as the best when the upper bound of (normalised IQM of the best − its normalised IQM) lies below the margin δ = %s, "+
 			"each comparison one-sided at the Holm-adjusted level (Holm 1979; family-wise α = %s), by the paired bootstrap over the seeds every size played (BCa below %d seeds). "+
 			"The pooled rows decide the recommendation; the rows per condition show where a size falls short. "+
-			"Episodes needed: per condition, for %.0f%% power by the normal approximation, taking the observed difference and spread as true. %s.",
-			fmtG(margin), fmtG(stats.DefaultAlpha), stats.MinPercentileN, 100*stats.DefaultPower, a.Scale),
+			"Episodes needed: per condition, for %.0f%% power by the normal approximation, taking the observed difference and spread as true.%s",
+			fmtG(margin), fmtG(stats.DefaultAlpha), stats.MinPercentileN, 100*stats.DefaultPower, scaleSentence(a.Scale)),
 		Columns: []string{"condition", "patch", "normalised IQM [CI]", "best − patch [CI]", "margin", "Holm-adjusted p", "verdict", "episodes needed"}}
 	verdict := func(c stats.Comparison, isBest bool) (string, string) {
 		switch {
