@@ -70,9 +70,10 @@ func ParseLabelled(s string) (Labelled, bool, error) {
 	return Labelled{Label: label, Source: src}, true, nil
 }
 
-// ParseList reads the values of a repeated --policy: one unlabelled
-// value is the single policy of a study (nil list, the source returned);
-// otherwise every value must be LABEL=SOURCE (CheckList).
+// ParseList reads the values of a repeated --policy: unlabelled values
+// name the single policy of a study (nil list; the last one given
+// counts, as for any flag given twice); otherwise every value must be
+// LABEL=SOURCE (CheckList), and mixing the two is an error.
 func ParseList(values []string) (single string, list []Labelled, err error) {
 	if len(values) == 0 {
 		return "", nil, nil
@@ -88,13 +89,15 @@ func ParseList(values []string) (single string, list []Labelled, err error) {
 		}
 		list = append(list, l)
 	}
-	if labelled == 0 && len(values) == 1 {
-		return values[0], nil, nil
+	if labelled == 0 {
+		// Unlabelled only: the last one counts, as for every flag given
+		// twice (a later flag overrides an earlier one).
+		return values[len(values)-1], nil, nil
 	}
 	if labelled != len(values) {
 		for _, l := range list {
 			if l.Label == "" {
-				return "", nil, sourceErr("--policy %q has no label, but --policy is given %d times: label every policy (--policy LABEL=SOURCE) or give one", l.Source, len(values))
+				return "", nil, sourceErr("--policy %q has no label, but other --policy values have one: label every policy (--policy LABEL=SOURCE) or give one", l.Source)
 			}
 		}
 	}

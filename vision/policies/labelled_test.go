@@ -22,6 +22,10 @@ func TestParseList(t *testing.T) {
 	if err != nil || single != "" || len(list) != 3 || list[1].Label != "occl" || list[1].Source != "exec:python3 p.py --patch {patch}" {
 		t.Fatalf("labelled list: %q %v %v", single, list, err)
 	}
+	// Unlabelled values only: the last counts, as before lists existed.
+	if single, list, err = policies.ParseList([]string{"expert", "fresh"}); err != nil || list != nil || single != "fresh" {
+		t.Fatalf("two unlabelled values: %q %v %v", single, list, err)
+	}
 	if _, list, err = policies.ParseList([]string{"only=expert"}); err != nil || len(list) != 1 || list[0].Label != "only" {
 		t.Fatalf("one labelled policy: %v %v", list, err)
 	}
