@@ -439,8 +439,7 @@ func (a *Analysis) Comparison() *ComparisonJSON {
 		out.Diffs = append(out.Diffs, dj)
 	}
 	for _, r := range a.Verdicts {
-		out.Verdicts = append(out.Verdicts, VerdictJSON{A: r.A, B: r.B, Axis: r.Axis, Context: r.Context, More: r.More, Mixed: r.Mixed, Undefined: r.Undefined,
-			Statement: r.Statement, Evidence: r.Evidence})
+		out.Verdicts = append(out.Verdicts, VerdictJSON(r))
 	}
 	return out
 }
