@@ -68,7 +68,11 @@ func runReplay(ctx *runContext, args []string) error {
 		}
 		fmt.Fprintln(ctx.stdout, string(b))
 	} else {
-		fmt.Fprintf(ctx.stdout, "cell %d (%s) episode %d: game seed %d, pipeline seed %d\n", *cell, fresh.Params.Label(), *ep, fresh.GameSeed, fresh.PipeSeed)
+		what := fresh.Params.Label()
+		if fresh.Params.Policy != "" {
+			what = "policy " + fresh.Params.Policy + ", " + what
+		}
+		fmt.Fprintf(ctx.stdout, "cell %d (%s) episode %d: game seed %d, pipeline seed %d\n", *cell, what, *ep, fresh.GameSeed, fresh.PipeSeed)
 		fmt.Fprintf(ctx.stdout, "return %s, %d steps, %s\n", strconv.FormatFloat(fresh.Return, 'g', -1, 64), fresh.Steps, fresh.End)
 		if fresh.Failed() {
 			fmt.Fprintf(ctx.stdout, "failure: %s\n", fresh.Failure)
