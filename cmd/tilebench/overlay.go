@@ -2,7 +2,6 @@ package main
 
 import (
 	"flag"
-	"fmt"
 	"image"
 
 	"tilebench/patch"
@@ -60,14 +59,14 @@ func (o *overlayFlags) on() bool { return o.parsed.On() }
 func (o *overlayFlags) exportPolicy(g *patch.Grid) (nets.Net, error) {
 	n, err := nets.Load(*o.policy)
 	if err != nil {
-		return nil, fmt.Errorf("export: %w", err)
+		return nil, err
 	}
 	ng := n.Grid()
 	if ng.Cols != g.Cols || ng.Rows != g.Rows || ng.D() != g.D() {
-		return nil, usagef("export: --weights %s was trained on %s; these frames are cut as %s (match --patch and the frame size)", *o.policy, ng, g)
+		return nil, usagef("--weights %s was trained on %s; these frames are cut as %s (match --patch and the frame size, set by --size for built-in scenes)", *o.policy, ng, g)
 	}
 	if _, ok := n.(vision.AttentionReporter); !ok {
-		return nil, usagef("export: --weights %s is a %s policy, which has no attention to draw", *o.policy, n.Config().Family)
+		return nil, usagef("--weights %s is a %s policy, which has no attention to draw", *o.policy, n.Config().Family)
 	}
 	return n, nil
 }

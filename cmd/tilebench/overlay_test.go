@@ -77,6 +77,9 @@ func TestOverlayUsageErrors(t *testing.T) {
 		if code != 2 || strings.Count(stderr, "\n") != 1 {
 			t.Errorf("%v: exit %d, stderr %q; want 2 and one line", args, code, stderr)
 		}
+		if strings.Contains(stderr, "export: export:") {
+			t.Errorf("%v: stderr %q names the command twice", args, stderr)
+		}
 	}
 }
 
