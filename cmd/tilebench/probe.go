@@ -17,7 +17,7 @@ func init() {
 }
 
 const probeUsage = `probe --in FRAMES --policy POLICY [options] --out DIR
-       probe merge --out DIR SHARD_DIR...
+       tilebench probe merge --out DIR SHARD_DIR...
 
 Runs the policy over every recorded sequence twice, clean and transformed
 (same policy seed), for every combination of the transform axes (a cell),
@@ -35,7 +35,10 @@ examples:
   tilebench probe --in recorded.npy --policy 'exec:python3 my_policy.py' --action-space continuous:2 \
     --patch 8 --occlude random:0:0.8:0.1,block:0.3 --scramble none,full --noise-tokens 0,16 --out probe-mine
   tilebench probe --in frames/ --episodes episodes.csv --actions actions.npy \
-    --policy testdata/policies/drive-attention-p8.safetensors --out probe-ref
+    --policy testdata/policies/drive-attention-p8.safetensors --occlude random:0:0.6:0.2 --scramble none,full --out probe-ref
+
+Without a transform option only the clean cell runs, whose drift is zero
+for a reproducible policy.
 
 A probe stopped by Ctrl-C or a kill continues with --resume; --shard i/n
 runs one part and "tilebench probe merge" (or "tilebench merge") joins the
@@ -142,8 +145,16 @@ func parseWxH(s string) (int, int, error) {
 	return w, h, nil
 }
 
+const probeMergeUsage = `probe merge --out DIR SHARD_DIR...
+
+Joins the folders of one probe's shards (tilebench probe --shard i/n) into
+the new folder DIR: the same results.jsonl bytes and report as an
+unsharded run. "tilebench merge DIR SHARD_DIR..." does the same.
+
+options:`
+
 func runProbeMerge(ctx *runContext, args []string) error {
-	fs := newFlags(ctx, "probe merge", probeUsage)
+	fs := newFlags(ctx, "probe merge", probeMergeUsage)
 	out := fs.String("out", "", "output folder `DIR` (new or empty)")
 	if err := parseFlags(fs, args); err != nil {
 		return err

@@ -133,3 +133,19 @@ func TestProbeMemory(t *testing.T) {
 		t.Errorf("maximum resident set %d MB, want under 300 MB", kb/1024)
 	}
 }
+
+// TestProbeMergeHelp: "probe merge -help" describes the merge, not the
+// probe, and every usage line of probe names the program.
+func TestProbeMergeHelp(t *testing.T) {
+	code, stdout, _ := runCLI(t, "", "probe", "merge", "-help")
+	if code != 0 || !strings.HasPrefix(stdout, "usage: tilebench probe merge --out DIR") || strings.Contains(stdout, "Runs the policy") {
+		t.Fatalf("probe merge -help: exit %d\n%s", code, stdout)
+	}
+	if !strings.Contains(stdout, "-out DIR") {
+		t.Fatalf("probe merge -help lacks --out:\n%s", stdout)
+	}
+	_, stdout, _ = runCLI(t, "", "probe", "-help")
+	if !strings.Contains(stdout, "\n       tilebench probe merge --out DIR") {
+		t.Fatalf("probe -help: second usage line lacks the program name:\n%s", stdout)
+	}
+}
