@@ -250,14 +250,26 @@ func (f *trainFlags) finish(ctx *runContext, tr *train.Trainer, res train.Result
 		}
 		return enc.Encode(sum)
 	}
-	fmt.Fprintf(ctx.stdout, "trained %s %s patch %d on %s by %s: %d iterations (%s) in %s, best validation %.1f\n",
-		cfg.Net.Family, cfg.Game, cfg.Patch, cfg.Game, cfg.Method, res.Iters, res.Stopped, res.Elapsed.Round(time.Second), res.BestVal)
+	fmt.Fprintf(ctx.stdout, "trained %s patch %d on %s by %s: %d iterations (%s) in %s, best validation %.1f\n",
+		cfg.Net.Family, cfg.Patch, cfg.Game, cfg.Method, res.Iters, res.Stopped, res.Elapsed.Round(time.Second), res.BestVal)
 	if len(held) > 0 {
 		fmt.Fprintf(ctx.stdout, "held-out score over %d episodes: mean %s, IQM %s (scripted expert, reads game state: mean %s, IQM %s)\n",
-			len(held), meta[weights.KeyHeldOutScore], meta["heldout_iqm"], meta["heldout_expert_score"], meta["heldout_expert_iqm"])
+			len(held), oneDecimal(meta[weights.KeyHeldOutScore]), oneDecimal(meta["heldout_iqm"]),
+			oneDecimal(meta["heldout_expert_score"]), oneDecimal(meta["heldout_expert_iqm"]))
 	}
 	fmt.Fprintf(ctx.stdout, "wrote %s (checkpoint %s)\ncaution: %s\n", f.out, f.ckpt, vision.Caution)
 	return nil
+}
+
+// oneDecimal shows a score kept as text in the weights' metadata with one
+// decimal, as the other summaries do; text that is not a number is shown
+// as it is.
+func oneDecimal(s string) string {
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil {
+		return s
+	}
+	return strconv.FormatFloat(v, 'f', 1, 64)
 }
 
 func num(s string) any {

@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"regexp"
 	"strings"
 	"testing"
 
@@ -80,6 +81,11 @@ func TestTrainResumeCLI(t *testing.T) {
 		t.Fatalf("resume: exit %d: %s", code, stderr)
 	}
 	if !strings.Contains(stdout, "held-out score") || !strings.Contains(stdout, "caution") {
+		t.Fatalf("summary %q", stdout)
+	}
+	// Scores with one decimal, and the game named once.
+	if !regexp.MustCompile(`held-out score over 2 episodes: mean -?\d+\.\d, IQM -?\d+\.\d \(scripted expert, reads game state: mean -?\d+\.\d, IQM -?\d+\.\d\)\n`).MatchString(stdout) ||
+		!strings.Contains(stdout, "trained attention patch 4 on drive by ") {
 		t.Fatalf("summary %q", stdout)
 	}
 	na, err := nets.Load(a)
