@@ -78,7 +78,7 @@ func runDemo(ctx *runContext, args []string) error {
 	fs := newFlags(ctx, "demo", demoUsage)
 	out := fs.String("out", "tilebench-demo", "output `DIR`")
 	episodes := fs.Int("episodes", 30, "episodes per cell")
-	workers := fs.Int("workers", 0, "parallel workers (0: one per core)")
+	workers := fs.Int("workers", 0, "parallel workers (0: one per core); results do not depend on it")
 	refDir := fs.String("reference", "testdata/policies", "folder of the reference policies")
 	asJSON := fs.Bool("json", false, "print a machine-readable summary")
 	if err := parseFlags(fs, args); err != nil {

@@ -93,7 +93,7 @@ func addExportFlags(ctx *runContext) *exportFlags {
 	return &exportFlags{
 		fs:          fs,
 		in:          fs.String("in", "", "input frames: folder, .gif, .npy, .rgb/.raw, - (stdin) or builtin:NAME (e.g. --in frames/)"),
-		out:         fs.String("out", "", "output folder, created if missing (e.g. --out out/run1)"),
+		out:         fs.String("out", "", "output folder `DIR` (required), created if missing (e.g. --out out/run1)"),
 		as:          fs.String("as", "png", "comma-separated outputs: png, npy, gif, sheet (e.g. --as png,npy,gif,sheet)"),
 		size:        fs.String("size", "", "frame size WxH of raw input, and of built-in scenes (default 96x96) (e.g. --size 160x120)"),
 		frames:      fs.Int("frames", 60, "number of frames of a built-in scene (e.g. --frames 120)"),

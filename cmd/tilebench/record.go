@@ -45,7 +45,7 @@ func runRecord(ctx *runContext, args []string) error {
 	patchSize := fs.String("patch", "", "patch size N or WxH the transforms cut frames into; default a weights file's own, else a size that divides the frame (e.g. --patch 8)")
 	episodes := fs.Int("episodes", 10, "episodes the dataset holds, 1 to 1000000 (e.g. --episodes 50)")
 	seed := fs.Uint64("seed", games.TrainSeedStart, "game seed of the first episode, in the training range 0..999999 (e.g. --seed 500)")
-	out := fs.String("out", "", "dataset folder, new or empty (or being resumed) (e.g. --out demos/)")
+	out := fs.String("out", "", "dataset folder `DIR`, new or empty (or being resumed) (e.g. --out demos/)")
 	obs := fs.String("obs", record.ObsFrame, "what to record: frame (the frame the policy saw) or tokens (token sets with grid cells) (e.g. --obs tokens)")
 	relabel := fs.Bool("relabel", false, "also record the scripted expert's action at every step (labels.npy) while --policy drives (e.g. --relabel)")
 	resume := fs.Bool("resume", false, "continue the recording in --out after its last whole episode (e.g. --resume)")

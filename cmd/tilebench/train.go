@@ -62,7 +62,7 @@ func addTrainFlags(ctx *runContext) *trainFlags {
 	fs.DurationVar(&c.Budget, "budget", 5*time.Minute, "training time budget, e.g. 90s, 5m (stops at the next iteration boundary)")
 	fs.IntVar(&c.Iters, "iters", 0, "stop after this many iterations (DAgger rounds or generations); 0 = until the budget or early stop. Use it for reproducible runs")
 	fs.Uint64Var(&c.Seed, "seed", 1, "seed of the initial weights and of every random stream")
-	fs.StringVar(&f.out, "out", "", "weights file to write (required)")
+	fs.StringVar(&f.out, "out", "", "weights `FILE.safetensors` to write (required)")
 	fs.StringVar(&f.ckpt, "checkpoint", "", "checkpoint file (default OUT.ckpt)")
 	fs.IntVar(&f.every, "checkpoint-every", 1, "write the checkpoint every N iterations")
 	fs.StringVar(&f.resume, "resume", "", "continue the run saved in this checkpoint exactly")
