@@ -1,15 +1,11 @@
 package drive
 
 import (
-	"encoding/json"
 	"flag"
 	"math"
-	"os"
-	"path/filepath"
 	"testing"
 
 	"tilebench/games"
-	"tilebench/internal/atomicfile"
 	"tilebench/internal/reftest"
 	"tilebench/internal/seeds"
 )
@@ -110,25 +106,7 @@ func checkAgainstRef(t *testing.T, doc refDoc) {
 // equations, using the committed golden output of
 // testdata/ref/circuit_ref.py (regenerate with -args -update-ref).
 func TestCircuitMatchesSciPyGolden(t *testing.T) {
-	if *updateRef {
-		reftest.Need(t, "scipy")
-		doc := runRef(t, refInput(t))
-		data, err := json.MarshalIndent(doc, "", " ")
-		if err != nil {
-			t.Fatal(err)
-		}
-		if err := atomicfile.WriteBytes(refGolden, append(data, '\n')); err != nil {
-			t.Fatal(err)
-		}
-	}
-	data, err := os.ReadFile(refGolden)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var doc refDoc
-	if err := json.Unmarshal(data, &doc); err != nil {
-		t.Fatal(err)
-	}
+	doc := reftest.Golden(t, refGolden, *updateRef, func() refDoc { return runRef(t, refInput(t)) }, "scipy")
 	checkAgainstRef(t, doc)
 }
 
@@ -138,30 +116,13 @@ func TestRefCircuitSciPy(t *testing.T) {
 	checkAgainstRef(t, runRef(t, refInput(t)))
 }
 
-// runScript writes in as JSON, runs the reference script on it and
-// decodes its output into out.
-func runScript(t *testing.T, script string, in, out any) {
-	t.Helper()
-	path := filepath.Join(t.TempDir(), "in.json")
-	data, err := json.Marshal(in)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := os.WriteFile(path, data, 0o644); err != nil {
-		t.Fatal(err)
-	}
-	if err := json.Unmarshal(reftest.Run(t, script, path), out); err != nil {
-		t.Fatal(err)
-	}
-}
-
 func runRef(t *testing.T, in refDoc) (out refDoc) {
-	runScript(t, "circuit_ref.py", in, &out)
+	reftest.RunJSON(t, "circuit_ref.py", in, &out)
 	return out
 }
 
 func runBike(t *testing.T, in bikeDoc) (out bikeDoc) {
-	runScript(t, "bicycle_ref.py", in, &out)
+	reftest.RunJSON(t, "bicycle_ref.py", in, &out)
 	return out
 }
 
@@ -239,24 +200,7 @@ func checkBike(t *testing.T, doc bikeDoc, actions [][][2]float64) {
 // testdata/ref/bicycle_ref.py (regenerate with -args -update-ref).
 func TestBicycleMatchesSciPyGolden(t *testing.T) {
 	in, actions := bikeInput()
-	if *updateRef {
-		reftest.Need(t, "scipy")
-		data, err := json.MarshalIndent(runBike(t, in), "", " ")
-		if err != nil {
-			t.Fatal(err)
-		}
-		if err := atomicfile.WriteBytes(bikeGolden, append(data, '\n')); err != nil {
-			t.Fatal(err)
-		}
-	}
-	data, err := os.ReadFile(bikeGolden)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var doc bikeDoc
-	if err := json.Unmarshal(data, &doc); err != nil {
-		t.Fatal(err)
-	}
+	doc := reftest.Golden(t, bikeGolden, *updateRef, func() bikeDoc { return runBike(t, in) }, "scipy")
 	checkBike(t, doc, actions)
 }
 

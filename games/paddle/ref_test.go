@@ -1,14 +1,10 @@
 package paddle
 
 import (
-	"encoding/json"
 	"flag"
 	"math"
-	"os"
-	"path/filepath"
 	"testing"
 
-	"tilebench/internal/atomicfile"
 	"tilebench/internal/reftest"
 	"tilebench/internal/seeds"
 )
@@ -44,18 +40,7 @@ func trackInput() trackDoc {
 }
 
 func runTrackRef(t *testing.T, in trackDoc) (out trackDoc) {
-	t.Helper()
-	path := filepath.Join(t.TempDir(), "in.json")
-	data, err := json.Marshal(in)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := os.WriteFile(path, data, 0o644); err != nil {
-		t.Fatal(err)
-	}
-	if err := json.Unmarshal(reftest.Run(t, "paddle_track_ref.py", path), &out); err != nil {
-		t.Fatal(err)
-	}
+	reftest.RunJSON(t, "paddle_track_ref.py", in, &out)
 	return out
 }
 
@@ -102,24 +87,7 @@ func checkTrack(t *testing.T, doc trackDoc) {
 // and a Householder reflection), from the committed output of
 // testdata/ref/paddle_track_ref.py (regenerate with -args -update-ref).
 func TestTrackMatchesNumPyGolden(t *testing.T) {
-	if *updateRef {
-		reftest.Need(t, "numpy")
-		data, err := json.MarshalIndent(runTrackRef(t, trackInput()), "", " ")
-		if err != nil {
-			t.Fatal(err)
-		}
-		if err := atomicfile.WriteBytes(trackGolden, append(data, '\n')); err != nil {
-			t.Fatal(err)
-		}
-	}
-	data, err := os.ReadFile(trackGolden)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var doc trackDoc
-	if err := json.Unmarshal(data, &doc); err != nil {
-		t.Fatal(err)
-	}
+	doc := reftest.Golden(t, trackGolden, *updateRef, func() trackDoc { return runTrackRef(t, trackInput()) }, "numpy")
 	checkTrack(t, doc)
 }
 

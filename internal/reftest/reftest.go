@@ -8,11 +8,14 @@ package reftest
 
 import (
 	"bytes"
+	"encoding/json"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"runtime"
 	"testing"
+
+	"tilebench/internal/atomicfile"
 )
 
 // Python is the interpreter the reference checks use: Debian's, never a
@@ -68,4 +71,49 @@ func Run(t testing.TB, script string, args ...string) []byte {
 		t.Fatalf("%s %v: %v\n%s", script, args, err, stderr.String())
 	}
 	return out
+}
+
+// RunJSON writes in as JSON to a temporary file, runs the reference script
+// on that file and decodes the script's standard output into out.
+func RunJSON(t testing.TB, script string, in, out any) {
+	t.Helper()
+	path := filepath.Join(t.TempDir(), "in.json")
+	data, err := json.Marshal(in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(path, data, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(Run(t, script, path), out); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// Golden returns the reference document kept as JSON in the golden file
+// path, for the offline half of a golden-then-live check. With update set
+// (a test's -update-ref flag) it first needs the Python modules, computes
+// the document live with ref and rewrites the file with it (indented,
+// written atomically), then reads the file back as without update.
+func Golden[T any](t testing.TB, path string, update bool, ref func() T, modules ...string) T {
+	t.Helper()
+	if update {
+		Need(t, modules...)
+		data, err := json.MarshalIndent(ref(), "", " ")
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := atomicfile.WriteBytes(path, append(data, '\n')); err != nil {
+			t.Fatal(err)
+		}
+	}
+	data, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var doc T
+	if err := json.Unmarshal(data, &doc); err != nil {
+		t.Fatal(err)
+	}
+	return doc
 }
