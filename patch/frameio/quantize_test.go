@@ -11,7 +11,8 @@ import (
 )
 
 // gifRoundTrip writes frames through a GIFWriter and decodes the file
-// with the stdlib's image/gif.
+// with the stdlib's image/gif, checking that every frame came back with
+// the writer's delay.
 func gifRoundTrip(t testing.TB, frames []image.Image, dither bool) ([]byte, []*image.RGBA) {
 	t.Helper()
 	w := &GIFWriter{Delay: 3, Dither: dither}
@@ -33,6 +34,9 @@ func gifRoundTrip(t testing.TB, frames []image.Image, dither bool) ([]byte, []*i
 	}
 	out := make([]*image.RGBA, len(g.Image))
 	for i, p := range g.Image {
+		if g.Delay[i] != w.Delay {
+			t.Fatalf("frame %d: delay %d in the GIF, %d written", i, g.Delay[i], w.Delay)
+		}
 		out[i] = cloneRGBA(p)
 	}
 	return b.Bytes(), out
