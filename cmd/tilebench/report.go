@@ -15,6 +15,8 @@ const reportUsage = `report DIR
 Re-makes DIR/report.html, DIR/summary.md and DIR/cells.csv from the
 recorded results (study.json, results.jsonl, costs.json, strips/); the
 same results give the same files. Every study writes them at its end.
+A probe's folder is not a study: its probe command run again with
+--resume re-makes its report.
 
   tilebench report stress-drive
 
@@ -29,6 +31,9 @@ func runReport(ctx *runContext, args []string) error {
 		return usagef("report: want one study folder DIR")
 	}
 	dir := fs.Arg(0)
+	if isProbeDir(dir) {
+		return usagef("report: %s is a probe (probe.json), not a study: run its probe command again with --resume to re-make the report (the command is under \"Reproduce\" in its summary.md)", dir)
+	}
 	if err := analysis.WriteReport(dir); err != nil {
 		return err
 	}

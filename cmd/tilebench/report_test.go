@@ -1,6 +1,7 @@
 package main
 
 import (
+	"os"
 	"path/filepath"
 	"testing"
 )
@@ -14,4 +15,14 @@ func TestReportBadInput(t *testing.T) {
 	if code, _, _ := runCLI(t, "", "report"); code != 2 {
 		t.Fatalf("report without DIR: exit %d", code)
 	}
+	// A probe's folder is named as one, with the way to re-make its report.
+	probeDir := t.TempDir()
+	if err := os.WriteFile(filepath.Join(probeDir, "probe.json"), []byte("{}"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, _, stderr = runCLI(t, "", "report", probeDir)
+	if code != 2 {
+		t.Fatalf("report of a probe: exit %d", code)
+	}
+	oneLine(t, stderr, "is a probe (probe.json), not a study: run its probe command again with --resume")
 }
