@@ -17,6 +17,8 @@ Joins the folders of one study's shards (tilebench stress/sizes --shard i/n)
 into the new folder OUT: results.jsonl in canonical order (by cell, then
 episode), byte-identical to an unsharded run's, timing, strips and the
 report. Folders of different studies are refused; OUT must be new or empty.
+The shards of a probe (tilebench probe --shard i/n) are joined the same
+way, as "tilebench probe merge --out OUT DIR..." does.
 
   tilebench merge stress-all stress-0 stress-1 stress-2
 
