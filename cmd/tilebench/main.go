@@ -198,7 +198,12 @@ func main() {
 // run executes one command line and returns the exit status: 0 success,
 // 1 runtime failure, 2 usage error.
 func run(ctx *runContext, args []string) int {
-	if len(args) == 0 || args[0] == "help" || args[0] == "-h" || args[0] == "--help" || args[0] == "-help" {
+	if len(args) == 0 {
+		// No command is a usage error: the help goes to stderr.
+		printHelp(ctx.stderr)
+		return 2
+	}
+	if args[0] == "help" || args[0] == "-h" || args[0] == "--help" || args[0] == "-help" {
 		if len(args) > 1 {
 			if c, ok := commands[args[1]]; ok {
 				return finish(ctx, c.run(ctx, []string{"-help"}))

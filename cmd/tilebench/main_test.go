@@ -25,3 +25,18 @@ func TestUnknownCommandIsUsageError(t *testing.T) {
 		t.Fatalf("stderr %q: want one line naming the command", stderr)
 	}
 }
+
+// No command is a usage error (exit 2, help on stderr); asking for help
+// is not (exit 0, help on stdout).
+func TestNoCommandIsUsageError(t *testing.T) {
+	code, stdout, stderr := runCLI(t, "")
+	if code != 2 || stdout != "" || !strings.Contains(stderr, "commands:") {
+		t.Fatalf("no command: exit %d, stdout %q, stderr %q", code, stdout, stderr)
+	}
+	for _, h := range []string{"help", "-h", "--help", "-help"} {
+		code, stdout, stderr := runCLI(t, "", h)
+		if code != 0 || stderr != "" || !strings.Contains(stdout, "commands:") {
+			t.Fatalf("%s: exit %d, stdout %q, stderr %q", h, code, stdout, stderr)
+		}
+	}
+}
