@@ -193,7 +193,11 @@ func runVerify(ctx *runContext, args []string) error {
 }
 
 func printVerify(w io.Writer, r *invariance.Report, policy string, grid *patch.Grid, discrete bool) {
-	fmt.Fprintf(w, "verify: %s (%s) on %s, %s (%d tokens)\n", policy, r.Family, r.Game, grid, r.Tokens)
+	what := r.Family
+	if k := policies.Kind(policy); k == policies.KindFresh || k == policies.KindFamily {
+		what = "an untrained " + r.Family + " network"
+	}
+	fmt.Fprintf(w, "verify: %s (%s) on %s, %s (%d tokens)\n", policy, what, r.Game, grid, r.Tokens)
 	fmt.Fprintf(w, "%d frames from expert rollouts, %d draws of each perturbation per frame\n", r.Frames, r.Perms)
 	unit := "largest absolute change over the action's values"
 	switch {

@@ -174,3 +174,17 @@ func TestRefPlayExternalPolicy(t *testing.T) {
 		t.Fatalf("log %s holds %q", kept[0], b)
 	}
 }
+
+// The text summary says when the network is untrained (a family name or
+// fresh), and names a weights file's family alone.
+func TestVerifyNamesUntrained(t *testing.T) {
+	for _, c := range []struct{ policy, want string }{
+		{"attention", "verify: attention (an untrained attention network) on paddle"},
+		{"fresh", "verify: fresh (an untrained attention network) on paddle"},
+	} {
+		code, out, errs := runCLI(t, "", "verify", "--policy", c.policy, "--game", "paddle", "--perms", "2", "--seeds", "1", "--frames", "1")
+		if code != 0 || !strings.HasPrefix(out, c.want) {
+			t.Fatalf("%s: exit %d, stdout %q (stderr %s); want it to start %q", c.policy, code, out, errs, c.want)
+		}
+	}
+}
