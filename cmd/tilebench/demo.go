@@ -133,7 +133,7 @@ func runDemo(ctx *runContext, args []string) error {
 	}
 	fmt.Fprintf(ctx.stdout, "demo finished in %s\n", time.Since(start).Round(time.Second))
 	if untrained {
-		fmt.Fprintln(ctx.stdout, "note: some reference policies were not found, the demo used untrained networks for them")
+		fmt.Fprintf(ctx.stdout, "note: some reference policies were not found in %s (run from the repository's root, or give --reference DIR); the demo used untrained networks for them\n", *refDir)
 	}
 	for _, r := range reports {
 		fmt.Fprintf(ctx.stdout, "report: %s\n", r)

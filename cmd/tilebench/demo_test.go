@@ -26,6 +26,11 @@ func TestDemo(t *testing.T) {
 			t.Fatalf("stdout %q does not print %s", stdout, f)
 		}
 	}
+	// Run from the package's folder, the default --reference is not
+	// there: the note says where it looked and what to do.
+	if !strings.Contains(stdout, "not found in testdata/policies (run from the repository's root, or give --reference DIR)") {
+		t.Errorf("stdout %q does not say where the reference policies were looked for", stdout)
+	}
 	// The drive stress study has its camera-shift axis.
 	if b, err := os.ReadFile(filepath.Join(out, "stress", "report.html")); err != nil || !strings.Contains(string(b), "shift:s3") {
 		t.Fatalf("stress report does not show the shift:s3 corruption (%v)", err)
