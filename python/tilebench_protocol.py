@@ -35,7 +35,7 @@ try:
 except ImportError:  # the protocol works without NumPy; arrays do not
     np = None
 
-__all__ = ["PROTOCOL", "MAX_LINE", "ProtocolError", "Session", "Observation",
+__all__ = ["PROTOCOL", "MAX_LINE", "ProtocolError", "Session", "Observation", "Batch",
            "read_message", "send", "serve", "serve_session", "load_recording"]
 
 PROTOCOL = 1
@@ -123,17 +123,37 @@ class Observation:
     """One observation, decoded lazily.
 
     Attributes: ``t`` (step index), ``prev`` (previous action, a list),
-    ``n`` (token count, obs tokens), ``raw`` (the payload bytes),
-    ``session`` (the Session). Properties: ``frame`` (H×W×C array in the
-    dtype sent; bytes without NumPy), ``tokens`` (n×ph×pw×C array),
-    ``cells`` (n×2 int16 array of (row, col), (-1, -1) for an added token).
+    ``n`` (token count, obs tokens), ``session`` (the Session), ``raw``
+    (the payload bytes; for an observation of a batch, its part of the
+    batch's payload, copied out only when ``raw`` is read). Properties:
+    ``frame`` (H×W×C array in the dtype sent, a read-only view of the
+    payload; bytes without NumPy), ``tokens`` (n×ph×pw×C array), ``cells``
+    (n×2 int16 array of (row, col), (-1, -1) for an added token).
     ``pixels()`` is the frame as float32 in [0, 1].
+
+    ``Observation(session, t, prev, raw, n=0, offset=0, size=None)``: the
+    observation is ``size`` bytes of ``raw`` from ``offset`` (all of it
+    by default).
     """
 
-    __slots__ = ("t", "prev", "n", "raw", "session")
+    __slots__ = ("t", "prev", "n", "session", "_buf", "_off", "_size")
 
-    def __init__(self, session, t, prev, raw, n=0):
-        self.session, self.t, self.prev, self.raw, self.n = session, t, prev, raw, n
+    def __init__(self, session, t, prev, raw, n=0, offset=0, size=None):
+        self.session, self.t, self.prev, self.n = session, t, prev, n
+        self._buf, self._off = raw, offset
+        self._size = len(raw) - offset if size is None else size
+
+    @property
+    def raw(self):
+        if self._off == 0 and self._size == len(self._buf):
+            return self._buf
+        return bytes(self._view())
+
+    def _view(self):
+        """The observation's payload bytes without a copy."""
+        if self._off == 0 and self._size == len(self._buf):
+            return self._buf
+        return memoryview(self._buf)[self._off:self._off + self._size]
 
     def _dtype(self):
         return np.uint8 if self.session.dtype == "uint8" else np.dtype("<f4")
@@ -144,7 +164,7 @@ class Observation:
             raise AttributeError("obs is tokens: use .tokens and .cells")
         if np is None:
             return self.raw
-        return np.frombuffer(self.raw, dtype=self._dtype()).reshape(self.session.frame_shape)
+        return np.frombuffer(self._view(), dtype=self._dtype()).reshape(self.session.frame_shape)
 
     @property
     def tokens(self):
@@ -154,7 +174,7 @@ class Observation:
         shape = (self.n, g["patch"][0], g["patch"][1], g["channels"])
         if np is None:
             return self.raw[:self.n * g["dim"] * self.session.item]
-        return np.frombuffer(self.raw, dtype=self._dtype(), count=self.n * g["dim"]).reshape(shape)
+        return np.frombuffer(self._view(), dtype=self._dtype(), count=self.n * g["dim"]).reshape(shape)
 
     @property
     def cells(self):
@@ -164,12 +184,55 @@ class Observation:
         if np is None:
             import struct
             return [struct.unpack_from("<hh", self.raw, off + 4 * i) for i in range(self.n)]
-        return np.frombuffer(self.raw, dtype="<i2", offset=off, count=2 * self.n).reshape(self.n, 2)
+        return np.frombuffer(self._view(), dtype="<i2", offset=off, count=2 * self.n).reshape(self.n, 2)
 
     def pixels(self):
         """The frame as float32 values in [0, 1] (needs NumPy)."""
         f = self.frame
         return f.astype(np.float32) / 255 if f.dtype == np.uint8 else f
+
+
+class Batch(list):
+    """The Observations of one message, as a list, for a policy served
+    with ``batch``; a step message gives a Batch of one.
+
+    ``frames`` is the whole batch's frames as one read-only (k, H, W, C)
+    array over the message's payload, made without copying (obs frame,
+    with NumPy): a vectorised policy computes on it at once rather than
+    stacking the observations' frames.
+    """
+
+    __slots__ = ("session", "payload")
+
+    def __init__(self, session, observations, payload):
+        list.__init__(self, observations)
+        self.session, self.payload = session, payload
+
+    @property
+    def frames(self):
+        s = self.session
+        if s.obs != "frame":
+            raise AttributeError("obs is tokens: use each observation's .tokens and .cells")
+        if np is None:
+            raise AttributeError("frames needs NumPy")
+        dt = np.uint8 if s.dtype == "uint8" else np.dtype("<f4")
+        return np.frombuffer(self.payload, dtype=dt, count=len(self) * s.size() // s.item).reshape((len(self),) + s.frame_shape)
+
+
+def _flat_actions(r, k, session):
+    """A batch policy's answer (a list of actions, or an array of k
+    actions) as the reply's flat list of k·dim numbers."""
+    dim = session.action_dim
+    if np is not None and isinstance(r, np.ndarray):
+        if r.size != k * dim:
+            raise ValueError("%d actions of %d values wanted, got an array of shape %s" % (k, dim, r.shape))
+        if session.discrete:
+            return [int(v) for v in r.reshape(-1).tolist()]
+        return r.astype(np.float64, copy=False).reshape(-1).tolist()
+    flat = []
+    for a in r:
+        flat.extend(_reply(a, session)[0])
+    return flat
 
 
 def _action_list(a, session):
@@ -247,7 +310,8 @@ def serve_session(policy, inp, out, batch=None, name=None):
                 if batch is None:
                     a, w = _reply(act(obs), session)
                 else:
-                    a, w = _reply(act([obs])[0], session)
+                    r = act(Batch(session, [obs], payload))
+                    a, w = (_flat_actions(r, 1, session), None) if np is not None and isinstance(r, np.ndarray) else _reply(r[0], session)
                 reply = {"msg": "action", "t": header["t"], "action": a}
                 if w is not None:
                     reply["weights"] = w
@@ -255,14 +319,16 @@ def serve_session(policy, inp, out, batch=None, name=None):
             elif kind == "batch":
                 k = header["count"]
                 ts, prev, ns = header["t"], header.get("prev") or [0] * (k * dim), header.get("n") or [0] * k
+                # Each observation is its part of the payload, not a copy.
                 obs, off = [], 0
                 for i in range(k):
                     size = session.size(ns[i])
-                    obs.append(Observation(session, ts[i], prev[i * dim:(i + 1) * dim], payload[off:off + size], ns[i]))
+                    obs.append(Observation(session, ts[i], prev[i * dim:(i + 1) * dim], payload, ns[i], off, size))
                     off += size
-                flat = []
-                for r in (act(obs) if batch is not None else [act(o) for o in obs]):
-                    flat.extend(_reply(r, session)[0])
+                if batch is not None:
+                    flat = _flat_actions(act(Batch(session, obs, payload)), k, session)
+                else:
+                    flat = _flat_actions([act(o) for o in obs], k, session)
                 send(out, {"msg": "actions", "t": ts[0], "count": k, "action": flat})
         except (ProtocolError, OSError):
             raise
@@ -284,8 +350,10 @@ def serve(policy, batch=None, *, name=None, listen=None, sessions=0, log_name=No
     ``end(header)``.
 
     ``batch=B`` declares a stateless policy that takes up to B
-    observations at once: the function then gets a list of Observations
-    and returns a list of actions (a step message gives a list of one).
+    observations at once: the function then gets a Batch (a list of
+    Observations whose ``frames`` is all their frames in one array, made
+    without copying) and returns a list of actions or an array of shape
+    (k, action_dim) (a step message gives a Batch of one).
     Leave it None for a policy that keeps state between steps.
 
     Without ``listen`` one session is served on stdin/stdout (the
