@@ -28,6 +28,18 @@ type Random interface {
 	Close() error
 }
 
+// Packed is a Random whose frames are stored as packed rows of
+// Info().Channels bytes a pixel, back to back (a .npy array, raw RGB24):
+// BytesAt hands them out as stored, with no RGBA conversion.
+type Packed interface {
+	Random
+	// BytesAt reads frames i, i+1, ... as stored (Width·Height·Channels
+	// bytes each, row after row) into dst, whose length must be a whole
+	// number of frames, all within the input, with one read. Safe for
+	// concurrent use with distinct dst.
+	BytesAt(i int, dst []byte) error
+}
+
 // OpenRandom opens in (any input Open takes) for reading in any order.
 // For a folder, every frame file's header is read at once so that frames
 // of another size are refused before any work starts, with the file and
@@ -220,6 +232,23 @@ func (a *fileAt) ReadFrameAt(i int, dst *image.RGBA) error {
 		return fmt.Errorf("%s: frame %d of %d: %w", a.info.Name, i, a.info.Frames, noEOF(err))
 	}
 	expandRow(dst.Pix[:4*w*h], buf, c) // rows are back to back in both
+	return nil
+}
+
+// BytesAt reads the stored bytes of len(dst)/frame-size frames from i
+// (Packed).
+func (a *fileAt) BytesAt(i int, dst []byte) error {
+	fb := a.info.Width * a.info.Height * a.channels
+	n := len(dst) / fb
+	if len(dst) != n*fb || n == 0 {
+		return fmt.Errorf("%s: a buffer of %d bytes for frames of %d bytes", a.info.Name, len(dst), fb)
+	}
+	if i < 0 || i+n > a.info.Frames {
+		return fmt.Errorf("%s: frames %d..%d: the input has frames 0..%d", a.info.Name, i, i+n-1, a.info.Frames-1)
+	}
+	if _, err := a.f.ReadAt(dst, a.offset+int64(i)*int64(fb)); err != nil {
+		return fmt.Errorf("%s: frames %d..%d of %d: %w", a.info.Name, i, i+n-1, a.info.Frames, noEOF(err))
+	}
 	return nil
 }
 
