@@ -54,6 +54,13 @@ func (p *Policy) BatchSize() int {
 // wrong count or length, or any value that Act would refuse, is a fault
 // naming the observation's step.
 func (p *Policy) ActBatch(obs []*vision.Observation, actions [][]float64) error {
+	return p.actBatch(obs, nil, actions)
+}
+
+// actBatch is ActBatch, with the frames taken from packed (PackedFrame's
+// layout, back to back) instead of each observation's Frame when packed
+// is not nil.
+func (p *Policy) actBatch(obs []*vision.Observation, packed []byte, actions [][]float64) error {
 	if p.fault != nil {
 		return p.fault
 	}
@@ -72,11 +79,20 @@ func (p *Policy) ActBatch(obs []*vision.Observation, actions [][]float64) error 
 			return fmt.Errorf("policy %s: action buffer %d of %d values, the session's actions have %d", p.target, i, len(a), p.dim)
 		}
 	}
+	if packed != nil {
+		if err := p.checkPacked(len(packed), k); err != nil {
+			return err
+		}
+	}
 	if !p.started {
 		p.Reset(0)
 	}
 	first := obs[0].Step
-	b := p.prefix(p.out[:0])
+	b := p.out[:0]
+	if packed != nil {
+		b = p.head[:0]
+	}
+	b = p.prefix(b)
 	b = append(b, `{"msg":"batch","count":`...)
 	b = strconv.AppendInt(b, int64(k), 10)
 	b = append(b, `,"t":[`...)
@@ -104,6 +120,9 @@ func (p *Policy) ActBatch(obs []*vision.Observation, actions [][]float64) error 
 		b = append(b, ']')
 	} else {
 		for _, o := range obs {
+			if packed != nil {
+				break
+			}
 			if o.Frame == nil || o.Frame.Rect.Dx() != p.frameShape[1] || o.Frame.Rect.Dy() != p.frameShape[0] {
 				return fmt.Errorf("policy %s: step %d: observation has no %dx%d frame", p.target, o.Step, p.frameShape[1], p.frameShape[0])
 			}
@@ -125,14 +144,19 @@ func (p *Policy) ActBatch(obs []*vision.Observation, actions [][]float64) error 
 	b = append(b, `],"len":`...)
 	b = strconv.AppendInt(b, int64(total), 10)
 	b = append(b, "}\n"...)
-	for _, o := range obs {
-		if p.cfg.Obs == ObsTokens {
-			b = appendTokens(b, o.Tokens, p.cfg.Dtype)
-		} else {
-			b = appendFrame(b, o.Frame, p.frameShape[2], p.cfg.Dtype)
+	if packed != nil {
+		p.head = b
+		b = p.place(b, packed)
+	} else {
+		for _, o := range obs {
+			if p.cfg.Obs == ObsTokens {
+				b = appendTokens(b, o.Tokens, p.cfg.Dtype)
+			} else {
+				b = appendFrame(b, o.Frame, p.frameShape[2], p.cfg.Dtype)
+			}
 		}
+		p.out = b
 	}
-	p.out = b
 	to := p.cfg.StepTimeout * time.Duration(k)
 	deadline := time.Now().Add(to)
 	if f := p.write("batch", first, b, deadline, to); f != nil {

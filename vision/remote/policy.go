@@ -177,7 +177,9 @@ type Policy struct {
 	seed       uint64
 	fault      *FaultError
 	closed     bool
-	batch      int // observations per batch message the policy offered (batch.go)
+	batch      int    // observations per batch message the policy offered (batch.go)
+	head       []byte // the header lines of a message with packed frames (packed.go)
+	pk         []byte // a message with packed frames: headRoom, then the frames
 
 	// weights sent with the last action (weights.go)
 	wbuf, wtok []float32
@@ -593,6 +595,12 @@ func (p *Policy) appendStart(b []byte) []byte {
 
 // Act sends the observation and reads and checks the action.
 func (p *Policy) Act(obs *vision.Observation, action []float64) error {
+	return p.act(obs, nil, action)
+}
+
+// act is Act, with the frame taken from packed (PackedFrame's layout)
+// instead of obs.Frame when packed is not nil.
+func (p *Policy) act(obs *vision.Observation, packed []byte, action []float64) error {
 	if p.fault != nil {
 		return p.fault
 	}
@@ -603,10 +611,19 @@ func (p *Policy) Act(obs *vision.Observation, action []float64) error {
 	if len(action) != p.dim {
 		return fmt.Errorf("policy %s: action buffer of %d values, game wants %d", p.target, len(action), p.dim)
 	}
+	if packed != nil {
+		if err := p.checkPacked(len(packed), 1); err != nil {
+			return err
+		}
+	}
 	if !p.started {
 		p.Reset(0)
 	}
-	b := p.prefix(p.out[:0])
+	b := p.out[:0]
+	if packed != nil {
+		b = p.head[:0]
+	}
+	b = p.prefix(b)
 	b = append(b, `{"msg":"step","t":`...)
 	b = strconv.AppendInt(b, int64(step), 10)
 	n := 0
@@ -618,7 +635,7 @@ func (p *Policy) Act(obs *vision.Observation, action []float64) error {
 		n = ts.N
 		b = append(b, `,"n":`...)
 		b = strconv.AppendInt(b, int64(n), 10)
-	} else if obs.Frame == nil || obs.Frame.Rect.Dx() != p.frameShape[1] || obs.Frame.Rect.Dy() != p.frameShape[0] {
+	} else if packed == nil && (obs.Frame == nil || obs.Frame.Rect.Dx() != p.frameShape[1] || obs.Frame.Rect.Dy() != p.frameShape[0]) {
 		return fmt.Errorf("policy %s: step %d: observation has no %dx%d frame", p.target, step, p.frameShape[1], p.frameShape[0])
 	}
 	b = append(b, `,"prev":[`...)
@@ -631,12 +648,17 @@ func (p *Policy) Act(obs *vision.Observation, action []float64) error {
 	b = append(b, `],"len":`...)
 	b = strconv.AppendInt(b, int64(payloadSize(p.cfg.Obs, p.cfg.Dtype, p.frameShape, n, p.cfg.Grid.D())), 10)
 	b = append(b, "}\n"...)
-	if p.cfg.Obs == ObsTokens {
+	switch {
+	case packed != nil:
+		p.head = b
+		b = p.place(b, packed)
+	case p.cfg.Obs == ObsTokens:
 		b = appendTokens(b, obs.Tokens, p.cfg.Dtype)
-	} else {
+		p.out = b
+	default:
 		b = appendFrame(b, obs.Frame, p.frameShape[2], p.cfg.Dtype)
+		p.out = b
 	}
-	p.out = b
 	to := p.cfg.StepTimeout
 	deadline := time.Now().Add(to)
 	if f := p.write("step", step, b, deadline, to); f != nil {
