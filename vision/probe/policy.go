@@ -33,6 +33,19 @@ type FrameOnly interface {
 	FrameOnly() bool
 }
 
+// Packer is a policy that takes frames as packed bytes (an external
+// policy sent uint8 frames, remote.Policy): on the clean pass, frames of
+// a recording stored that way (frameio.Packed) are read straight into
+// the policy's outgoing message (FrameBuffer), with no RGBA frame
+// between. PackedFrame gives the layout, (height, width, channels)
+// bytes, and whether the policy takes such frames at all.
+type Packer interface {
+	PackedFrame() (shape [3]int, ok bool)
+	FrameBuffer(k int) []byte
+	ActPacked(obs *vision.Observation, frame []byte, action []float64) error
+	ActBatchPacked(obs []*vision.Observation, frames []byte, actions [][]float64) error
+}
+
 // PolicyFunc makes one worker's policy for one patch size and its grid.
 type PolicyFunc func(patchSize int, grid *patch.Grid) (vision.Policy, error)
 

@@ -449,13 +449,17 @@ type runner struct {
 	// reassemble into the frame itself (no assembly needed); frameOnly:
 	// the policy reads only the frame (no tokenizing either).
 	exact, frameOnly bool
-	raw              *image.RGBA
-	slots            []slot
-	obs              []*vision.Observation
-	acts             [][]float64
-	zeros            []float64
-	clean            []float64 // the clean pass's actions, frames×dim
-	closer           func() error
+	// packer and packed, when both set: clean frames go from the
+	// recording's stored bytes straight into the policy's message.
+	packer Packer
+	packed frameio.Packed
+	raw    *image.RGBA
+	slots  []slot
+	obs    []*vision.Observation
+	acts   [][]float64
+	zeros  []float64
+	clean  []float64 // the clean pass's actions, frames×dim
+	closer func() error
 }
 
 func newRunner(p *Plan, src frameio.Random, ps int, pf PolicyFunc) (*runner, error) {
@@ -479,6 +483,12 @@ func newRunner(p *Plan, src frameio.Random, ps int, pf PolicyFunc) (*runner, err
 	B := 1
 	if b, ok := pol.(Batcher); ok && !p.Config.NoBatch && b.BatchSize() > 1 {
 		r.batch, B = b, b.BatchSize()
+	}
+	if pk, ok := pol.(Packer); ok && r.frameOnly && p.Width == p.Input.Width && p.Height == p.Input.Height {
+		shape, ok := pk.PackedFrame()
+		if ps, isPacked := src.(frameio.Packed); ok && isPacked && shape == [3]int{p.Height, p.Width, ps.Info().Channels} {
+			r.packer, r.packed = pk, ps
+		}
 	}
 	dim := p.Space.Dim
 	in := p.Input
@@ -572,10 +582,7 @@ func (r *runner) load(s *slot, start, t int, pipe *patch.Pipeline) error {
 			}
 		}
 	}
-	s.obs.PrevAction = r.zeros
-	if a := p.actions; a != nil && t > 0 {
-		s.obs.PrevAction = a.Row(i - 1)
-	}
+	s.obs.PrevAction = r.prev(start, i)
 	return nil
 }
 
@@ -589,17 +596,12 @@ func (r *runner) pass(sq Sequence, seed uint64, pipe *patch.Pipeline, pipeSeed u
 	B := len(r.slots)
 	for t0 := 0; t0 < sq.Len; t0 += B {
 		k := min(B, sq.Len-t0)
-		for j := 0; j < k; j++ {
-			if err := r.load(&r.slots[j], sq.Start, t0+j, pipe); err != nil {
+		if pipe == nil && r.packer != nil {
+			if err := r.actPacked(sq.Start, t0, k); err != nil {
 				return err
 			}
-		}
-		if r.batch != nil {
-			if err := r.batch.ActBatch(r.obs[:k], r.acts[:k]); err != nil {
-				return fmt.Errorf("frames %d..%d: policy: %w", sq.Start+t0, sq.Start+t0+k-1, err)
-			}
-		} else if err := r.pol.Act(r.obs[0], r.acts[0]); err != nil {
-			return fmt.Errorf("frame %d: policy: %w", sq.Start+t0, err)
+		} else if err := r.act(sq.Start, t0, k, pipe); err != nil {
+			return err
 		}
 		for j := 0; j < k; j++ {
 			a := r.acts[j]
@@ -612,6 +614,59 @@ func (r *runner) pass(sq Sequence, seed uint64, pipe *patch.Pipeline, pipeSeed u
 		}
 	}
 	return nil
+}
+
+// act loads frames t0..t0+k-1 of the sequence from start and asks the
+// policy for their actions (in r.acts).
+func (r *runner) act(start, t0, k int, pipe *patch.Pipeline) error {
+	for j := 0; j < k; j++ {
+		if err := r.load(&r.slots[j], start, t0+j, pipe); err != nil {
+			return err
+		}
+	}
+	if r.batch != nil {
+		if err := r.batch.ActBatch(r.obs[:k], r.acts[:k]); err != nil {
+			return fmt.Errorf("frames %d..%d: policy: %w", start+t0, start+t0+k-1, err)
+		}
+	} else if err := r.pol.Act(r.obs[0], r.acts[0]); err != nil {
+		return fmt.Errorf("frame %d: policy: %w", start+t0, err)
+	}
+	return nil
+}
+
+// actPacked is act for a clean pass of a Packer: the k frames' stored
+// bytes are read with one read into the policy's message and sent as
+// they are.
+func (r *runner) actPacked(start, t0, k int) error {
+	buf := r.packer.FrameBuffer(k)
+	if buf == nil {
+		return fmt.Errorf("frames %d..%d: policy: no room for %d packed frames", start+t0, start+t0+k-1, k)
+	}
+	if err := r.packed.BytesAt(start+t0, buf); err != nil {
+		return err
+	}
+	for j := 0; j < k; j++ {
+		s := &r.slots[j]
+		s.obs.Step, s.obs.Frame, s.obs.Tokens = t0+j, nil, nil
+		s.obs.PrevAction = r.prev(start, start+t0+j)
+	}
+	if r.batch != nil {
+		if err := r.packer.ActBatchPacked(r.obs[:k], buf, r.acts[:k]); err != nil {
+			return fmt.Errorf("frames %d..%d: policy: %w", start+t0, start+t0+k-1, err)
+		}
+	} else if err := r.packer.ActPacked(r.obs[0], buf, r.acts[0]); err != nil {
+		return fmt.Errorf("frame %d: policy: %w", start+t0, err)
+	}
+	return nil
+}
+
+// prev is the previous action shown with frame i of a sequence that
+// starts at start (zeros, or the recorded action of frame i-1).
+func (r *runner) prev(start, i int) []float64 {
+	if a := r.p.actions; a != nil && i > start {
+		return a.Row(i - 1)
+	}
+	return r.zeros
 }
 
 // unit fills rec with the drift of one cell on one sequence.
