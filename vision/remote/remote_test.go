@@ -541,12 +541,17 @@ func FuzzHeader(f *testing.F) {
 
 // benchSession opens an echo child for 96×96×3 frames.
 func benchSession(b *testing.B, obs, dtype string) (*Policy, *vision.Observation) {
+	return benchSessionMode(b, obs, dtype, "echo")
+}
+
+// benchSessionMode is benchSession with the helper mode given.
+func benchSessionMode(b *testing.B, obs, dtype, mode string) (*Policy, *vision.Observation) {
 	grid, err := patch.NewGrid(patch.GridConfig{Width: 96, Height: 96, PatchW: 8})
 	if err != nil {
 		b.Fatal(err)
 	}
 	spec := games.Spec{Name: "bench", Width: 96, Height: 96, Action: games.Controls{Kind: games.Continuous, Names: []string{"a", "b", "c"}, Low: []float64{-1, -1, -1}, High: []float64{1, 1, 1}}}
-	p, err := Open(helperTarget(b), Config{Game: spec, Grid: grid, Obs: obs, Dtype: dtype, Env: []string{helperEnv + "=echo"}})
+	p, err := Open(helperTarget(b), Config{Game: spec, Grid: grid, Obs: obs, Dtype: dtype, Env: []string{helperEnv + "=" + mode}})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -586,6 +591,32 @@ func BenchmarkExternalStep(b *testing.B) {
 	samples = samples[:min(n, len(samples))]
 	slices.Sort(samples)
 	b.ReportMetric(float64(samples[len(samples)/2].Nanoseconds()), "median-ns/step")
+}
+
+// BenchmarkExternalBatch is one batch message of 64 96×96×3 uint8
+// frames and its reply, against Serve with a zero policy; ns/frame is
+// the cost per frame on both sides.
+func BenchmarkExternalBatch(b *testing.B) {
+	p, obs := benchSessionMode(b, ObsFrame, Uint8, "echobatch")
+	defer p.Close()
+	if p.BatchSize() != 64 {
+		b.Fatalf("batch size %d", p.BatchSize())
+	}
+	obsB, acts := make([]*vision.Observation, 64), make([][]float64, 64)
+	for i := range obsB {
+		o := *obs
+		o.Step = i
+		obsB[i], acts[i] = &o, make([]float64, 3)
+	}
+	p.Reset(1)
+	b.ReportAllocs()
+	b.SetBytes(64 * 96 * 96 * 3)
+	for b.Loop() {
+		if err := p.ActBatch(obsB, acts); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/64, "ns/frame")
 }
 
 // BenchmarkExternalStepTokens sends the 144 float32 tokens instead.
