@@ -85,6 +85,21 @@ func TestBytesAt(t *testing.T) {
 				t.Errorf("%s: BytesAt(%d, %d bytes): %v, want an error with %q", path, c.i, c.n, err, c.want)
 			}
 		}
+		// Stored names where the frames are: the same bytes read there.
+		f, off, err := pk.Stored(2, 3)
+		if err != nil {
+			t.Fatal(err)
+		}
+		at, want := make([]byte, 3*fb), make([]byte, 3*fb)
+		if _, err := f.ReadAt(at, off); err != nil {
+			t.Fatal(err)
+		}
+		if err := pk.BytesAt(2, want); err != nil || !bytes.Equal(at, want) {
+			t.Errorf("%s: the bytes at Stored(2, 3) are not frames 2..4 (%v)", path, err)
+		}
+		if _, _, err := pk.Stored(len(frames)-2, 3); err == nil {
+			t.Errorf("%s: Stored past the end: no error", path)
+		}
 		r.Close()
 	}
 }

@@ -38,6 +38,10 @@ type Packed interface {
 	// number of frames, all within the input, with one read. Safe for
 	// concurrent use with distinct dst.
 	BytesAt(i int, dst []byte) error
+	// Stored returns the file frames i..i+n-1 are stored in and the
+	// offset of frame i, for moving them without reading them (a
+	// splice into a pipe); the file stays the input's: do not close it.
+	Stored(i, n int) (*os.File, int64, error)
 }
 
 // OpenRandom opens in (any input Open takes) for reading in any order.
@@ -250,6 +254,14 @@ func (a *fileAt) BytesAt(i int, dst []byte) error {
 		return fmt.Errorf("%s: frames %d..%d of %d: %w", a.info.Name, i, i+n-1, a.info.Frames, noEOF(err))
 	}
 	return nil
+}
+
+// Stored returns the file and offset of frames i..i+n-1 (Packed).
+func (a *fileAt) Stored(i, n int) (*os.File, int64, error) {
+	if n < 1 || i < 0 || i+n > a.info.Frames {
+		return nil, 0, fmt.Errorf("%s: frames %d..%d: the input has frames 0..%d", a.info.Name, i, i+n-1, a.info.Frames-1)
+	}
+	return a.f, a.offset + int64(i)*int64(a.info.Width*a.info.Height*a.channels), nil
 }
 
 // rowPool holds frame-sized read buffers, so that concurrent

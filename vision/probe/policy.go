@@ -46,6 +46,13 @@ type Packer interface {
 	ActBatchPacked(obs []*vision.Observation, frames []byte, actions [][]float64) error
 }
 
+// FileBatcher is a Packer that also takes a batch's frames as stored in
+// a file (remote.Policy.ActBatchFile), to move them into its messages
+// without reading them.
+type FileBatcher interface {
+	ActBatchFile(obs []*vision.Observation, f *os.File, off int64, actions [][]float64) error
+}
+
 // PolicyFunc makes one worker's policy for one patch size and its grid.
 type PolicyFunc func(patchSize int, grid *patch.Grid) (vision.Policy, error)
 

@@ -638,17 +638,28 @@ func (r *runner) act(start, t0, k int, pipe *patch.Pipeline) error {
 // bytes are read with one read into the policy's message and sent as
 // they are.
 func (r *runner) actPacked(start, t0, k int) error {
+	for j := 0; j < k; j++ {
+		s := &r.slots[j]
+		s.obs.Step, s.obs.Frame, s.obs.Tokens = t0+j, nil, nil
+		s.obs.PrevAction = r.prev(start, start+t0+j)
+	}
+	if fb, ok := r.packer.(FileBatcher); ok && r.batch != nil {
+		// A batch's frames are moved from the file, not read.
+		f, off, err := r.packed.Stored(start+t0, k)
+		if err != nil {
+			return err
+		}
+		if err := fb.ActBatchFile(r.obs[:k], f, off, r.acts[:k]); err != nil {
+			return fmt.Errorf("frames %d..%d: policy: %w", start+t0, start+t0+k-1, err)
+		}
+		return nil
+	}
 	buf := r.packer.FrameBuffer(k)
 	if buf == nil {
 		return fmt.Errorf("frames %d..%d: policy: no room for %d packed frames", start+t0, start+t0+k-1, k)
 	}
 	if err := r.packed.BytesAt(start+t0, buf); err != nil {
 		return err
-	}
-	for j := 0; j < k; j++ {
-		s := &r.slots[j]
-		s.obs.Step, s.obs.Frame, s.obs.Tokens = t0+j, nil, nil
-		s.obs.PrevAction = r.prev(start, start+t0+j)
 	}
 	if r.batch != nil {
 		if err := r.packer.ActBatchPacked(r.obs[:k], buf, r.acts[:k]); err != nil {

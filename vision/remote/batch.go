@@ -54,13 +54,13 @@ func (p *Policy) BatchSize() int {
 // wrong count or length, or any value that Act would refuse, is a fault
 // naming the observation's step.
 func (p *Policy) ActBatch(obs []*vision.Observation, actions [][]float64) error {
-	return p.actBatch(obs, nil, actions)
+	return p.actBatch(obs, nil, nil, actions)
 }
 
 // actBatch is ActBatch, with the frames taken from packed (PackedFrame's
-// layout, back to back) instead of each observation's Frame when packed
-// is not nil.
-func (p *Policy) actBatch(obs []*vision.Observation, packed []byte, actions [][]float64) error {
+// layout, back to back), or from the file from, instead of each
+// observation's Frame when packed or from is not nil.
+func (p *Policy) actBatch(obs []*vision.Observation, packed []byte, from *fileFrames, actions [][]float64) error {
 	if p.fault != nil {
 		return p.fault
 	}
@@ -79,6 +79,12 @@ func (p *Policy) actBatch(obs []*vision.Observation, packed []byte, actions [][]
 			return fmt.Errorf("policy %s: action buffer %d of %d values, the session's actions have %d", p.target, i, len(a), p.dim)
 		}
 	}
+	if from != nil {
+		packed = nil
+		if err := p.checkPacked(0, 0); err != nil {
+			return err
+		}
+	}
 	if packed != nil {
 		if err := p.checkPacked(len(packed), k); err != nil {
 			return err
@@ -89,7 +95,7 @@ func (p *Policy) actBatch(obs []*vision.Observation, packed []byte, actions [][]
 	}
 	first := obs[0].Step
 	b := p.out[:0]
-	if packed != nil {
+	if packed != nil || from != nil {
 		b = p.head[:0]
 	}
 	b = p.prefix(b)
@@ -120,7 +126,7 @@ func (p *Policy) actBatch(obs []*vision.Observation, packed []byte, actions [][]
 		b = append(b, ']')
 	} else {
 		for _, o := range obs {
-			if packed != nil {
+			if packed != nil || from != nil {
 				break
 			}
 			if o.Frame == nil || o.Frame.Rect.Dx() != p.frameShape[1] || o.Frame.Rect.Dy() != p.frameShape[0] {
@@ -144,7 +150,14 @@ func (p *Policy) actBatch(obs []*vision.Observation, packed []byte, actions [][]
 	b = append(b, `],"len":`...)
 	b = strconv.AppendInt(b, int64(total), 10)
 	b = append(b, "}\n"...)
-	if packed != nil {
+	to := p.cfg.StepTimeout * time.Duration(k)
+	deadline := time.Now().Add(to)
+	if from != nil {
+		p.head = b
+		if f := p.sendFile("batch", first, b, from, total, deadline, to); f != nil {
+			return f
+		}
+	} else if packed != nil {
 		p.head = b
 		b = p.place(b, packed)
 	} else {
@@ -157,10 +170,10 @@ func (p *Policy) actBatch(obs []*vision.Observation, packed []byte, actions [][]
 		}
 		p.out = b
 	}
-	to := p.cfg.StepTimeout * time.Duration(k)
-	deadline := time.Now().Add(to)
-	if f := p.write("batch", first, b, deadline, to); f != nil {
-		return f
+	if from == nil {
+		if f := p.write("batch", first, b, deadline, to); f != nil {
+			return f
+		}
 	}
 	line, f := p.readLine("batch", first, deadline, to)
 	if f != nil {

@@ -55,6 +55,9 @@ func runHelper(mode string) int {
 	case mode == "echo":
 		err := Serve(os.Stdin, os.Stdout, zeroPolicy{}, ServeOptions{Name: "echo"})
 		return exitCode(err)
+	case mode == "hashbatch":
+		err := Serve(os.Stdin, os.Stdout, hashPolicy{}, ServeOptions{Batch: 4})
+		return exitCode(err)
 	case mode == "echobatch":
 		err := Serve(os.Stdin, os.Stdout, zeroPolicy{}, ServeOptions{Name: "echo", Batch: 64})
 		return exitCode(err)

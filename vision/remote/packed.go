@@ -1,7 +1,11 @@
 package remote
 
 import (
+	"errors"
 	"fmt"
+	"os"
+	"syscall"
+	"time"
 
 	"tilebench/vision"
 )
@@ -57,7 +61,54 @@ func (p *Policy) ActBatchPacked(obs []*vision.Observation, frames []byte, action
 	if frames == nil {
 		frames = []byte{}
 	}
-	return p.actBatch(obs, frames, actions)
+	return p.actBatch(obs, frames, nil, actions)
+}
+
+// fileFrames names packed frames stored in a file from offset off.
+type fileFrames struct {
+	f   *os.File
+	off int64
+}
+
+// ActBatchFile is ActBatchPacked with the len(obs) frames stored in f
+// from offset off, back to back in PackedFrame's layout (as a .npy array
+// of uint8 frames stores them). Over an exec: session on Linux the
+// kernel moves them from the file into the child's pipe (splice(2)), so
+// they are never copied through this process; otherwise they are read
+// into FrameBuffer's room and sent from there. The caller makes sure the
+// file holds them: a file cut short is an IO fault.
+func (p *Policy) ActBatchFile(obs []*vision.Observation, f *os.File, off int64, actions [][]float64) error {
+	if f == nil {
+		return fmt.Errorf("policy %s: no file of frames", p.target)
+	}
+	return p.actBatch(obs, nil, &fileFrames{f, off}, actions)
+}
+
+// sendFile sends the header lines head and then n bytes of frames from
+// the file: spliced into the child's pipe where it can be, else read
+// into FrameBuffer's room and written with the header.
+func (p *Policy) sendFile(phase string, step int, head []byte, from *fileFrames, n int, deadline time.Time, timeout time.Duration) *FaultError {
+	p.FrameBuffer(1) // the room, made once
+	if p.pipe != nil {
+		if f := p.write(phase, step, head, deadline, timeout); f != nil {
+			return f
+		}
+		moved, err := spliceFile(p.pipe, from.f, from.off, n)
+		if moved == 0 && errors.Is(err, syscall.EINVAL) {
+			// This file system does not splice: read, then write.
+			buf := p.pk[headRoom : headRoom+n]
+			if _, err := from.f.ReadAt(buf, from.off); err != nil {
+				return p.newFault(phase, step, IO, "frames from %s: %v", from.f.Name(), err)
+			}
+			return p.write(phase, step, buf, deadline, timeout)
+		}
+		return p.writeFault(phase, step, err, timeout)
+	}
+	buf := p.pk[headRoom : headRoom+n]
+	if _, err := from.f.ReadAt(buf, from.off); err != nil {
+		return p.newFault(phase, step, IO, "frames from %s: %v", from.f.Name(), err)
+	}
+	return p.write(phase, step, p.place(head, buf), deadline, timeout)
 }
 
 // checkPacked checks that the session sends packed frames and that n

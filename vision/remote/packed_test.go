@@ -1,7 +1,10 @@
 package remote
 
 import (
+	"errors"
 	"hash/fnv"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -127,5 +130,81 @@ func TestPackedSameAsFrames(t *testing.T) {
 	}
 	if err := tok.ActPacked(obs[0], make([]byte, fb), want[0]); err == nil {
 		t.Error("a tokens session took a packed frame")
+	}
+}
+
+// TestBatchFile: frames stored in a file give, through ActBatchFile,
+// exactly the actions of the same frames sent as RGBA observations, over
+// exec: (spliced into the child's pipe on Linux) and over tcp:// (read,
+// then written); a file cut short is an IO fault.
+func TestBatchFile(t *testing.T) {
+	obs := observations(t, 11, ObsFrame)
+	cfg := Config{Game: (&blobs{}).Spec(), Grid: testGrid(t), Obs: ObsFrame, Dtype: Uint8}
+	ref, err := Open(serveTCP(t, hashPolicy{}, ServeOptions{}), cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ref.Close()
+	want := make([][]float64, len(obs))
+	for i, o := range obs {
+		want[i] = make([]float64, 2)
+		if err := ref.Act(o, want[i]); err != nil {
+			t.Fatal(err)
+		}
+	}
+	// The frames after a header of 13 bytes, as a .npy file keeps them
+	// after its header.
+	data := []byte("not a frame..")
+	for _, o := range obs {
+		data = append(data, packRGBA(o.Frame.Pix)...)
+	}
+	path := filepath.Join(t.TempDir(), "frames.bin")
+	if err := os.WriteFile(path, data, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	fb := 32 * 24 * 3
+	execCfg := cfg
+	execCfg.Env = []string{helperEnv + "=hashbatch"}
+	for _, c := range []struct {
+		name, target string
+		cfg          Config
+	}{{"exec", helperTarget(t), execCfg}, {"tcp", serveTCP(t, hashPolicy{}, ServeOptions{Batch: 4}), cfg}} {
+		p, err := Open(c.target, c.cfg)
+		if err != nil {
+			t.Fatal(err)
+		}
+		got := make([][]float64, len(obs))
+		for i := range got {
+			got[i] = make([]float64, 2)
+		}
+		for i := 0; i < len(obs); i += 4 {
+			j := min(i+4, len(obs))
+			bare := make([]*vision.Observation, j-i)
+			for m := range bare {
+				o := *obs[i+m]
+				o.Frame = nil
+				bare[m] = &o
+			}
+			if err := p.ActBatchFile(bare, f, int64(13+i*fb), got[i:j]); err != nil {
+				t.Fatalf("%s: %v", c.name, err)
+			}
+		}
+		for i := range want {
+			if want[i][0] != got[i][0] || want[i][1] != got[i][1] {
+				t.Errorf("%s frame %d: from the file %v, as RGBA %v", c.name, i, got[i], want[i])
+			}
+		}
+		// Frames past the end of the file: a fault, and the session ends.
+		err = p.ActBatchFile(obs[:4], f, int64(13+9*fb), got[:4])
+		var fe *FaultError
+		if !errors.As(err, &fe) {
+			t.Errorf("%s: frames past the end of the file: %v, want a fault", c.name, err)
+		}
+		p.Close()
 	}
 }

@@ -422,7 +422,14 @@ func (p *Policy) readLine(phase string, step int, deadline time.Time, timeout ti
 
 func (p *Policy) write(phase string, step int, b []byte, deadline time.Time, timeout time.Duration) *FaultError {
 	p.setWriteDeadline(deadline)
-	if _, err := p.w.Write(b); err != nil {
+	_, err := p.w.Write(b)
+	return p.writeFault(phase, step, err, timeout)
+}
+
+// writeFault is the fault of a failed write of the policy's input (nil
+// for a nil err).
+func (p *Policy) writeFault(phase string, step int, err error, timeout time.Duration) *FaultError {
+	if err != nil {
 		if errors.Is(err, syscall.EPIPE) && p.cmd != nil {
 			// The read end is closed: the child has exited or is
 			// exiting. Give its exit a moment to be seen.

@@ -619,6 +619,33 @@ func BenchmarkExternalBatch(b *testing.B) {
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/64, "ns/frame")
 }
 
+// BenchmarkExternalBatchPacked is BenchmarkExternalBatch with the frames
+// given as packed bytes written in FrameBuffer's room (no RGBA frames,
+// no copy of the payload on this side).
+func BenchmarkExternalBatchPacked(b *testing.B) {
+	p, obs := benchSessionMode(b, ObsFrame, Uint8, "echobatch")
+	defer p.Close()
+	obsB, acts := make([]*vision.Observation, 64), make([][]float64, 64)
+	for i := range obsB {
+		o := *obs
+		o.Step, o.Frame = i, nil
+		obsB[i], acts[i] = &o, make([]float64, 3)
+	}
+	buf := p.FrameBuffer(64)
+	for i := 0; i < 64; i++ {
+		appendFrame(buf[i*96*96*3:i*96*96*3], obs.Frame, 3, Uint8)
+	}
+	p.Reset(1)
+	b.ReportAllocs()
+	b.SetBytes(64 * 96 * 96 * 3)
+	for b.Loop() {
+		if err := p.ActBatchPacked(obsB, buf, acts); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/64, "ns/frame")
+}
+
 // BenchmarkExternalStepTokens sends the 144 float32 tokens instead.
 func BenchmarkExternalStepTokens(b *testing.B) {
 	p, obs := benchSession(b, ObsTokens, Float32)
