@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strings"
 	"syscall"
 	"testing"
 	"time"
@@ -38,16 +39,29 @@ func zeroRecording(t testing.TB, path string, n, w, h int) {
 	}
 }
 
+// Floors TestBatchSpeed holds batches of 64 to, against one frame per
+// message, on 10,000 frames of 96×96×3 through the NumPy example
+// (medians of alternated runs in one process). The issue's target is 10×
+// for the whole probe; docs/probe.md ("Throughput") shows why this frame
+// size cannot reach it: the policy's start and stop, paid once by both
+// modes, and the copy of 27 KB a frame out of the pipe into Python, paid
+// per frame by both. On this 2-core machine, shared, batches give about
+// 2× for the whole probe and 4× for frames past the first sequence; the
+// floors leave room for a loaded machine.
+const (
+	minWholeRatio  = 1.5
+	minSteadyRatio = 2.5
+)
+
 // TestBatchSpeed measures, in one run, probing 10,000 frames of 96×96×3
-// (the clean cell: 20,000 policy calls) through examples/policy_numpy.py
-// with batches of 64 and with one frame per message, three times each,
-// and logs the median wall-clock and CPU ratios. The issue's target is
-// 10×; what this machine gives is logged, and the test fails only if
-// batching costs more CPU than single messages. Per frame, moving the
-// 27 KB picture (read, pack, two pipe copies) and the rule itself cost
-// about as much as a message's overhead, which bounds the gain of
-// batching well below 10× at this frame size. Opt in with
-// TILEBENCH_SPEED=1 (it takes tens of seconds).
+// (the clean cell: 20,000 policy calls, ten sequences of 1,000 frames)
+// through examples/policy_numpy.py with batches of 64 and with one frame
+// per message, five times each, alternated, and logs the median
+// wall-clock and CPU ratios of the whole probe and of the steady state
+// (from the end of the first sequence to the end of the last: no policy
+// start or stop), and what the policy's start and stop cost. It fails
+// below the floors above. Opt in with TILEBENCH_SPEED=1 (about a
+// minute).
 func TestBatchSpeed(t *testing.T) {
 	if os.Getenv("TILEBENCH_SPEED") != "1" {
 		t.Skip("set TILEBENCH_SPEED=1 to measure")
@@ -55,7 +69,17 @@ func TestBatchSpeed(t *testing.T) {
 	reftest.Need(t, "numpy")
 	dir := t.TempDir()
 	rec := filepath.Join(dir, "rec.npy")
-	zeroRecording(t, rec, 10000, 96, 96)
+	const frames, seqs = 10000, 10
+	zeroRecording(t, rec, frames, 96, 96)
+	eps := filepath.Join(dir, "episodes.csv")
+	var sb strings.Builder
+	for i := 0; i < seqs; i++ {
+		fmt.Fprintln(&sb, i*frames/seqs)
+	}
+	if err := os.WriteFile(eps, []byte(sb.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	target := "exec:" + reftest.Python + " " + numpyExample
 	// Black frames would give the rule nothing to do; the transform
 	// cell is left out so both runs do the same 20,000 calls.
 	cpu := func() time.Duration {
@@ -65,30 +89,77 @@ func TestBatchSpeed(t *testing.T) {
 		tv := func(v syscall.Timeval) time.Duration { return time.Duration(v.Nano()) }
 		return tv(self.Utime) + tv(self.Stime) + tv(kids.Utime) + tv(kids.Stime)
 	}
-	timeOf := func(noBatch bool, i int) (wall, used time.Duration) {
-		p := plan(t, Config{In: rec, Policy: "exec:" + reftest.Python + " " + numpyExample, ActionSpace: "continuous:2", NoBatch: noBatch, Resamples: 100})
+	type run struct{ wall, cpu, steady time.Duration }
+	timeOf := func(noBatch bool, i int) run {
+		p := plan(t, Config{In: rec, Episodes: eps, Policy: target, ActionSpace: "continuous:2", NoBatch: noBatch, Resamples: 100})
+		var first, last time.Time
 		start, c0 := time.Now(), cpu()
-		if _, err := Run(context.Background(), p, Options{Dir: filepath.Join(dir, fmt.Sprintf("o-%v-%d", noBatch, i)), Workers: 1, NoReport: true}); err != nil {
+		_, err := Run(context.Background(), p, Options{Dir: filepath.Join(dir, fmt.Sprintf("o-%v-%d", noBatch, i)), Workers: 1, NoReport: true,
+			Progress: func(done, total int) {
+				if done == 1 {
+					first = time.Now()
+				}
+				last = time.Now()
+			}})
+		if err != nil {
 			t.Fatal(err)
 		}
-		return time.Since(start), cpu() - c0
+		return run{time.Since(start), cpu() - c0, last.Sub(first)}
 	}
-	var single, batch, singleCPU, batchCPU []time.Duration
-	for i := 0; i < 3; i++ {
-		w, c := timeOf(false, i)
-		batch, batchCPU = append(batch, w), append(batchCPU, c)
-		w, c = timeOf(true, i)
-		single, singleCPU = append(single, w), append(singleCPU, c)
+	// The policy's start and stop alone, as Run pays them once.
+	openClose := func() time.Duration {
+		p := plan(t, Config{In: rec, Episodes: eps, Policy: target, ActionSpace: "continuous:2", Resamples: 100})
+		ps := p.Cells[0].Patch
+		grid, err := p.grid(ps)
+		if err != nil {
+			t.Fatal(err)
+		}
+		start := time.Now()
+		pol, err := Policies(p, "")(ps, grid)
+		if err != nil {
+			t.Fatal(err)
+		}
+		pol.(interface{ Close() error }).Close()
+		return time.Since(start)
 	}
-	for _, d := range [][]time.Duration{single, batch, singleCPU, batchCPU} {
+	var single, batch []run
+	var opens []time.Duration
+	for i := 0; i < 5; i++ {
+		if i%2 == 0 {
+			batch = append(batch, timeOf(false, i))
+			single = append(single, timeOf(true, i))
+		} else {
+			single = append(single, timeOf(true, i))
+			batch = append(batch, timeOf(false, i))
+		}
+		opens = append(opens, openClose())
+	}
+	med := func(rs []run, f func(run) time.Duration) time.Duration {
+		d := make([]time.Duration, len(rs))
+		for i, r := range rs {
+			d[i] = f(r)
+		}
 		slices.Sort(d)
+		return d[len(d)/2]
 	}
-	ratio := float64(single[1]) / float64(batch[1])
-	t.Logf("10000 frames of 96x96x3, 20000 policy calls: wall one per message %v, batches of 64 %v: %.1fx; CPU (both processes) %v vs %v: %.1fx (medians of 3)",
-		single[1], batch[1], ratio, singleCPU[1], batchCPU[1], float64(singleCPU[1])/float64(batchCPU[1]))
-	if cr := float64(singleCPU[1]) / float64(batchCPU[1]); cr < 1 {
-		t.Errorf("batched probing costs more CPU than one frame per message (%.2fx)", cr)
-	} else if ratio < 10 {
-		t.Logf("below the 10x target of the issue (wall %.1fx, CPU %.1fx)", ratio, cr)
+	slices.Sort(opens)
+	wall := func(r run) time.Duration { return r.wall }
+	used := func(r run) time.Duration { return r.cpu }
+	steady := func(r run) time.Duration { return r.steady }
+	ratio := func(f func(run) time.Duration) float64 { return float64(med(single, f)) / float64(med(batch, f)) }
+	perFrame := func(rs []run) float64 {
+		return float64(med(rs, steady).Nanoseconds()) / 1e3 / float64(2*frames*(seqs-1)/seqs)
+	}
+	t.Logf("%d frames of 96x96x3 (%d sequences), %d policy calls, medians of %d alternated runs:", frames, seqs, 2*frames, len(batch))
+	t.Logf("  whole probe: one per message %v, batches of 64 %v: %.1fx; CPU (both processes) %v vs %v: %.1fx",
+		med(single, wall), med(batch, wall), ratio(wall), med(single, used), med(batch, used), ratio(used))
+	t.Logf("  steady state (sequences 2..%d): %.1f vs %.1f us a call: %.1fx", seqs, perFrame(single), perFrame(batch), ratio(steady))
+	t.Logf("  the policy's start and stop alone: %v (paid once by both)", opens[len(opens)/2])
+	t.Logf("  the issue's target: 10x for the whole probe; held here: %.1fx whole, %.1fx steady (docs/probe.md, \"Throughput\", on why 96x96x3 stays below 10x)", minWholeRatio, minSteadyRatio)
+	if r := ratio(wall); r < minWholeRatio {
+		t.Errorf("whole probe %.1fx faster with batches, want at least %.1fx", r, minWholeRatio)
+	}
+	if r := ratio(steady); r < minSteadyRatio {
+		t.Errorf("steady state %.1fx faster with batches, want at least %.1fx", r, minSteadyRatio)
 	}
 }

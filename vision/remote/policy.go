@@ -523,7 +523,9 @@ func (p *Policy) handshake() error {
 	}
 	p.out = make([]byte, 0, h.Limits.MaxPayload+1024)
 	if p.pipe != nil {
-		growPipe(p.pipe, min(1<<20, h.Limits.MaxPayload+MaxLine))
+		// Room for a whole batch where the kernel allows, so that the
+		// child reads a batch in a few wakeups, not one per default pipe.
+		growPipe(p.pipe, min(1<<20, max(1, p.BatchSize())*h.Limits.MaxPayload+MaxLine))
 	}
 	return nil
 }
