@@ -646,6 +646,40 @@ func BenchmarkExternalBatchPacked(b *testing.B) {
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/64, "ns/frame")
 }
 
+// BenchmarkExternalBatchFile is BenchmarkExternalBatch with the frames
+// stored in a file (ActBatchFile): over exec: on Linux they are spliced
+// from the file into the child's pipe.
+func BenchmarkExternalBatchFile(b *testing.B) {
+	p, obs := benchSessionMode(b, ObsFrame, Uint8, "echobatch")
+	defer p.Close()
+	obsB, acts := make([]*vision.Observation, 64), make([][]float64, 64)
+	data := make([]byte, 0, 64*96*96*3)
+	for i := range obsB {
+		o := *obs
+		o.Step, o.Frame = i, nil
+		obsB[i], acts[i] = &o, make([]float64, 3)
+		data = appendFrame(data, obs.Frame, 3, Uint8)
+	}
+	path := filepath.Join(b.TempDir(), "frames.bin")
+	if err := os.WriteFile(path, data, 0o644); err != nil {
+		b.Fatal(err)
+	}
+	f, err := os.Open(path)
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer f.Close()
+	p.Reset(1)
+	b.ReportAllocs()
+	b.SetBytes(64 * 96 * 96 * 3)
+	for b.Loop() {
+		if err := p.ActBatchFile(obsB, f, 0, acts); err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/64, "ns/frame")
+}
+
 // BenchmarkExternalStepTokens sends the 144 float32 tokens instead.
 func BenchmarkExternalStepTokens(b *testing.B) {
 	p, obs := benchSession(b, ObsTokens, Float32)
