@@ -131,6 +131,60 @@ class ServeTest(unittest.TestCase):
         self.assertEqual(out[2], {"msg": "action", "t": 3, "action": [0.2, 0.0]})
         self.assertEqual(calls, [[0, 1, 2], [3]])
 
+    @unittest.skipIf(np is None, "needs NumPy")
+    def test_batch_frames_and_array_replies(self):
+        got = {}
+
+        def act(batch):
+            got["frames"] = batch.frames
+            got["raw"] = [o.raw for o in batch]
+            got["views"] = [o.frame for o in batch]
+            # Mean of each frame's first channel, scaled; and the step.
+            f = batch.frames.astype(np.float64)
+            return np.stack([f[:, :, :, 0].mean(axis=(1, 2)) / 255, [o.t / 10 for o in batch]], axis=1)
+        inp = FakeTilebench().start().batch([0, 1, 2], [frame(0), frame(51), bytes(range(72))],
+                                            [0] * 6).step(3, frame(255)).bye()
+        rc, out = self.run_session(act, inp, batch=8)
+        first = float(np.arange(0, 72, 3).mean()) / 255  # channel 0 of bytes 0..71: every third byte
+        self.assertEqual(out[1], {"msg": "actions", "t": 0, "count": 3, "action": [0.0, 0.0, 0.2, 0.1, first, 0.2]})
+        self.assertEqual(out[2], {"msg": "action", "t": 3, "action": [1.0, 0.3]})
+        # The batch's frames: one read-only array over the payload, the
+        # same bytes as each observation's frame and raw.
+        fr = got["frames"]
+        self.assertEqual(fr.shape, (1, 4, 6, 3))  # the last call: the step
+        self.assertFalse(fr.flags.writeable)
+        self.assertEqual(got["raw"], [frame(255)])
+        self.assertTrue(np.array_equal(got["views"][0], fr[0]))
+
+    @unittest.skipIf(np is None, "needs NumPy")
+    def test_batch_views_are_the_payload(self):
+        seen = []
+
+        def act(batch):
+            seen.append((batch.frames.copy(), [o.raw for o in batch], [o.frame.copy() for o in batch]))
+            return [[0, 0]] * len(batch)
+        payloads = [bytes(range(i, i + 72)) for i in (0, 100, 180)]
+        self.run_session(act, FakeTilebench().start().batch([4, 5, 6], payloads, [0] * 6).bye(), batch=4)
+        frames, raws, views = seen[0]
+        self.assertEqual(raws, payloads)
+        for i, p in enumerate(payloads):
+            want = np.frombuffer(p, dtype=np.uint8).reshape(4, 6, 3)
+            self.assertTrue(np.array_equal(frames[i], want))
+            self.assertTrue(np.array_equal(views[i], want))
+
+    def test_array_reply_of_the_wrong_size(self):
+        if np is None:
+            self.skipTest("needs NumPy")
+        inp = FakeTilebench().start().batch([0, 1], [frame(0), frame(1)], [0] * 4).bye()
+        rc, out = self.run_session(lambda b: np.zeros((2, 3)), inp, batch=4)
+        self.assertEqual(out[1]["msg"], "error")
+        self.assertIn("2 actions of 2 values", out[1]["reason"])
+        hello = dict(HELLO, action={"kind": "discrete", "names": ["l", "s", "r"], "dim": 1})
+        inp = FakeTilebench(hello).start().batch([0, 1], [frame(0), frame(1)], [0, 0]).bye()
+        rc, out = self.run_session(lambda b: np.array([[2.0], [1.0]]), inp, batch=4)
+        self.assertEqual(out[1]["action"], [2, 1])
+        self.assertTrue(all(isinstance(v, int) for v in out[1]["action"]))
+
     def test_refuse_and_errors(self):
         class Refuses:
             def setup(self, session):
