@@ -66,7 +66,12 @@ class Served:
     def act(self, batch):
         """A list of observations (stack 1, stateless, batched) or one
         (stack 2: it keeps the last frame)."""
-        x = torch.from_numpy(np.stack([o.pixels() for o in batch]).astype(np.float32))
+        s = batch[0].session
+        if isinstance(batch, tp.Batch) and s.obs == "frame" and s.dtype == "uint8":
+            # The message's frames as one array, not stacked one by one.
+            x = torch.from_numpy(batch.frames.astype(np.float32) / 255)
+        else:
+            x = torch.from_numpy(np.stack([o.pixels() for o in batch]).astype(np.float32))
         before = None
         if self.model.stack == 2:
             before = x if self.last is None else self.last
