@@ -9,9 +9,11 @@ import (
 
 // Frame corruptions: camera and image-pipeline faults applied to the
 // frame, in pixels, before it is tokenized (Spec.Corrupt,
-// Pipeline.TokenizeFrame). A corruption list is a comma list of steps,
-// applied in the order written; each step is KIND:PARAMS or KIND:sN, a
-// severity N in 1..5 looked up in the table below.
+// Pipeline.TokenizeFrame). A corruption list is a chain of steps joined
+// by '+' (a comma joins them too, for compatibility), applied in the
+// order written; each step is KIND:PARAMS or KIND:sN, a severity N in
+// 1..5 looked up in the table below. '+' is the joiner that means the
+// same in a study, whose axes take comma lists of separate values.
 //
 //	kind        parameters            meaning
 //	blur        S                     Gaussian blur, σ = S px (imaging's kernel)
@@ -156,8 +158,8 @@ func (c Corruption) identity() bool {
 	return false
 }
 
-// ParseCorrupt reads a corruption list ("", "none", or comma-separated
-// steps, see the table at the top of corrupt.go) and checks every
+// ParseCorrupt reads a corruption list ("", "none", or steps joined by
+// '+' or ',', see the table at the top of corrupt.go) and checks every
 // parameter. Steps that change nothing (blur:0, resolution:1, shift:0)
 // are dropped. Errors are one line naming the step.
 func ParseCorrupt(s string) ([]Corruption, error) {
@@ -169,7 +171,7 @@ func ParseCorrupt(s string) ([]Corruption, error) {
 		return nil, fmt.Errorf("corrupt list of %d bytes: too long", len(s))
 	}
 	var out []Corruption
-	for _, item := range strings.Split(s, ",") {
+	for _, item := range splitCorrupt(s) {
 		c, err := parseCorruption(strings.TrimSpace(item))
 		if err != nil {
 			return nil, err
@@ -182,6 +184,12 @@ func ParseCorrupt(s string) ([]Corruption, error) {
 		return nil, fmt.Errorf("corrupt %q: at most 32 steps", s)
 	}
 	return out, nil
+}
+
+// splitCorrupt cuts a corruption list at each '+' and ',', keeping empty
+// steps so that they can be reported.
+func splitCorrupt(s string) []string {
+	return strings.Split(strings.ReplaceAll(s, "+", ","), ",")
 }
 
 // CanonCorrupt returns the canonical spelling of a corruption list, "none"
@@ -225,7 +233,7 @@ var corruptRange = map[string]struct {
 func parseCorruption(item string) (Corruption, error) {
 	var c Corruption
 	if item == "" {
-		return c, fmt.Errorf("corrupt: empty step (two commas in a row, or a trailing comma?)")
+		return c, fmt.Errorf("corrupt: empty step (two of '+' or ',' in a row, or one at an end?)")
 	}
 	parts := strings.Split(item, ":")
 	c.Kind = parts[0]

@@ -440,6 +440,8 @@ func TestParseCorrupt(t *testing.T) {
 		"blur:2":                    "blur:2",
 		"blur:s3":                   "blur:s3",
 		"blur:2,jpeg:40":            "blur:2,jpeg:40",
+		"blur:2+jpeg:40":            "blur:2,jpeg:40",
+		" blur:s2 + shift:3:0:wrap": "blur:s2,shift:3:0:wrap",
 		" shift:3:0 , shake:2:wrap": "shift:3:0,shake:2:wrap",
 		"shift:4":                   "shift:4",
 		"shift:4:4:fill":            "shift:4",
@@ -457,7 +459,7 @@ func TestParseCorrupt(t *testing.T) {
 		}
 	}
 	for _, bad := range []string{"blur", "blur:", "blur:-1", "blur:x", "blur:s0", "blur:s6", "fog:1", "jpeg:0", "jpeg:40.5",
-		"shift:1.5", "shift:1:2:3", "shake:-1", "saltpepper:2", "blur:2,", ",blur:2", "resolution:0", "motionblur:3:1000",
+		"shift:1.5", "shift:1:2:3", "shake:-1", "saltpepper:2", "blur:2,", ",blur:2", "blur:2+", "+blur:2", "blur:2++jpeg:40", "blur:2+,jpeg:40", "resolution:0", "motionblur:3:1000",
 		"shift:wrap", "blur:NaN", "blur:Inf", "gamma:0", "blur:1:2"} {
 		_, err := ParseCorrupt(bad)
 		if err == nil {

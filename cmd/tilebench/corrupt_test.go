@@ -4,11 +4,13 @@ import (
 	"encoding/json"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
 
 	"tilebench/games"
+	"tilebench/internal/reftest"
 	"tilebench/vision/policies"
 )
 
@@ -112,4 +114,44 @@ func TestStressCorruptAxis(t *testing.T) {
 		t.Fatalf("bad range: exit %d", code)
 	}
 	oneLine(t, stderr, "corrupt")
+}
+
+// '+' joins a corruption chain in the single-run commands as it does in a
+// study, and means the same as the comma form kept for compatibility.
+func TestCorruptPlusJoinsChain(t *testing.T) {
+	dir := t.TempDir()
+	comma, plus := filepath.Join(dir, "comma"), filepath.Join(dir, "plus")
+	mustRun(t, "", "export", "--in", "builtin:drift", "--frames", "3", "--patch", "8", "--corrupt", "blur:s2,jpeg:40", "--out", comma, "--as", "npy")
+	mustRun(t, "", "export", "--in", "builtin:drift", "--frames", "3", "--patch", "8", "--corrupt", "blur:s2+jpeg:40", "--out", plus, "--as", "npy")
+	a, b := readNPY(t, filepath.Join(comma, "frames.npy")), readNPY(t, filepath.Join(plus, "frames.npy"))
+	if len(a) != 3 || len(b) != 3 {
+		t.Fatalf("%d and %d frames", len(a), len(b))
+	}
+	for i := range a {
+		if string(a[i].Pix) != string(b[i].Pix) {
+			t.Fatalf("frame %d differs between blur:s2,jpeg:40 and blur:s2+jpeg:40", i)
+		}
+	}
+	file := filepath.Join(reftest.Root(), "testdata", "policies", "drive-attention-p8.safetensors")
+	play := func(corrupt string) playSummary {
+		var s playSummary
+		if err := json.Unmarshal([]byte(mustRun(t, "", "play", "--game", "drive", "--policy", file, "--episodes", "2", "--json", "--corrupt", corrupt)), &s); err != nil {
+			t.Fatal(err)
+		}
+		return s
+	}
+	p, c, clean := play("blur:s2+jpeg:40"), play("blur:s2,jpeg:40"), play("none")
+	if len(p.Episodes) != 2 || !slices.Equal(p.Episodes, c.Episodes) {
+		t.Errorf("play: blur:s2+jpeg:40 gives %+v, blur:s2,jpeg:40 gives %+v", p.Episodes, c.Episodes)
+	}
+	if slices.Equal(p.Episodes, clean.Episodes) {
+		t.Errorf("play: blur:s2+jpeg:40 plays as clean frames: %+v", p.Episodes)
+	}
+	for _, bad := range []string{"blur:s2+", "+blur:s2", "blur:s2++jpeg:40"} {
+		code, _, stderr := runCLI(t, "", "play", "--game", "drive", "--episodes", "1", "--corrupt", bad)
+		if code != 2 {
+			t.Fatalf("play --corrupt %s: exit %d", bad, code)
+		}
+		oneLine(t, stderr, "empty step")
+	}
 }

@@ -57,7 +57,7 @@ var transformOptions = []transformOption{
 		func(s *patch.Spec) any { return &s.PixelNoise }, func(a *study.Axes) any { return &a.PixelNoise }, ""},
 	{"corrupt", corruptFlagHelp, "",
 		func(s *patch.Spec) any { return &s.Corrupt }, func(a *study.Axes) any { return &a.Corrupt },
-		"frame corruptions (docs/studies.md), each none, KIND:VALUE, KIND:sN, KIND:sA:sB or KIND:START:STOP:STEP, several in one cell joined by +"},
+		"frame corruptions (docs/studies.md), a comma between cells, each none, KIND:VALUE, KIND:sN, KIND:sA:sB, KIND:START:STOP:STEP or a chain in one cell joined by + (as in play and export)"},
 }
 
 // transformFlags holds the parsed transform options of one command.
@@ -147,7 +147,7 @@ func sweepExample(o transformOption) string {
 	case "pixel-noise":
 		return "0:0.2:0.05"
 	case "corrupt":
-		return "blur:s1:s5,jpeg:40,shift:3:0"
+		return "blur:s1:s5,jpeg:40,blur:s2+jpeg:40"
 	}
 	return o.example
 }

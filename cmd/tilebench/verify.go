@@ -96,7 +96,7 @@ func addVerifyFlags(ctx *runContext) (*verifyFlags, func([]string) error) {
 	// duplicates are the noise test's business (--noise).
 	// --corrupt is a perturbation here, measured like the others.
 	f.tf = addTransformFlags(fs, patch.Spec{}, "noise-tokens", "duplicates", "corrupt")
-	f.corrupt = fs.String("corrupt", "", "also measure the action change when frames are corrupted before tokenizing, one list as for export (e.g. --corrupt shift:3:0:wrap)")
+	f.corrupt = fs.String("corrupt", "", "also measure the action change when frames are corrupted before tokenizing, one chain joined by + as for export (e.g. --corrupt shift:3:0:wrap)")
 	return f, func(args []string) error {
 		if err := parseFlags(fs, args); err != nil {
 			return err
