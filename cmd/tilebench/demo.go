@@ -148,7 +148,7 @@ func writeDemoIndex(path string, studies []demoStudy, plans []*study.Plan) error
 	for i, st := range studies {
 		p := plans[i]
 		entries = append(entries, report.IndexEntry{Href: st.dir + "/report.html", Title: st.title,
-			About: fmt.Sprintf("%s, %d cells × %d episodes, policy %s", p.Def.Game, len(p.Cells), p.Def.Episodes, p.Def.Policy.Source)})
+			About: fmt.Sprintf("%s, %s × %s, policy %s", p.Def.Game, plural(len(p.Cells), "cell"), plural(p.Def.Episodes, "episode"), p.Def.Policy.Source)})
 	}
 	return report.WriteIndex(path, "tilebench demo", entries)
 }

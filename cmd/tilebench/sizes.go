@@ -145,8 +145,8 @@ func printRecommendation(ctx *runContext, a *analysis.Analysis) {
 	}
 	if ch := a.Choice; ch.Pick >= 0 && ch.Pick == ch.Best && ch.Cheaper {
 		if ch.More > 0 {
-			fmt.Fprintf(ctx.stdout, "not enough evidence for a cheaper patch size within margin %g: run %d more episodes per condition (%d in all; %.0f%% power estimate)\n",
-				ch.Margin, max(ch.More-a.Plan.Def.Episodes, 1), ch.More, 100*stats.DefaultPower)
+			fmt.Fprintf(ctx.stdout, "not enough evidence for a cheaper patch size within margin %g: run %s more per condition (%d in all; %.0f%% power estimate)\n",
+				ch.Margin, plural(max(ch.More-a.Plan.Def.Episodes, 1), "episode"), ch.More, 100*stats.DefaultPower)
 		} else {
 			fmt.Fprintf(ctx.stdout, "no cheaper patch size comes within margin %g of the best\n", ch.Margin)
 		}

@@ -353,9 +353,9 @@ func printOutcome(ctx *runContext, p *study.Plan, dir string, shard study.Shard,
 		fmt.Fprintln(ctx.stdout, string(b))
 		return nil
 	}
-	fmt.Fprintf(ctx.stdout, "study %s: %d cells × %d episodes", p.Fingerprint, len(p.Cells), p.Def.Episodes)
+	fmt.Fprintf(ctx.stdout, "study %s: %s × %s", p.Fingerprint, plural(len(p.Cells), "cell"), plural(p.Def.Episodes, "episode"))
 	if !shard.Whole() {
-		fmt.Fprintf(ctx.stdout, " (shard %s: %d episodes)", shard, out.Total)
+		fmt.Fprintf(ctx.stdout, " (shard %s: %s)", shard, plural(out.Total, "episode"))
 	}
 	fmt.Fprintf(ctx.stdout, "; %d played now, %d kept from before, %d failed; %.0f steps/s\n", out.Ran, out.Kept, out.Failed, sps)
 	if out.Failed > 0 {
@@ -363,6 +363,14 @@ func printOutcome(ctx *runContext, p *study.Plan, dir string, shard study.Shard,
 	}
 	fmt.Fprintf(ctx.stdout, "report: %s\n", rep)
 	return nil
+}
+
+// plural writes n and noun, with an s when n is not 1 ("1 cell", "3 cells").
+func plural(n int, noun string) string {
+	if n == 1 {
+		return "1 " + noun
+	}
+	return strconv.Itoa(n) + " " + noun + "s"
 }
 
 // commandLine quotes args as a shell would need them, for the report.

@@ -31,6 +31,9 @@ func TestStressRunsRefusesAndResumes(t *testing.T) {
 	if !strings.Contains(stdout, "report: "+filepath.Join(out, "report.html")) || stderr != "" {
 		t.Fatalf("stdout %q stderr %q", stdout, stderr)
 	}
+	if !strings.Contains(stdout, ": 3 cells × 2 episodes;") {
+		t.Errorf("summary %q: want 3 cells × 2 episodes", stdout)
+	}
 	for _, f := range []string{"study.json", "results.jsonl", "timing.jsonl", "report.html", "summary.md", "cells.csv"} {
 		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
 			t.Fatal(err)
@@ -92,6 +95,19 @@ func TestStressRunsRefusesAndResumes(t *testing.T) {
 	}
 	if !bytes.Contains(page2, []byte("not a safety certification")) {
 		t.Fatal("the report lacks the safety caution")
+	}
+}
+
+// A count of one is written in the singular in the summary.
+func TestStressSummarySingular(t *testing.T) {
+	out := filepath.Join(t.TempDir(), "s")
+	stdout := mustRun(t, "", "stress", "--game", "drive", "--policy", "expert", "--patch", "16", "--occlude", "none",
+		"--episodes", "1", "--resamples", "200", "--out", out)
+	if !strings.Contains(stdout, ": 1 cell × 1 episode;") {
+		t.Errorf("summary %q: want 1 cell × 1 episode", stdout)
+	}
+	if strings.Contains(stdout, "1 cells") || strings.Contains(stdout, "1 episodes") {
+		t.Errorf("summary %q: a plural after 1", stdout)
 	}
 }
 
