@@ -128,6 +128,12 @@ func printRecommendation(ctx *runContext, a *analysis.Analysis) {
 	if a.Choice == nil {
 		return
 	}
+	// What the score is, as the report's recommendation says it: the
+	// normalised IQM pooled over the clean cell and the stress conditions.
+	pooled := "normalised, pooled: clean"
+	if n := len(a.Conds) - 1; n > 0 {
+		pooled += " + " + plural(n, "stress condition")
+	}
 	for _, c := range a.Costs {
 		mark := ""
 		if j := indexOf(a.Cands, c.Patch); j >= 0 {
@@ -136,8 +142,8 @@ func printRecommendation(ctx *runContext, a *analysis.Analysis) {
 			} else if !a.Choice.Affordable[j] {
 				mark = "  (over budget)"
 			}
-			fmt.Fprintf(ctx.stdout, "patch %3d: %5d tokens, %8.3f MFLOP, %7d params, %8.1f µs/step, score %s%s\n",
-				c.Patch, c.Tokens, c.MFLOP, c.Params, c.LatencyUS, a.Choice.Score[j], mark)
+			fmt.Fprintf(ctx.stdout, "patch %3d: %5d tokens, %8.3f MFLOP, %7d params, %8.1f µs/step, score %s (%s)%s\n",
+				c.Patch, c.Tokens, c.MFLOP, c.Params, c.LatencyUS, a.Choice.Score[j], pooled, mark)
 		}
 	}
 	if a.Choice.Pick < 0 {

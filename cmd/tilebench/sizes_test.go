@@ -6,6 +6,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"tilebench/vision"
 )
 
 func TestSizesStudy(t *testing.T) {
@@ -22,6 +24,13 @@ func TestSizesStudy(t *testing.T) {
 	}
 	if !strings.Contains(stderr, "untrained") || !strings.Contains(stdout, "recommended") || !strings.Contains(stdout, "patch  16") {
 		t.Fatalf("stdout %q stderr %q", stdout, stderr)
+	}
+	// Each line says what its score is: the clean cell and random:0.5.
+	if !strings.Contains(stdout, "(normalised, pooled: clean + 1 stress condition)") {
+		t.Errorf("stdout %q: the score is not described", stdout)
+	}
+	if !strings.HasSuffix(stdout, "\ncaution: "+vision.Caution+"\n") {
+		t.Errorf("stdout %q: want the caution as its last line", stdout)
 	}
 	data, err := os.ReadFile(filepath.Join(out, "costs.json"))
 	if err != nil {

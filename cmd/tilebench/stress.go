@@ -12,6 +12,7 @@ import (
 	"strings"
 	"syscall"
 
+	"tilebench/vision"
 	"tilebench/vision/policies"
 	"tilebench/vision/remote"
 	"tilebench/vision/study"
@@ -253,6 +254,8 @@ type studyJSON struct {
 	StepsPer float64 `json:"steps_per_second"`
 	// Comparison is the policy comparison of a study of several policies.
 	Comparison *analysis.ComparisonJSON `json:"comparison,omitempty"`
+	// Caution is vision.Caution, as in the other commands' summaries.
+	Caution string `json:"caution"`
 }
 
 // runStudyCLI runs a planned study (runner.Run: train, play, resume,
@@ -285,6 +288,9 @@ func runStudyCLI(ctx *runContext, p *study.Plan, sf *studyFlags, args []string, 
 		for _, v := range out.Analysis.Verdicts {
 			fmt.Fprintln(ctx.stdout, v.Statement)
 		}
+	}
+	if !*sf.asJSON {
+		fmt.Fprintf(ctx.stdout, "caution: %s\n", vision.Caution)
 	}
 	return failedEpisodes(out, *sf.out)
 }
@@ -342,7 +348,7 @@ func printOutcome(ctx *runContext, p *study.Plan, dir string, shard study.Shard,
 	}
 	if asJSON {
 		sj := studyJSON{Format: 1, Dir: dir, Study: p.Fingerprint, Report: rep, Shard: shard.String(),
-			Total: out.Total, Kept: out.Kept, Ran: out.Ran, Failed: out.Failed, Seconds: out.Elapsed.Seconds(), StepsPer: sps}
+			Total: out.Total, Kept: out.Kept, Ran: out.Ran, Failed: out.Failed, Seconds: out.Elapsed.Seconds(), StepsPer: sps, Caution: vision.Caution}
 		if out.Analysis != nil {
 			sj.Comparison = out.Analysis.Comparison()
 		}

@@ -7,6 +7,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"tilebench/vision"
 )
 
 // stressArgs is a small stress study of the driving game's expert.
@@ -34,6 +36,9 @@ func TestStressRunsRefusesAndResumes(t *testing.T) {
 	if !strings.Contains(stdout, ": 3 cells × 2 episodes;") {
 		t.Errorf("summary %q: want 3 cells × 2 episodes", stdout)
 	}
+	if !strings.HasSuffix(stdout, "\ncaution: "+vision.Caution+"\n") {
+		t.Errorf("summary %q: want the caution as its last line", stdout)
+	}
 	for _, f := range []string{"study.json", "results.jsonl", "timing.jsonl", "report.html", "summary.md", "cells.csv"} {
 		if _, err := os.Stat(filepath.Join(out, f)); err != nil {
 			t.Fatal(err)
@@ -54,7 +59,7 @@ func TestStressRunsRefusesAndResumes(t *testing.T) {
 		t.Fatalf("resume: exit %d: %s", code, stderr)
 	}
 	var js map[string]any
-	if err := json.Unmarshal([]byte(stdout), &js); err != nil || js["format"] != 1.0 || js["ran"] != 0.0 || js["kept"] != 6.0 {
+	if err := json.Unmarshal([]byte(stdout), &js); err != nil || js["format"] != 1.0 || js["ran"] != 0.0 || js["kept"] != 6.0 || js["caution"] != vision.Caution {
 		t.Fatalf("--json %q: %v", stdout, err)
 	}
 	after, _ := os.ReadFile(filepath.Join(out, "results.jsonl"))
