@@ -216,11 +216,19 @@ func Provide(name string, variations []string, make Constructor) {
 
 // Build builds the named game.
 func Build(name string, opt Setup) (Game, error) {
-	r, ok := registry[name]
-	if !ok {
-		return nil, fmt.Errorf("unknown game %q (have %v)", name, Names())
+	if err := Known(name); err != nil {
+		return nil, err
 	}
-	return r.make(opt)
+	return registry[name].make(opt)
+}
+
+// Known returns nil when name is a registered game, else the error Build
+// gives for it: one line naming the game and the games there are.
+func Known(name string) error {
+	if _, ok := registry[name]; !ok {
+		return fmt.Errorf("unknown game %q (have %s)", name, strings.Join(Names(), ", "))
+	}
+	return nil
 }
 
 // Names lists the registered games, sorted.

@@ -12,6 +12,7 @@ import (
 	"strings"
 	"syscall"
 
+	"tilebench/games"
 	"tilebench/vision"
 	"tilebench/vision/policies"
 	"tilebench/vision/remote"
@@ -172,6 +173,12 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	// them (Definition.OwnPatch).
 	if err := d.Normalize(); err != nil {
 		return nil, usagef("%v", err)
+	}
+	if err := games.Known(d.Game); err != nil {
+		if set["game"] || all {
+			return nil, usagef("%s: --game: %v", kind, err)
+		}
+		return nil, usagef("%s: %s: game: %v", kind, *sf.config, err)
 	}
 	for _, l := range d.PolicyList() {
 		if policies.IsTemplate(l.Source) {

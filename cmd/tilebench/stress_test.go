@@ -133,7 +133,7 @@ func TestStressBadInput(t *testing.T) {
 		{stressArgs(out, "--fill", "purple"), 2, "axes.fill"},
 		{[]string{"stress", "--config", cfg, "--out", out}, 2, `line 4: unknown key "axes.scrambel"`},
 		{[]string{"stress", "--game", "drive"}, 2, "--out"},
-		{stressArgs(out, "--game", "croquet"), 1, "unknown game"},
+		{stressArgs(out, "--game", "croquet"), 2, `--game: unknown game "croquet"`},
 		{stressArgs(out, "--policy", filepath.Join(dir, "missing.safetensors")), 1, "missing.safetensors"},
 		{stressArgs(out, "--episodes", "-1"), 2, "episodes"},
 		// A {patch} template names one policy per patch size: with one size
