@@ -91,7 +91,7 @@ func runSizes(ctx *runContext, args []string) error {
 			probe.Policy.Source = "fresh"
 			pp, err := study.NewPlan(probe)
 			if err != nil {
-				return usagef("%v", err)
+				return sf.usage(err)
 			}
 			if t, ok := runner.ReferencePolicies(*refDir, d.Game, d.Policy.Family, pp.Patches()); ok {
 				d.Policy.Source = t
@@ -111,7 +111,7 @@ func runSizes(ctx *runContext, args []string) error {
 	}
 	p, err := study.NewPlan(*d)
 	if err != nil {
-		return usagef("%v", err)
+		return sf.usage(err)
 	}
 	if err := runner.CheckSizesPolicy(p); err != nil {
 		return fmt.Errorf("sizes: %w", err)

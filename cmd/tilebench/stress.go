@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"flag"
 	"fmt"
 	"os"
@@ -172,7 +173,7 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 	// Weights files without --patch: Normalize takes the patch size from
 	// them (Definition.OwnPatch).
 	if err := d.Normalize(); err != nil {
-		return nil, usagef("%v", err)
+		return nil, sf.usage(err)
 	}
 	if err := games.Known(d.Game); err != nil {
 		if set["game"] || all {
@@ -188,6 +189,36 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 		}
 	}
 	return d, nil
+}
+
+// usage is the usage error for a problem in the study definition. A bad
+// value is named by its flag (--occlude) when it came from one, and by
+// its key in the study file (axes.occlude) when it came from there.
+func (sf *studyFlags) usage(err error) error {
+	var fe *study.FieldError
+	if !errors.As(err, &fe) {
+		return usagef("%v", err)
+	}
+	if name := flagOfKey(fe.Key); sf.fs.Lookup(name) != nil && (*sf.config == "" || setFlags(sf.fs)[name]) {
+		return usagef("--%s: %v", name, fe.Err)
+	}
+	if *sf.config != "" {
+		return usagef("%s: %v", *sf.config, err)
+	}
+	return usagef("%v", err)
+}
+
+// flagOfKey is the flag of a study file key: axes.noise_tokens is
+// --noise-tokens, stats.margin --margin, policy.timeout --policy-timeout.
+func flagOfKey(key string) string {
+	switch key {
+	case "policies":
+		return "policy"
+	case "policy.family":
+		return "family"
+	}
+	key = strings.TrimPrefix(strings.TrimPrefix(key, "axes."), "stats.")
+	return strings.NewReplacer(".", "-", "_", "-").Replace(key)
 }
 
 // policyOptions copies the --policy-* options given into the study's
@@ -416,7 +447,7 @@ func runStress(ctx *runContext, args []string) error {
 	}
 	p, err := study.NewPlan(*d)
 	if err != nil {
-		return usagef("%v", err)
+		return sf.usage(err)
 	}
 	return runStudyCLI(ctx, p, sf, append([]string{"stress"}, args...), nil)
 }

@@ -130,7 +130,7 @@ func TestStressBadInput(t *testing.T) {
 		{stressArgs(out, "--every", "0,,10"), 2, "empty item"},
 		{stressArgs(out, "--scramble", "sideways"), 2, "want none, full"},
 		{stressArgs(out, "--shard", "3/3"), 2, "shard"},
-		{stressArgs(out, "--fill", "purple"), 2, "axes.fill"},
+		{stressArgs(out, "--fill", "purple"), 2, "--fill"},
 		{[]string{"stress", "--config", cfg, "--out", out}, 2, `line 4: unknown key "axes.scrambel"`},
 		{[]string{"stress", "--game", "drive"}, 2, "--out"},
 		{stressArgs(out, "--game", "croquet"), 2, `--game: unknown game "croquet"`},
@@ -149,6 +149,48 @@ func TestStressBadInput(t *testing.T) {
 		}
 		oneLine(t, stderr, c.want)
 	}
+	if _, err := os.Stat(out); !os.IsNotExist(err) {
+		t.Fatal("bad input left an output folder")
+	}
+}
+
+// A bad value from a flag is named by the flag, one from a study file by
+// its key there.
+func TestStudyErrorsNameTheFlag(t *testing.T) {
+	dir := t.TempDir()
+	out := filepath.Join(dir, "out")
+	for _, c := range [][]string{
+		{"occlude", "random:2"}, {"scramble", "sideways"}, {"every", "0:10:0"}, {"noise-tokens", "-1"},
+		{"brightness", "3"}, {"contrast", "-1"}, {"pixel-noise", "0:1:0"}, {"corrupt", "fog:1"}, {"fill", "purple"},
+		{"variations", "a b"}, {"patch", "0"}, {"margin", "-1"}, {"episodes", "100000000"}, {"seeds", "bogus"},
+	} {
+		for _, cmd := range []string{"stress", "sizes"} {
+			code, _, stderr := runCLI(t, "", cmd, "--game", "drive", "--family", "attention", "--"+c[0], c[1], "--out", out)
+			if code != 2 {
+				t.Errorf("%s --%s %s: exit %d, want 2 (%s)", cmd, c[0], c[1], code, stderr)
+				continue
+			}
+			if !strings.HasPrefix(stderr, "tilebench: --"+c[0]+": ") || strings.Contains(stderr, "axes.") || strings.Count(stderr, "\n") != 1 {
+				t.Errorf("%s --%s %s: stderr %q: want one line naming --%s", cmd, c[0], c[1], stderr, c[0])
+			}
+		}
+	}
+	// The same value in a study file keeps the file's key; a valid file
+	// with a bad flag on top names the flag.
+	bad := filepath.Join(dir, "bad.toml")
+	good := filepath.Join(dir, "good.toml")
+	os.WriteFile(bad, []byte("[axes]\nocclude = \"random:2\"\n"), 0o644)
+	os.WriteFile(good, []byte("[axes]\nocclude = \"random:0.2\"\n"), 0o644)
+	code, _, stderr := runCLI(t, "", "stress", "--config", bad, "--out", out)
+	if code != 2 {
+		t.Fatalf("stress --config %s: exit %d", bad, code)
+	}
+	oneLine(t, stderr, `key "axes.occlude"`)
+	code, _, stderr = runCLI(t, "", "stress", "--config", good, "--noise-tokens", "-1", "--out", out)
+	if code != 2 {
+		t.Fatalf("stress --config %s --noise-tokens -1: exit %d", good, code)
+	}
+	oneLine(t, stderr, "tilebench: --noise-tokens: ")
 	if _, err := os.Stat(out); !os.IsNotExist(err) {
 		t.Fatal("bad input left an output folder")
 	}
@@ -209,7 +251,7 @@ func TestStressFloorAndMarginFlags(t *testing.T) {
 		want string
 	}{
 		{[]string{"--retry-errors"}, "--retry-errors goes with --resume"},
-		{[]string{"--margin", "-0.1"}, "stats.margin"},
+		{[]string{"--margin", "-0.1"}, "--margin: -0.1"},
 		{[]string{"--floor", "exec:"}, "floor"},
 	} {
 		code, _, stderr := runCLI(t, "", append(stressArgs(filepath.Join(t.TempDir(), "x")), c.args...)...)
