@@ -102,6 +102,9 @@ func runProbe(ctx *runContext, args []string) error {
 	}
 	p, err := probe.NewPlan(c)
 	if err != nil {
+		if ferr := flagError(fs, false, err); ferr != nil {
+			return ferr
+		}
 		return usageError{err}
 	}
 	bar := newProgress(ctx.stderr, 0, "probe")

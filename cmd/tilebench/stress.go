@@ -195,17 +195,27 @@ func (sf *studyFlags) definition(kind string) (*study.Definition, error) {
 // value is named by its flag (--occlude) when it came from one, and by
 // its key in the study file (axes.occlude) when it came from there.
 func (sf *studyFlags) usage(err error) error {
-	var fe *study.FieldError
-	if !errors.As(err, &fe) {
-		return usagef("%v", err)
+	if ferr := flagError(sf.fs, *sf.config != "", err); ferr != nil {
+		return ferr
 	}
-	if name := flagOfKey(fe.Key); sf.fs.Lookup(name) != nil && (*sf.config == "" || setFlags(sf.fs)[name]) {
-		return usagef("--%s: %v", name, fe.Err)
-	}
-	if *sf.config != "" {
+	if *sf.config != "" && errors.As(err, new(*study.FieldError)) {
 		return usagef("%s: %v", *sf.config, err)
 	}
 	return usagef("%v", err)
+}
+
+// flagError is the usage error "--FLAG: problem" when err is a bad value
+// of a study definition (study.FieldError) that came from a flag of fs:
+// one given, or any when fromFile is false (no study file). Else nil.
+func flagError(fs *flag.FlagSet, fromFile bool, err error) error {
+	var fe *study.FieldError
+	if !errors.As(err, &fe) {
+		return nil
+	}
+	if name := flagOfKey(fe.Key); fs.Lookup(name) != nil && (!fromFile || setFlags(fs)[name]) {
+		return usagef("--%s: %v", name, fe.Err)
+	}
+	return nil
 }
 
 // flagOfKey is the flag of a study file key: axes.noise_tokens is

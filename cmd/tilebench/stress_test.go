@@ -175,6 +175,16 @@ func TestStudyErrorsNameTheFlag(t *testing.T) {
 			}
 		}
 	}
+	// probe takes the same axis flags.
+	frames, _ := framesDir(t, 4, 40, 32)
+	for _, c := range [][]string{{"occlude", "random:2"}, {"noise-tokens", "-1"}, {"corrupt", "blur:s2+fog:1"}, {"patch", "0"}} {
+		code, _, stderr := runCLI(t, "", "probe", "--in", frames, "--policy", "fresh", "--action-space", "continuous:2", "--"+c[0], c[1], "--out", out)
+		if code != 2 {
+			t.Errorf("probe --%s %s: exit %d, want 2 (%s)", c[0], c[1], code, stderr)
+			continue
+		}
+		oneLine(t, stderr, "tilebench: --"+c[0]+": ")
+	}
 	// The same value in a study file keeps the file's key; a valid file
 	// with a bad flag on top names the flag.
 	bad := filepath.Join(dir, "bad.toml")
