@@ -136,6 +136,9 @@ func TestStressBadInput(t *testing.T) {
 		{stressArgs(out, "--game", "croquet"), 2, `--game: unknown game "croquet"`},
 		{stressArgs(out, "--policy", filepath.Join(dir, "missing.safetensors")), 1, "missing.safetensors"},
 		{stressArgs(out, "--episodes", "-1"), 2, "episodes"},
+		// The floor plays after the episodes; a floor that cannot open is
+		// refused before the folder is made.
+		{stressArgs(out, "--floor", filepath.Join(dir, "nofloor.safetensors")), 1, `floor policy`},
 		// A {patch} template names one policy per patch size: with one size
 		// it is a mistake (docs/policies.md).
 		{stressArgs(out, "--policy", "exec:python3 my_policy.py --patch {patch}", "--patch", "8"), 2, "one patch size (8)"},

@@ -387,6 +387,18 @@ func preflight(p *study.Plan, f EnvFactory) (err error) {
 			return err
 		}
 	}
+	// The floor policy plays after the episodes; a source that cannot
+	// open must be refused before the folder is written, not after.
+	if be, ok := env.(BaselineEnv); ok && len(p.Cells) > 0 {
+		floor := p.Def.Floor
+		if floor == "" {
+			floor = analysis.DefaultFloor
+		}
+		c := p.Cells[0]
+		if _, _, err := be.Baseline(floor, c.Variation, c.Patch); err != nil {
+			return err
+		}
+	}
 	return nil
 }
 
