@@ -36,6 +36,8 @@ examples:
     --patch 8 --occlude random:0:0.8:0.1,block:0.3 --scramble none,full --noise-tokens 0,16 --out probe-mine
   tilebench probe --in frames/ --episodes episodes.csv --actions actions.npy \
     --policy testdata/policies/drive-attention-p8.safetensors --occlude random:0:0.6:0.2 --scramble none,full --out probe-ref
+  tilebench probe --in demos/frames.npy --episodes demos/episode_starts.npy --actions demos/actions.npy \
+    --policy 'exec:python3 my_policy.py' --occlude random:0:0.6:0.2 --out probe-demos   # a "tilebench record" dataset as it is
 
 Without a transform option only the clean cell runs, whose drift is zero
 for a reproducible policy.
@@ -54,7 +56,7 @@ func runProbe(ctx *runContext, args []string) error {
 	var c probe.Config
 	fs.StringVar(&c.In, "in", "", "recorded `FRAMES`: folder, .gif, .npy, .rgb/.raw")
 	size := fs.String("size", "", "frame size `WxH` of raw .rgb/.raw input")
-	fs.StringVar(&c.Episodes, "episodes", "", "sequence boundaries `FILE`: one start index per line, or a sequence column with one id per frame")
+	fs.StringVar(&c.Episodes, "episodes", "", "sequence boundaries `FILE`: a .npy bool/uint8 mask per frame (record's episode_starts.npy) or integer start indices; or text: one start index per line, or a sequence column with one id per frame")
 	fs.StringVar(&c.Actions, "actions", "", "recorded actions `FILE.npy`, one row per frame (N or N×W)")
 	pf := policies.AddFlags(fs, policies.FlagConfig{Usage: "the policy: a weights FILE, fresh, exec:COMMAND ARGS or tcp://HOST:PORT"})
 	fs.StringVar(&c.Family, "family", "attention", "network `FAMILY` of --policy fresh: attention, posattention, mlp, meanpool")

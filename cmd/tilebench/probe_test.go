@@ -149,3 +149,45 @@ func TestProbeMergeHelp(t *testing.T) {
 		t.Fatalf("probe -help: second usage line lacks the program name:\n%s", stdout)
 	}
 }
+
+// TestProbeReadsRecording: a probe reads "tilebench record"'s output as
+// it is: frames.npy, episode_starts.npy (a bool mask) and actions.npy.
+func TestProbeReadsRecording(t *testing.T) {
+	rec := filepath.Join(t.TempDir(), "demos")
+	if code, _, stderr := runCLI(t, "", "record", "--game", "paddle", "--episodes", "2", "--seed", "3", "--out", rec); code != 0 {
+		t.Fatalf("record: exit %d: %s", code, stderr)
+	}
+	var m struct {
+		Episodes []struct {
+			Start int `json:"start"`
+			Steps int `json:"steps"`
+		} `json:"episodes"`
+	}
+	b, err := os.ReadFile(filepath.Join(rec, "manifest.json"))
+	if err != nil || json.Unmarshal(b, &m) != nil || len(m.Episodes) != 2 {
+		t.Fatalf("manifest: %v %s", err, b)
+	}
+	out := filepath.Join(t.TempDir(), "p")
+	code, _, stderr := runCLI(t, "", "probe", "--in", filepath.Join(rec, "frames.npy"), "--episodes", filepath.Join(rec, "episode_starts.npy"),
+		"--actions", filepath.Join(rec, "actions.npy"), "--policy", "fresh", "--family", "meanpool", "--resamples", "200", "--out", out)
+	if code != 0 {
+		t.Fatalf("probe of a recording: exit %d: %s", code, stderr)
+	}
+	var info struct {
+		Plan struct {
+			Sequences []struct {
+				Start int `json:"start"`
+				Len   int `json:"len"`
+			} `json:"sequences"`
+		} `json:"plan"`
+	}
+	b, _ = os.ReadFile(filepath.Join(out, "probe.json"))
+	if err := json.Unmarshal(b, &info); err != nil || len(info.Plan.Sequences) != 2 {
+		t.Fatalf("probe.json: %v, sequences %+v", err, info.Plan.Sequences)
+	}
+	for i, e := range m.Episodes {
+		if q := info.Plan.Sequences[i]; q.Start != e.Start || q.Len != e.Steps {
+			t.Errorf("sequence %d is %+v, the manifest's episode starts at %d for %d steps", i, q, e.Start, e.Steps)
+		}
+	}
+}

@@ -141,12 +141,29 @@ func appendNPYHeader(dst []byte, descr string, dims []int) []byte {
 // it is parsed as the strict subset of Python literals that NumPy writes:
 // a dict with exactly the keys descr, fortran_order and shape.
 func ReadNPYHeader(r io.Reader) (dims []int, n int, err error) {
+	descr, dims, n, err := ReadNPYArrayHeader(r)
+	if err != nil {
+		return nil, 0, err
+	}
+	switch descr {
+	case "|u1", "<u1", ">u1", "=u1", "u1":
+	default:
+		return nil, 0, fmt.Errorf(".npy header: dtype %q: want uint8 ('|u1')", descr)
+	}
+	return dims, n, nil
+}
+
+// ReadNPYArrayHeader is ReadNPYHeader for an array of any dtype: it
+// returns the type descr as the header spells it ('|b1', '<i8', ...),
+// unchecked, with the shape and the preamble's length. The array must
+// still be in C order.
+func ReadNPYArrayHeader(r io.Reader) (descr string, dims []int, n int, err error) {
 	var pre [8]byte
 	if _, err := io.ReadFull(r, pre[:]); err != nil {
-		return nil, 0, fmt.Errorf("not a .npy file: %w", noEOF(err))
+		return "", nil, 0, fmt.Errorf("not a .npy file: %w", noEOF(err))
 	}
 	if string(pre[:6]) != npyMagic {
-		return nil, 0, errors.New("not a .npy file: missing the \\x93NUMPY magic string")
+		return "", nil, 0, errors.New("not a .npy file: missing the \\x93NUMPY magic string")
 	}
 	major, minor := pre[6], pre[7]
 	var hlen int
@@ -154,31 +171,31 @@ func ReadNPYHeader(r io.Reader) (dims []int, n int, err error) {
 	case major == 1 && minor == 0:
 		var l [2]byte
 		if _, err := io.ReadFull(r, l[:]); err != nil {
-			return nil, 0, fmt.Errorf(".npy header length: %w", noEOF(err))
+			return "", nil, 0, fmt.Errorf(".npy header length: %w", noEOF(err))
 		}
 		hlen, n = int(binary.LittleEndian.Uint16(l[:])), 10
 	case (major == 2 || major == 3) && minor == 0:
 		var l [4]byte
 		if _, err := io.ReadFull(r, l[:]); err != nil {
-			return nil, 0, fmt.Errorf(".npy header length: %w", noEOF(err))
+			return "", nil, 0, fmt.Errorf(".npy header length: %w", noEOF(err))
 		}
 		h := binary.LittleEndian.Uint32(l[:])
 		if h > MaxNPYHeader {
-			return nil, 0, fmt.Errorf(".npy header of %d bytes is over the %d-byte limit", h, MaxNPYHeader)
+			return "", nil, 0, fmt.Errorf(".npy header of %d bytes is over the %d-byte limit", h, MaxNPYHeader)
 		}
 		hlen, n = int(h), 12
 	default:
-		return nil, 0, fmt.Errorf(".npy format version %d.%d: want 1.0, 2.0 or 3.0", major, minor)
+		return "", nil, 0, fmt.Errorf(".npy format version %d.%d: want 1.0, 2.0 or 3.0", major, minor)
 	}
 	buf := make([]byte, hlen)
 	if _, err := io.ReadFull(r, buf); err != nil {
-		return nil, 0, fmt.Errorf(".npy header (%d bytes): %w", hlen, noEOF(err))
+		return "", nil, 0, fmt.Errorf(".npy header (%d bytes): %w", hlen, noEOF(err))
 	}
-	dims, err = parseNPYDict(buf)
+	descr, dims, err = parseNPYDict(buf)
 	if err != nil {
-		return nil, 0, fmt.Errorf(".npy header: %w", err)
+		return "", nil, 0, fmt.Errorf(".npy header: %w", err)
 	}
-	return dims, n + hlen, nil
+	return descr, dims, n + hlen, nil
 }
 
 // noEOF turns a bare io.EOF into io.ErrUnexpectedEOF: inside a file, an
@@ -191,16 +208,18 @@ func noEOF(err error) error {
 }
 
 // parseNPYDict parses the header dict: "{" key ":" value ("," key ":"
-// value)* [","] "}", then only spaces, then a final newline.
-func parseNPYDict(b []byte) ([]int, error) {
+// value)* [","] "}", then only spaces, then a final newline. It returns
+// the descr unchecked and the shape.
+func parseNPYDict(b []byte) (string, []int, error) {
 	if len(b) == 0 || b[len(b)-1] != '\n' {
-		return nil, errors.New("does not end with a newline")
+		return "", nil, errors.New("does not end with a newline")
 	}
 	p := &pyLex{s: string(b[:len(b)-1])}
 	if !p.eat('{') {
-		return nil, errors.New("does not start with '{'")
+		return "", nil, errors.New("does not start with '{'")
 	}
 	var (
+		descr                     string
 		dims                      []int
 		seenD, seenF, seenS, done bool
 	)
@@ -211,69 +230,63 @@ func parseNPYDict(b []byte) ([]int, error) {
 		}
 		key, err := p.str()
 		if err != nil {
-			return nil, fmt.Errorf("key: %w", err)
+			return "", nil, fmt.Errorf("key: %w", err)
 		}
 		p.space()
 		if !p.eat(':') {
-			return nil, fmt.Errorf("key %q: want ':' at byte %d", key, p.i)
+			return "", nil, fmt.Errorf("key %q: want ':' at byte %d", key, p.i)
 		}
 		p.space()
 		switch key {
 		case "descr":
 			if seenD {
-				return nil, errors.New("key 'descr' given twice")
+				return "", nil, errors.New("key 'descr' given twice")
 			}
 			seenD = true
-			d, err := p.str()
-			if err != nil {
-				return nil, fmt.Errorf("descr: %w", err)
-			}
-			switch d {
-			case "|u1", "<u1", ">u1", "=u1", "u1":
-			default:
-				return nil, fmt.Errorf("dtype %q: want uint8 ('|u1')", d)
+			if descr, err = p.str(); err != nil {
+				return "", nil, fmt.Errorf("descr: %w", err)
 			}
 		case "fortran_order":
 			if seenF {
-				return nil, errors.New("key 'fortran_order' given twice")
+				return "", nil, errors.New("key 'fortran_order' given twice")
 			}
 			seenF = true
 			switch w := p.word(); w {
 			case "False":
 			case "True":
-				return nil, errors.New("fortran_order True: only C-order arrays are read")
+				return "", nil, errors.New("fortran_order True: only C-order arrays are read")
 			default:
-				return nil, fmt.Errorf("fortran_order %q: want True or False", w)
+				return "", nil, fmt.Errorf("fortran_order %q: want True or False", w)
 			}
 		case "shape":
 			if seenS {
-				return nil, errors.New("key 'shape' given twice")
+				return "", nil, errors.New("key 'shape' given twice")
 			}
 			seenS = true
 			if dims, err = p.tuple(); err != nil {
-				return nil, fmt.Errorf("shape: %w", err)
+				return "", nil, fmt.Errorf("shape: %w", err)
 			}
 		default:
-			return nil, fmt.Errorf("unexpected key %q", key)
+			return "", nil, fmt.Errorf("unexpected key %q", key)
 		}
 		p.space()
 		if !p.eat(',') {
 			p.space()
 			if !p.eat('}') {
-				return nil, fmt.Errorf("want ',' or '}' at byte %d", p.i)
+				return "", nil, fmt.Errorf("want ',' or '}' at byte %d", p.i)
 			}
 			done = true
 		}
 	}
 	for ; p.i < len(p.s); p.i++ {
 		if p.s[p.i] != ' ' {
-			return nil, fmt.Errorf("unexpected byte %q after the dict", p.s[p.i])
+			return "", nil, fmt.Errorf("unexpected byte %q after the dict", p.s[p.i])
 		}
 	}
 	if !seenD || !seenF || !seenS {
-		return nil, errors.New("want the keys 'descr', 'fortran_order' and 'shape'")
+		return "", nil, errors.New("want the keys 'descr', 'fortran_order' and 'shape'")
 	}
-	return dims, nil
+	return descr, dims, nil
 }
 
 // pyLex scans the Python literal subset of a .npy header.

@@ -404,3 +404,21 @@ func BenchmarkNPYCopyBaseline(b *testing.B) {
 		copy(dst, src)
 	}
 }
+
+// TestReadNPYArrayHeader: any dtype's header is read with its descr as
+// written; ReadNPYHeader still takes uint8 only.
+func TestReadNPYArrayHeader(t *testing.T) {
+	for _, c := range []struct {
+		descr string
+		dims  []int
+	}{{"|b1", []int{3600}}, {"<i8", []int{4}}, {"<f4", []int{2, 3}}} {
+		h := NPYHeaderOf(c.descr, c.dims)
+		d, dims, n, err := ReadNPYArrayHeader(bytes.NewReader(h))
+		if err != nil || d != c.descr || fmtDims(dims) != fmtDims(c.dims) || n != len(h) {
+			t.Errorf("%s %v: read %q %v %d %v", c.descr, c.dims, d, dims, n, err)
+		}
+		if _, _, err := ReadNPYHeader(bytes.NewReader(h)); err == nil || !strings.Contains(err.Error(), "want uint8") {
+			t.Errorf("%s: ReadNPYHeader: %v", c.descr, err)
+		}
+	}
+}

@@ -2,6 +2,7 @@ package probe
 
 import (
 	"bufio"
+	"bytes"
 	"encoding/binary"
 	"errors"
 	"fmt"
@@ -181,8 +182,12 @@ type Sequence struct {
 }
 
 // ReadSequences reads the sequence boundaries of a recording of frames
-// frames from an --episodes file. Two layouts, told apart by an optional
-// header line:
+// frames from an --episodes file. A file that starts with the .npy magic
+// string is an array (see parseSequencesNPY): a bool or uint8 mask with
+// one entry per frame, true at each sequence's first frame (what
+// "tilebench record" writes as episode_starts.npy), or an integer array
+// of start indices. Any other file must be text, in one of two layouts
+// told apart by an optional header line:
 //
 //	start        one line per sequence: the index of its first frame;
 //	             the first start is 0, starts increase strictly, each
@@ -194,17 +199,38 @@ type Sequence struct {
 //
 // Commas or tabs may separate columns; the column named in the header is
 // used (the first without one). Blank lines and lines starting with # are
-// skipped. Errors name the file and the line.
+// skipped. Errors are one line naming the file and the line, row or
+// index, and quote at most a short excerpt of the file.
 func ReadSequences(path string, frames int) ([]Sequence, error) {
-	data, err := os.ReadFile(path)
+	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("episodes %s: %w", path, unwrapPath(err))
 	}
-	seqs, err := parseSequences(string(data), frames)
+	defer f.Close()
+	br := bufio.NewReader(f)
+	var seqs []Sequence
+	if magic, _ := br.Peek(6); string(magic) == "\x93NUMPY" {
+		seqs, err = parseSequencesNPY(br, frames)
+	} else {
+		var data []byte
+		if data, err = io.ReadAll(br); err == nil {
+			seqs, err = parseSequencesText(data, frames)
+		}
+	}
 	if err != nil {
-		return nil, fmt.Errorf("episodes %s: %w", path, err)
+		return nil, fmt.Errorf("episodes %s: %w", path, unwrapPath(err))
 	}
 	return seqs, nil
+}
+
+// parseSequencesText checks that data is text (a UTF-8 byte-order mark
+// is skipped) and parses it.
+func parseSequencesText(data []byte, frames int) ([]Sequence, error) {
+	data = bytes.TrimPrefix(data, []byte("\xef\xbb\xbf"))
+	if err := checkText(data); err != nil {
+		return nil, err
+	}
+	return parseSequences(string(data), frames)
 }
 
 func splitCols(line string) []string {
@@ -230,7 +256,7 @@ func parseSequences(data string, frames int) ([]Sequence, error) {
 		}
 		cols := splitCols(line)
 		if len(cols) == 0 {
-			return nil, fmt.Errorf("line %d: %q holds no value", ln+1, line)
+			return nil, fmt.Errorf("line %d: %q holds no value", ln+1, excerpt(line))
 		}
 		if first {
 			first = false
@@ -250,7 +276,7 @@ func parseSequences(data string, frames int) ([]Sequence, error) {
 				}
 				if !found {
 					if _, err := strconv.Atoi(cols[0]); err != nil {
-						return nil, fmt.Errorf("line %d: header %q names no column start (one line per sequence) or sequence (one id per frame)", ln+1, line)
+						return nil, fmt.Errorf("line %d: header %q names no column start (one line per sequence) or sequence (one id per frame)", ln+1, excerpt(line))
 					}
 				} else {
 					continue
@@ -265,7 +291,7 @@ func parseSequences(data string, frames int) ([]Sequence, error) {
 		case "start":
 			s, err := strconv.Atoi(v)
 			if err != nil {
-				return nil, fmt.Errorf("line %d: start %q is not a whole number", ln+1, v)
+				return nil, fmt.Errorf("line %d: start %q is not a whole number", ln+1, excerpt(v))
 			}
 			switch {
 			case len(seqs) == 0 && s != 0:
@@ -282,7 +308,7 @@ func parseSequences(data string, frames int) ([]Sequence, error) {
 			}
 			if row == 0 || v != prevID {
 				if ids[v] {
-					return nil, fmt.Errorf("line %d: sequence %q comes back at frame %d after another sequence: a sequence's frames must be contiguous", ln+1, v, row)
+					return nil, fmt.Errorf("line %d: sequence %q comes back at frame %d after another sequence: a sequence's frames must be contiguous", ln+1, excerpt(v), row)
 				}
 				ids[v] = true
 				seqs = append(seqs, Sequence{Start: row})

@@ -2,8 +2,12 @@ package probe
 
 import (
 	"bytes"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
+
+	"tilebench/patch/frameio"
 )
 
 // FuzzActions: the .npy action parser never panics, and what it accepts
@@ -62,6 +66,73 @@ func FuzzSequences(f *testing.F) {
 		}
 		if next != frames {
 			t.Fatalf("sequences %v cover %d of %d frames", seqs, next, frames)
+		}
+	})
+}
+
+// FuzzSequencesNPY: the .npy episodes parser never panics, its errors
+// are one line, and what it accepts tiles the recording.
+func FuzzSequencesNPY(f *testing.F) {
+	ents, _ := os.ReadDir(filepath.Join("testdata", "episodes"))
+	for _, e := range ents {
+		if b, err := os.ReadFile(filepath.Join("testdata", "episodes", e.Name())); err == nil && strings.HasSuffix(e.Name(), ".npy") {
+			f.Add(b, 20)
+		}
+	}
+	for _, c := range []struct {
+		descr string
+		dims  []int
+		data  []byte
+	}{
+		{"|b1", []int{4}, []byte{1, 0, 1, 0}},
+		{"|u1", []int{4}, []byte{0, 1, 1, 0}},
+		{"<i8", []int{2}, []byte{0, 0, 0, 0, 0, 0, 0, 0, 2, 0, 0, 0, 0, 0, 0, 0}},
+		{"<i2", []int{3}, []byte{0, 0, 3, 0, 2, 0}},
+		{"<u4", []int{2}, []byte{0, 0, 0, 0, 0xff, 0xff, 0xff, 0xff}},
+		{"<i4", []int{2, 1}, []byte{0, 0, 0, 0, 1, 0, 0, 0}},
+		{">i8", []int{1}, make([]byte, 8)},
+		{"<f8", []int{1}, make([]byte, 8)},
+	} {
+		f.Add(append(frameio.NPYHeaderOf(c.descr, c.dims), c.data...), 4)
+	}
+	f.Fuzz(func(t *testing.T, data []byte, frames int) {
+		if frames < 1 || frames > 10000 {
+			return
+		}
+		seqs, err := parseSequencesNPY(bytes.NewReader(data), frames)
+		if err != nil {
+			if strings.Contains(err.Error(), "\n") || len(err.Error()) > 400 {
+				t.Fatalf("error spans lines or is long: %q", err)
+			}
+			return
+		}
+		next := 0
+		for _, q := range seqs {
+			if q.Start != next || q.Len < 1 {
+				t.Fatalf("sequences %v do not tile %d frames", seqs, frames)
+			}
+			next += q.Len
+		}
+		if next != frames {
+			t.Fatalf("sequences %v cover %d of %d frames", seqs, next, frames)
+		}
+	})
+}
+
+// FuzzSequencesText: any bytes given as a text episodes file give
+// sequences or a one-line error that quotes no more than an excerpt.
+func FuzzSequencesText(f *testing.F) {
+	for _, s := range []string{"0\n5\n9\n", "sequence\na\nb\n", "\x89PNG\r\n\x1a\n\x00\x00", "\xef\xbb\xbfstart\n0\n", "0\n\xff\xfe\n", strings.Repeat("y", 300) + "\n"} {
+		f.Add([]byte(s), 10)
+	}
+	f.Fuzz(func(t *testing.T, data []byte, frames int) {
+		if frames < 1 || frames > 10000 || len(data) > 1<<14 {
+			return
+		}
+		if _, err := parseSequencesText(data, frames); err != nil {
+			if msg := err.Error(); strings.Contains(msg, "\n") || len(msg) > 300 {
+				t.Fatalf("error spans lines or dumps the file (%d bytes): %q", len(msg), msg)
+			}
 		}
 	})
 }
