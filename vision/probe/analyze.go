@@ -106,8 +106,11 @@ type BreakStats struct {
 // Summary is the statistics of a probe, summary.json and the --json
 // output.
 type Summary struct {
-	Format     int          `json:"format"`
-	Probe      string       `json:"probe"`
+	Format int    `json:"format"`
+	Probe  string `json:"probe"`
+	// Title says what was probed: "NAME: POLICY on RECORDING", the
+	// recording by its file name (see Title).
+	Title      string       `json:"title"`
 	Name       string       `json:"name"`
 	Policy     string       `json:"policy"`
 	Input      string       `json:"input"`
@@ -198,10 +201,21 @@ func identity(axis string) float64 {
 	return 0
 }
 
+// Title names what p probes, as a study's title names its game and
+// policy: "NAME: POLICY on RECORDING", with a fresh policy as "untrained
+// FAMILY" and the recording by its file (or folder) name.
+func Title(p *Plan) string {
+	pol := p.Config.Policy
+	if pol == "fresh" {
+		pol = "untrained " + p.Config.Family
+	}
+	return p.Config.Name + ": " + pol + " on " + filepath.Base(p.Input.Name)
+}
+
 // Analyze computes the statistics of the records of plan p.
 func Analyze(p *Plan, recs []Record) (*Summary, error) {
 	cfg := p.Config
-	s := &Summary{Format: 1, Probe: p.Fingerprint, Name: cfg.Name, Policy: cfg.Policy, Input: p.Input.Name,
+	s := &Summary{Format: 1, Probe: p.Fingerprint, Title: Title(p), Name: cfg.Name, Policy: cfg.Policy, Input: p.Input.Name,
 		Width: p.Width, Height: p.Height, Action: p.Space, Frames: p.Input.Frames, Sequences: len(p.Sequences),
 		Units: p.Units(), Threshold: cfg.Threshold, Confidence: cfg.Confidence, Resamples: cfg.Resamples,
 		Caution: report.Caution}
@@ -516,7 +530,7 @@ func breakText(b BreakStats) string {
 func Markdown(s *Summary, command string) []byte {
 	var b bytes.Buffer
 	p := func(f string, a ...any) { fmt.Fprintf(&b, f, a...) }
-	p("# Probe: %s\n\n", s.Name)
+	p("# %s\n\n", s.Title)
 	p("Policy `%s` on `%s` (%d frames of %dx%d, %d sequences), %s actions of %d.\n\n", s.Policy, s.Input, s.Frames, s.Width, s.Height, s.Sequences, s.Action.Kind, s.Action.Dim)
 	p("Drift: %s, per frame, transformed against clean. Intervals: %s, %d resamples, %.0f%% level. Threshold %s.\n\n", driftUnit(s), s.Method, s.Resamples, 100*s.Confidence, ff(s.Threshold))
 	if s.Failed > 0 {
@@ -547,7 +561,7 @@ func Markdown(s *Summary, command string) []byte {
 
 // reportData fills the HTML report.
 func reportData(p *Plan, s *Summary, recs []Record, src frameio.Random, command string) *report.Data {
-	d := &report.Data{Title: "Probe: " + s.Name, Kind: "probe", Units: "sequences",
+	d := &report.Data{Title: s.Title, Kind: "probe", Units: "sequences",
 		Run: report.Run{Command: command, Seed: p.Config.Seed, Episodes: s.Finished / max(1, len(p.Cells)), Failures: s.Failed,
 			Params: []report.KV{{Key: "policy", Value: s.Policy}, {Key: "recording", Value: s.Input},
 				{Key: "frames", Value: fmt.Sprintf("%d of %dx%d in %d sequences", s.Frames, s.Width, s.Height, s.Sequences)},

@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/binary"
+	"encoding/json"
 	"fmt"
 	"image"
 	"image/color"
@@ -470,5 +471,35 @@ func TestCorruption(t *testing.T) {
 	}
 	if n != 2 {
 		t.Errorf("%d corruption cells, want 2", n)
+	}
+}
+
+// TestSummaryTitle: summary.md and the report say what was probed, the
+// policy and the recording's file name, as a study's name its game and
+// policy.
+func TestSummaryTitle(t *testing.T) {
+	dir := t.TempDir()
+	rec := recording(t, dir, 12, 32, 32)
+	for _, c := range []struct {
+		cfg  Config
+		want string
+	}{
+		{Config{In: rec, Policy: "fresh", Family: "meanpool", ActionSpace: "continuous:2"}, "probe: untrained meanpool on rec.npy"},
+		{Config{Name: "bench cam", In: rec, Policy: "fresh", Family: "mlp", ActionSpace: "discrete:3"}, "bench cam: untrained mlp on rec.npy"},
+	} {
+		c.cfg.Resamples = 200
+		out := filepath.Join(dir, c.cfg.Family)
+		runProbe(t, plan(t, c.cfg), Options{Dir: out, Workers: 1})
+		md := string(read(t, filepath.Join(out, "summary.md")))
+		if first, _, _ := strings.Cut(md, "\n"); first != "# "+c.want {
+			t.Errorf("summary.md heading %q, want %q", first, "# "+c.want)
+		}
+		if html := string(read(t, filepath.Join(out, "report.html"))); !strings.Contains(html, "<title>"+c.want) {
+			t.Errorf("report.html does not carry the title %q", c.want)
+		}
+		var js map[string]any
+		if err := json.Unmarshal(read(t, filepath.Join(out, JSONFile)), &js); err != nil || js["title"] != c.want {
+			t.Errorf("summary.json title %v (%v), want %q", js["title"], err, c.want)
+		}
 	}
 }
