@@ -172,8 +172,12 @@ func runProbeMerge(ctx *runContext, args []string) error {
 		return err
 	}
 	fmt.Fprintf(ctx.stdout, "merged %d units into %s (%d missing, %d failed)\n", mo.Units, *out, mo.Missing, mo.Failed)
-	if _, err := os.Stat(filepath.Join(*out, "report.html")); err == nil && mo.Missing > 0 {
-		fmt.Fprintf(ctx.stdout, "the report covers the units present; run the missing shards and merge again\n")
+	rep := filepath.Join(*out, "report.html")
+	if _, err := os.Stat(rep); err == nil {
+		if mo.Missing > 0 {
+			fmt.Fprintf(ctx.stdout, "the report covers the units present; run the missing shards and merge again\n")
+		}
+		fmt.Fprintf(ctx.stdout, "report: %s\n", rep) // as a study's merge prints it
 	}
 	return nil
 }

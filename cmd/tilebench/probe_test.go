@@ -64,9 +64,12 @@ func TestProbeCLI(t *testing.T) {
 		dirs = append(dirs, d)
 	}
 	m := filepath.Join(t.TempDir(), "m")
-	code, _, stderr = runCLI(t, "", append([]string{"probe", "merge", "--out", m}, dirs...)...)
+	code, stdout, stderr = runCLI(t, "", append([]string{"probe", "merge", "--out", m}, dirs...)...)
 	if code != 0 {
 		t.Fatalf("merge: %s", stderr)
+	}
+	if !strings.Contains(stdout, "\nreport: "+filepath.Join(m, "report.html")+"\n") {
+		t.Errorf("probe merge does not print the report path as a study merge does:\n%s", stdout)
 	}
 	a, _ := os.ReadFile(filepath.Join(out, "results.jsonl"))
 	b, _ := os.ReadFile(filepath.Join(m, "results.jsonl"))
@@ -75,8 +78,11 @@ func TestProbeCLI(t *testing.T) {
 	}
 	// "tilebench merge" recognises probe folders too.
 	m2 := filepath.Join(t.TempDir(), "m2")
-	if code, _, stderr = runCLI(t, "", append([]string{"merge", m2}, dirs...)...); code != 0 {
+	if code, stdout, stderr = runCLI(t, "", append([]string{"merge", m2}, dirs...)...); code != 0 {
 		t.Fatalf("merge: %s", stderr)
+	}
+	if !strings.Contains(stdout, "\nreport: "+filepath.Join(m2, "report.html")+"\n") {
+		t.Errorf("tilebench merge of probe shards does not print the report path:\n%s", stdout)
 	}
 	if c, _ := os.ReadFile(filepath.Join(m2, "results.jsonl")); string(c) != string(a) {
 		t.Error("tilebench merge of probe shards differs from the whole run")
