@@ -36,7 +36,8 @@ func runMerge(ctx *runContext, args []string) error {
 	}
 	out := fs.Arg(0)
 	if isProbeDir(fs.Arg(1)) { // probe shards (probe.go)
-		return runProbeMerge(ctx, append([]string{"--out", out}, fs.Args()[1:]...))
+		pa := []string{"--out", out, fmt.Sprintf("--json=%v", *asJSON), fmt.Sprintf("--allow-partial=%v", *partial)}
+		return runProbeMerge(ctx, append(pa, fs.Args()[1:]...))
 	}
 	mo, err := runner.MergeWith(out, fs.Args()[1:], runner.MergeOptions{WriteReport: true, AllowPartial: *partial})
 	if err != nil {

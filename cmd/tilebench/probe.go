@@ -161,25 +161,45 @@ options:`
 func runProbeMerge(ctx *runContext, args []string) error {
 	fs := newFlags(ctx, "probe merge", probeMergeUsage)
 	out := fs.String("out", "", "output folder `DIR` (new or empty)")
+	asJSON := fs.Bool("json", false, "print a machine-readable summary")
+	partial := fs.Bool("allow-partial", false, "merge even when units are missing (a shard not given or not finished); exit status 3 then")
 	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	if *out == "" || fs.NArg() == 0 {
 		return usagef("probe merge: want --out DIR and the shard folders")
 	}
-	mo, err := probe.Merge(*out, fs.Args(), true)
+	mo, err := probe.MergeWith(*out, fs.Args(), probe.MergeOptions{WriteReport: true, AllowPartial: *partial})
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(ctx.stdout, "merged %d units into %s (%d missing, %d failed)\n", mo.Units, *out, mo.Missing, mo.Failed)
+	// As a study's merge: missing or failed units are exit status 3.
+	var status error
+	if mo.Missing > 0 || mo.Failed > 0 {
+		status = exitError{ExitFailedEpisodes, fmt.Errorf("merged with %d units missing and %d failed", mo.Missing, mo.Failed)}
+	}
 	rep := filepath.Join(*out, "report.html")
-	if _, err := os.Stat(rep); err == nil {
+	_, repErr := os.Stat(rep)
+	if *asJSON {
+		m := map[string]any{"format": 1, "dir": *out, "units": mo.Units, "missing": mo.Missing, "failed": mo.Failed}
+		if repErr == nil {
+			m["report"] = rep
+		}
+		b, err := json.MarshalIndent(m, "", "  ")
+		if err != nil {
+			return err
+		}
+		fmt.Fprintln(ctx.stdout, string(b))
+		return status
+	}
+	fmt.Fprintf(ctx.stdout, "merged %d units into %s (%d missing, %d failed)\n", mo.Units, *out, mo.Missing, mo.Failed)
+	if repErr == nil {
 		if mo.Missing > 0 {
 			fmt.Fprintf(ctx.stdout, "the report covers the units present; run the missing shards and merge again\n")
 		}
 		fmt.Fprintf(ctx.stdout, "report: %s\n", rep) // as a study's merge prints it
 	}
-	return nil
+	return status
 }
 
 // isProbeDir reports whether dir holds a probe (for "tilebench merge").

@@ -87,6 +87,31 @@ func TestProbeCLI(t *testing.T) {
 	if c, _ := os.ReadFile(filepath.Join(m2, "results.jsonl")); string(c) != string(a) {
 		t.Error("tilebench merge of probe shards differs from the whole run")
 	}
+	// One shard of two, as a study's merge: refused with nothing written
+	// unless --allow-partial, which merges and exits 3; --json passes
+	// through "tilebench merge".
+	for _, cmd := range [][]string{{"probe", "merge"}, {"merge"}} {
+		m3 := filepath.Join(t.TempDir(), "m3")
+		dest := []string{m3}
+		if len(cmd) == 2 {
+			dest = []string{"--out", m3}
+		}
+		args := append(append(append([]string{}, cmd...), dest...), dirs[0])
+		code, _, stderr = runCLI(t, "", args...)
+		if code != 1 {
+			t.Fatalf("%v: exit %d", args, code)
+		}
+		oneLine(t, stderr, "missing")
+		if _, err := os.Stat(m3); err == nil {
+			t.Fatalf("%v: a refused merge wrote its output folder", args)
+		}
+		args = append(append(append(append([]string{}, cmd...), "--allow-partial", "--json"), dest...), dirs[0])
+		code, stdout, stderr = runCLI(t, "", args...)
+		var mj struct{ Missing int }
+		if code != ExitFailedEpisodes || json.Unmarshal([]byte(stdout), &mj) != nil || mj.Missing == 0 {
+			t.Fatalf("%v: exit %d, %q %q", args, code, stdout, stderr)
+		}
+	}
 }
 
 // TestProbeMemory probes a 100,000-frame 96×96×3 recording (a sparse

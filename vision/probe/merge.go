@@ -24,6 +24,24 @@ type MergeOutcome struct {
 // unit, are errors, as is an out that holds anything; nothing is written
 // then.
 func Merge(out string, dirs []string, writeReport bool) (*MergeOutcome, error) {
+	return MergeWith(out, dirs, MergeOptions{WriteReport: writeReport, AllowPartial: true})
+}
+
+// MergeOptions are the settings of MergeWith.
+type MergeOptions struct {
+	// WriteReport also writes the merged probe's report.
+	WriteReport bool
+	// AllowPartial merges even when the folders together miss units of
+	// the probe (a shard not given, or not finished); by default that is
+	// an error and nothing is written.
+	AllowPartial bool
+}
+
+// MergeWith is Merge with options: without opt.AllowPartial, folders
+// that together miss units of the probe are refused and nothing is
+// written.
+func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, error) {
+	writeReport := opt.WriteReport
 	if len(dirs) == 0 {
 		return nil, errors.New("merge: no probe folders given")
 	}
@@ -78,6 +96,10 @@ func Merge(out string, dirs []string, writeReport bool) (*MergeOutcome, error) {
 	}
 	merged := sorted(by)
 	mo := &MergeOutcome{Units: len(merged), Missing: p.Units() - len(merged)}
+	if mo.Missing > 0 && !opt.AllowPartial {
+		return nil, fmt.Errorf("merge: the %d folders hold %d of the probe's %d units (%d missing: a shard not given or not finished); finish it with --resume, or merge anyway with --allow-partial",
+			len(dirs), len(merged), p.Units(), mo.Missing)
+	}
 	for _, r := range merged {
 		if r.Failed() {
 			mo.Failed++
