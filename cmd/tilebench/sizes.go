@@ -5,7 +5,7 @@ import (
 	"fmt"
 	"time"
 
-	"tilebench/vision/stats"
+	"tilebench/vision/stats/choose"
 	"tilebench/vision/study"
 	"tilebench/vision/study/analysis"
 	"tilebench/vision/study/runner"
@@ -152,7 +152,7 @@ func printRecommendation(ctx *runContext, a *analysis.Analysis) {
 	if ch := a.Choice; ch.Pick >= 0 && ch.Pick == ch.Best && ch.Cheaper {
 		if ch.More > 0 {
 			fmt.Fprintf(ctx.stdout, "not enough evidence for a cheaper patch size within margin %g: run %s more per condition (%d in all; %.0f%% power estimate)\n",
-				ch.Margin, plural(max(ch.More-a.Plan.Def.Episodes, 1), "episode"), ch.More, 100*stats.DefaultPower)
+				ch.Margin, plural(max(ch.More-a.Plan.Def.Episodes, 1), "episode"), ch.More, 100*choose.DefaultPower)
 		} else {
 			fmt.Fprintf(ctx.stdout, "no cheaper patch size comes within margin %g of the best\n", ch.Margin)
 		}

@@ -22,6 +22,7 @@ import (
 	"tilebench/patch/frameio"
 	"tilebench/vision/report"
 	"tilebench/vision/stats"
+	"tilebench/vision/stats/breakpoint"
 	"tilebench/vision/study"
 )
 
@@ -401,7 +402,7 @@ func breaks(p *Plan, s *Summary) []BreakStats {
 	keys, levels := series(p, s)
 	var out []BreakStats
 	for _, k := range keys {
-		var ls []stats.DriftLevel
+		var ls []breakpoint.DriftLevel
 		for _, ci := range levels[k] {
 			c := s.Cells[ci]
 			sev := c.Severity
@@ -411,9 +412,9 @@ func breaks(p *Plan, s *Summary) []BreakStats {
 			if k.axis == "brightness" {
 				sev = math.Abs(sev)
 			}
-			ls = append(ls, stats.DriftLevel{Severity: sev, Drift: stats.Estimate{Value: c.Drift.Value, Lo: c.Drift.Lo, Hi: c.Drift.Hi}})
+			ls = append(ls, breakpoint.DriftLevel{Severity: sev, Drift: stats.Estimate{Value: c.Drift.Value, Lo: c.Drift.Lo, Hi: c.Drift.Hi}})
 		}
-		br, err := stats.DriftBreak(ls, s.Threshold)
+		br, err := breakpoint.DriftBreak(ls, s.Threshold)
 		if err != nil {
 			continue
 		}
@@ -570,7 +571,7 @@ func reportData(p *Plan, s *Summary, recs []Record, src frameio.Random, command 
 		BreakRule: "Breaking point: the first measured severity whose whole drift interval lies above " + ff(s.Threshold) +
 			" (" + driftUnit(s) + "). Not reached: the interval reached down to it at every severity measured."}
 	for _, b := range s.Breaks {
-		br := stats.Break{Reached: b.Reached, Severity: math.NaN(), Threshold: b.Threshold, Max: b.Max}
+		br := breakpoint.Break{Reached: b.Reached, Severity: math.NaN(), Threshold: b.Threshold, Max: b.Max}
 		if b.Reached {
 			br.Severity = b.Severity
 		}

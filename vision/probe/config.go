@@ -19,7 +19,7 @@ import (
 	"tilebench/vision/nets"
 	"tilebench/vision/policies"
 	"tilebench/vision/remote"
-	"tilebench/vision/stats"
+	"tilebench/vision/stats/breakpoint"
 	"tilebench/vision/study"
 )
 
@@ -69,7 +69,7 @@ type Config struct {
 	// Confidence is the interval level. Default 0.95.
 	Confidence float64 `json:"confidence"`
 	// Threshold is the drift past which an axis counts as broken (see
-	// stats.DriftBreak). Default stats.DefaultDriftThreshold.
+	// breakpoint.DriftBreak). Default breakpoint.DefaultDriftThreshold.
 	Threshold float64 `json:"threshold"`
 	// Timeout is an external policy's step timeout ("5s"). Default the
 	// protocol's.
@@ -225,7 +225,7 @@ func NewPlan(cfg Config) (*Plan, error) {
 		return nil, fmt.Errorf("confidence %v: want a number between 0 and 1", cfg.Confidence)
 	}
 	if cfg.Threshold == 0 {
-		cfg.Threshold = stats.DefaultDriftThreshold
+		cfg.Threshold = breakpoint.DefaultDriftThreshold
 	}
 	if !(cfg.Threshold > 0) || math.IsInf(cfg.Threshold, 0) {
 		return nil, fmt.Errorf("threshold %v: want a positive number", cfg.Threshold)

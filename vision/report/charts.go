@@ -18,7 +18,7 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 	"gonum.org/v1/plot/vg/vgsvg"
 
-	"tilebench/vision/stats"
+	"tilebench/vision/stats/choose"
 )
 
 // The chart palette: our own, chosen for contrast on the page's paper
@@ -318,7 +318,7 @@ func curvesSVG(c Curves) (svg template.HTML, leg []legendItem, note string, err 
 		}
 		if th != 0 {
 			// The first point below the threshold: the series' breaking
-			// point under the rule of stats.BreakingPoint.
+			// point under the rule of breakpoint.BreakingPoint.
 			for _, q := range cs.line {
 				if q.Y < th {
 					breaks = append(breaks, q)
@@ -560,11 +560,11 @@ func xysOf(pts errPoints) plotter.XYs {
 
 // paretoFront returns the front of the chart's points.
 func paretoFront(pa *Pareto) []int {
-	pts := make([]stats.Point, len(pa.Points))
+	pts := make([]choose.Point, len(pa.Points))
 	for i, q := range pa.Points {
-		pts[i] = stats.Point{Cost: q.Cost, Score: q.Score.Value}
+		pts[i] = choose.Point{Cost: q.Cost, Score: q.Score.Value}
 	}
-	return stats.ParetoFront(pts)
+	return choose.ParetoFront(pts)
 }
 
 // num formats a value for people: three significant digits without an

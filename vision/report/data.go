@@ -15,6 +15,7 @@ import (
 
 	"tilebench/vision"
 	"tilebench/vision/stats"
+	"tilebench/vision/stats/breakpoint"
 )
 
 // Data is everything a report shows. Only Title is required; empty
@@ -113,7 +114,7 @@ type Recommendation struct {
 	// Choice names the recommended candidate, e.g. "patch 8"; empty when
 	// nothing fits (then Detail should say why).
 	Choice string
-	// Rule states the rule applied (stats.Rule, or your own wording).
+	// Rule states the rule applied (choose.Rule, or your own wording).
 	Rule string
 	// Detail is one or two sentences of context, e.g. "scores 96% of the
 	// best (patch 4) at 31% of its cost; budget 200 µs/step".
@@ -129,9 +130,9 @@ type Break struct {
 	// parenthesised part ("random occlusion ratio (patch 8)"), that part
 	// is shown as the context.
 	Context string
-	// Break is the result of stats.BreakingPoint (its FirstDip is shown
+	// Break is the result of breakpoint.BreakingPoint (its FirstDip is shown
 	// as a secondary figure).
-	Break stats.Break
+	Break breakpoint.Break
 	// Note says why an axis has no breaking point (Break is then zero).
 	Note string
 }
@@ -213,7 +214,7 @@ type Pareto struct {
 	// Budget, if non-zero, is drawn as a vertical dashed line.
 	Budget float64
 	// Points are the candidates. The front is computed by Write with
-	// stats.ParetoFront from Cost and Score.Value.
+	// choose.ParetoFront from Cost and Score.Value.
 	Points []ParetoPoint
 }
 

@@ -8,6 +8,8 @@ import (
 
 	"tilebench/patch"
 	"tilebench/vision/stats"
+	"tilebench/vision/stats/breakpoint"
+	"tilebench/vision/stats/choose"
 )
 
 // demoData is EXAMPLE DATA for the report tests only: an invented
@@ -50,15 +52,15 @@ func demoData() *Data {
 		heat.X = append(heat.X, fmt.Sprintf("%.1f", r))
 	}
 	ret := Curves{Title: "Retention against occlusion ratio", XLabel: "occlusion ratio", YLabel: "retention", Threshold: 0.5}
-	var cands []stats.Candidate
+	var cands []choose.Candidate
 	cell := 0
 	for _, p := range patches {
 		heat.Y = append(heat.Y, fmt.Sprintf("%d px", p))
 		row := make([]float64, len(ratios))
 		clean := scores(p, 0, cell)
-		cands = append(cands, stats.Candidate{Name: fmt.Sprintf("patch %d", p), Cost: mflop[p], Scores: clean})
+		cands = append(cands, choose.Candidate{Name: fmt.Sprintf("patch %d", p), Cost: mflop[p], Scores: clean})
 		se := Series{Name: fmt.Sprintf("patch %d", p)}
-		var levels []stats.Level
+		var levels []breakpoint.Level
 		for j, r := range ratios {
 			sc := clean
 			if j > 0 {
@@ -76,7 +78,7 @@ func demoData() *Data {
 				e, err := bs.Retention(sc, clean, stats.StatIQM)
 				if err == nil {
 					c.Retention = &e
-					levels = append(levels, stats.Level{Severity: r, Retention: e})
+					levels = append(levels, breakpoint.Level{Severity: r, Retention: e})
 					se.Points = append(se.Points, CurvePoint{X: r, Y: e.Value, Lo: e.Lo, Hi: e.Hi})
 				}
 			}
@@ -92,15 +94,15 @@ func demoData() *Data {
 		heat.Z = append(heat.Z, row)
 		ret.Series = append(ret.Series, se)
 		if p == 8 || p == 16 {
-			br, _ := stats.BreakingPoint(levels, 0)
+			br, _ := breakpoint.BreakingPoint(levels, 0)
 			d.Breaks = append(d.Breaks, Break{Axis: fmt.Sprintf("occlusion, patch %d", p), Break: br})
 		}
 		if p == 4 { // a strict-looking threshold nothing falls below, to show "not reached"
-			br, _ := stats.BreakingPoint(levels, 0.1)
+			br, _ := breakpoint.BreakingPoint(levels, 0.1)
 			d.Breaks = append(d.Breaks, Break{Axis: "occlusion, patch 4, threshold 0.1", Break: br})
 		}
 	}
-	ch, _ := stats.Recommender{Bootstrap: stats.Bootstrap{Resamples: 500}, Budget: 3}.Recommend(cands)
+	ch, _ := choose.Recommender{Bootstrap: stats.Bootstrap{Resamples: 500}, Budget: 3}.Recommend(cands)
 	pa := &Pareto{XLabel: "MFLOP per step", YLabel: "IQM return (clean)", LogX: true, Budget: 3}
 	for i, c := range cands {
 		d.Costs = append(d.Costs, Cost{Name: c.Name, Patch: patches[i], Tokens: (64 / patches[i]) * (64 / patches[i]),
@@ -109,7 +111,7 @@ func demoData() *Data {
 		pa.Points = append(pa.Points, ParetoPoint{Label: fmt.Sprint(patches[i]), Cost: c.Cost, Score: ch.Score[i], Pick: i == ch.Pick})
 	}
 	d.Pareto = pa
-	d.Recommendation = &Recommendation{Choice: cands[ch.Pick].Name, Rule: stats.Rule,
+	d.Recommendation = &Recommendation{Choice: cands[ch.Pick].Name, Rule: choose.Rule,
 		Detail: fmt.Sprintf("Not significantly below the best (%s) at %.0f%% of its compute; budget 3 MFLOP per step.",
 			cands[ch.Best].Name, 100*cands[ch.Pick].Cost/cands[ch.Best].Cost)}
 	d.Findings = []KV{{"Clean IQM, recommended", ch.Score[ch.Pick].String()}}

@@ -9,6 +9,7 @@ import (
 	"unicode/utf8"
 
 	"tilebench/vision/stats"
+	"tilebench/vision/stats/breakpoint"
 )
 
 // FuzzStrings puts arbitrary user strings, between sentinels, into a
@@ -29,8 +30,8 @@ func FuzzStrings(f *testing.F) {
 		sum := stats.Summary{N: 1, Mean: stats.Estimate{Value: 1}, Median: stats.Estimate{Value: 1}, IQM: stats.Estimate{Value: 1, Lo: 1, Hi: 1}}
 		d := &Data{Title: title, Kind: id, Run: Run{Command: "run " + title, Params: []KV{{id, title}}},
 			Findings: []KV{{id, title}}, Notes: []string{id},
-			Breaks: []Break{{Axis: title, Context: id, Break: stats.Break{Reached: true, Severity: 0.5, Threshold: 0.5, Max: 1}},
-				{Axis: id + " (patch 8)", Break: stats.Break{Severity: math.NaN(), Threshold: 0.5, Max: 1}}},
+			Breaks: []Break{{Axis: title, Context: id, Break: breakpoint.Break{Reached: true, Severity: 0.5, Threshold: 0.5, Max: 1}},
+				{Axis: id + " (patch 8)", Break: breakpoint.Break{Severity: math.NaN(), Threshold: 0.5, Max: 1}}},
 			Cells: []Cell{{ID: id, Axis: title, Note: title, Summary: sum}}}
 		page, err := HTML(d)
 		if err != nil {

@@ -7,7 +7,7 @@ import (
 	"strings"
 	"testing"
 
-	"tilebench/vision/stats"
+	"tilebench/vision/stats/breakpoint"
 )
 
 // wideCurves is a retention chart whose one interval reaches 125 (its
@@ -131,12 +131,12 @@ func TestCurveClipping(t *testing.T) {
 func breaksData() *Data {
 	d := demoData()
 	d.Breaks = []Break{
-		{Axis: "scrambled fraction (patch 8)", Break: stats.Break{Severity: math.NaN(), Threshold: 0.5, Max: 1}},
-		{Axis: "random occlusion ratio (patch 4, scramble full)", Break: stats.Break{Reached: true, Severity: 0.5, Threshold: 0.5, Max: 0.75}},
-		{Axis: "block occlusion ratio", Context: "patch 16", Break: stats.Break{Reached: true, Severity: 0.2, Threshold: 0.5, Max: 0.4}},
-		{Axis: "random occlusion ratio (patch 8)", Break: stats.Break{Reached: true, Severity: 0.75, Threshold: 0.3, Max: 0.75}},
+		{Axis: "scrambled fraction (patch 8)", Break: breakpoint.Break{Severity: math.NaN(), Threshold: 0.5, Max: 1}},
+		{Axis: "random occlusion ratio (patch 4, scramble full)", Break: breakpoint.Break{Reached: true, Severity: 0.5, Threshold: 0.5, Max: 0.75}},
+		{Axis: "block occlusion ratio", Context: "patch 16", Break: breakpoint.Break{Reached: true, Severity: 0.2, Threshold: 0.5, Max: 0.4}},
+		{Axis: "random occlusion ratio (patch 8)", Break: breakpoint.Break{Reached: true, Severity: 0.75, Threshold: 0.3, Max: 0.75}},
 		// Broken at severity 0: the occlusion in its context alone did it.
-		{Axis: "scrambled fraction (patch 8, occlude random:0.5)", Break: stats.Break{Reached: true, Severity: 0, Threshold: 0.5, Max: 1}},
+		{Axis: "scrambled fraction (patch 8, occlude random:0.5)", Break: breakpoint.Break{Reached: true, Severity: 0, Threshold: 0.5, Max: 1}},
 	}
 	d.Findings = []KV{{"f1", "v1"}, {"f2", "v2"}, {"f3", "v3"}, {"f4", "v4"}, {"f5", "v5"}}
 	return d

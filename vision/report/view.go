@@ -18,6 +18,7 @@ import (
 	"gonum.org/v1/plot/palette/moreland"
 
 	"tilebench/vision/stats"
+	"tilebench/vision/stats/breakpoint"
 )
 
 // view is Data turned into display strings; both the HTML and the Markdown
@@ -122,7 +123,7 @@ func (v *view) buildBreaks(bs []Break) {
 	})
 	thOf := func(b Break) float64 {
 		if b.Break.Threshold == 0 {
-			return stats.DefaultBreakThreshold
+			return breakpoint.DefaultBreakThreshold
 		}
 		return b.Break.Threshold
 	}

@@ -101,7 +101,7 @@ func (b Bootstrap) WholeSequenceMean(s Sequences) (Estimate, error) {
 }
 
 func (b Bootstrap) wholeReplicates(s Sequences) ([]float64, Estimate, error) {
-	B, lv, err := b.params()
+	B, lv, err := b.Params()
 	if err != nil {
 		return nil, Estimate{}, err
 	}
@@ -157,7 +157,7 @@ func (b Bootstrap) MovingBlockMean(x []float64, l int) (Estimate, error) {
 }
 
 func (b Bootstrap) blockReplicates(x []float64, l int) ([]float64, Estimate, error) {
-	B, lv, err := b.params()
+	B, lv, err := b.Params()
 	if err != nil {
 		return nil, Estimate{}, err
 	}

@@ -147,22 +147,3 @@ func TestSequenceMeanMethod(t *testing.T) {
 		t.Error("NaN: no error")
 	}
 }
-
-func TestDriftBreak(t *testing.T) {
-	est := func(lo, hi float64) Estimate { return Estimate{Value: (lo + hi) / 2, Lo: lo, Hi: hi} }
-	levels := []DriftLevel{{0.6, est(0.3, 0.5)}, {0, est(0, 0)}, {0.2, est(0.05, 0.15)}, {0.4, est(0.09, 0.3)}}
-	br, err := DriftBreak(levels, 0.1)
-	if err != nil || !br.Reached || br.Severity != 0.6 || br.Max != 0.6 || br.Min != 0 {
-		t.Errorf("break %+v %v, want at 0.6 (0.4's interval reaches below 0.1)", br, err)
-	}
-	br, _ = DriftBreak(levels[:3:3][1:], 0.1)
-	if br.Reached {
-		t.Errorf("break %+v, want not reached", br)
-	}
-	if _, err := DriftBreak(levels, 0); err != nil {
-		t.Errorf("threshold 0 (the default): %v", err)
-	}
-	if _, err := DriftBreak(nil, 0.1); err == nil {
-		t.Error("no levels: no error")
-	}
-}

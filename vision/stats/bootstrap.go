@@ -99,7 +99,10 @@ type Bootstrap struct {
 // DefaultResamples is the resample count used when Bootstrap.Resamples is 0.
 const DefaultResamples = 2000
 
-func (b Bootstrap) params() (int, float64, error) {
+// Params returns the resample count and the confidence level with the
+// defaults applied (DefaultResamples, 0.95), or a one-line error naming
+// the value that is out of range.
+func (b Bootstrap) Params() (resamples int, level float64, err error) {
 	n, lv := b.Resamples, b.Level
 	if n == 0 {
 		n = DefaultResamples
@@ -144,7 +147,7 @@ func resample(r *rand.Rand, s Strata, buf []float64) {
 // "linear") of the resampled statistics. With one stratum this is the
 // plain percentile bootstrap of scipy.stats.bootstrap(method="percentile").
 func (b Bootstrap) CI(s Strata, st Statistic) (Estimate, error) {
-	B, lv, err := b.params()
+	B, lv, err := b.Params()
 	if err != nil {
 		return Estimate{}, err
 	}
@@ -182,7 +185,7 @@ type Summary struct {
 // Summarize computes a Summary of s. One resample stream serves the three
 // intervals, so Summarize costs about as much as one CI.
 func (b Bootstrap) Summarize(s Strata) (Summary, error) {
-	B, lv, err := b.params()
+	B, lv, err := b.Params()
 	if err != nil {
 		return Summary{}, err
 	}
@@ -250,7 +253,7 @@ func (b Bootstrap) Diff(x, y Strata, st Statistic) (Estimate, error) {
 // of the full data.
 func (b Bootstrap) twoSample(what, xn, yn string, x, y Strata, st Statistic,
 	f func(sx, sy float64) float64, checkY func(float64) error) (Estimate, error) {
-	B, lv, err := b.params()
+	B, lv, err := b.Params()
 	if err != nil {
 		return Estimate{}, err
 	}
@@ -301,7 +304,7 @@ func ProbImprovement(x, y Strata) (float64, error) {
 // ProbImprovementCI is ProbImprovement with its stratified percentile
 // bootstrap interval (both samples resampled within each stratum).
 func (b Bootstrap) ProbImprovementCI(x, y Strata) (Estimate, error) {
-	B, lv, err := b.params()
+	B, lv, err := b.Params()
 	if err != nil {
 		return Estimate{}, err
 	}

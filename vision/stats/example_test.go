@@ -24,46 +24,6 @@ func ExampleBootstrap_Summarize() {
 	// Output: n=12 IQM=16 resamples=2000 lo<iqm<hi: true
 }
 
-func ExampleParetoFront() {
-	pts := []stats.Point{{Cost: 1, Score: 5}, {Cost: 2, Score: 4}, {Cost: 3, Score: 7}, {Cost: 4, Score: 7}, {Cost: 5, Score: 9}}
-	fmt.Println(stats.ParetoFront(pts))
-	// Output: [0 2 4]
-}
-
-func ExampleRecommender() {
-	cands := []stats.Candidate{
-		// Normalised scores (0 the floor policy, 1 the reference) on the
-		// same eight seeds: seed i is index i in every candidate.
-		{Name: "patch 16", Cost: 0.4, Scores: stats.Strata{{0.41, 0.35, 0.5, 0.42, 0.38, 0.47, 0.4, 0.44}}},
-		{Name: "patch 8", Cost: 1.5, Scores: stats.Strata{{0.99, 0.9, 1.08, 0.99, 0.95, 1.03, 0.97, 1.01}}},
-		{Name: "patch 4", Cost: 6.0, Scores: stats.Strata{{1, 0.9, 1.1, 1, 0.95, 1.05, 0.98, 1.02}}},
-	}
-	// Margin 0 means stats.DefaultMargin, 0.05 of the normalised scale.
-	ch, err := stats.Recommender{Bootstrap: stats.Bootstrap{Seed: 7}}.Recommend(cands)
-	if err != nil {
-		fmt.Println(err)
-		return
-	}
-	fmt.Println("best:", cands[ch.Best].Name, "pick:", cands[ch.Pick].Name)
-	// Output: best: patch 4 pick: patch 8
-}
-
-func ExampleBreakingPoint() {
-	levels := []stats.Level{
-		{Severity: 0.1, Retention: stats.Estimate{Value: 0.95, Lo: 0.88, Hi: 1.01}},
-		{Severity: 0.3, Retention: stats.Estimate{Value: 0.71, Lo: 0.6, Hi: 0.8}},
-		{Severity: 0.5, Retention: stats.Estimate{Value: 0.42, Lo: 0.3, Hi: 0.55}},
-		{Severity: 0.7, Retention: stats.Estimate{Value: 0.18, Lo: 0.1, Hi: 0.27}},
-	}
-	b, _ := stats.BreakingPoint(levels, 0) // default threshold 0.5
-	fmt.Println(b, "first dip", b.DipString())
-	b, _ = stats.BreakingPoint(levels, 0.1)
-	fmt.Println(b)
-	// Output:
-	// 0.7 first dip 0.5
-	// not reached (≤ 0.7)
-}
-
 func ExampleBootstrap_Retention() {
 	clean := stats.Strata{{100, 104, 98, 101, 99, 103, 97, 102}}
 	stressed := stats.Strata{{52, 49, 55, 47, 50, 51, 53, 48}}

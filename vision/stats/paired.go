@@ -27,7 +27,11 @@ import (
 // or seed blocks; a single condition is Strata{x}.
 type Arms []Strata
 
-func (a Arms) check(what string) error {
+// Check returns an error, prefixed by what, unless a holds at least one
+// arm, every arm has at least one stratum, no empty stratum and only
+// finite scores, and all arms are paired: the same number of strata, and
+// of seeds in each.
+func (a Arms) Check(what string) error {
 	if len(a) == 0 {
 		return fmt.Errorf("%s: no arms", what)
 	}
@@ -78,14 +82,14 @@ type Replicates struct {
 // estimate. With fewer than MinPercentileN seeds in the smallest stratum
 // it also computes the jackknife for BCa.
 func (b Bootstrap) paired(what string, arms Arms, st Statistic, f func(s []float64) float64) (*Replicates, int, float64, error) {
-	B, lv, err := b.params()
+	B, lv, err := b.Params()
 	if err != nil {
 		return nil, 0, 0, err
 	}
 	if err := st.valid(); err != nil {
 		return nil, 0, 0, err
 	}
-	if err := arms.check(what); err != nil {
+	if err := arms.Check(what); err != nil {
 		return nil, 0, 0, err
 	}
 	sv := make([]float64, len(arms))
@@ -301,7 +305,7 @@ func (b Bootstrap) PairedDiff(x, y Strata, st Statistic) (Estimate, error) {
 // bootstrap interval. stat(y) must be positive (else ErrNotPositive); a
 // resample whose stat(y) is not positive gives +Inf.
 func (b Bootstrap) PairedRatio(x, y Strata, st Statistic) (Estimate, error) {
-	if err := (Arms{x, y}).check("paired ratio"); err != nil {
+	if err := (Arms{x, y}).Check("paired ratio"); err != nil {
 		return Estimate{}, err
 	}
 	if d := st.Of(y.Pool()); !(d > 0) {
@@ -339,7 +343,7 @@ func (b Bootstrap) Normalized(x, ref, floor Strata, st Statistic) (Estimate, err
 	if floor != nil {
 		arms = append(arms, floor)
 	}
-	if err := arms.check("normalised score"); err != nil {
+	if err := arms.Check("normalised score"); err != nil {
 		return Estimate{}, err
 	}
 	fl := 0.0
@@ -373,7 +377,7 @@ func (b Bootstrap) NormalizedDiff(xa, refa, xb, refb, floor Strata, st Statistic
 	if floor != nil {
 		arms = append(arms, floor)
 	}
-	if err := arms.check("normalised difference"); err != nil {
+	if err := arms.Check("normalised difference"); err != nil {
 		return Estimate{}, err
 	}
 	fl := 0.0

@@ -1,8 +1,10 @@
 // Package stats holds the statistics of a study: point summaries (mean,
 // median, interquartile mean, standard deviation), confidence intervals by
-// stratified percentile bootstrap, retention against a clean score, the
-// breaking point of a severity axis, probability of improvement, the
-// score-versus-cost Pareto front and the patch-size recommendation rule.
+// stratified percentile bootstrap, paired over shared seeds, retention and
+// normalised scores against a clean score, probability of improvement,
+// the signed-rank test, Wilson rates and CVaR. The breaking point of a
+// severity axis is in package breakpoint, the patch-size recommendation rule
+// and the Pareto front in package choose.
 //
 // Scores come as Strata: one slice of episode scores per stratum (a seed
 // block, a task, a stress condition). The bootstrap resamples within each

@@ -152,7 +152,7 @@ type StatsDef struct {
 	Threshold float64 `toml:"threshold" json:"threshold"`
 	// Margin is the non-inferiority margin of a sizes study's
 	// recommendation, on the normalised scale (0 the floor policy, 1 the
-	// reference). 0 means stats.DefaultMargin, 0.05.
+	// reference). 0 means choose.DefaultMargin, 0.05.
 	Margin float64 `toml:"margin" json:"margin,omitempty"`
 }
 

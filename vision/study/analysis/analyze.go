@@ -21,6 +21,8 @@ import (
 	"tilebench/patch"
 	"tilebench/vision/report"
 	"tilebench/vision/stats"
+	"tilebench/vision/stats/breakpoint"
+	"tilebench/vision/stats/choose"
 	"tilebench/vision/study"
 )
 
@@ -112,7 +114,7 @@ type Analysis struct {
 	Curves []AxisCurve
 	// Costs and Choice are set for sizes studies with a cost table.
 	Costs  []Cost
-	Choice *stats.Choice
+	Choice *choose.Choice
 	// Cands names the candidates of Choice (one per patch size).
 	Cands []int
 	// Conds are the per-condition non-inferiority tests of a sizes study.
@@ -150,7 +152,7 @@ type CondTest struct {
 	// IQMs in this condition; Versus their comparisons with Best.
 	Best   int
 	Score  []stats.Estimate
-	Versus []stats.Comparison
+	Versus []choose.Comparison
 	// Note says why the condition could not be tested.
 	Note string
 }
@@ -166,7 +168,7 @@ type AxisCurve struct {
 	// Cells are indices into Analysis.Cells, sorted by severity.
 	Cells      []int
 	Severities []float64
-	Break      *stats.Break
+	Break      *breakpoint.Break
 	// Pure is true when nothing else is applied (the context is the
 	// clean cell on the study's variation).
 	Pure bool
@@ -490,20 +492,20 @@ func (a *Analysis) curves() {
 			}
 			cv := AxisCurve{Axis: axisName(ax, g.kind), Kind: g.kind, Context: ctxLabel, Patch: ctxCell.Patch, Policy: ctxCell.Policy, Cells: g.cells,
 				Pure: ctxCell.Clean() && ctxCell.Variation == a.Plan.Def.Variation}
-			var levels []stats.Level
+			var levels []breakpoint.Level
 			stressed := 0
 			for _, ci := range g.cells {
 				_, s, _, _ := ax.sev(a.Plan.Cells[ci])
 				cv.Severities = append(cv.Severities, s)
 				if r := a.Cells[ci].Retention; r != nil {
-					levels = append(levels, stats.Level{Severity: s, Retention: *r})
+					levels = append(levels, breakpoint.Level{Severity: s, Retention: *r})
 					if ci != g.ctx {
 						stressed++
 					}
 				}
 			}
 			if stressed > 0 {
-				if br, err := stats.BreakingPoint(levels, thr); err == nil {
+				if br, err := breakpoint.BreakingPoint(levels, thr); err == nil {
 					cv.Break = &br
 				}
 			} else {
@@ -565,9 +567,9 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 	if d.Kind == "sizes" {
 		m := d.Stats.Margin
 		if m == 0 {
-			m = stats.DefaultMargin
+			m = choose.DefaultMargin
 		}
-		rd.Run.Params = append(rd.Run.Params, report.KV{Key: "non-inferiority margin", Value: fmtG(m) + " on the normalised scale, one-sided α " + fmtG(stats.DefaultAlpha) + ", Holm over the comparisons"})
+		rd.Run.Params = append(rd.Run.Params, report.KV{Key: "non-inferiority margin", Value: fmtG(m) + " on the normalised scale, one-sided α " + fmtG(choose.DefaultAlpha) + ", Holm over the comparisons"})
 	}
 	if a.StepsPerSecond > 0 {
 		rd.Run.Params = append(rd.Run.Params, report.KV{Key: "speed", Value: fmt.Sprintf("%.0f steps/s per worker (median, timing.jsonl)", a.StepsPerSecond)})
@@ -616,7 +618,7 @@ func (a *Analysis) ReportData(dir string) *report.Data {
 		if cv.Break == nil && cv.Pure {
 			// An undefined breaking point is a row that says why.
 			rd.Breaks = append(rd.Breaks, report.Break{Axis: cv.Axis + " (" + cv.Context + ")", Note: cv.Note,
-				Break: stats.Break{Severity: math.NaN(), FirstDip: math.NaN(), Threshold: d.Stats.Threshold}})
+				Break: breakpoint.Break{Severity: math.NaN(), FirstDip: math.NaN(), Threshold: d.Stats.Threshold}})
 		}
 	}
 	a.costSection(rd)
@@ -817,10 +819,10 @@ func (a *Analysis) costSection(rd *report.Data) {
 		rd.Pareto = par
 	}
 	if a.Choice == nil && a.RecNote != "" {
-		rd.Recommendation = &report.Recommendation{Rule: stats.Rule, Detail: a.RecNote + "."}
+		rd.Recommendation = &report.Recommendation{Rule: choose.Rule, Detail: a.RecNote + "."}
 	}
 	if a.Choice != nil {
-		rec := &report.Recommendation{Rule: stats.Rule}
+		rec := &report.Recommendation{Rule: choose.Rule}
 		ch := a.Choice
 		switch {
 		case pick < 0:
@@ -837,7 +839,7 @@ func (a *Analysis) costSection(rd *report.Data) {
 				detail += fmt.Sprintf(" Patch %d is shown non-inferior at lower cost: best − it = %s, below the margin %s (Holm-adjusted p %s).", a.Cands[pick], v.Diff.String(), fmtG(ch.Margin), fmtP(v.PAdj))
 			} else if ch.Cheaper {
 				if ch.More > 0 {
-					detail += fmt.Sprintf(" Not enough evidence for a cheaper size: run %d more episodes per condition (%d in all per cell; power %.0f%% estimate from the observed spread).", max(ch.More-d.Episodes, 1), ch.More, 100*stats.DefaultPower)
+					detail += fmt.Sprintf(" Not enough evidence for a cheaper size: run %d more episodes per condition (%d in all per cell; power %.0f%% estimate from the observed spread).", max(ch.More-d.Episodes, 1), ch.More, 100*choose.DefaultPower)
 				} else {
 					detail += " No cheaper size comes within the margin " + fmtG(ch.Margin) + ": its observed difference is at or past it, so more episodes are not expected to show it non-inferior."
 				}

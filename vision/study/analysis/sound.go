@@ -9,6 +9,7 @@ import (
 	"tilebench/internal/seeds"
 	"tilebench/vision/report"
 	"tilebench/vision/stats"
+	"tilebench/vision/stats/choose"
 	"tilebench/vision/study"
 )
 
@@ -209,10 +210,10 @@ func (a *Analysis) recommend() error {
 	a.Scale = scale
 	norm := func(v float64) float64 { return (v - fl) / (ref - fl) }
 	// Per condition, the seeds every patch size recorded.
-	var cands []stats.Candidate
+	var cands []choose.Candidate
 	for _, p := range ps {
 		co := cost[p]
-		c := stats.Candidate{Name: fmt.Sprintf("patch %d", p), Cost: co.MFLOP}
+		c := choose.Candidate{Name: fmt.Sprintf("patch %d", p), Cost: co.MFLOP}
 		if d.Budget.Microseconds > 0 {
 			c.Cost = co.LatencyUS
 		}
@@ -247,7 +248,7 @@ func (a *Analysis) recommend() error {
 		a.RecNote = "no recommendation: no condition has 2 seeds recorded by every patch size"
 		return nil
 	}
-	r := stats.Recommender{Bootstrap: stats.Bootstrap{Resamples: d.Stats.Resamples, Level: d.Stats.Confidence,
+	r := choose.Recommender{Bootstrap: stats.Bootstrap{Resamples: d.Stats.Resamples, Level: d.Stats.Confidence,
 		Seed: seeds.DeriveSeed(d.Seed, seeds.StreamKey("recommend"))}, Margin: d.Stats.Margin}
 	if d.Budget.Microseconds > 0 {
 		r.Budget = d.Budget.Microseconds
@@ -261,7 +262,7 @@ func (a *Analysis) recommend() error {
 	a.Choice = &ch
 	a.Cands = ps
 	// Per condition: the same test on that condition's seeds alone.
-	ni := stats.NonInferiority{Margin: d.Stats.Margin}
+	ni := choose.NonInferiority{Margin: d.Stats.Margin}
 	for k, lab := range condLabels {
 		ct := CondTest{Label: lab, Best: -1}
 		var arms stats.Arms
@@ -274,7 +275,7 @@ func (a *Analysis) recommend() error {
 			pos = append(pos, j)
 		}
 		ct.Score = make([]stats.Estimate, len(cands))
-		ct.Versus = make([]stats.Comparison, len(cands))
+		ct.Versus = make([]choose.Comparison, len(cands))
 		best := -1
 		for j, c := range cands {
 			bs := stats.Bootstrap{Resamples: d.Stats.Resamples, Level: d.Stats.Confidence,
@@ -447,16 +448,16 @@ func (a *Analysis) soundTables(rd *report.Data) {
 	}
 	margin := d.Stats.Margin
 	if margin == 0 {
-		margin = stats.DefaultMargin
+		margin = choose.DefaultMargin
 	}
 	et := report.Table{ID: "evidence", Title: "Evidence for the recommendation", Nav: "Evidence",
 		Caption: fmt.Sprintf("Non-inferiority (Schuirmann 1987): a patch size counts as good as the best when the upper bound of (normalised IQM of the best − its normalised IQM) lies below the margin δ = %s, "+
 			"each comparison one-sided at the Holm-adjusted level (Holm 1979; family-wise α = %s), by the paired bootstrap over the seeds every size played (BCa below %d seeds). "+
 			"The pooled rows decide the recommendation; the rows per condition show where a size falls short. "+
 			"Episodes needed: per condition, for %.0f%% power by the normal approximation, taking the observed difference and spread as true.%s",
-			fmtG(margin), fmtG(stats.DefaultAlpha), stats.MinPercentileN, 100*stats.DefaultPower, scaleSentence(a.Scale)),
+			fmtG(margin), fmtG(choose.DefaultAlpha), stats.MinPercentileN, 100*choose.DefaultPower, scaleSentence(a.Scale)),
 		Columns: []string{"condition", "patch", "normalised IQM [CI]", "best − patch [CI]", "margin", "Holm-adjusted p", "verdict", "episodes needed"}}
-	verdict := func(c stats.Comparison, isBest bool) (string, string) {
+	verdict := func(c choose.Comparison, isBest bool) (string, string) {
 		switch {
 		case isBest:
 			return "best", "—"

@@ -1,4 +1,4 @@
-package stats
+package choose
 
 import (
 	"cmp"
@@ -6,7 +6,10 @@ import (
 	"math"
 	"slices"
 
+	"gonum.org/v1/gonum/stat/distuv"
+
 	"tilebench/internal/seeds"
+	"tilebench/vision/stats"
 )
 
 // DefaultMargin is the non-inferiority margin on the normalised scale
@@ -32,7 +35,7 @@ const DefaultPower = 0.8
 // NonInferiority tests, for each candidate c against the best b, the
 // hypothesis H0: θ(b) − θ(c) ≥ Margin against H1: θ(b) − θ(c) < Margin,
 // on normalised scores played on shared seeds, by the paired bootstrap
-// (BCa below MinPercentileN seeds per stratum) — the one-sided test of
+// (BCa below stats.MinPercentileN seeds per stratum) — the one-sided test of
 // Schuirmann 1987 ("A comparison of the two one-sided tests procedure and
 // the power approach for assessing the equivalence of average
 // bioavailability", J. Pharmacokinet. Biopharm. 15) — and corrects the
@@ -43,9 +46,9 @@ const DefaultPower = 0.8
 type NonInferiority struct {
 	// Bootstrap sets resamples and seed; its Level is not used (the
 	// bounds are one-sided at the Holm-adjusted level).
-	Bootstrap Bootstrap
-	// Statistic scores an arm; zero value StatIQM.
-	Statistic Statistic
+	Bootstrap stats.Bootstrap
+	// Statistic scores an arm; zero value stats.StatIQM.
+	Statistic stats.Statistic
 	// Margin is δ on the normalised scale; 0 means DefaultMargin. Must not
 	// be negative.
 	Margin float64
@@ -58,7 +61,7 @@ type Comparison struct {
 	// Diff is θ(best) − θ(candidate) with its interval: Hi is the
 	// one-sided upper bound at the candidate's Holm level, Lo the matching
 	// lower bound (a two-sided interval at 1 − 2·level).
-	Diff Estimate
+	Diff stats.Estimate
 	// P is the one-sided p-value of H0 (difference ≥ margin); PAdj the
 	// Holm-adjusted p-value.
 	P, PAdj float64
@@ -79,10 +82,10 @@ type Comparison struct {
 	Needed int
 }
 
-// Test compares every arm with arms[best]. arms must be paired (Arms);
+// Test compares every arm with arms[best]. arms must be paired (stats.Arms);
 // the result is indexed like arms, and arms[best] gets a zero-difference
 // NonInferior comparison.
-func (t NonInferiority) Test(arms Arms, best int) ([]Comparison, error) {
+func (t NonInferiority) Test(arms stats.Arms, best int) ([]Comparison, error) {
 	margin, alpha := t.Margin, t.Alpha
 	if margin == 0 {
 		margin = DefaultMargin
@@ -96,24 +99,24 @@ func (t NonInferiority) Test(arms Arms, best int) ([]Comparison, error) {
 	if !(alpha > 0 && alpha < 0.5) {
 		return nil, fmt.Errorf("non-inferiority: alpha %v is outside (0, 0.5)", t.Alpha)
 	}
-	if err := arms.check("non-inferiority"); err != nil {
+	if err := arms.Check("non-inferiority"); err != nil {
 		return nil, err
 	}
 	if best < 0 || best >= len(arms) {
 		return nil, fmt.Errorf("non-inferiority: best arm %d out of range", best)
 	}
 	out := make([]Comparison, len(arms))
-	reps := make([]*Replicates, len(arms))
+	reps := make([]*stats.Replicates, len(arms))
 	var order []int
 	for i := range arms {
 		if i == best {
-			out[i] = Comparison{NonInferior: true, P: 0, PAdj: 0, Diff: Estimate{Level: 1}}
+			out[i] = Comparison{NonInferior: true, P: 0, PAdj: 0, Diff: stats.Estimate{Level: 1}}
 			continue
 		}
 		bs := t.Bootstrap
 		bs.Seed = seeds.DeriveSeed(t.Bootstrap.Seed, uint64(i), seeds.StreamKey("noninferiority"))
 		bs.Level = 0.9 // unused by the bounds below; keeps params valid
-		rep, err := bs.PairedReplicates(Arms{arms[best], arms[i]}, t.Statistic, func(s []float64) float64 { return s[0] - s[1] })
+		rep, err := bs.PairedReplicates(stats.Arms{arms[best], arms[i]}, t.Statistic, func(s []float64) float64 { return s[0] - s[1] })
 		if err != nil {
 			return nil, err
 		}
@@ -135,7 +138,7 @@ func (t NonInferiority) Test(arms Arms, best int) ([]Comparison, error) {
 		run = math.Max(run, math.Min(1, float64(m-j)*c.P))
 		c.PAdj = run
 		rep := reps[i]
-		c.Diff = Estimate{Value: rep.Value, Lo: rep.Quantile(lv), Hi: rep.Quantile(1 - lv),
+		c.Diff = stats.Estimate{Value: rep.Value, Lo: rep.Quantile(lv), Hi: rep.Quantile(1 - lv),
 			Level: 1 - 2*lv, Resamples: len(rep.Theta), Method: rep.Method()}
 		if going && c.P <= lv {
 			c.NonInferior = true
@@ -158,7 +161,7 @@ func (t NonInferiority) Test(arms Arms, best int) ([]Comparison, error) {
 // pairSD is the standard deviation of the per-seed differences x − y,
 // pooled over strata (each stratum's differences taken about that
 // stratum's mean difference).
-func pairSD(x, y Strata) float64 {
+func pairSD(x, y stats.Strata) float64 {
 	var ss float64
 	df := 0
 	for k := range x {
@@ -166,7 +169,7 @@ func pairSD(x, y Strata) float64 {
 		for i := range d {
 			d[i] = x[k][i] - y[k][i]
 		}
-		mu := Mean(d)
+		mu := stats.Mean(d)
 		for _, v := range d {
 			ss += (v - mu) * (v - mu)
 		}
@@ -192,7 +195,7 @@ func neededSeeds(diff, sd, margin, alpha, power float64) int {
 	if !(sd > 0) {
 		return 0
 	}
-	z := stdNormal.Quantile(1-alpha) + stdNormal.Quantile(power)
+	z := distuv.UnitNormal.Quantile(1-alpha) + distuv.UnitNormal.Quantile(power)
 	n := math.Ceil(math.Pow(z*sd/gap, 2))
 	if n > 1e9 {
 		return 1e9
