@@ -25,6 +25,7 @@ type Episode struct {
 	obs      Observation
 	record   patch.FrameRecord
 	wantsPix bool
+	blind    bool
 }
 
 // StepHook, if set on a run, is called after the policy acted at every
@@ -55,13 +56,17 @@ func NewEpisode(g games.Game, tok *patch.Tokenizer, pipe *patch.Pipeline, pol Po
 	e.tokens = patch.NewTokenSet(pipe.Capacity(), gr.D())
 	e.action = make([]float64, sp.Action.Dim())
 	e.prev = make([]float64, sp.Action.Dim())
-	e.wantsPix = pol.Info().WantsFrame
+	info := pol.Info()
+	e.wantsPix = info.WantsFrame
+	e.blind = info.Blind && !info.WantsFrame
 	e.obs = Observation{Tokens: e.tokens, Grid: gr, PrevAction: e.prev}
 	return e, nil
 }
 
 // Run plays one episode: the game from gameSeed, the pipeline and the
-// policy from pipeSeed. hook may be nil.
+// policy from pipeSeed. hook may be nil. For a policy whose Info says
+// Blind, and no hook, frames are neither rendered nor tokenized: the
+// policy's observation then holds empty tokens.
 func (e *Episode) Run(gameSeed, pipeSeed uint64, hook StepHook) (Result, error) {
 	start := time.Now()
 	e.Game.Reset(gameSeed)
@@ -70,28 +75,20 @@ func (e *Episode) Run(gameSeed, pipeSeed uint64, hook StepHook) (Result, error) 
 	clear(e.prev)
 	res := Result{Seed: gameSeed}
 	maxSteps := e.Game.Spec().StepLimit
+	blind := e.blind && hook == nil
+	if blind {
+		e.tokens.N = 0
+	}
 	for t := 0; ; t++ {
-		e.Game.Render(e.frame)
-		if err := e.Pipe.TokenizeFrame(t, e.Tok, e.frame, e.clean); err != nil {
-			return res, fmt.Errorf("step %d: %w", t, err)
-		}
+		e.obs.Step, e.obs.Frame = t, nil
 		var rec *patch.FrameRecord
-		if hook != nil {
-			rec = &e.record
-		}
-		if err := e.Pipe.Apply(t, e.clean, e.tokens, rec); err != nil {
-			return res, fmt.Errorf("step %d: %w", t, err)
-		}
-		e.obs.Step = t
-		e.obs.Frame = nil
-		if e.wantsPix || hook != nil {
-			if err := e.Tok.Assemble(e.tokens, e.seen); err != nil {
+		if !blind {
+			if hook != nil {
+				rec = &e.record
+			}
+			if err := e.observe(t, hook != nil, rec); err != nil {
 				return res, fmt.Errorf("step %d: %w", t, err)
 			}
-			e.obs.Frame = e.seen
-		}
-		if !e.wantsPix {
-			e.obs.Frame = nil
 		}
 		if err := e.Policy.Act(&e.obs, e.action); err != nil {
 			return res, fmt.Errorf("step %d: policy: %w", t, err)
@@ -124,6 +121,28 @@ func (e *Episode) Run(gameSeed, pipeSeed uint64, hook StepHook) (Result, error) 
 		}
 	}
 	return res, nil
+}
+
+// observe renders step t's frame, tokenizes and transforms it into the
+// observation (rec, if not nil, gets the pipeline's record), and
+// reassembles the frame the policy sees when it or a hook wants it.
+func (e *Episode) observe(t int, hooked bool, rec *patch.FrameRecord) error {
+	e.Game.Render(e.frame)
+	if err := e.Pipe.TokenizeFrame(t, e.Tok, e.frame, e.clean); err != nil {
+		return err
+	}
+	if err := e.Pipe.Apply(t, e.clean, e.tokens, rec); err != nil {
+		return err
+	}
+	if e.wantsPix || hooked {
+		if err := e.Tok.Assemble(e.tokens, e.seen); err != nil {
+			return err
+		}
+	}
+	if e.wantsPix {
+		e.obs.Frame = e.seen
+	}
+	return nil
 }
 
 // EpisodeEnder is implemented by policies that want to hear how an

@@ -133,7 +133,11 @@ func TestEpisodeHookSeesEveryStep(t *testing.T) {
 }
 
 func BenchmarkEpisodePaddleExpert(b *testing.B) {
-	e := newPaddleEpisode(b, patch.Spec{Scramble: "full", Occlude: "random:0.25"}, nil)
+	// Sighted, so that the loop renders and transforms every frame.
+	e := newPaddleEpisode(b, patch.Spec{Scramble: "full", Occlude: "random:0.25"}, func(g games.Game) vision.Policy {
+		ex, _ := vision.NewExpertPolicy(g)
+		return sighted{ex}
+	})
 	b.ReportAllocs()
 	steps := 0
 	for i := 0; b.Loop(); i++ {

@@ -51,6 +51,11 @@ type Info struct {
 	ReadsState bool
 	// WantsFrame asks the episode loop to fill Observation.Frame.
 	WantsFrame bool
+	// Blind is true for policies that read neither Observation.Tokens
+	// nor Observation.Frame (the scripted experts, the idle and random
+	// baselines): the episode loop then does not render, tokenize or
+	// transform frames for them, unless a StepHook is given.
+	Blind bool
 }
 
 // Policy maps observations to actions. Implementations preallocate their
@@ -84,7 +89,7 @@ func NewExpertPolicy(g games.Game) (*ExpertPolicy, bool) {
 
 // Info reports the expert as reading game state.
 func (p *ExpertPolicy) Info() Info {
-	return Info{Family: "expert", Label: "scripted expert (reads game state, not pixels)", ReadsState: true}
+	return Info{Family: "expert", Label: "scripted expert (reads game state, not pixels)", ReadsState: true, Blind: true}
 }
 
 // Reset does nothing: the expert follows the game.

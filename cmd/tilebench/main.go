@@ -192,7 +192,14 @@ var errHelp = errors.New("help printed")
 
 func main() {
 	ctx := &runContext{stdin: os.Stdin, stdout: os.Stdout, stderr: os.Stderr}
-	os.Exit(run(ctx, os.Args[1:]))
+	stop, err := startProfile()
+	if err != nil {
+		fmt.Fprintf(ctx.stderr, "tilebench: %v\n", err)
+		os.Exit(1)
+	}
+	code := run(ctx, os.Args[1:])
+	stop()
+	os.Exit(code)
 }
 
 // run executes one command line and returns the exit status: 0 success,

@@ -52,7 +52,7 @@ type idlePolicy struct {
 }
 
 func (p *idlePolicy) Info() vision.Info {
-	return vision.Info{Family: KindBaseline, Label: "idle baseline (does nothing)", Invariant: true}
+	return vision.Info{Family: KindBaseline, Label: "idle baseline (does nothing)", Invariant: true, Blind: true}
 }
 
 func (p *idlePolicy) Reset(uint64) {}
@@ -72,7 +72,7 @@ type randomPolicy struct {
 }
 
 func (p *randomPolicy) Info() vision.Info {
-	return vision.Info{Family: KindBaseline, Label: "random baseline (uniform actions)"}
+	return vision.Info{Family: KindBaseline, Label: "random baseline (uniform actions)", Blind: true}
 }
 
 // Reset seeds the action stream from the episode's seed, so an episode
