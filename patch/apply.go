@@ -452,16 +452,15 @@ func (p *Pipeline) apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 	} else {
 		x.maskIdx = x.maskIdx[:0]
 	}
-	if len(x.maskIdx) > 0 && x.pr.fill != fillDrop {
+	// Black tokens are written as zeros where the scramble puts them,
+	// without a copy of the frame's tokens to clear them in.
+	black := len(x.maskIdx) > 0 && x.pr.fill == fillBlack
+	if len(x.maskIdx) > 0 && x.pr.fill != fillDrop && !black {
 		if !x.photo {
 			copy(x.work, base)
 			base = x.work
 		}
 		switch x.pr.fill {
-		case fillBlack:
-			for _, j := range x.maskIdx {
-				clear(base[j*D : (j+1)*D])
-			}
 		case fillMean:
 			var sum [3]float64
 			for i, v := range base {
@@ -504,7 +503,9 @@ func (p *Pipeline) apply(t int, src, dst *TokenSet, rec *FrameRecord) error {
 		out := dst.Data[k*D : (k+1)*D]
 		in := base[j*D : (j+1)*D]
 		o := x.orient[i]
-		if o == 0 {
+		if black && x.occ[j] {
+			clear(out) // turned or not, a black token is all zeros
+		} else if o == 0 {
 			copy(out, in)
 		} else {
 			m := x.omap[o][:npx]
