@@ -95,11 +95,11 @@ func TestShippedPoliciesMeetTargets(t *testing.T) {
 		}
 	}
 	// Short of the 90% paddle target: the set-attention student at patch 5
-	// reached 80.1% in 26 rounds and 78.0% in 36, and 76.3–85.8% with a
-	// larger student, more epochs, a lower learning rate or more episodes
-	// per round (docs/training.md). It is held where it stands so that it cannot
-	// slip further unnoticed.
-	shortfall := map[string]float64{"paddle-attention-p5": 0.8}
+	// reached 80.1% with the shared settings in 26 rounds and 78.0% in 36;
+	// the shipped file, a larger student fitted 8 epochs a round at half
+	// the learning rate, reaches 85.8% (docs/training.md). It is held where
+	// it stands so that it cannot slip further unnoticed.
+	shortfall := map[string]float64{"paddle-attention-p5": 0.85}
 	for name, frac := range shortfall {
 		t.Logf("%s: held at %.0f%% of the expert, short of the %.0f%% target", name, 100*frac, 100*targets[name])
 		targets[name] = frac
