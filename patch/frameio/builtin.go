@@ -21,8 +21,8 @@ var scenes = map[string]func(t, w, h int, pix []byte){
 	"checker": drawChecker,
 }
 
-// BuiltinNames lists the built-in scenes.
-func BuiltinNames() []string {
+// builtinNames lists the built-in scenes.
+func builtinNames() []string {
 	var n []string
 	for k := range scenes {
 		n = append(n, k)
@@ -36,7 +36,7 @@ func BuiltinNames() []string {
 func Builtin(name string, frames, width, height int) (Reader, error) {
 	draw, ok := scenes[name]
 	if !ok {
-		return nil, fmt.Errorf("built-in scene %q: want one of %s", name, strings.Join(BuiltinNames(), ", "))
+		return nil, fmt.Errorf("built-in scene %q: want one of %s", name, strings.Join(builtinNames(), ", "))
 	}
 	if frames <= 0 || frames > MaxFrames {
 		return nil, fmt.Errorf("built-in scene %s: %d frames, want 1..%d", name, frames, MaxFrames)
@@ -50,12 +50,12 @@ func Builtin(name string, frames, width, height int) (Reader, error) {
 	}, nil
 }
 
-// BuiltinFrame draws frame t of the named scene into dst (its bounds give
+// builtinFrame draws frame t of the named scene into dst (its bounds give
 // the size).
-func BuiltinFrame(name string, t int, dst *image.RGBA) error {
+func builtinFrame(name string, t int, dst *image.RGBA) error {
 	draw, ok := scenes[name]
 	if !ok {
-		return fmt.Errorf("built-in scene %q: want one of %s", name, strings.Join(BuiltinNames(), ", "))
+		return fmt.Errorf("built-in scene %q: want one of %s", name, strings.Join(builtinNames(), ", "))
 	}
 	b := dst.Bounds()
 	if b.Min != (image.Point{}) || dst.Stride != 4*b.Dx() {

@@ -59,9 +59,6 @@ func readGIF(name string, r io.ReadSeeker, maxPixels int) (*gifReader, error) {
 	return newGIFReader(name, g)
 }
 
-// NewGIFReader returns a reader of the composited frames of g.
-func NewGIFReader(name string, g *gif.GIF) (Reader, error) { return newGIFReader(name, g) }
-
 func newGIFReader(name string, g *gif.GIF) (*gifReader, error) {
 	if len(g.Image) == 0 {
 		return nil, fmt.Errorf("input %s: GIF holds no frames", name)

@@ -2,11 +2,11 @@ package frameio
 
 import "sort"
 
-// NaturalLess orders names the way people number frames: runs of digits
+// naturalLess orders names the way people number frames: runs of digits
 // compare by their numeric value, so "f2" sorts before "f10". Other bytes
 // compare as bytes. Names equal up to leading zeros ("f2", "f02") are
 // ordered by the plain byte comparison so that the order is total.
-func NaturalLess(a, b string) bool {
+func naturalLess(a, b string) bool {
 	i, j := 0, 0
 	for i < len(a) && j < len(b) {
 		ca, cb := a[i], b[j]
@@ -39,9 +39,9 @@ func NaturalLess(a, b string) bool {
 	return a < b
 }
 
-// SortNatural sorts names in place by NaturalLess.
+// SortNatural sorts names in place by naturalLess.
 func SortNatural(names []string) {
-	sort.SliceStable(names, func(i, j int) bool { return NaturalLess(names[i], names[j]) })
+	sort.SliceStable(names, func(i, j int) bool { return naturalLess(names[i], names[j]) })
 }
 
 func isDigit(c byte) bool { return c >= '0' && c <= '9' }

@@ -27,8 +27,8 @@ func TestNaturalSort(t *testing.T) {
 		{"img1-part2", "img1-part10", true},
 		{"", "a", true},
 	} {
-		if NaturalLess(c.a, c.b) != c.less {
-			t.Errorf("NaturalLess(%q, %q) = %v", c.a, c.b, !c.less)
+		if naturalLess(c.a, c.b) != c.less {
+			t.Errorf("naturalLess(%q, %q) = %v", c.a, c.b, !c.less)
 		}
 	}
 }

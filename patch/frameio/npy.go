@@ -14,9 +14,9 @@ import (
 
 // Limits on .npy input, checked before anything is allocated.
 const (
-	// MaxNPYHeader is the largest header (the Python dict literal) read.
+	// maxNPYHeader is the largest header (the Python dict literal) read.
 	// NumPy itself refuses headers over 10000 bytes by default.
-	MaxNPYHeader = 65535
+	maxNPYHeader = 65535
 	// MaxSide is the largest frame width or height accepted.
 	MaxSide = 16384
 	// MaxFramePixels is the default pixel budget: the largest frame area
@@ -47,16 +47,14 @@ type Shape struct {
 // FrameBytes is the size of one frame's data: Height·Width·Channels.
 func (s Shape) FrameBytes() int { return s.Height * s.Width * s.Channels }
 
-// ShapeOf reads an array shape as a frame sequence:
+// shapeOf reads an array shape as a frame sequence:
 //
 //	4 axes T×H×W×C with C 1 or 3
 //	3 axes H×W×C when the last axis is 1 or 3 (one frame),
 //	       T×H×W otherwise (grey frames)
 //
-// and refuses anything else, or sizes beyond MaxSide, MaxFramePixels and
+// and refuses anything else, or sizes beyond MaxSide, maxPixels and
 // MaxFrames, or empty axes.
-func ShapeOf(dims []int) (Shape, error) { return shapeOf(dims, MaxFramePixels) }
-
 func shapeOf(dims []int, maxPixels int) (Shape, error) {
 	s := Shape{Dims: dims}
 	switch {
@@ -134,13 +132,13 @@ func appendNPYHeader(dst []byte, descr string, dims []int) []byte {
 	return append(dst, '\n')
 }
 
-// ReadNPYHeader reads and checks the preamble of a .npy stream (NEP 1,
+// readNPYHeader reads and checks the preamble of a .npy stream (NEP 1,
 // versions 1.0, 2.0 and 3.0) and returns the array's shape and the number
 // of bytes the preamble took. The header must describe a C-order uint8
 // array ('|u1', or '<u1', '>u1', '=u1', 'u1', all the same for one byte);
 // it is parsed as the strict subset of Python literals that NumPy writes:
 // a dict with exactly the keys descr, fortran_order and shape.
-func ReadNPYHeader(r io.Reader) (dims []int, n int, err error) {
+func readNPYHeader(r io.Reader) (dims []int, n int, err error) {
 	descr, dims, n, err := ReadNPYArrayHeader(r)
 	if err != nil {
 		return nil, 0, err
@@ -153,10 +151,10 @@ func ReadNPYHeader(r io.Reader) (dims []int, n int, err error) {
 	return dims, n, nil
 }
 
-// ReadNPYArrayHeader is ReadNPYHeader for an array of any dtype: it
-// returns the type descr as the header spells it ('|b1', '<i8', ...),
-// unchecked, with the shape and the preamble's length. The array must
-// still be in C order.
+// ReadNPYArrayHeader reads and checks the preamble of a .npy stream of
+// any dtype (NEP 1, versions 1.0, 2.0 and 3.0): it returns the type
+// descr as the header spells it ('|b1', '<i8', ...), unchecked, with the
+// shape and the preamble's length. The array must be in C order.
 func ReadNPYArrayHeader(r io.Reader) (descr string, dims []int, n int, err error) {
 	var pre [8]byte
 	if _, err := io.ReadFull(r, pre[:]); err != nil {
@@ -180,8 +178,8 @@ func ReadNPYArrayHeader(r io.Reader) (descr string, dims []int, n int, err error
 			return "", nil, 0, fmt.Errorf(".npy header length: %w", noEOF(err))
 		}
 		h := binary.LittleEndian.Uint32(l[:])
-		if h > MaxNPYHeader {
-			return "", nil, 0, fmt.Errorf(".npy header of %d bytes is over the %d-byte limit", h, MaxNPYHeader)
+		if h > maxNPYHeader {
+			return "", nil, 0, fmt.Errorf(".npy header of %d bytes is over the %d-byte limit", h, maxNPYHeader)
 		}
 		hlen, n = int(h), 12
 	default:
@@ -400,7 +398,7 @@ func NewNPYReader(r io.Reader, name string) (*NPYReader, error) {
 }
 
 func newNPYReader(r io.Reader, name string, maxPixels int) (*NPYReader, error) {
-	dims, _, err := ReadNPYHeader(r)
+	dims, _, err := readNPYHeader(r)
 	if err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}

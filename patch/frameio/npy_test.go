@@ -81,7 +81,7 @@ func TestNPYHeaderNEP1(t *testing.T) {
 		if dict != want {
 			t.Fatalf("%v: dict %q, want %q", dims, dict, want)
 		}
-		got, n, err := ReadNPYHeader(bytes.NewReader(h))
+		got, n, err := readNPYHeader(bytes.NewReader(h))
 		if err != nil || n != len(h) || fmtDims(got) != fmtDims(dims) {
 			t.Fatalf("%v: read back %v %d %v", dims, got, n, err)
 		}
@@ -406,7 +406,7 @@ func BenchmarkNPYCopyBaseline(b *testing.B) {
 }
 
 // TestReadNPYArrayHeader: any dtype's header is read with its descr as
-// written; ReadNPYHeader still takes uint8 only.
+// written; readNPYHeader still takes uint8 only.
 func TestReadNPYArrayHeader(t *testing.T) {
 	for _, c := range []struct {
 		descr string
@@ -417,8 +417,8 @@ func TestReadNPYArrayHeader(t *testing.T) {
 		if err != nil || d != c.descr || fmtDims(dims) != fmtDims(c.dims) || n != len(h) {
 			t.Errorf("%s %v: read %q %v %d %v", c.descr, c.dims, d, dims, n, err)
 		}
-		if _, _, err := ReadNPYHeader(bytes.NewReader(h)); err == nil || !strings.Contains(err.Error(), "want uint8") {
-			t.Errorf("%s: ReadNPYHeader: %v", c.descr, err)
+		if _, _, err := readNPYHeader(bytes.NewReader(h)); err == nil || !strings.Contains(err.Error(), "want uint8") {
+			t.Errorf("%s: readNPYHeader: %v", c.descr, err)
 		}
 	}
 }

@@ -123,12 +123,12 @@ func openNPYAt(path string) (Random, error) {
 	if err != nil {
 		return nil, fmt.Errorf("input %s: %w", path, unwrapPath(err))
 	}
-	dims, n, err := ReadNPYHeader(f)
+	dims, n, err := readNPYHeader(f)
 	if err != nil {
 		f.Close()
 		return nil, fmt.Errorf("%s: %w", path, err)
 	}
-	s, err := ShapeOf(dims)
+	s, err := shapeOf(dims, MaxFramePixels)
 	if err == nil {
 		err = checkSize(s.Width, s.Height)
 	}

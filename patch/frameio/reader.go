@@ -65,10 +65,10 @@ type Options struct {
 //	DIR              a folder of .png/.jpg/.jpeg frames in natural order
 //	FILE.png|.jpg    a single frame
 //	FILE.gif         an animated GIF, frames composited
-//	FILE.npy         a uint8 array T×H×W×C, H×W×C or T×H×W (see ShapeOf)
+//	FILE.npy         a uint8 array T×H×W×C, H×W×C or T×H×W (grey)
 //	FILE.rgb|.raw    raw RGB24 frames of opt.Width×opt.Height
 //	-                raw RGB24 frames on opt.Stdin
-//	builtin:NAME     a built-in synthetic scene (see BuiltinNames)
+//	builtin:NAME     a built-in synthetic scene, "drift" or "checker"
 func Open(in string, opt Options) (Reader, error) {
 	switch {
 	case in == "":
@@ -271,9 +271,9 @@ func (l *fileList) Next() (*image.RGBA, error) {
 
 func (l *fileList) Close() error { return nil }
 
-// RawReader reads raw RGB24 frames (3 bytes a pixel, row-major, no
+// rawReader reads raw RGB24 frames (3 bytes a pixel, row-major, no
 // header), as a video decoder writes them when asked for raw 24-bit RGB.
-type RawReader struct {
+type rawReader struct {
 	name  string
 	r     io.ReadCloser
 	info  Info
@@ -282,27 +282,23 @@ type RawReader struct {
 	n     int
 }
 
-// NewRawReader reads width×height RGB24 frames from r until its end; a
+// newRawReader reads width×height RGB24 frames from r until its end; a
 // trailing partial frame is an error, and so is an empty stream.
-func NewRawReader(r io.ReadCloser, name string, width, height int) (*RawReader, error) {
-	return newRawReader(r, name, width, height, MaxFramePixels)
-}
-
-func newRawReader(r io.ReadCloser, name string, width, height, maxPixels int) (*RawReader, error) {
+func newRawReader(r io.ReadCloser, name string, width, height, maxPixels int) (*rawReader, error) {
 	if width == 0 && height == 0 {
 		return nil, fmt.Errorf("%s: raw RGB24 input needs the frame size (--size WxH)", name)
 	}
 	if err := checkBudget(width, height, maxPixels); err != nil {
 		return nil, fmt.Errorf("%s: %w", name, err)
 	}
-	return &RawReader{name: name, r: r, info: Info{Name: name, Width: width, Height: height, Channels: 3, Frames: -1}}, nil
+	return &rawReader{name: name, r: r, info: Info{Name: name, Width: width, Height: height, Channels: 3, Frames: -1}}, nil
 }
 
 // Info describes the stream; Frames is -1 (not known in advance).
-func (r *RawReader) Info() Info { return r.info }
+func (r *rawReader) Info() Info { return r.info }
 
 // Next reads the next frame.
-func (r *RawReader) Next() (*image.RGBA, error) {
+func (r *rawReader) Next() (*image.RGBA, error) {
 	w, h := r.info.Width, r.info.Height
 	if r.buf == nil {
 		r.buf = make([]byte, w*h*3)
@@ -325,7 +321,7 @@ func (r *RawReader) Next() (*image.RGBA, error) {
 }
 
 // Close closes the stream.
-func (r *RawReader) Close() error { return r.r.Close() }
+func (r *rawReader) Close() error { return r.r.Close() }
 
 // sizeError says a file's header gives another size than wanted.
 type sizeError struct{ w, h int }

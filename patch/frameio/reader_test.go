@@ -164,7 +164,7 @@ func TestRawReader(t *testing.T) {
 }
 
 func TestBuiltinDeterministic(t *testing.T) {
-	for _, name := range BuiltinNames() {
+	for _, name := range builtinNames() {
 		a, err := Builtin(name, 30, 64, 48)
 		if err != nil {
 			t.Fatal(err)
@@ -184,8 +184,8 @@ func TestBuiltinDeterministic(t *testing.T) {
 				moved++
 			}
 			one := image.NewRGBA(image.Rect(0, 0, 64, 48))
-			if err := BuiltinFrame(name, k, one); err != nil || !bytes.Equal(one.Pix, fa[k].Pix) {
-				t.Fatalf("%s: BuiltinFrame(%d) differs from the reader's frame", name, k)
+			if err := builtinFrame(name, k, one); err != nil || !bytes.Equal(one.Pix, fa[k].Pix) {
+				t.Fatalf("%s: builtinFrame(%d) differs from the reader's frame", name, k)
 			}
 		}
 		if moved < 25 {
@@ -197,12 +197,12 @@ func TestBuiltinDeterministic(t *testing.T) {
 	}
 	// Sub-image destinations are drawn the same.
 	full := image.NewRGBA(image.Rect(0, 0, 20, 10))
-	BuiltinFrame("drift", 5, full)
+	builtinFrame("drift", 5, full)
 	big := image.NewRGBA(image.Rect(0, 0, 30, 20))
 	sub := big.SubImage(image.Rect(3, 4, 23, 14)).(*image.RGBA)
-	BuiltinFrame("drift", 5, sub)
+	builtinFrame("drift", 5, sub)
 	if !bytes.Equal(cloneRGBA(sub).Pix, full.Pix) {
-		t.Fatal("BuiltinFrame into a sub-image differs")
+		t.Fatal("builtinFrame into a sub-image differs")
 	}
 }
 
