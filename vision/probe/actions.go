@@ -14,8 +14,8 @@ import (
 	"strings"
 )
 
-// MaxActionWidth is the widest recorded action accepted.
-const MaxActionWidth = 1024
+// maxActionWidth is the widest recorded action accepted.
+const maxActionWidth = 1024
 
 // Actions are the recorded actions of a recording, one row per frame.
 type Actions struct {
@@ -36,12 +36,12 @@ var (
 	shapeRE   = regexp.MustCompile(`'shape'\s*:\s*\(\s*([0-9]+)\s*(?:,\s*([0-9]+)\s*)?,?\s*\)`)
 )
 
-// ReadActions reads a .npy array (NEP 1) of recorded actions: shape (N,)
+// readActions reads a .npy array (NEP 1) of recorded actions: shape (N,)
 // or (N, W), C order, dtype float32/float64, or a signed or unsigned
 // integer of 1, 2, 4 or 8 bytes, little-endian. The header is matched by
 // hand (a few patterns over NumPy's dict), as frameio's .npy reader takes
 // uint8 frames only. Errors name the file.
-func ReadActions(path string) (*Actions, error) {
+func readActions(path string) (*Actions, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("actions %s: %w", path, unwrapPath(err))
@@ -119,8 +119,8 @@ func parseActions(r io.Reader) (*Actions, error) {
 	if s[2] != "" {
 		width, err2 = strconv.Atoi(s[2])
 	}
-	if err1 != nil || err2 != nil || rows < 1 || rows > maxActionRows || width < 1 || width > MaxActionWidth {
-		return nil, fmt.Errorf("shape (%s, %s): want 1..%d rows of 1..%d values", s[1], s[2], maxActionRows, MaxActionWidth)
+	if err1 != nil || err2 != nil || rows < 1 || rows > maxActionRows || width < 1 || width > maxActionWidth {
+		return nil, fmt.Errorf("shape (%s, %s): want 1..%d rows of 1..%d values", s[1], s[2], maxActionRows, maxActionWidth)
 	}
 	n := rows * width
 	raw := make([]byte, size)
@@ -181,7 +181,7 @@ type Sequence struct {
 	Len   int `json:"len"`
 }
 
-// ReadSequences reads the sequence boundaries of a recording of frames
+// readSequences reads the sequence boundaries of a recording of frames
 // frames from an --episodes file. A file that starts with the .npy magic
 // string is an array (see parseSequencesNPY): a bool or uint8 mask with
 // one entry per frame, true at each sequence's first frame (what
@@ -201,7 +201,7 @@ type Sequence struct {
 // used (the first without one). Blank lines and lines starting with # are
 // skipped. Errors are one line naming the file and the line, row or
 // index, and quote at most a short excerpt of the file.
-func ReadSequences(path string, frames int) ([]Sequence, error) {
+func readSequences(path string, frames int) ([]Sequence, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("episodes %s: %w", path, unwrapPath(err))

@@ -28,9 +28,9 @@ import (
 
 // Report file names (report.html comes from vision/report).
 const (
-	SummaryFile = "summary.md"
-	CSVFile     = "cells.csv"
-	JSONFile    = "summary.json"
+	summaryFile = "summary.md"
+	csvFile     = "cells.csv"
+	jsonFile    = "summary.json"
 )
 
 // Rate is a share of frames with its Wilson interval (frames counted as
@@ -110,7 +110,7 @@ type Summary struct {
 	Format int    `json:"format"`
 	Probe  string `json:"probe"`
 	// Title says what was probed: "NAME: POLICY on RECORDING", the
-	// recording by its file name (see Title).
+	// recording by its file name and a fresh policy as "untrained FAMILY".
 	Title      string       `json:"title"`
 	Name       string       `json:"name"`
 	Policy     string       `json:"policy"`
@@ -202,10 +202,10 @@ func identity(axis string) float64 {
 	return 0
 }
 
-// Title names what p probes, as a study's title names its game and
+// planTitle names what p probes, as a study's title names its game and
 // policy: "NAME: POLICY on RECORDING", with a fresh policy as "untrained
 // FAMILY" and the recording by its file (or folder) name.
-func Title(p *Plan) string {
+func planTitle(p *Plan) string {
 	pol := p.Config.Policy
 	if pol == "fresh" {
 		pol = "untrained " + p.Config.Family
@@ -216,7 +216,7 @@ func Title(p *Plan) string {
 // Analyze computes the statistics of the records of plan p.
 func Analyze(p *Plan, recs []Record) (*Summary, error) {
 	cfg := p.Config
-	s := &Summary{Format: 1, Probe: p.Fingerprint, Title: Title(p), Name: cfg.Name, Policy: cfg.Policy, Input: p.Input.Name,
+	s := &Summary{Format: 1, Probe: p.Fingerprint, Title: planTitle(p), Name: cfg.Name, Policy: cfg.Policy, Input: p.Input.Name,
 		Width: p.Width, Height: p.Height, Action: p.Space, Frames: p.Input.Frames, Sequences: len(p.Sequences),
 		Units: p.Units(), Threshold: cfg.Threshold, Confidence: cfg.Confidence, Resamples: cfg.Resamples,
 		Caution: report.Caution}
@@ -427,10 +427,10 @@ func breaks(p *Plan, s *Summary) []BreakStats {
 	return out
 }
 
-// WriteReport analyses the results in dir and writes summary.json,
+// writeProbeReport analyses the results in dir and writes summary.json,
 // summary.md, cells.csv and report.html there. src is the recording, for
 // the strips of most-moved frames; nil leaves them out.
-func WriteReport(dir string, src frameio.Random) error {
+func writeProbeReport(dir string, src frameio.Random) error {
 	in, err := ReadInfo(dir)
 	if err != nil {
 		return err
@@ -449,13 +449,13 @@ func WriteReport(dir string, src frameio.Random) error {
 	if err != nil {
 		return fmt.Errorf("summary.json: %w", err)
 	}
-	if err := atomicfile.WriteBytes(filepath.Join(dir, JSONFile), append(js, '\n')); err != nil {
+	if err := atomicfile.WriteBytes(filepath.Join(dir, jsonFile), append(js, '\n')); err != nil {
 		return err
 	}
-	if err := atomicfile.WriteBytes(filepath.Join(dir, CSVFile), CSV(s)); err != nil {
+	if err := atomicfile.WriteBytes(filepath.Join(dir, csvFile), cellsCSV(s)); err != nil {
 		return err
 	}
-	if err := atomicfile.WriteBytes(filepath.Join(dir, SummaryFile), Markdown(s, in.Command)); err != nil {
+	if err := atomicfile.WriteBytes(filepath.Join(dir, summaryFile), summaryMarkdown(s, in.Command)); err != nil {
 		return err
 	}
 	d := reportData(p, s, recs, src, in.Command)
@@ -480,8 +480,8 @@ func ff(v float64) string {
 	return strconv.FormatFloat(v, 'g', 6, 64)
 }
 
-// CSV returns cells.csv: one row per cell.
-func CSV(s *Summary) []byte {
+// cellsCSV returns cells.csv: one row per cell.
+func cellsCSV(s *Summary) []byte {
 	var buf bytes.Buffer
 	w := csv.NewWriter(&buf)
 	w.Write(CSVColumns)
@@ -527,8 +527,8 @@ func breakText(b BreakStats) string {
 	return ff(b.Severity)
 }
 
-// Markdown returns summary.md.
-func Markdown(s *Summary, command string) []byte {
+// summaryMarkdown returns summary.md.
+func summaryMarkdown(s *Summary, command string) []byte {
 	var b bytes.Buffer
 	p := func(f string, a ...any) { fmt.Fprintf(&b, f, a...) }
 	p("# %s\n\n", s.Title)
@@ -683,10 +683,10 @@ func heatmaps(s *Summary) []report.Heatmap {
 	return out
 }
 
-// MaxStrips and StripFrames bound the strips of most-moved frames.
+// maxStrips and stripFrames bound the strips of most-moved frames.
 const (
-	MaxStrips   = 6
-	StripFrames = 4
+	maxStrips   = 6
+	stripFrames = 4
 )
 
 // strips show, for the cells of largest mean drift, the frames whose
@@ -702,8 +702,8 @@ func strips(p *Plan, s *Summary, recs []Record, src frameio.Random) []report.Str
 		}
 	}
 	sort.SliceStable(cells, func(a, b int) bool { return s.Cells[cells[a]].Drift.Value > s.Cells[cells[b]].Drift.Value })
-	if len(cells) > MaxStrips {
-		cells = cells[:MaxStrips]
+	if len(cells) > maxStrips {
+		cells = cells[:maxStrips]
 	}
 	type pick struct {
 		rec *Record
@@ -720,8 +720,8 @@ func strips(p *Plan, s *Summary, recs []Record, src frameio.Random) []report.Str
 			}
 		}
 		sort.SliceStable(picks, func(a, b int) bool { return picks[a].m.Drift > picks[b].m.Drift })
-		if len(picks) > StripFrames {
-			picks = picks[:StripFrames]
+		if len(picks) > stripFrames {
+			picks = picks[:stripFrames]
 		}
 		c := p.Cells[ci]
 		grid, err := p.grid(c.Patch)

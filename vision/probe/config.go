@@ -35,11 +35,12 @@ type Config struct {
 	// RawWidth and RawHeight are the frame size of raw RGB24 input.
 	RawWidth  int `json:"raw_width,omitempty"`
 	RawHeight int `json:"raw_height,omitempty"`
-	// Episodes is the optional file of sequence boundaries (see
-	// ReadSequences). Default: the whole recording is one sequence.
+	// Episodes is the optional file of sequence boundaries (its layouts
+	// are those of --episodes in docs/probe.md). Default: the whole
+	// recording is one sequence.
 	Episodes string `json:"episodes,omitempty"`
 	// Actions is the optional .npy of recorded actions, one row per
-	// frame (see ReadActions).
+	// frame (shape (N,) or (N, W), float or integer dtypes).
 	Actions string `json:"actions,omitempty"`
 	// Policy is the policy source: a weights file (.safetensors, its
 	// "{patch}" replaced by each patch size), "fresh" (an untrained
@@ -259,7 +260,7 @@ func NewPlan(cfg Config) (*Plan, error) {
 	src.Close()
 	p := &Plan{Config: cfg, Input: info, Width: info.Width, Height: info.Height}
 	if cfg.Episodes != "" {
-		p.Sequences, err = ReadSequences(cfg.Episodes, info.Frames)
+		p.Sequences, err = readSequences(cfg.Episodes, info.Frames)
 		if err != nil {
 			return nil, err
 		}
@@ -267,7 +268,7 @@ func NewPlan(cfg Config) (*Plan, error) {
 		p.Sequences = []Sequence{{Start: 0, Len: info.Frames}}
 	}
 	if cfg.Actions != "" {
-		p.actions, err = ReadActions(cfg.Actions)
+		p.actions, err = readActions(cfg.Actions)
 		if err != nil {
 			return nil, err
 		}

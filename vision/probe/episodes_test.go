@@ -61,7 +61,7 @@ func TestEpisodesNPYGolden(t *testing.T) {
 		t.Fatalf("starts.json: %v (%d files)", err, len(ref.Starts))
 	}
 	for name, want := range ref.Starts {
-		seqs, err := ReadSequences(filepath.Join(dir, name), ref.Frames)
+		seqs, err := readSequences(filepath.Join(dir, name), ref.Frames)
 		if err != nil {
 			t.Errorf("%s: %v", name, err)
 			continue
@@ -78,7 +78,7 @@ func TestEpisodesNPYGolden(t *testing.T) {
 		}
 	}
 	// A mask must have one entry per frame.
-	if _, err := ReadSequences(filepath.Join(dir, "mask_bool.npy"), ref.Frames+1); err == nil || !strings.Contains(err.Error(), "20 entries") {
+	if _, err := readSequences(filepath.Join(dir, "mask_bool.npy"), ref.Frames+1); err == nil || !strings.Contains(err.Error(), "20 entries") {
 		t.Errorf("mask for another frame count: %v", err)
 	}
 }

@@ -79,7 +79,7 @@ func TestExternalNumpy(t *testing.T) {
 		if _, err := Run(context.Background(), p, Options{Dir: out, Workers: 2, NoReport: true}); err != nil {
 			t.Fatalf("%s: %v", c.name, err)
 		}
-		got := read(t, filepath.Join(out, ResultsFile))
+		got := read(t, filepath.Join(out, resultsFile))
 		if bytes.Contains(got, []byte(`"failure"`)) {
 			t.Fatalf("%s: failed units:\n%s", c.name, got)
 		}

@@ -16,14 +16,8 @@ type MergeOutcome struct {
 	Units, Missing, Failed int
 }
 
-// Merge joins the folders of one probe's shards (or partial runs) into
-// out: probe.json without the shard, results.jsonl in canonical order
-// (byte-identical to an unsharded run's) and the report. The recording is
-// opened again for the strips when it is still where the probe found it.
-// Folders of different probes, or two folders disagreeing on a finished
-// unit, are errors, as is an out that holds anything; nothing is written
-// then.
-func Merge(out string, dirs []string, writeReport bool) (*MergeOutcome, error) {
+// merge is MergeWith that allows a partial merge.
+func merge(out string, dirs []string, writeReport bool) (*MergeOutcome, error) {
 	return MergeWith(out, dirs, MergeOptions{WriteReport: writeReport, AllowPartial: true})
 }
 
@@ -37,9 +31,15 @@ type MergeOptions struct {
 	AllowPartial bool
 }
 
-// MergeWith is Merge with options: without opt.AllowPartial, folders
-// that together miss units of the probe are refused and nothing is
-// written.
+// MergeWith joins the folders of one probe's shards (or partial runs)
+// into out: probe.json without the shard, results.jsonl in canonical
+// order (byte-identical to an unsharded run's) and, with
+// opt.WriteReport, the report. The recording is opened again for the
+// strips when it is still where the probe found it. Folders of different
+// probes, or two folders disagreeing on a finished unit, are errors, as
+// is an out that holds anything; without opt.AllowPartial, so are
+// folders that together miss units of the probe. Nothing is written
+// then.
 func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, error) {
 	writeReport := opt.WriteReport
 	if len(dirs) == 0 {
@@ -69,7 +69,7 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 		}
 		for _, r := range recs {
 			if r.Probe != first.Plan.Fingerprint {
-				return nil, fmt.Errorf("merge: %s holds a record of probe %s", filepath.Join(d, ResultsFile), r.Probe)
+				return nil, fmt.Errorf("merge: %s holds a record of probe %s", filepath.Join(d, resultsFile), r.Probe)
 			}
 		}
 		all = append(all, sorted(latest(recs))...)
@@ -87,8 +87,8 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 			continue
 		}
 		if !r.Failed() {
-			a, _ := EncodeRecord(&prev)
-			b, _ := EncodeRecord(&r)
+			a, _ := encodeRecord(&prev)
+			b, _ := encodeRecord(&r)
 			if !bytes.Equal(a, b) {
 				return nil, fmt.Errorf("merge: cell %d sequence %d differs between folders: the policy is not reproducible", r.Cell, r.Sequence)
 			}
@@ -124,7 +124,7 @@ func MergeWith(out string, dirs []string, opt MergeOptions) (*MergeOutcome, erro
 			}
 			defer s.Close()
 		}
-		if err := WriteReport(out, src); err != nil {
+		if err := writeProbeReport(out, src); err != nil {
 			return mo, err
 		}
 	}

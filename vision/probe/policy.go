@@ -14,42 +14,42 @@ import (
 	"tilebench/vision/remote"
 )
 
-// GameName is what an external policy is told it plays in a probe (the
+// gameName is what an external policy is told it plays in a probe (the
 // hello's "game" and TILEBENCH_GAME): recorded frames, no game.
-const GameName = "recording"
+const gameName = "recording"
 
-// Batcher is a policy that takes several observations in one call: a
+// batcher is a policy that takes several observations in one call: a
 // stateless external policy that offered batched messages. ActBatch
 // writes actions[i] for obs[i]; len(obs) ≤ BatchSize().
-type Batcher interface {
+type batcher interface {
 	BatchSize() int
 	ActBatch(obs []*vision.Observation, actions [][]float64) error
 }
 
-// FrameOnly is a policy that reads only Observation.Frame, never the
+// frameOnly is a policy that reads only Observation.Frame, never the
 // tokens (an external policy sent frames), so clean frames need not be
 // tokenized for it.
-type FrameOnly interface {
+type frameOnly interface {
 	FrameOnly() bool
 }
 
-// Packer is a policy that takes frames as packed bytes (an external
+// packer is a policy that takes frames as packed bytes (an external
 // policy sent uint8 frames, remote.Policy): on the clean pass, frames of
 // a recording stored that way (frameio.Packed) are read straight into
 // the policy's outgoing message (FrameBuffer), with no RGBA frame
 // between. PackedFrame gives the layout, (height, width, channels)
 // bytes, and whether the policy takes such frames at all.
-type Packer interface {
+type packer interface {
 	PackedFrame() (shape [3]int, ok bool)
 	FrameBuffer(k int) []byte
 	ActPacked(obs *vision.Observation, frame []byte, action []float64) error
 	ActBatchPacked(obs []*vision.Observation, frames []byte, actions [][]float64) error
 }
 
-// FileBatcher is a Packer that also takes a batch's frames as stored in
+// fileBatcher is a packer that also takes a batch's frames as stored in
 // a file (remote.Policy.ActBatchFile), to move them into its messages
 // without reading them.
-type FileBatcher interface {
+type fileBatcher interface {
 	ActBatchFile(obs []*vision.Observation, f *os.File, off int64, actions [][]float64) error
 }
 
@@ -64,7 +64,7 @@ type PolicyFunc func(patchSize int, grid *patch.Grid) (vision.Policy, error)
 func Policies(p *Plan, logDir string) PolicyFunc {
 	src := p.Config.Policy
 	space := p.Space.Games()
-	spec := games.Spec{Name: GameName, Width: p.Width, Height: p.Height, Action: space}
+	spec := games.Spec{Name: gameName, Width: p.Width, Height: p.Height, Action: space}
 	var mu sync.Mutex
 	loaded := map[string]nets.Net{}
 	return func(ps int, grid *patch.Grid) (vision.Policy, error) {

@@ -212,8 +212,8 @@ func TestDeterminism(t *testing.T) {
 	runProbe(t, p, Options{Dir: one, Workers: 1})
 	three := filepath.Join(dir, "three")
 	runProbe(t, p, Options{Dir: three, Workers: 3})
-	want := read(t, filepath.Join(one, ResultsFile))
-	if !bytes.Equal(want, read(t, filepath.Join(three, ResultsFile))) {
+	want := read(t, filepath.Join(one, resultsFile))
+	if !bytes.Equal(want, read(t, filepath.Join(three, resultsFile))) {
 		t.Fatal("results differ between 1 and 3 workers")
 	}
 	if n := bytes.Count(want, []byte("\n")); n != p.Units() {
@@ -226,13 +226,13 @@ func TestDeterminism(t *testing.T) {
 		shards = append(shards, d)
 	}
 	merged := filepath.Join(dir, "merged")
-	if _, err := Merge(merged, shards, true); err != nil {
+	if _, err := merge(merged, shards, true); err != nil {
 		t.Fatal(err)
 	}
-	if !bytes.Equal(want, read(t, filepath.Join(merged, ResultsFile))) {
+	if !bytes.Equal(want, read(t, filepath.Join(merged, resultsFile))) {
 		t.Fatal("merged shards differ from the unsharded run")
 	}
-	if !bytes.Equal(read(t, filepath.Join(one, JSONFile)), read(t, filepath.Join(merged, JSONFile))) {
+	if !bytes.Equal(read(t, filepath.Join(one, jsonFile)), read(t, filepath.Join(merged, jsonFile))) {
 		t.Error("summary.json of the merged shards differs")
 	}
 	// A kill: keep three whole lines and half of the fourth.
@@ -240,7 +240,7 @@ func TestDeterminism(t *testing.T) {
 	runProbe(t, p, Options{Dir: killed, Workers: 2, NoReport: true})
 	lines := bytes.SplitAfter(want, []byte("\n"))
 	cut := append(bytes.Join(lines[:3], nil), lines[3][:len(lines[3])/2]...)
-	os.WriteFile(filepath.Join(killed, ResultsFile), cut, 0o644)
+	os.WriteFile(filepath.Join(killed, resultsFile), cut, 0o644)
 	if _, err := Run(context.Background(), p, Options{Dir: killed, Workers: 2}); err == nil {
 		t.Fatal("rerun without --resume into a used folder: no error")
 	}
@@ -248,7 +248,7 @@ func TestDeterminism(t *testing.T) {
 	if o.Kept != 3 || o.Ran != p.Units()-3 {
 		t.Errorf("resume kept %d ran %d, want 3 and %d", o.Kept, o.Ran, p.Units()-3)
 	}
-	if !bytes.Equal(want, read(t, filepath.Join(killed, ResultsFile))) {
+	if !bytes.Equal(want, read(t, filepath.Join(killed, resultsFile))) {
 		t.Fatal("resumed results differ")
 	}
 	s := summary(t, one)
@@ -498,7 +498,7 @@ func TestSummaryTitle(t *testing.T) {
 			t.Errorf("report.html does not carry the title %q", c.want)
 		}
 		var js map[string]any
-		if err := json.Unmarshal(read(t, filepath.Join(out, JSONFile)), &js); err != nil || js["title"] != c.want {
+		if err := json.Unmarshal(read(t, filepath.Join(out, jsonFile)), &js); err != nil || js["title"] != c.want {
 			t.Errorf("summary.json title %v (%v), want %q", js["title"], err, c.want)
 		}
 	}

@@ -18,8 +18,8 @@ import (
 // File names inside a probe folder.
 const (
 	ProbeFile   = "probe.json"
-	ResultsFile = "results.jsonl"
-	LogsDir     = "logs"
+	resultsFile = "results.jsonl"
+	logsDir     = "logs"
 )
 
 // Record is one line of results.jsonl: one sequence of one cell. Its
@@ -104,8 +104,8 @@ func writeInfo(dir string, in *Info) error {
 	return atomicfile.WriteBytes(filepath.Join(dir, ProbeFile), append(b, '\n'))
 }
 
-// EncodeRecord returns r as one line of JSON.
-func EncodeRecord(r *Record) ([]byte, error) {
+// encodeRecord returns r as one line of JSON.
+func encodeRecord(r *Record) ([]byte, error) {
 	b, err := json.Marshal(r)
 	if err != nil {
 		return nil, err
@@ -117,7 +117,7 @@ func EncodeRecord(r *Record) ([]byte, error) {
 // short by a kill is ignored; validEnd is the length of the whole lines.
 // Any other bad line is an error naming the line.
 func ReadResults(dir string) (recs []Record, validEnd int64, err error) {
-	path := filepath.Join(dir, ResultsFile)
+	path := filepath.Join(dir, resultsFile)
 	f, err := os.Open(path)
 	if errors.Is(err, os.ErrNotExist) {
 		return nil, 0, nil
@@ -176,10 +176,10 @@ func sorted(m map[[2]int]Record) []Record {
 
 // writeResults rewrites results.jsonl in canonical order, atomically.
 func writeResults(dir string, recs []Record) error {
-	return atomicfile.Write(filepath.Join(dir, ResultsFile), func(w io.Writer) error {
+	return atomicfile.Write(filepath.Join(dir, resultsFile), func(w io.Writer) error {
 		bw := bufio.NewWriterSize(w, 1<<20)
 		for i := range recs {
-			b, err := EncodeRecord(&recs[i])
+			b, err := encodeRecord(&recs[i])
 			if err != nil {
 				return err
 			}

@@ -64,8 +64,8 @@ type Outcome struct {
 // ErrInterrupted is returned (wrapped) when the context ends a run early.
 var ErrInterrupted = errors.New("probe interrupted")
 
-// TopFrames is how many of its most-moved frames a record keeps.
-const TopFrames = 3
+// topFrames is how many of its most-moved frames a record keeps.
+const topFrames = 3
 
 type unit struct{ cell, seq int }
 
@@ -96,7 +96,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		}
 	}()
 	if opt.Policy == nil {
-		opt.Policy = Policies(p, filepath.Join(opt.Dir, LogsDir))
+		opt.Policy = Policies(p, filepath.Join(opt.Dir, logsDir))
 	}
 	src, err := openSource(p)
 	if err != nil {
@@ -133,7 +133,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 	}
 	for _, r := range old {
 		if r.Probe != p.Fingerprint || r.Cell < 0 || r.Cell >= len(p.Cells) || r.Sequence < 0 || r.Sequence >= len(p.Sequences) {
-			return nil, fmt.Errorf("%s: record for cell %d sequence %d does not belong to probe %s", filepath.Join(opt.Dir, ResultsFile), r.Cell, r.Sequence, p.Fingerprint)
+			return nil, fmt.Errorf("%s: record for cell %d sequence %d does not belong to probe %s", filepath.Join(opt.Dir, resultsFile), r.Cell, r.Sequence, p.Fingerprint)
 		}
 	}
 	done := map[unit]bool{}
@@ -157,7 +157,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		}
 	}
 	out := &Outcome{Total: total, Kept: total - len(todo)}
-	rpath := filepath.Join(opt.Dir, ResultsFile)
+	rpath := filepath.Join(opt.Dir, resultsFile)
 	rf, err := os.OpenFile(rpath, os.O_WRONLY|os.O_CREATE, 0o644)
 	if err != nil {
 		return nil, fmt.Errorf("open results: %w", err)
@@ -208,7 +208,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		if writeErr != nil {
 			continue
 		}
-		b, err := EncodeRecord(&r)
+		b, err := encodeRecord(&r)
 		if err == nil {
 			_, err = rf.Write(b)
 		}
@@ -252,7 +252,7 @@ func Run(ctx context.Context, p *Plan, opt Options) (*Outcome, error) {
 		return out, err
 	}
 	if !opt.NoReport {
-		if err := WriteReport(opt.Dir, src); err != nil {
+		if err := writeProbeReport(opt.Dir, src); err != nil {
 			return out, err
 		}
 	}
@@ -275,7 +275,7 @@ func prepareDir(p *Plan, opt Options) error {
 	}
 	others := 0
 	for _, e := range entries {
-		if e.Name() != LogsDir { // external policies' stderr, kept from a start that failed
+		if e.Name() != logsDir { // external policies' stderr, kept from a start that failed
 			others++
 		}
 	}
@@ -443,7 +443,7 @@ type runner struct {
 	grid  *patch.Grid
 	tok   *patch.Tokenizer
 	pol   vision.Policy
-	batch Batcher
+	batch batcher
 	wants bool
 	// exact: the grid covers the frame exactly, so the clean tokens
 	// reassemble into the frame itself (no assembly needed); frameOnly:
@@ -451,7 +451,7 @@ type runner struct {
 	exact, frameOnly bool
 	// packer and packed, when both set: clean frames go from the
 	// recording's stored bytes straight into the policy's message.
-	packer Packer
+	packer packer
 	packed frameio.Packed
 	raw    *image.RGBA
 	slots  []slot
@@ -477,14 +477,14 @@ func newRunner(p *Plan, src frameio.Random, ps int, pf PolicyFunc) (*runner, err
 	}
 	r.exact = grid.OutW == p.Width && grid.OutH == p.Height && grid.Width == p.Width && grid.Height == p.Height &&
 		grid.StrideX == grid.PatchW && grid.StrideY == grid.PatchH
-	if fo, ok := pol.(FrameOnly); ok && r.exact && r.wants {
+	if fo, ok := pol.(frameOnly); ok && r.exact && r.wants {
 		r.frameOnly = fo.FrameOnly()
 	}
 	B := 1
-	if b, ok := pol.(Batcher); ok && !p.Config.NoBatch && b.BatchSize() > 1 {
+	if b, ok := pol.(batcher); ok && !p.Config.NoBatch && b.BatchSize() > 1 {
 		r.batch, B = b, b.BatchSize()
 	}
-	if pk, ok := pol.(Packer); ok && r.frameOnly && p.Width == p.Input.Width && p.Height == p.Input.Height {
+	if pk, ok := pol.(packer); ok && r.frameOnly && p.Width == p.Input.Width && p.Height == p.Input.Height {
 		shape, ok := pk.PackedFrame()
 		if ps, isPacked := src.(frameio.Packed); ok && isPacked && shape == [3]int{p.Height, p.Width, ps.Info().Channels} {
 			r.packer, r.packed = pk, ps
@@ -634,7 +634,7 @@ func (r *runner) act(start, t0, k int, pipe *patch.Pipeline) error {
 	return nil
 }
 
-// actPacked is act for a clean pass of a Packer: the k frames' stored
+// actPacked is act for a clean pass of a packer: the k frames' stored
 // bytes are read with one read into the policy's message and sent as
 // they are.
 func (r *runner) actPacked(start, t0, k int) error {
@@ -643,7 +643,7 @@ func (r *runner) actPacked(start, t0, k int) error {
 		s.obs.Step, s.obs.Frame, s.obs.Tokens = t0+j, nil, nil
 		s.obs.PrevAction = r.prev(start, start+t0+j)
 	}
-	if fb, ok := r.packer.(FileBatcher); ok && r.batch != nil {
+	if fb, ok := r.packer.(fileBatcher); ok && r.batch != nil {
 		// A batch's frames are moved from the file, not read.
 		f, off, err := r.packed.Stored(start+t0, k)
 		if err != nil {
@@ -751,13 +751,13 @@ func distance(a, b []float64, discrete bool) float64 {
 	return math.Sqrt(s)
 }
 
-// keepTop keeps the TopFrames frames of largest drift (earlier frames
+// keepTop keeps the topFrames frames of largest drift (earlier frames
 // first among equals); frames with no drift are not kept.
 func keepTop(top []Moved, t int, d float64, clean, moved []float64) []Moved {
 	if d <= 0 {
 		return top
 	}
-	if len(top) == TopFrames && d <= top[len(top)-1].Drift {
+	if len(top) == topFrames && d <= top[len(top)-1].Drift {
 		return top
 	}
 	m := Moved{Frame: t, Drift: d, Clean: append([]float64(nil), clean...), Moved: append([]float64(nil), moved...)}
@@ -768,8 +768,8 @@ func keepTop(top []Moved, t int, d float64, clean, moved []float64) []Moved {
 	top = append(top, Moved{})
 	copy(top[i+1:], top[i:])
 	top[i] = m
-	if len(top) > TopFrames {
-		top = top[:TopFrames]
+	if len(top) > topFrames {
+		top = top[:topFrames]
 	}
 	return top
 }
