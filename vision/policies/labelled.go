@@ -9,34 +9,34 @@ import (
 // (it names the policy in reports and may become part of a file name)
 // and a source in this package's grammar.
 type Labelled struct {
-	// Label is the policy's name in the study: 1 to MaxLabel characters
-	// of LabelChars, not starting with '.'.
+	// Label is the policy's name in the study: 1 to 40 letters, digits,
+	// '-', '_' and '.', not starting with '.'.
 	Label string `toml:"label" json:"label"`
 	// Source is the policy source (expert, a weights FILE, exec:, ...).
 	Source string `toml:"source" json:"source"`
 }
 
-// MaxLabel is the longest policy label.
-const MaxLabel = 40
+// maxLabel is the longest policy label.
+const maxLabel = 40
 
-// LabelChars describes the characters a label may hold.
-const LabelChars = "letters, digits, '-', '_' and '.' (not first)"
+// labelChars describes the characters a label may hold.
+const labelChars = "letters, digits, '-', '_' and '.' (not first)"
 
 // CheckLabel refuses a label that is empty, too long, or holds a
-// character outside LabelChars (so that it is a safe file name on every
-// system), or starts with '.'.
+// character other than letters, digits, '-', '_' and '.' (so that it is
+// a safe file name on every system), or starts with '.'.
 func CheckLabel(label string) error {
 	switch {
 	case label == "":
-		return sourceErr("policy label is empty: write LABEL=SOURCE with a label of %s", LabelChars)
-	case len(label) > MaxLabel:
-		return sourceErr("policy label %q: longer than %d characters", label, MaxLabel)
+		return sourceErr("policy label is empty: write LABEL=SOURCE with a label of %s", labelChars)
+	case len(label) > maxLabel:
+		return sourceErr("policy label %q: longer than %d characters", label, maxLabel)
 	case label[0] == '.':
 		return sourceErr("policy label %q: may not start with '.'", label)
 	}
 	for _, r := range label {
 		if !labelRune(r) {
-			return sourceErr("policy label %q: %q cannot be part of a file name; use %s", label, r, LabelChars)
+			return sourceErr("policy label %q: %q cannot be part of a file name; use %s", label, r, labelChars)
 		}
 	}
 	return nil
@@ -46,13 +46,13 @@ func labelRune(r rune) bool {
 	return r >= 'a' && r <= 'z' || r >= 'A' && r <= 'Z' || r >= '0' && r <= '9' || r == '-' || r == '_' || r == '.'
 }
 
-// ParseLabelled reads one --policy value. LABEL=SOURCE is labelled when
+// parseLabelled reads one --policy value. LABEL=SOURCE is labelled when
 // the text before the first '=' holds no ':' and no white space (so that
 // "exec:python3 p.py --x=1" and "tcp://h:1" stay unlabelled sources); the
 // label is then checked (CheckLabel), unless the whole value names an
 // existing file (runs/lr=0.1/p8.safetensors stays a source). A file whose name holds '=' is
 // given with a label: "a=dir/x=y.safetensors".
-func ParseLabelled(s string) (Labelled, bool, error) {
+func parseLabelled(s string) (Labelled, bool, error) {
 	label, src, ok := strings.Cut(s, "=")
 	if !ok || strings.ContainsAny(label, ": \t\n") {
 		return Labelled{Source: s}, false, nil
@@ -80,7 +80,7 @@ func ParseList(values []string) (single string, list []Labelled, err error) {
 	}
 	labelled := 0
 	for _, v := range values {
-		l, ok, err := ParseLabelled(v)
+		l, ok, err := parseLabelled(v)
 		if err != nil {
 			return "", nil, err
 		}

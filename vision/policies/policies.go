@@ -104,8 +104,8 @@ func notSource(s string) error {
 
 func sourceErr(format string, a ...any) error { return &SourceError{fmt.Errorf(format, a...)} }
 
-// IsFamily reports whether s names a network family.
-func IsFamily(s string) bool { return slices.Contains(nets.Families, s) }
+// isFamily reports whether s names a network family.
+func isFamily(s string) bool { return slices.Contains(nets.Families, s) }
 
 // Kind classifies a source: KindExpert, KindFresh, KindFamily,
 // KindExternal or KindFile (anything else is taken as a file name).
@@ -117,7 +117,7 @@ func Kind(source string) string {
 		return KindFresh
 	case IsBaseline(source):
 		return KindBaseline
-	case IsFamily(source):
+	case isFamily(source):
 		return KindFamily
 	case remote.IsTarget(source):
 		return KindExternal
@@ -186,7 +186,7 @@ func (o Options) Check() error {
 		return sourceErr("policy observation %q: want %s or %s", o.Obs, remote.ObsFrame, remote.ObsTokens)
 	case o.Dtype != "" && o.Dtype != remote.Uint8 && o.Dtype != remote.Float32:
 		return sourceErr("policy dtype %q: want %s or %s", o.Dtype, remote.Uint8, remote.Float32)
-	case o.Family != "" && !IsFamily(o.Family):
+	case o.Family != "" && !isFamily(o.Family):
 		return sourceErr("family %q: want one of %s", o.Family, strings.Join(nets.Families, ", "))
 	}
 	return nil
