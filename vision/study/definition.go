@@ -225,8 +225,8 @@ func (a Axis) Values(def string) ([]string, error) {
 			return nil, err
 		}
 		out = append(out, vals...)
-		if len(out) > MaxRangeValues {
-			return nil, fmt.Errorf("more than %d values", MaxRangeValues)
+		if len(out) > maxRangeValues {
+			return nil, fmt.Errorf("more than %d values", maxRangeValues)
 		}
 	}
 	return out, nil

@@ -178,7 +178,7 @@ func FuzzExpandList(f *testing.F) {
 			}
 			return
 		}
-		if len(vals) == 0 || len(vals) > MaxRangeValues {
+		if len(vals) == 0 || len(vals) > maxRangeValues {
 			t.Fatalf("%q: %d values", s, len(vals))
 		}
 		for _, v := range vals {

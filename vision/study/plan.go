@@ -23,12 +23,12 @@ const (
 	DefaultEpisodes   = 30
 	DefaultResamples  = 2000
 	DefaultConfidence = 0.95
-	DefaultThreshold  = 0.5
-	DefaultPatch      = 8
+	defaultThreshold  = 0.5
+	defaultPatch      = 8
 )
 
-// DefaultStrips are the steps whose frames are kept for the report.
-var DefaultStrips = []int{0, 50, 100, 200, 400}
+// defaultStrips are the steps whose frames are kept for the report.
+var defaultStrips = []int{0, 50, 100, 200, 400}
 
 // Normalize fills in defaults and checks every value, expanding each axis
 // once. Errors are *FieldError values naming the key.
@@ -110,13 +110,13 @@ func (d *Definition) Normalize() error {
 	}
 	if len(d.Patch) == 0 {
 		// A single weights file plays at its own patch size
-		// (docs/studies.md); anything else at DefaultPatch.
+		// (docs/studies.md); anything else at defaultPatch.
 		ps, err := d.OwnPatch()
 		if err != nil {
 			return fieldErr("patch", err)
 		}
 		if ps == 0 {
-			ps = DefaultPatch
+			ps = defaultPatch
 		}
 		d.Patch = Axis{strconv.Itoa(ps)}
 	}
@@ -141,7 +141,7 @@ func (d *Definition) Normalize() error {
 		return fieldErr("stats.confidence", fmt.Errorf("%v: want a number between 0 and 1", d.Stats.Confidence))
 	}
 	if d.Stats.Threshold == 0 {
-		d.Stats.Threshold = DefaultThreshold
+		d.Stats.Threshold = defaultThreshold
 	}
 	if !(d.Stats.Threshold > 0 && d.Stats.Threshold <= 1) {
 		return fieldErr("stats.threshold", fmt.Errorf("%v: want a number in (0, 1]", d.Stats.Threshold))
@@ -162,7 +162,7 @@ func (d *Definition) Normalize() error {
 		return fieldErr("budget.mflop", fmt.Errorf("%v: want a positive number", d.Budget.MFLOP))
 	}
 	if d.Strips == nil {
-		d.Strips = append([]int(nil), DefaultStrips...)
+		d.Strips = append([]int(nil), defaultStrips...)
 	}
 	for _, s := range d.Strips {
 		if s < 0 || s > 1_000_000 {
@@ -435,8 +435,8 @@ func (d *Definition) Cells() ([]Cell, error) {
 	total := 1
 	for _, n := range []int{len(ps), len(vars), len(occ), len(scr), len(every), len(noise), len(bright), len(contrast), len(pnoise), len(corr)} {
 		total *= n
-		if total > MaxRangeValues {
-			return nil, fieldErr("axes", fmt.Errorf("more than %d cells", MaxRangeValues))
+		if total > maxRangeValues {
+			return nil, fieldErr("axes", fmt.Errorf("more than %d cells", maxRangeValues))
 		}
 	}
 	seen := map[string]bool{}
@@ -452,8 +452,8 @@ func (d *Definition) Cells() ([]Cell, error) {
 			cells = append(cells, c)
 		}
 	}
-	if len(d.Policies)*total > MaxRangeValues {
-		return nil, fieldErr("policies", fmt.Errorf("more than %d cells", MaxRangeValues))
+	if len(d.Policies)*total > maxRangeValues {
+		return nil, fieldErr("policies", fmt.Errorf("more than %d cells", maxRangeValues))
 	}
 	for _, pol := range d.PolicyList() {
 		label = pol.Label
@@ -511,8 +511,8 @@ func corruptValues(a Axis) ([]string, error) {
 				}
 				out = append(out, v)
 			}
-			if len(out) > MaxRangeValues {
-				return nil, fmt.Errorf("more than %d values", MaxRangeValues)
+			if len(out) > maxRangeValues {
+				return nil, fmt.Errorf("more than %d values", maxRangeValues)
 			}
 		}
 	}

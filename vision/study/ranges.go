@@ -8,10 +8,10 @@ import (
 	"strings"
 )
 
-// MaxRangeValues caps how many values one range may expand to, so that a
+// maxRangeValues caps how many values one range may expand to, so that a
 // typing slip such as 0:1:0.000001 is an error rather than a study of a
 // million cells.
-const MaxRangeValues = 10000
+const maxRangeValues = 10000
 
 // ExpandList expands a comma-separated list in tilebench's range syntax into
 // the individual values, each in canonical spelling. An item is one of
@@ -38,20 +38,20 @@ func ExpandList(s string) ([]string, error) {
 	}
 	var out []string
 	for _, item := range strings.Split(s, ",") {
-		vals, err := ExpandItem(item)
+		vals, err := expandItem(item)
 		if err != nil {
 			return nil, err
 		}
 		out = append(out, vals...)
-		if len(out) > MaxRangeValues {
-			return nil, fmt.Errorf("list %q: more than %d values", s, MaxRangeValues)
+		if len(out) > maxRangeValues {
+			return nil, fmt.Errorf("list %q: more than %d values", s, maxRangeValues)
 		}
 	}
 	return out, nil
 }
 
-// ExpandItem expands one item of a list (see ExpandList).
-func ExpandItem(item string) ([]string, error) {
+// expandItem expands one item of a list (see ExpandList).
+func expandItem(item string) ([]string, error) {
 	item = strings.TrimSpace(item)
 	if item == "" {
 		return nil, errors.New("empty item in list (two commas in a row, or a trailing comma?)")
@@ -118,8 +118,8 @@ func expandRange(a, b, c string) ([]string, error) {
 		return nil, fmt.Errorf("yields no values (stop %s is below start %s)", strings.TrimSpace(b), strings.TrimSpace(a))
 	}
 	nf := math.Floor((stop-start)/step + 1e-9)
-	if nf+1 > MaxRangeValues || math.IsInf(nf, 0) || math.IsNaN(nf) {
-		return nil, fmt.Errorf("yields more than %d values", MaxRangeValues)
+	if nf+1 > maxRangeValues || math.IsInf(nf, 0) || math.IsNaN(nf) {
+		return nil, fmt.Errorf("yields more than %d values", maxRangeValues)
 	}
 	d := max(decimals(a), decimals(b), decimals(c))
 	n := int(nf) + 1
