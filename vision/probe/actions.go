@@ -197,9 +197,9 @@ type Sequence struct {
 //	             come back after another one (sequences are contiguous);
 //	             exactly frames lines
 //
-// Commas or tabs may separate columns; the column named in the header is
-// used (the first without one). Blank lines and lines starting with # are
-// skipped. Errors are one line naming the file and the line, row or
+// Commas, tabs or semicolons may separate columns; the column named in
+// the header is used (the first without one). Blank lines and lines
+// starting with # are skipped. Errors are one line naming the file and the line, row or
 // index, and quote at most a short excerpt of the file.
 func readSequences(path string, frames int) ([]Sequence, error) {
 	f, err := os.Open(path)
