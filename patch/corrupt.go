@@ -67,15 +67,15 @@ var severityTable = map[string][5]float64{
 	"scale":      {0.97, 0.94, 0.9, 0.85, 0.8},
 }
 
-// CorruptKinds lists the corruption kinds in the order of the table above.
-var CorruptKinds = []string{"blur", "motionblur", "resolution", "jpeg", "gamma", "sharpen",
+// corruptKinds lists the corruption kinds in the order of the table above.
+var corruptKinds = []string{"blur", "motionblur", "resolution", "jpeg", "gamma", "sharpen",
 	"saltpepper", "dead", "shift", "shake", "rotate", "scale"}
 
 // Severity returns the parameter of kind at severity level n (1..5).
 func Severity(kind string, n int) (float64, error) {
 	t, ok := severityTable[kind]
 	if !ok {
-		return 0, fmt.Errorf("corrupt kind %q: want one of %s", kind, strings.Join(CorruptKinds, ", "))
+		return 0, fmt.Errorf("corrupt kind %q: want one of %s", kind, strings.Join(corruptKinds, ", "))
 	}
 	if n < 1 || n > 5 {
 		return 0, fmt.Errorf("corrupt %s severity %d: want 1..5", kind, n)
@@ -97,7 +97,7 @@ func (m ShiftMode) String() string { return [...]string{"fill", "wrap", "edge"}[
 
 // Corruption is one parsed step of a corruption list.
 type Corruption struct {
-	// Kind is one of CorruptKinds.
+	// Kind is one of corruptKinds.
 	Kind string
 	// Level is the severity 1..5 when the step was written kind:sN (its
 	// parameter then comes from the table), else 0.
@@ -239,7 +239,7 @@ func parseCorruption(item string) (Corruption, error) {
 	c.Kind = parts[0]
 	lim, ok := corruptRange[c.Kind]
 	if !ok {
-		return c, fmt.Errorf("corrupt %q: unknown kind %q, want one of %s", item, c.Kind, strings.Join(CorruptKinds, ", "))
+		return c, fmt.Errorf("corrupt %q: unknown kind %q, want one of %s", item, c.Kind, strings.Join(corruptKinds, ", "))
 	}
 	args := parts[1:]
 	if len(args) == 0 || args[0] == "" {
@@ -347,7 +347,7 @@ func ExpandCorrupt(item string) ([]string, error) {
 	}
 	kind := parts[0]
 	if _, ok := corruptRange[kind]; !ok {
-		return nil, fmt.Errorf("corrupt %q: unknown kind %q, want one of %s", item, kind, strings.Join(CorruptKinds, ", "))
+		return nil, fmt.Errorf("corrupt %q: unknown kind %q, want one of %s", item, kind, strings.Join(corruptKinds, ", "))
 	}
 	if len(parts) == 3 && strings.HasPrefix(parts[1], "s") && strings.HasPrefix(parts[2], "s") {
 		a, e1 := strconv.Atoi(parts[1][1:])
@@ -409,7 +409,7 @@ func ExpandCorrupt(item string) ([]string, error) {
 	return out, nil
 }
 
-// CorruptInverse says, for one corruption, how to undo it: the
+// corruptInverse says, for one corruption, how to undo it: the
 // corruption list that inverts it, or "none (...)" with the reason, and
 // whether the inverse is exact. Exact: shift with mode wrap (shift back).
 // Approximate: shift and shake with fill or edge (the uncovered border is
@@ -417,7 +417,7 @@ func ExpandCorrupt(item string) ([]string, error) {
 // (8-bit rounding). None: blur, motionblur, resolution, jpeg, sharpen
 // (detail is removed), saltpepper and dead (the hit pixels are lost).
 // Shake's offset differs per frame: each frame record holds it (Offset).
-func CorruptInverse(c Corruption) (inverse string, exact bool) {
+func corruptInverse(c Corruption) (inverse string, exact bool) {
 	num := func(v float64) string { return strconv.FormatFloat(v, 'g', -1, 64) }
 	switch c.Kind {
 	case "shift":
@@ -438,7 +438,7 @@ func CorruptInverse(c Corruption) (inverse string, exact bool) {
 }
 
 // CorruptNote is how a manifest describes one frame corruption of its
-// spec and its inverse (see CorruptInverse).
+// spec and its inverse (see corruptInverse).
 type CorruptNote struct {
 	Step    string `json:"step"`
 	Inverse string `json:"inverse"`
@@ -453,7 +453,7 @@ func corruptNotes(s Spec) []CorruptNote {
 	}
 	var out []CorruptNote
 	for _, c := range cs {
-		inv, exact := CorruptInverse(c)
+		inv, exact := corruptInverse(c)
 		out = append(out, CorruptNote{Step: c.String(), Inverse: inv, Exact: exact})
 	}
 	return out

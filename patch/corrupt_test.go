@@ -312,7 +312,7 @@ func TestCorruptShiftModes(t *testing.T) {
 		t.Error("shift:-2:1:wrap then its inverse shift:2:-1:wrap does not restore the frame")
 	}
 	cs, _ := ParseCorrupt("shift:-2:1:wrap")
-	if inv, exact := CorruptInverse(cs[0]); inv != "shift:2:-1:wrap" || !exact {
+	if inv, exact := corruptInverse(cs[0]); inv != "shift:2:-1:wrap" || !exact {
 		t.Errorf("inverse of shift:-2:1:wrap = %q exact %v", inv, exact)
 	}
 }
@@ -324,7 +324,7 @@ func TestCorruptShiftModes(t *testing.T) {
 // ours.
 func TestCorruptSeverityMonotone(t *testing.T) {
 	frames := append(gameFrames(t), photoFrame(t))
-	for _, kind := range CorruptKinds {
+	for _, kind := range corruptKinds {
 		for fi, fr := range frames {
 			prev := 0.0
 			for n := 1; n <= 5; n++ {
@@ -410,7 +410,7 @@ func TestCorruptZeroAlloc(t *testing.T) {
 	g := mustGrid(t, GridConfig{Width: ph.Rect.Dx(), Height: ph.Rect.Dy(), PatchW: 8})
 	tok := NewTokenizer(g)
 	ts := NewTokenSet(g.N(), g.D())
-	for _, kind := range CorruptKinds {
+	for _, kind := range corruptKinds {
 		if kind == "jpeg" {
 			continue
 		}

@@ -14,8 +14,8 @@ import (
 	"tilebench/internal/atomicfile"
 )
 
-// ManifestFormat is the version written in every manifest's "format".
-const ManifestFormat = 1
+// manifestFormat is the version written in every manifest's "format".
+const manifestFormat = 1
 
 // GridJSON is a grid's geometry as a manifest stores it. Cols, Rows, OutW
 // and OutH are derived; a reader checks that they agree.
@@ -45,7 +45,7 @@ func gridJSON(g *Grid) GridJSON {
 // each frame's scramble (Unscramble) and rebuild the pipeline
 // (NewPipeline) to replay it.
 type Manifest struct {
-	// Format is ManifestFormat (1).
+	// Format is manifestFormat (1).
 	Format int `json:"format"`
 	// Grid is the geometry the frames were cut on.
 	Grid GridJSON `json:"grid"`
@@ -68,7 +68,7 @@ type Manifest struct {
 // NewManifest starts a manifest for a sequence run by a pipeline on g with
 // spec, Reset to seed.
 func NewManifest(g *Grid, spec Spec, seed uint64) *Manifest {
-	return &Manifest{Format: ManifestFormat, Grid: gridJSON(g), Spec: spec, Line: spec.String(), Corrupt: corruptNotes(spec), Seed: seed, g: g}
+	return &Manifest{Format: manifestFormat, Grid: gridJSON(g), Spec: spec, Line: spec.String(), Corrupt: corruptNotes(spec), Seed: seed, g: g}
 }
 
 // GridOf returns the manifest's grid.
@@ -139,8 +139,8 @@ func ReadManifest(r io.Reader, g *Grid) (*Manifest, error) {
 	if dec.More() {
 		return nil, errors.New("manifest: trailing data after the JSON document")
 	}
-	if m.Format != ManifestFormat {
-		return nil, fmt.Errorf("manifest: format %d, this tilebench reads format %d", m.Format, ManifestFormat)
+	if m.Format != manifestFormat {
+		return nil, fmt.Errorf("manifest: format %d, this tilebench reads format %d", m.Format, manifestFormat)
 	}
 	edge, err := ParseEdge(m.Grid.Edge)
 	if err != nil || m.Grid.Edge == "" {
@@ -399,12 +399,12 @@ func (m *Manifest) UnscramblePicture(frame int, cells, dst *TokenSet) error {
 	return r.UnscramblePicture(m.g, cells, dst)
 }
 
-// MaskCells decides which cells of g a user mask hides. The mask must be
+// maskCells decides which cells of g a user mask hides. The mask must be
 // the source frame's size (Width×Height); a pixel is occluded when its
 // grey value (color.GrayModel of the premultiplied colour, so transparent
 // pixels count as black) is ≥ 128; a cell is occluded when at least half
 // of its pixels that lie inside the source frame are.
-func MaskCells(g *Grid, mask image.Image) ([]bool, error) {
+func maskCells(g *Grid, mask image.Image) ([]bool, error) {
 	b := mask.Bounds()
 	if b.Dx() != g.Width || b.Dy() != g.Height {
 		return nil, fmt.Errorf("mask is %dx%d, frames are %dx%d", b.Dx(), b.Dy(), g.Width, g.Height)
@@ -448,7 +448,7 @@ func readMaskFile(g *Grid, path string) ([]bool, error) {
 	if err != nil {
 		return nil, fmt.Errorf("occlude mask %s: not a readable PNG: %v", path, err)
 	}
-	cells, err := MaskCells(g, img)
+	cells, err := maskCells(g, img)
 	if err != nil {
 		return nil, fmt.Errorf("occlude mask %s: %w", path, err)
 	}
