@@ -85,22 +85,15 @@ func BreakingPoint(levels []Level, threshold float64) (Break, error) {
 	if threshold == 0 {
 		threshold = DefaultBreakThreshold
 	}
-	if !(threshold > 0) || math.IsInf(threshold, 0) {
-		return Break{}, fmt.Errorf("breaking point: threshold %v must be positive and finite", threshold)
+	ls, err := sorted(levels, threshold, func(l Level) float64 { return l.Severity })
+	if err != nil {
+		return Break{}, err
 	}
-	if len(levels) == 0 {
-		return Break{}, fmt.Errorf("breaking point: no severities")
-	}
-	ls := slices.Clone(levels)
 	for _, l := range ls {
-		if math.IsNaN(l.Severity) || math.IsInf(l.Severity, 0) {
-			return Break{}, fmt.Errorf("breaking point: severity %v is not finite", l.Severity)
-		}
 		if math.IsNaN(l.Retention.Value) {
 			return Break{}, fmt.Errorf("breaking point: retention at severity %v is NaN", l.Severity)
 		}
 	}
-	slices.SortStableFunc(ls, func(a, b Level) int { return cmp.Compare(a.Severity, b.Severity) })
 	br := Break{Severity: math.NaN(), FirstDip: math.NaN(), Threshold: threshold, Max: ls[len(ls)-1].Severity, Min: ls[0].Severity}
 	for _, l := range ls {
 		if math.IsNaN(br.FirstDip) && l.Retention.Value < threshold {
@@ -136,19 +129,10 @@ func DriftBreak(levels []DriftLevel, threshold float64) (Break, error) {
 	if threshold == 0 {
 		threshold = DefaultDriftThreshold
 	}
-	if !(threshold > 0) || math.IsInf(threshold, 0) {
-		return Break{}, fmt.Errorf("breaking point: threshold %v must be positive and finite", threshold)
+	ls, err := sorted(levels, threshold, func(l DriftLevel) float64 { return l.Severity })
+	if err != nil {
+		return Break{}, err
 	}
-	if len(levels) == 0 {
-		return Break{}, fmt.Errorf("breaking point: no severities")
-	}
-	ls := slices.Clone(levels)
-	for _, l := range ls {
-		if math.IsNaN(l.Severity) || math.IsInf(l.Severity, 0) {
-			return Break{}, fmt.Errorf("breaking point: severity %v is not finite", l.Severity)
-		}
-	}
-	slices.SortStableFunc(ls, func(a, b DriftLevel) int { return cmp.Compare(a.Severity, b.Severity) })
 	br := Break{Severity: math.NaN(), Threshold: threshold, Max: ls[len(ls)-1].Severity, Min: ls[0].Severity}
 	for _, l := range ls {
 		if l.Drift.Lo > threshold {
@@ -157,4 +141,23 @@ func DriftBreak(levels []DriftLevel, threshold float64) (Break, error) {
 		}
 	}
 	return br, nil
+}
+
+// sorted checks the threshold and the severities of levels and returns a
+// copy of levels sorted by severity (stable).
+func sorted[T any](levels []T, threshold float64, severity func(T) float64) ([]T, error) {
+	if !(threshold > 0) || math.IsInf(threshold, 0) {
+		return nil, fmt.Errorf("breaking point: threshold %v must be positive and finite", threshold)
+	}
+	if len(levels) == 0 {
+		return nil, fmt.Errorf("breaking point: no severities")
+	}
+	for _, l := range levels {
+		if s := severity(l); math.IsNaN(s) || math.IsInf(s, 0) {
+			return nil, fmt.Errorf("breaking point: severity %v is not finite", s)
+		}
+	}
+	ls := slices.Clone(levels)
+	slices.SortStableFunc(ls, func(a, b T) int { return cmp.Compare(severity(a), severity(b)) })
+	return ls, nil
 }
