@@ -323,12 +323,6 @@ func parseSequences(data string, frames int) ([]Sequence, error) {
 	if mode == "id" && row != frames {
 		return nil, fmt.Errorf("has %d sequence ids, the recording has %d frames: want one id per frame", row, frames)
 	}
-	for i := range seqs {
-		end := frames
-		if i+1 < len(seqs) {
-			end = seqs[i+1].Start
-		}
-		seqs[i].Len = end - seqs[i].Start
-	}
+	setLengths(seqs, frames)
 	return seqs, nil
 }

@@ -96,13 +96,7 @@ func parseSequencesNPY(r io.Reader, frames int) ([]Sequence, error) {
 	if len(seqs) == 0 {
 		return nil, errors.New("holds no sequences")
 	}
-	for i := range seqs {
-		end := frames
-		if i+1 < len(seqs) {
-			end = seqs[i+1].Start
-		}
-		seqs[i].Len = end - seqs[i].Start
-	}
+	setLengths(seqs, frames)
 	return seqs, nil
 }
 
@@ -183,4 +177,16 @@ func checkText(data []byte) error {
 		i += n
 	}
 	return nil
+}
+
+// setLengths sets each sequence's length from the next one's start (the
+// last runs to the end of the recording's frames).
+func setLengths(seqs []Sequence, frames int) {
+	for i := range seqs {
+		end := frames
+		if i+1 < len(seqs) {
+			end = seqs[i+1].Start
+		}
+		seqs[i].Len = end - seqs[i].Start
+	}
 }
