@@ -714,7 +714,13 @@ func policiesLabel(d study.Definition) string {
 	for i, l := range d.Policies {
 		pd := d.Policy
 		pd.Source = l.Source
-		parts[i] = l.Label + " = " + policyLabel(pd)
+		name := policyLabel(pd)
+		if name == l.Source && !strings.HasPrefix(name, "exec:") && !strings.HasPrefix(name, "tcp://") {
+			// A weights file: its name, not its folders, keeps the title
+			// short (the full source is in study.json and Reproduce).
+			name = filepath.Base(name)
+		}
+		parts[i] = l.Label + " (" + name + ")"
 	}
 	return strings.Join(parts, " vs ")
 }

@@ -84,3 +84,17 @@ func TestComparePoliciesHandWritten(t *testing.T) {
 		t.Fatalf("json comparison %+v", js)
 	}
 }
+
+// A study of several policies is titled by their labels, each with the
+// file name of its weights (not its folders) or its source otherwise.
+func TestPoliciesLabel(t *testing.T) {
+	d := study.Definition{Policies: []policies.Labelled{
+		{Label: "clean", Source: "runs/a/clean-p8.safetensors"},
+		{Label: "ext", Source: "exec:python3 examples/policy_numpy.py"},
+		{Label: "base", Source: "idle"},
+	}}
+	want := "clean (clean-p8.safetensors) vs ext (exec:python3 examples/policy_numpy.py) vs base (idle)"
+	if got := policiesLabel(d); got != want {
+		t.Errorf("policiesLabel = %q, want %q", got, want)
+	}
+}
