@@ -57,16 +57,7 @@ func FuzzSequences(f *testing.F) {
 			}
 			return
 		}
-		next := 0
-		for _, q := range seqs {
-			if q.Start != next || q.Len < 1 {
-				t.Fatalf("sequences %v do not tile %d frames", seqs, frames)
-			}
-			next += q.Len
-		}
-		if next != frames {
-			t.Fatalf("sequences %v cover %d of %d frames", seqs, next, frames)
-		}
+		checkTiles(t, seqs, frames)
 	})
 }
 
@@ -106,16 +97,7 @@ func FuzzSequencesNPY(f *testing.F) {
 			}
 			return
 		}
-		next := 0
-		for _, q := range seqs {
-			if q.Start != next || q.Len < 1 {
-				t.Fatalf("sequences %v do not tile %d frames", seqs, frames)
-			}
-			next += q.Len
-		}
-		if next != frames {
-			t.Fatalf("sequences %v cover %d of %d frames", seqs, next, frames)
-		}
+		checkTiles(t, seqs, frames)
 	})
 }
 
@@ -135,4 +117,20 @@ func FuzzSequencesText(f *testing.F) {
 			}
 		}
 	})
+}
+
+// checkTiles fails t unless seqs cover frames 0..frames-1 in order, each
+// sequence non-empty and starting where the one before ended.
+func checkTiles(t *testing.T, seqs []Sequence, frames int) {
+	t.Helper()
+	next := 0
+	for _, q := range seqs {
+		if q.Start != next || q.Len < 1 {
+			t.Fatalf("sequences %v do not tile %d frames", seqs, frames)
+		}
+		next += q.Len
+	}
+	if next != frames {
+		t.Fatalf("sequences %v cover %d of %d frames", seqs, next, frames)
+	}
 }
