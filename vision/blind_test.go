@@ -132,16 +132,7 @@ func BenchmarkEpisodeDriveExpert(b *testing.B) {
 	}{{"blind", func(p vision.Policy) vision.Policy { return p }}, {"sighted", func(p vision.Policy) vision.Policy { return sighted{p} }}} {
 		b.Run(c.name, func(b *testing.B) {
 			e, _ := blindEpisode(b, "drive", func(g games.Game) vision.Policy { return c.wrap(expertOf(b)(g)) })
-			b.ReportAllocs()
-			steps := 0
-			for i := 0; b.Loop(); i++ {
-				res, err := e.Run(games.HeldOut(i%50), uint64(i), nil)
-				if err != nil {
-					b.Fatal(err)
-				}
-				steps += res.Steps
-			}
-			b.ReportMetric(float64(steps)/b.Elapsed().Seconds(), "steps/s")
+			benchEpisodes(b, e)
 		})
 	}
 }

@@ -138,6 +138,12 @@ func BenchmarkEpisodePaddleExpert(b *testing.B) {
 		ex, _ := vision.NewExpertPolicy(g)
 		return sighted{ex}
 	})
+	benchEpisodes(b, e)
+}
+
+// benchEpisodes plays e on held-out seeds for b's loop and reports the
+// steps per second.
+func benchEpisodes(b *testing.B, e *vision.Episode) {
 	b.ReportAllocs()
 	steps := 0
 	for i := 0; b.Loop(); i++ {
