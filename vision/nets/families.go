@@ -25,6 +25,7 @@ type attnNet struct {
 	gemb   []float32
 	att    attention
 	ot     tanhLayer
+	kx, vx []float32 // infer: keys and values spread back to every token
 }
 
 func newAttn(c *core) *attnNet {
@@ -72,16 +73,36 @@ func (n *attnNet) Info() vision.Info {
 }
 
 func (n *attnNet) Act(obs *vision.Observation, action []float64) error {
-	return n.act(n.Forward, obs, action)
+	return n.act(n.infer, obs, action)
+}
+
+// infer is Forward for acting, with the same result bit for bit: when
+// some tokens are blank (black occlusion), the per-token layers run once
+// for all of them (inputs.compact). Backward must not follow it.
+func (n *attnNet) infer(obs *vision.Observation, out []float32) error {
+	x, ldx, rows, slot, ok, err := n.in.compact(obs, n.grid)
+	if err != nil {
+		return err
+	}
+	if !ok {
+		return n.Forward(obs, out)
+	}
+	return n.forward(x, ldx, rows, slot, out)
 }
 
 func (n *attnNet) Forward(obs *vision.Observation, out []float32) error {
-	n.att.have = false
-	if err := checkOut(out, n.hd.outDim); err != nil {
-		return err
-	}
 	x, ldx, rows, err := n.in.build(obs, n.grid)
 	if err != nil {
+		return err
+	}
+	return n.forward(x, ldx, rows, nil, out)
+}
+
+// forward runs the net on rows of stride ldx. With slot non-nil the rows
+// are distinct token rows, and token i reads row slot[i] (inputs.compact).
+func (n *attnNet) forward(x []float32, ldx, rows int, slot []int32, out []float32) error {
+	n.att.have = false
+	if err := checkOut(out, n.hd.outDim); err != nil {
 		return err
 	}
 	cfg := n.cfg
@@ -91,6 +112,16 @@ func (n *attnNet) Forward(obs *vision.Observation, out []float32) error {
 		ldk = cfg.KeyHidden
 	}
 	k := n.key.forward(kin, ldk, rows)
+	v, ldv := x, ldx
+	if n.value != nil {
+		v = n.value.forward(x, ldx, rows)
+		ldv = n.dv
+	}
+	if slot != nil {
+		k = spread(&n.kx, k, cfg.KeySize, cfg.KeySize, slot)
+		v = spread(&n.vx, v, ldv, n.dv, slot)
+		ldv, rows = n.dv, len(slot)
+	}
 	if n.pos {
 		d := cfg.KeySize
 		for i, c := range n.in.cellOf {
@@ -103,16 +134,22 @@ func (n *attnNet) Forward(obs *vision.Observation, out []float32) error {
 			}
 		}
 	}
-	v, ldv := x, ldx
-	if n.value != nil {
-		v = n.value.forward(x, ldx, rows)
-		ldv = n.dv
-	}
 	clear(n.q)
 	kern.nn(cfg.Queries, cfg.QueryDim, cfg.KeySize, n.pe, cfg.QueryDim, n.wq, cfg.KeySize, n.q, cfg.KeySize)
 	o := n.att.forward(n.q, k, cfg.KeySize, v, ldv, rows)
 	n.hd.forward(n.ot.forward(o), out)
 	return nil
+}
+
+// spread writes row slot[i] of src (stride ld, w values used) as row i of
+// *dst (dense, w wide) and returns it.
+func spread(dst *[]float32, src []float32, ld, w int, slot []int32) []float32 {
+	*dst = grow(*dst, len(slot)*w)
+	out := *dst
+	for i, s := range slot {
+		copy(out[i*w:(i+1)*w], src[int(s)*ld:int(s)*ld+w])
+	}
+	return out
 }
 
 func (n *attnNet) Backward(dOut []float32) {

@@ -4,7 +4,11 @@ package nets
 
 //go:generate go run ./internal/asmgen/cmd/asmgen -o kernels_amd64.s
 
-import "golang.org/x/sys/cpu"
+import (
+	"math"
+
+	"golang.org/x/sys/cpu"
+)
 
 // Assembly micro-kernels (kernels_amd64.s, written by internal/asmgen):
 // gemmRxW computes C (R×W) += A (R×k) · B (k×W) with AVX and FMA, where
@@ -58,6 +62,18 @@ func expSub8(x *float32, n int, m float32) float32
 //
 //go:noescape
 func max8(x *float32, n int) float32
+
+// sub8 sets dst[i] = src[i] − m[i] for the n values at each (n a
+// positive multiple of 8).
+//
+//go:noescape
+func sub8(dst, src, m *float32, n int)
+
+// zero8 reports whether every bit of the n values at x is zero (n a
+// positive multiple of 8).
+//
+//go:noescape
+func zero8(x *float32, n int) bool
 
 // haveAVX reports whether the assembly kernels can run here.
 var haveAVX = cpu.X86.HasAVX && cpu.X86.HasFMA && cpu.X86.HasSSE41
@@ -194,4 +210,29 @@ func maxRow(row []float32) float32 {
 		mx = max(mx, maxRowGo(row[n8:]))
 	}
 	return mx
+}
+
+// subRow sets dst[i] = src[i] − m[i] (the three of equal length).
+func subRow(dst, src, m []float32) {
+	if !haveAVX || len(dst) < 8 {
+		subRowGo(dst, src, m)
+		return
+	}
+	n8 := len(dst) &^ 7
+	_, _ = src[len(dst)-1], m[len(dst)-1]
+	sub8(&dst[0], &src[0], &m[0], n8)
+	subRowGo(dst[n8:], src[n8:], m[n8:])
+}
+
+// blankRow reports whether every value of row has all bits zero (a −0
+// counts as not blank).
+func blankRow(row []float32) bool {
+	if !haveAVX || len(row) < 8 {
+		return blankRowGo(row)
+	}
+	if math.Float32bits(row[0])|math.Float32bits(row[len(row)-1]) != 0 {
+		return false // most rows that are not blank end here
+	}
+	n8 := len(row) &^ 7
+	return zero8(&row[0], n8) && blankRowGo(row[n8:])
 }

@@ -852,3 +852,38 @@ max8_done:
 	VMOVSS X0, ret+16(FP)
 	VZEROUPPER
 	RET
+
+// func sub8(dst, src, m *float32, n int)
+TEXT ·sub8(SB), NOSPLIT, $0-32
+	MOVQ dst+0(FP), DI
+	MOVQ src+8(FP), SI
+	MOVQ m+16(FP), DX
+	MOVQ n+24(FP), CX
+	SHRQ $3, CX
+sub8_loop:
+	VMOVUPS (SI), Y0
+	VSUBPS (DX), Y0, Y0
+	VMOVUPS Y0, (DI)
+	ADDQ $32, SI
+	ADDQ $32, DX
+	ADDQ $32, DI
+	DECQ CX
+	JNZ sub8_loop
+	VZEROUPPER
+	RET
+
+// func zero8(x *float32, n int) bool
+TEXT ·zero8(SB), NOSPLIT, $0-17
+	MOVQ x+0(FP), SI
+	MOVQ n+8(FP), CX
+	SHRQ $3, CX
+	VXORPS Y0, Y0, Y0
+zero8_loop:
+	VORPS (SI), Y0, Y0
+	ADDQ $32, SI
+	DECQ CX
+	JNZ zero8_loop
+	VPTEST Y0, Y0
+	SETEQ ret+16(FP)
+	VZEROUPPER
+	RET

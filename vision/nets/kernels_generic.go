@@ -9,3 +9,10 @@ func expSubRow(row []float32, m float32) float32 { return expSubRowGo(row, m) }
 
 // maxRow returns the largest value of a non-empty row.
 func maxRow(row []float32) float32 { return maxRowGo(row) }
+
+// subRow sets dst[i] = src[i] − m[i] (the three of equal length).
+func subRow(dst, src, m []float32) { subRowGo(dst, src, m) }
+
+// blankRow reports whether every value of row has all bits zero (a −0
+// counts as not blank).
+func blankRow(row []float32) bool { return blankRowGo(row) }

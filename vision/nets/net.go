@@ -301,6 +301,7 @@ type inputs struct {
 	hist          []float32 // (k−1) slots × cells × d
 	head          int       // slot holding the previous step
 	cellOf        []int     // grid index of each token of the last set (-1 none)
+	slot          []int32   // compact: the row each token reads
 	capacity      int
 }
 
@@ -342,22 +343,22 @@ func (in *inputs) reset() {
 // (the value function's input).
 func (in *inputs) pixels() int { return in.d * in.k }
 
-// build returns the rows, their stride and the token count. Without
-// context or previous action the rows alias obs.Tokens.Data.
-func (in *inputs) build(obs *vision.Observation, g *patch.Grid) ([]float32, int, int, error) {
+// check validates obs against the grid and the policy's inputs and sets
+// cellOf, the grid cell of each token.
+func (in *inputs) check(obs *vision.Observation, g *patch.Grid) error {
 	if obs == nil || obs.Tokens == nil {
-		return nil, 0, 0, errors.New("observation has no tokens")
+		return errors.New("observation has no tokens")
 	}
 	ts := obs.Tokens
 	n := ts.N
 	if ts.D != in.d {
-		return nil, 0, 0, fmt.Errorf("tokens have %d values, the policy was built for %d (patch %dx%d, %d channels)", ts.D, in.d, g.PatchW, g.PatchH, g.Channels)
+		return fmt.Errorf("tokens have %d values, the policy was built for %d (patch %dx%d, %d channels)", ts.D, in.d, g.PatchW, g.PatchH, g.Channels)
 	}
 	if og := obs.Grid; og != nil && og != g && (og.Cols != g.Cols || og.Rows != g.Rows) {
-		return nil, 0, 0, fmt.Errorf("tokens were cut on a grid of %dx%d cells, the policy was built for %dx%d (%s)", og.Cols, og.Rows, g.Cols, g.Rows, g)
+		return fmt.Errorf("tokens were cut on a grid of %dx%d cells, the policy was built for %dx%d (%s)", og.Cols, og.Rows, g.Cols, g.Rows, g)
 	}
 	if n < 0 || len(ts.Data) < n*ts.D || len(ts.Pos) < n {
-		return nil, 0, 0, fmt.Errorf("token set claims %d tokens but holds %d values and %d positions", n, len(ts.Data), len(ts.Pos))
+		return fmt.Errorf("token set claims %d tokens but holds %d values and %d positions", n, len(ts.Data), len(ts.Pos))
 	}
 	if in.pa > 0 && len(obs.PrevAction) != 0 {
 		want := in.pa
@@ -365,7 +366,7 @@ func (in *inputs) build(obs *vision.Observation, g *patch.Grid) ([]float32, int,
 			want = 1
 		}
 		if len(obs.PrevAction) != want {
-			return nil, 0, 0, fmt.Errorf("previous action has %d values, want %d", len(obs.PrevAction), want)
+			return fmt.Errorf("previous action has %d values, want %d", len(obs.PrevAction), want)
 		}
 	}
 	if cap(in.cellOf) < n {
@@ -380,6 +381,17 @@ func (in *inputs) build(obs *vision.Observation, g *patch.Grid) ([]float32, int,
 			in.cellOf[i] = g.Index(p)
 		}
 	}
+	return nil
+}
+
+// build returns the rows, their stride and the token count. Without
+// context or previous action the rows alias obs.Tokens.Data.
+func (in *inputs) build(obs *vision.Observation, g *patch.Grid) ([]float32, int, int, error) {
+	if err := in.check(obs, g); err != nil {
+		return nil, 0, 0, err
+	}
+	ts := obs.Tokens
+	n := ts.N
 	if in.k == 1 && in.pa == 0 && !in.centre {
 		return ts.Data[:n*in.d], in.d, n, nil
 	}
@@ -526,4 +538,90 @@ func checkOut(out []float32, want int) error {
 		return fmt.Errorf("output buffer has %d values, want %d", len(out), want)
 	}
 	return nil
+}
+
+// compact is build for inference when some tokens are blank (every value
+// zero, as black occlusion leaves them): it returns the rows of the
+// non-blank tokens followed by one row standing for every blank token,
+// their stride, the row count, and slot[i], the row that token i reads.
+// Every per-token layer gives a blank token the result of that last row,
+// bit for bit, so the layers run on the distinct rows only and the
+// results are spread back by slot before the set is mixed. Centring
+// gives each row the bits build gives it. ok is false (and nothing is
+// built) when no token is blank, or with context frames or a previous
+// action, whose rows are not blank when the token is.
+func (in *inputs) compact(obs *vision.Observation, g *patch.Grid) (x []float32, ldx, rows int, slot []int32, ok bool, err error) {
+	if err := in.check(obs, g); err != nil {
+		return nil, 0, 0, nil, false, err
+	}
+	if in.k != 1 || in.pa != 0 {
+		return nil, 0, 0, nil, false, nil
+	}
+	ts := obs.Tokens
+	n, d := ts.N, in.d
+	if cap(in.slot) < n {
+		in.slot = make([]int32, n)
+	}
+	slot = in.slot[:n]
+	kept := 0
+	for i := 0; i < n; i++ {
+		if blankRow(ts.Data[i*d : (i+1)*d]) {
+			slot[i] = -1
+		} else {
+			slot[i] = int32(kept)
+			kept++
+		}
+	}
+	if kept == n {
+		return nil, 0, 0, nil, false, nil
+	}
+	in.buf = grow(in.buf, (kept+1)*d)
+	x = in.buf[:(kept+1)*d]
+	blank := x[kept*d:]
+	clear(blank)
+	var m []float32
+	if in.centre {
+		// As centreRows: the mean by the kernel (blank rows add exactly
+		// 0), then x − m, which is what its x + (−1)·m rounds to.
+		in.coef = grow(in.coef, n)
+		c := in.coef[:n]
+		inv := 1 / float32(n)
+		for i := range c {
+			c[i] = inv
+		}
+		m = in.mean[:d]
+		clear(m)
+		kern.nn(1, n, d, c, n, ts.Data, d, m, d)
+		subRow(blank, blank, m)
+	}
+	for i, s := range slot {
+		if s < 0 {
+			slot[i] = int32(kept)
+			continue
+		}
+		dst, src := x[int(s)*d:int(s+1)*d], ts.Data[i*d:(i+1)*d]
+		if m != nil {
+			subRow(dst, src, m)
+		} else {
+			copy(dst, src)
+		}
+	}
+	return x, d, kept + 1, slot, true, nil
+}
+
+// blankRowGo is blankRow in Go.
+func blankRowGo(row []float32) bool {
+	var bits uint32
+	for _, v := range row {
+		bits |= math.Float32bits(v)
+	}
+	return bits == 0
+}
+
+// subRowGo is subRow in Go.
+func subRowGo(dst, src, m []float32) {
+	src, m = src[:len(dst)], m[:len(dst)]
+	for i := range dst {
+		dst[i] = src[i] - m[i]
+	}
 }

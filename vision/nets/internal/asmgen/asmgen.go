@@ -1,7 +1,8 @@
 // Package asmgen writes vision/nets/kernels_amd64.s: register-blocked
 // AVX/FMA micro-kernels for C (R×W) += A (R×k) · B (k×W), R = 1..6 rows,
 // W = 16 or 8 columns, where A[r][p] is at a + r·lda + p·inc (inc = 1 for
-// A, lda = 1 for Aᵀ), and an 8-wide exp and max for the softmax.
+// A, lda = 1 for Aᵀ), an 8-wide exp and max for the softmax, and an
+// 8-wide difference and all-zero test for the inputs of a token set.
 //
 // Regenerate with `go generate ./vision/nets` (which runs
 // `go run ./internal/asmgen/cmd/asmgen -o kernels_amd64.s` in vision/nets).
@@ -39,6 +40,8 @@ func Generate() []byte {
 	}
 	a.expSub8()
 	a.max8()
+	a.sub8()
+	a.zero8()
 	return []byte(strings.Join(a.lines, "\n"))
 }
 
@@ -240,6 +243,51 @@ func (a *asm) max8() {
 	a.add("\tVPSHUFD $1, X0, X1")
 	a.add("\tVMAXSS X1, X0, X0")
 	a.add("\tVMOVSS X0, ret+16(FP)")
+	a.add("\tVZEROUPPER")
+	a.add("\tRET")
+	a.add("")
+}
+
+// sub8 writes sub8: dst[i] = src[i] − m[i] for n (a positive multiple of
+// 8) values; one rounding per value, as the FMA x + (−1)·m gives.
+func (a *asm) sub8() {
+	a.add("// func sub8(dst, src, m *float32, n int)")
+	a.add("TEXT ·sub8(SB), NOSPLIT, $0-32")
+	a.add("\tMOVQ dst+0(FP), DI")
+	a.add("\tMOVQ src+8(FP), SI")
+	a.add("\tMOVQ m+16(FP), DX")
+	a.add("\tMOVQ n+24(FP), CX")
+	a.add("\tSHRQ $3, CX")
+	a.add("sub8_loop:")
+	a.add("\tVMOVUPS (SI), Y0")
+	a.add("\tVSUBPS (DX), Y0, Y0")
+	a.add("\tVMOVUPS Y0, (DI)")
+	a.add("\tADDQ $32, SI")
+	a.add("\tADDQ $32, DX")
+	a.add("\tADDQ $32, DI")
+	a.add("\tDECQ CX")
+	a.add("\tJNZ sub8_loop")
+	a.add("\tVZEROUPPER")
+	a.add("\tRET")
+	a.add("")
+}
+
+// zero8 writes zero8: whether every bit of n (a positive multiple of 8)
+// values is zero.
+func (a *asm) zero8() {
+	a.add("// func zero8(x *float32, n int) bool")
+	a.add("TEXT ·zero8(SB), NOSPLIT, $0-17")
+	a.add("\tMOVQ x+0(FP), SI")
+	a.add("\tMOVQ n+8(FP), CX")
+	a.add("\tSHRQ $3, CX")
+	a.add("\tVXORPS Y0, Y0, Y0")
+	a.add("zero8_loop:")
+	a.add("\tVORPS (SI), Y0, Y0")
+	a.add("\tADDQ $32, SI")
+	a.add("\tDECQ CX")
+	a.add("\tJNZ zero8_loop")
+	a.add("\tVPTEST Y0, Y0")
+	a.add("\tSETEQ ret+16(FP)")
 	a.add("\tVZEROUPPER")
 	a.add("\tRET")
 	a.add("")
