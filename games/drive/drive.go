@@ -1,6 +1,7 @@
 package drive
 
 import (
+	"encoding/binary"
 	"fmt"
 	"image"
 	"math"
@@ -126,9 +127,14 @@ type Game struct {
 }
 
 type spritePx struct {
-	off   int // byte offset in a frame with stride 4·Width
-	c     uint32
-	alpha uint32 // 0..256
+	off      int // byte offset in a frame with stride 4·Width
+	c        uint32
+	alpha    uint32 // 0..256
+	row, col int32  // the frame pixel
+	// For drawSprite: the colour's red and blue bytes (bits 0–7 and
+	// 16–23) and its green byte (bits 8–15), each times alpha, and
+	// 256 − alpha.
+	rb, g, keep uint32
 }
 
 type viewGeom struct {
@@ -402,21 +408,28 @@ func (g *Game) buildSprite() {
 			if nc > nb {
 				col0 = cabin
 			}
-			g.sprite = append(g.sprite, spritePx{off: row*4*g.cfg.Width + 4*col, c: pack(col0), alpha: uint32((nb + nc) * 16)})
+			c, a := pack(col0), uint32((nb+nc)*16)
+			g.sprite = append(g.sprite, spritePx{
+				off: row*4*g.cfg.Width + 4*col, c: c, alpha: a, row: int32(row), col: int32(col),
+				rb: (c & 0xff00ff) * a, g: (c & 0xff00) * a, keep: 256 - a,
+			})
 		}
 	}
 }
 
+// drawSprite blends the car over the frame: each channel becomes
+// (frame·(256−alpha) + car·alpha) >> 8, alpha left as it is. Red and blue
+// are blended together in one word, green in another: each product sum
+// is at most 255·256, so it fits its 16 bits and the lanes never carry
+// into each other.
 func (g *Game) drawSprite(dst *image.RGBA) {
-	W := g.cfg.Width
 	for _, s := range g.sprite {
-		row, col := s.off/(4*W), (s.off%(4*W))/4
-		o := row*dst.Stride + 4*col
-		px := dst.Pix[o : o+3 : o+3]
-		a := s.alpha
-		px[0] = uint8((uint32(px[0])*(256-a) + (s.c&0xff)*a) >> 8)
-		px[1] = uint8((uint32(px[1])*(256-a) + (s.c>>8&0xff)*a) >> 8)
-		px[2] = uint8((uint32(px[2])*(256-a) + (s.c>>16&0xff)*a) >> 8)
+		o := int(s.row)*dst.Stride + 4*int(s.col)
+		px := dst.Pix[o : o+4 : o+4]
+		w := binary.LittleEndian.Uint32(px)
+		rb := ((w&0xff00ff)*s.keep + s.rb) >> 8 & 0xff00ff
+		gr := ((w&0xff00)*s.keep + s.g) >> 8 & 0xff00
+		binary.LittleEndian.PutUint32(px, rb|gr|w&0xff000000)
 	}
 }
 

@@ -161,3 +161,44 @@ func TestRenderSamplerPathsAgree(t *testing.T) {
 		}
 	}
 }
+
+// drawSprite's two-lane blend gives the plain per-channel blend
+// (frame·(256−a) + car·a) >> 8 for every coverage 0..256 over random
+// frames and colours, and leaves alpha and the other pixels alone.
+func TestSpriteBlendMatchesPlain(t *testing.T) {
+	g := newGame(t, "")
+	W, H := g.cfg.Width, g.cfg.Height
+	rng := seeds.NewRand(23)
+	dst := image.NewRGBA(image.Rect(0, 0, W, H))
+	want := make([]byte, len(dst.Pix))
+	for round := 0; round < 200; round++ {
+		g.sprite = g.sprite[:0]
+		used := map[int]bool{}
+		for a := uint32(0); a <= 256; a++ {
+			row, col := rng.IntN(H), rng.IntN(W)
+			if used[row*W+col] {
+				continue
+			}
+			used[row*W+col] = true
+			c := rng.Uint32()
+			g.sprite = append(g.sprite, spritePx{
+				off: row*4*W + 4*col, c: c, alpha: a, row: int32(row), col: int32(col),
+				rb: (c & 0xff00ff) * a, g: (c & 0xff00) * a, keep: 256 - a,
+			})
+		}
+		for i := range dst.Pix {
+			dst.Pix[i] = uint8(rng.Uint32())
+		}
+		copy(want, dst.Pix)
+		for _, s := range g.sprite {
+			for ch := 0; ch < 3; ch++ {
+				x, y := uint32(want[s.off+ch]), s.c>>(8*ch)&0xff
+				want[s.off+ch] = uint8((x*(256-s.alpha) + y*s.alpha) >> 8)
+			}
+		}
+		g.drawSprite(dst)
+		if !bytes.Equal(dst.Pix, want) {
+			t.Fatalf("round %d: the sprite blend differs from the plain one", round)
+		}
+	}
+}
