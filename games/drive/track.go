@@ -428,15 +428,26 @@ func (tr *Track) Project(p Vec, hint, window int) (idx int, s, lateral float64) 
 		lo, hi = 0, n-1
 	}
 	best := math.Inf(1)
-	for ii := lo; ii <= hi; ii++ {
-		i := ((ii % n) + n) % n
-		a, b := tr.Pts[i], tr.Pts[(i+1)%n]
+	// Segment i runs from sample i to sample j = i+1 (0 past the last):
+	// stepped rather than taken modulo n, and clamped with the built-in
+	// min and max (the same values as math.Min and math.Max, NaN and
+	// signed zeros included), as this runs over 49 segments every step.
+	i := ((lo % n) + n) % n
+	for ii := lo; ii <= hi; ii, i = ii+1, i+1 {
+		if i == n {
+			i = 0
+		}
+		j := i + 1
+		if j == n {
+			j = 0
+		}
+		a, b := tr.Pts[i], tr.Pts[j]
 		ab := b.sub(a)
 		l2 := ab.dot(ab)
 		u := 0.0
 		if l2 > 0 {
 			u = p.sub(a).dot(ab) / l2
-			u = math.Max(0, math.Min(1, u))
+			u = max(0, min(1, u))
 		}
 		q := a.add(ab.scale(u))
 		d := p.sub(q)

@@ -296,7 +296,7 @@ func (wd *world) stampSegment(i int) {
 	inv := 1 / wd.ppm
 	ymin, ymax := q[0].Y, q[0].Y
 	for _, v := range q[1:] {
-		ymin, ymax = math.Min(ymin, v.Y), math.Max(ymax, v.Y)
+		ymin, ymax = min(ymin, v.Y), max(ymax, v.Y)
 	}
 	y0 := max(0, int(math.Ceil(ymin-0.5)))
 	y1 := min(wd.h-1, int(math.Floor(ymax-0.5)))
@@ -309,7 +309,7 @@ func (wd *world) stampSegment(i int) {
 				continue
 			}
 			x := p.X + (yc-p.Y)*(r.X-p.X)/(r.Y-p.Y)
-			xl, xr = math.Min(xl, x), math.Max(xr, x)
+			xl, xr = min(xl, x), max(xr, x)
 		}
 		if xl > xr {
 			continue
