@@ -12,12 +12,13 @@ import (
 // stress` processes on drive (set-attention p8 reference, random:0.3
 // occlusion, full scramble, one worker) alternated with a NumPy + PyTorch
 // loop doing the same per-step work without a game, five rounds each. It
-// logs the medians and ratios (docs/studies.md records them). The issue's
-// target is 2.5×, which this machine does not reach (the per-step parts
-// themselves cost more than 1/2.5 of the loop's step); the test fails if
-// tilebench is not faster than the loop per CPU second, or if the loop's
-// network does not match nets_ref.py. Opt in with TILEBENCH_SPEED=1 (it
-// takes about a minute).
+// logs the medians and ratios (docs/studies.md records them) and fails
+// if the ratio of the medians by wall time is under the issue's target,
+// 2.5×, or if the loop's network does not match nets_ref.py. The loop's
+// own speed differs between hosts (6 000 to 11 000 steps/s on the
+// machines this was tried on), so the ratio does too: docs/studies.md
+// gives both figures. Opt in with TILEBENCH_SPEED=1 (it takes about a
+// minute).
 func TestPipelineSpeed(t *testing.T) {
 	if os.Getenv("TILEBENCH_SPEED") != "1" {
 		t.Skip("timing test: TILEBENCH_SPEED=1")
@@ -38,7 +39,10 @@ func TestPipelineSpeed(t *testing.T) {
 	}
 	t.Logf("tilebench stress %.0f steps/s, NumPy+PyTorch %.0f steps/s: %.2f× (target %.1f×); per CPU second %.0f vs %.0f: %.2f×",
 		s.Go, s.Loop, s.Ratio, s.Target, s.GoCPU, s.PyCPU, s.CPU)
-	if !(s.CPU > 1) {
-		t.Errorf("tilebench stress does %.0f steps per CPU second, the NumPy+PyTorch loop %.0f: want tilebench faster", s.GoCPU, s.PyCPU)
+	if !(s.Target > 0) {
+		t.Fatalf("pipeline_speed.py printed no target ratio: %s", out)
+	}
+	if !(s.Ratio >= s.Target) {
+		t.Errorf("tilebench stress does %.0f steps/s, the NumPy+PyTorch loop %.0f: %.2f×, want at least %.1f×", s.Go, s.Loop, s.Ratio, s.Target)
 	}
 }
