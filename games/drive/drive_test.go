@@ -592,3 +592,29 @@ func TestWorldRoadMatchesDistance(t *testing.T) {
 		}
 	}
 }
+
+// Starting an episode allocates nothing once the game has played one
+// (the world image, the circuit and the expert's plan reuse their
+// buffers), whichever circuit comes next.
+func TestResetAllocs(t *testing.T) {
+	for _, v := range []string{"", "twisty+broad"} {
+		g := newGame(t, v)
+		img := image.NewRGBA(image.Rect(0, 0, DefaultWidth, DefaultHeight))
+		act := make([]float64, 2)
+		for i := 0; i < 50; i++ { // warm-up: every circuit of the cycle once
+			g.Reset(games.HeldOut(i))
+			g.Expert().Act(act)
+			g.Render(img)
+		}
+		i := 0
+		n := testing.AllocsPerRun(100, func() {
+			g.Reset(games.HeldOut(i % 50))
+			g.Expert().Act(act)
+			g.Render(img)
+			i++
+		})
+		if n != 0 {
+			t.Errorf("variation %q: %v allocations per reset and first frame", v, n)
+		}
+	}
+}
