@@ -3,7 +3,6 @@ package drive
 import (
 	"image"
 	"os"
-	"sort"
 	"testing"
 	"time"
 
@@ -87,28 +86,15 @@ func TestDriveSpeed(t *testing.T) {
 	}
 	g := newGame(t, "")
 	img := image.NewRGBA(image.Rect(0, 0, DefaultWidth, DefaultHeight))
-	act := make([]float64, 2)
-	const n, starts = 20001, 501
-	step, start := make([]float64, 0, n), make([]float64, 0, starts)
-	for i := 0; i < starts; i++ {
+	start := make([]float64, 0, 501)
+	for i := range cap(start) {
 		s := time.Now()
 		g.Reset(games.HeldOut(i % 50))
 		g.Render(img)
 		start = append(start, float64(time.Since(s)))
 	}
-	g.Reset(games.HeldOut(0))
-	for i := 0; i < n; i++ {
-		s := time.Now()
-		g.Expert().Act(act)
-		if st, _ := g.Step(act); st.Done {
-			g.Reset(games.HeldOut(i))
-		}
-		g.Render(img)
-		step = append(step, float64(time.Since(s)))
-	}
-	sort.Float64s(step)
-	sort.Float64s(start)
-	ms, mr := step[n/2], start[starts/2]
+	mr := gametest.Median(start)
+	ms := gametest.StepTimes(g, 20001, nil)
 	t.Logf("speed: step+render %.2f µs (%.0f steps/s), reset+first frame %.0f µs", ms/1e3, 1e9/ms, mr/1e3)
 	if ms > 20000 {
 		t.Errorf("step+render median %.2f µs: want ≤ 20 µs (50 000 steps/s)", ms/1e3)

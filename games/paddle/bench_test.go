@@ -3,11 +3,9 @@ package paddle
 import (
 	"image"
 	"os"
-	"sort"
 	"testing"
 	"time"
 
-	"tilebench/games"
 	"tilebench/games/internal/gametest"
 )
 
@@ -38,27 +36,14 @@ func TestPaddleSpeed(t *testing.T) {
 		t.Skip("set TILEBENCH_SPEED=1 to time single steps")
 	}
 	g := newGame(t, "")
-	g.Reset(games.HeldOut(0))
-	img := image.NewRGBA(image.Rect(0, 0, Width, Height))
-	cp := make([]byte, len(img.Pix))
-	act := make([]float64, 1)
-	const n = 20001
-	step, copies := make([]float64, 0, n), make([]float64, 0, n)
-	for i := 0; i < n; i++ {
+	cp := make([]byte, Width*Height*4)
+	var copies []float64
+	ms := gametest.StepTimes(g, 20001, func(img *image.RGBA) {
 		s := time.Now()
-		g.Expert().Act(act)
-		if st, _ := g.Step(act); st.Done {
-			g.Reset(games.HeldOut(i))
-		}
-		g.Render(img)
-		step = append(step, float64(time.Since(s)))
-		s = time.Now()
 		copy(cp, img.Pix)
 		copies = append(copies, float64(time.Since(s)))
-	}
-	sort.Float64s(step)
-	sort.Float64s(copies)
-	ms, mc := step[n/2], copies[n/2]
+	})
+	mc := gametest.Median(copies)
 	t.Logf("speed: step+render %.2f µs (%.0f steps/s), frame copy %.2f µs, ratio %.1f", ms/1e3, 1e9/ms, mc/1e3, ms/mc)
 	if ms > 5000 {
 		t.Errorf("step+render median %.2f µs: want ≤ 5 µs (200 000 steps/s)", ms/1e3)

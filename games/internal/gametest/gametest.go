@@ -13,8 +13,10 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
+	"time"
 
 	"tilebench/games"
 	"tilebench/internal/atomicfile"
@@ -251,4 +253,38 @@ func BenchFrameCopy(b *testing.B, w, h int) {
 	for i := 0; i < b.N; i++ {
 		copy(dst, src)
 	}
+}
+
+// StepTimes times n single steps of g (expert action, step and render,
+// a reset on the held-out seed of the step's index when an episode ends)
+// and returns their median in nanoseconds; the median of single steps is
+// steadier than a benchmark's mean on a busy machine. between, if not
+// nil, runs after each step, untimed, with the frame just rendered.
+func StepTimes(g games.WithExpert, n int, between func(frame *image.RGBA)) float64 {
+	sp := g.Spec()
+	g.Reset(games.HeldOut(0))
+	img := image.NewRGBA(image.Rect(0, 0, sp.Width, sp.Height))
+	act := make([]float64, sp.Action.Dim())
+	ex := g.Expert()
+	times := make([]float64, 0, n)
+	for i := 0; i < n; i++ {
+		s := time.Now()
+		ex.Act(act)
+		if st, _ := g.Step(act); st.Done {
+			g.Reset(games.HeldOut(i))
+		}
+		g.Render(img)
+		times = append(times, float64(time.Since(s)))
+		if between != nil {
+			between(img)
+		}
+	}
+	return Median(times)
+}
+
+// Median returns the median of xs (the upper one of an even count),
+// sorting xs in place.
+func Median(xs []float64) float64 {
+	slices.Sort(xs)
+	return xs[len(xs)/2]
 }
