@@ -32,6 +32,7 @@ func blankTokens(obs *vision.Observation, every int, negZero bool) int {
 // of them; the action must be bit for bit the one of the full forward
 // pass, which computes every token (the property that keeps recorded
 // studies and trainings reproducible), for every attention configuration.
+// Forward itself is checked against testdata/ref/nets_ref.py (ref_test.go).
 func TestInferMatchesForward(t *testing.T) {
 	cfgs := []Config{
 		{},
