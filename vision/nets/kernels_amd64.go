@@ -75,6 +75,12 @@ func sub8(dst, src, m *float32, n int)
 //go:noescape
 func zero8(x *float32, n int) bool
 
+// tanh8 sets dst[i] = tanhf(src[i]), bit for bit, for the n values at
+// each (n a positive multiple of 8).
+//
+//go:noescape
+func tanh8(dst, src *float32, n int)
+
 // haveAVX reports whether the assembly kernels can run here.
 var haveAVX = cpu.X86.HasAVX && cpu.X86.HasFMA && cpu.X86.HasSSE41
 
@@ -235,4 +241,16 @@ func blankRow(row []float32) bool {
 	}
 	n8 := len(row) &^ 7
 	return zero8(&row[0], n8) && blankRowGo(row[n8:])
+}
+
+// tanhRow sets dst[i] = tanhf(src[i]) (dst as long as src).
+func tanhRow(dst, src []float32) {
+	if !haveAVX || len(src) < 8 {
+		tanhRowGo(dst, src)
+		return
+	}
+	n8 := len(src) &^ 7
+	_ = dst[len(src)-1]
+	tanh8(&dst[0], &src[0], n8)
+	tanhRowGo(dst[n8:], src[n8:])
 }

@@ -887,3 +887,125 @@ zero8_loop:
 	SETEQ ret+16(FP)
 	VZEROUPPER
 	RET
+
+DATA tanhconst_small<>+0(SB)/4, $0x3f200000
+GLOBL tanhconst_small<>(SB), RODATA|NOPTR, $4
+DATA tanhconst_big<>+0(SB)/4, $0x411028f6
+GLOBL tanhconst_big<>(SB), RODATA|NOPTR, $4
+DATA tanhconst_two<>+0(SB)/4, $0x40000000
+GLOBL tanhconst_two<>(SB), RODATA|NOPTR, $4
+DATA tanhconst_t0<>+0(SB)/4, $0xbbbaf0ea
+GLOBL tanhconst_t0<>(SB), RODATA|NOPTR, $4
+DATA tanhconst_t1<>+0(SB)/4, $0x3ca9134e
+GLOBL tanhconst_t1<>(SB), RODATA|NOPTR, $4
+DATA tanhconst_t2<>+0(SB)/4, $0x3d5c1e2d
+GLOBL tanhconst_t2<>(SB), RODATA|NOPTR, $4
+DATA tanhconst_t3<>+0(SB)/4, $0x3e088393
+GLOBL tanhconst_t3<>(SB), RODATA|NOPTR, $4
+DATA tanhconst_t4<>+0(SB)/4, $0x3eaaaa99
+GLOBL tanhconst_t4<>(SB), RODATA|NOPTR, $4
+DATA tanhconst_abs<>+0(SB)/4, $0x7fffffff
+GLOBL tanhconst_abs<>(SB), RODATA|NOPTR, $4
+
+// func tanh8(dst, src *float32, n int)
+TEXT ·tanh8(SB), NOSPLIT, $0-24
+	MOVQ dst+0(FP), DI
+	MOVQ src+8(FP), SI
+	MOVQ n+16(FP), CX
+	SHRQ $3, CX
+	VBROADCASTSS tanhconst_abs<>(SB), Y15
+	VBROADCASTSS expconst_one<>(SB), Y14
+	VMOVUPS expconst_bias<>(SB), X13
+tanh8_loop:
+	VMOVUPS (SI), Y0
+	VANDPS Y15, Y0, Y1
+	VANDNPS Y0, Y15, Y12
+	VMULPS Y0, Y0, Y2
+	VBROADCASTSS tanhconst_t0<>(SB), Y3
+	VMULPS Y2, Y3, Y3
+	VBROADCASTSS tanhconst_t1<>(SB), Y4
+	VADDPS Y4, Y3, Y3
+	VMULPS Y2, Y3, Y3
+	VBROADCASTSS tanhconst_t2<>(SB), Y4
+	VSUBPS Y4, Y3, Y3
+	VMULPS Y2, Y3, Y3
+	VBROADCASTSS tanhconst_t3<>(SB), Y4
+	VADDPS Y4, Y3, Y3
+	VMULPS Y2, Y3, Y3
+	VBROADCASTSS tanhconst_t4<>(SB), Y4
+	VSUBPS Y4, Y3, Y3
+	VMULPS Y2, Y3, Y3
+	VMULPS Y0, Y3, Y3
+	VADDPS Y0, Y3, Y3
+	VADDPS Y1, Y1, Y4
+	VBROADCASTSS expconst_log2e<>(SB), Y5
+	VMULPS Y5, Y4, Y5
+	VBROADCASTSS expconst_half<>(SB), Y6
+	VADDPS Y6, Y5, Y5
+	VROUNDPS $1, Y5, Y5
+	VBROADCASTSS expconst_c1<>(SB), Y6
+	VMULPS Y6, Y5, Y6
+	VSUBPS Y6, Y4, Y4
+	VBROADCASTSS expconst_c2<>(SB), Y6
+	VMULPS Y6, Y5, Y6
+	VSUBPS Y6, Y4, Y4
+	VBROADCASTSS expconst_p0<>(SB), Y6
+	VMULPS Y4, Y6, Y6
+	VBROADCASTSS expconst_p1<>(SB), Y7
+	VADDPS Y7, Y6, Y6
+	VMULPS Y4, Y6, Y6
+	VBROADCASTSS expconst_p2<>(SB), Y7
+	VADDPS Y7, Y6, Y6
+	VMULPS Y4, Y6, Y6
+	VBROADCASTSS expconst_p3<>(SB), Y7
+	VADDPS Y7, Y6, Y6
+	VMULPS Y4, Y6, Y6
+	VBROADCASTSS expconst_p4<>(SB), Y7
+	VADDPS Y7, Y6, Y6
+	VMULPS Y4, Y6, Y6
+	VBROADCASTSS expconst_p5<>(SB), Y7
+	VADDPS Y7, Y6, Y6
+	VMULPS Y4, Y6, Y6
+	VMULPS Y4, Y6, Y6
+	VADDPS Y4, Y6, Y6
+	VBROADCASTSS expconst_one<>(SB), Y7
+	VADDPS Y7, Y6, Y6
+	VCVTPS2DQ Y5, Y5
+	VEXTRACTF128 $1, Y5, X8
+	VPSRAD $1, X5, X9
+	VPSUBD X9, X5, X5
+	VPADDD X13, X9, X9
+	VPADDD X13, X5, X5
+	VPSLLD $23, X9, X9
+	VPSLLD $23, X5, X5
+	VPSRAD $1, X8, X10
+	VPSUBD X10, X8, X8
+	VPADDD X13, X10, X10
+	VPADDD X13, X8, X8
+	VPSLLD $23, X10, X10
+	VPSLLD $23, X8, X8
+	VINSERTF128 $1, X8, Y5, Y5
+	VINSERTF128 $1, X10, Y9, Y9
+	VMULPS Y9, Y6, Y6
+	VMULPS Y5, Y6, Y6
+	VADDPS Y14, Y6, Y6
+	VBROADCASTSS tanhconst_two<>(SB), Y7
+	VDIVPS Y6, Y7, Y7
+	VSUBPS Y7, Y14, Y7
+	VORPS Y12, Y7, Y7
+	VORPS Y12, Y14, Y8
+	VBROADCASTSS tanhconst_big<>(SB), Y9
+	VCMPPS $1, Y1, Y9, Y10
+	VBLENDVPS Y10, Y8, Y7, Y7
+	VBROADCASTSS tanhconst_small<>(SB), Y9
+	VCMPPS $1, Y9, Y1, Y10
+	VBLENDVPS Y10, Y3, Y7, Y7
+	VCMPPS $3, Y0, Y0, Y10
+	VBLENDVPS Y10, Y0, Y7, Y7
+	VMOVUPS Y7, (DI)
+	ADDQ $32, SI
+	ADDQ $32, DI
+	DECQ CX
+	JNZ tanh8_loop
+	VZEROUPPER
+	RET

@@ -16,3 +16,6 @@ func subRow(dst, src, m []float32) { subRowGo(dst, src, m) }
 // blankRow reports whether every value of row has all bits zero (a −0
 // counts as not blank).
 func blankRow(row []float32) bool { return blankRowGo(row) }
+
+// tanhRow sets dst[i] = tanhf(src[i]) (dst as long as src).
+func tanhRow(dst, src []float32) { tanhRowGo(dst, src) }

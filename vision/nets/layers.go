@@ -88,9 +88,7 @@ type tanhLayer struct {
 
 func (t *tanhLayer) forward(x []float32) []float32 {
 	t.y = grow(t.y, len(x))
-	for i, v := range x {
-		t.y[i] = tanhf(v)
-	}
+	tanhRow(t.y, x)
 	return t.y
 }
 

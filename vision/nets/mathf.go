@@ -72,6 +72,14 @@ func tanhf(x float32) float32 {
 	return y
 }
 
+// tanhRowGo is tanhRow in Go.
+func tanhRowGo(dst, src []float32) {
+	dst = dst[:len(src)]
+	for i, v := range src {
+		dst[i] = tanhf(v)
+	}
+}
+
 // softmaxRow replaces the n logits in row by their softmax, subtracting
 // the row's largest value first so that no exponential overflows (logits
 // of ±1e4 stay finite). An empty row is left alone.

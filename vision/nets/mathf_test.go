@@ -1,6 +1,7 @@
 package nets
 
 import (
+	"fmt"
 	"math"
 	"testing"
 )
@@ -133,6 +134,50 @@ func TestExpSubRowMatchesScalar(t *testing.T) {
 		}
 		if math.Abs(float64(s-sr)) > 1e-6*math.Max(1, float64(sr)) {
 			t.Fatalf("n=%d: sum %v, scalar %v", n, s, sr)
+		}
+	}
+}
+
+// tanhRow gives tanhf's bits for every value, on the vector path and the
+// tail alike: a sweep through the float32 bit patterns (every sign,
+// exponent and many mantissas, so subnormals, ±Inf and NaNs included),
+// values either side of the branch points 0.625 and 9.01, and rows of
+// every length and offset up to 40. tanhf itself is checked against
+// math.Tanh in TestExpTanhAccuracy.
+func TestTanhRowMatchesTanhf(t *testing.T) {
+	var src []float32
+	for b := uint64(0); b < 1<<32; b += 997 {
+		src = append(src, math.Float32frombits(uint32(b)))
+	}
+	for _, edge := range []float32{0.625, 9.01, 0, 1} {
+		v := edge
+		for i := 0; i < 20; i++ {
+			src = append(src, v, -v)
+			v = math.Nextafter32(v, 0)
+		}
+		v = edge
+		for i := 0; i < 20; i++ {
+			src = append(src, v, -v)
+			v = math.Nextafter32(v, 100)
+		}
+	}
+	src = append(src, float32(math.Copysign(0, -1)), float32(math.Inf(1)), float32(math.Inf(-1)), float32(math.NaN()))
+	dst := make([]float32, len(src))
+	check := func(what string, dst, src []float32) {
+		t.Helper()
+		for i, v := range src {
+			if got, want := math.Float32bits(dst[i]), math.Float32bits(tanhf(v)); got != want {
+				t.Fatalf("%s: tanhRow(%g = %#08x) = %#08x, tanhf %#08x", what, v, math.Float32bits(v), got, want)
+			}
+		}
+	}
+	tanhRow(dst, src)
+	check("sweep", dst, src)
+	for off := 0; off < 8; off++ {
+		for n := 0; n <= 40; n++ {
+			d := make([]float32, n)
+			tanhRow(d, src[len(src)-200+off:len(src)-200+off+n])
+			check(fmt.Sprintf("offset %d length %d", off, n), d, src[len(src)-200+off:len(src)-200+off+n])
 		}
 	}
 }

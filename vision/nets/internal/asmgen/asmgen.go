@@ -42,6 +42,7 @@ func Generate() []byte {
 	a.max8()
 	a.sub8()
 	a.zero8()
+	a.tanh8()
 	return []byte(strings.Join(a.lines, "\n"))
 }
 
@@ -171,32 +172,9 @@ func (a *asm) expSub8() {
 	a.add("\tVSUBPS Y2, Y0, Y0")
 	a.add("\tVMULPS Y13, Y1, Y2")
 	a.add("\tVSUBPS Y2, Y0, Y0") // r
-	a.add("\tVBROADCASTSS %s, Y3", c("p0"))
-	for _, p := range []string{"p1", "p2", "p3", "p4", "p5"} {
-		a.add("\tVMULPS Y0, Y3, Y3")
-		a.add("\tVBROADCASTSS %s, Y4", c(p))
-		a.add("\tVADDPS Y4, Y3, Y3")
-	}
-	a.add("\tVMULPS Y0, Y3, Y3")
-	a.add("\tVMULPS Y0, Y3, Y3") // p*r*r
-	a.add("\tVADDPS Y0, Y3, Y3") // + r
-	a.add("\tVBROADCASTSS %s, Y4", c("one"))
-	a.add("\tVADDPS Y4, Y3, Y3") // + 1
-	a.add("\tVCVTPS2DQ Y1, Y1")  // n (exact: Y1 holds integers)
-	// AVX without AVX2 has no 256-bit integer ops: the exponent bits are
-	// made in two 128-bit halves.
-	a.add("\tVEXTRACTF128 $1, Y1, X5")
-	for _, h := range [][2]string{{"X1", "X2"}, {"X5", "X4"}} {
-		n, hr := h[0], h[1]
-		a.add("\tVPSRAD $1, %s, %s", n, hr)    // h = n >> 1
-		a.add("\tVPSUBD %s, %s, %s", hr, n, n) // n - h
-		a.add("\tVPADDD X14, %s, %s", hr, hr)
-		a.add("\tVPADDD X14, %s, %s", n, n)
-		a.add("\tVPSLLD $23, %s, %s", hr, hr) // 2^h
-		a.add("\tVPSLLD $23, %s, %s", n, n)   // 2^(n-h)
-	}
-	a.add("\tVINSERTF128 $1, X5, Y1, Y1")
-	a.add("\tVINSERTF128 $1, X4, Y2, Y2")
+	a.expPoly(0, 3, 4)
+	a.add("\tVCVTPS2DQ Y1, Y1") // n (exact: Y1 holds integers)
+	a.pow2Halves(1, 2, 5, 4, 14)
 	// p·2^h·2^(n-h), in that order, as expf does: 2^n alone may overflow.
 	a.add("\tVMULPS Y2, Y3, Y3")
 	a.add("\tVMULPS Y1, Y3, Y3")
@@ -217,6 +195,42 @@ func (a *asm) expSub8() {
 	a.add("\tVZEROUPPER")
 	a.add("\tRET")
 	a.add("")
+}
+
+// expPoly writes expf's polynomial in r = Y{r}: Y{p} = ((p0·r + p1)·r
+// … + p5)·r·r + r + 1, with Y{tmp} for the constants.
+func (a *asm) expPoly(r, p, tmp int) {
+	a.add("\tVBROADCASTSS %s, Y%d", c("p0"), p)
+	for _, k := range []string{"p1", "p2", "p3", "p4", "p5"} {
+		a.add("\tVMULPS Y%d, Y%d, Y%d", r, p, p)
+		a.add("\tVBROADCASTSS %s, Y%d", c(k), tmp)
+		a.add("\tVADDPS Y%d, Y%d, Y%d", tmp, p, p)
+	}
+	a.add("\tVMULPS Y%d, Y%d, Y%d", r, p, p)
+	a.add("\tVMULPS Y%d, Y%d, Y%d", r, p, p) // p*r*r
+	a.add("\tVADDPS Y%d, Y%d, Y%d", r, p, p) // + r
+	a.add("\tVBROADCASTSS %s, Y%d", c("one"), tmp)
+	a.add("\tVADDPS Y%d, Y%d, Y%d", tmp, p, p) // + 1
+}
+
+// pow2Halves turns the integers n in Y{n} into the float32 scale factors
+// 2^(n−h) in Y{n} and 2^h in Y{h}, h = n>>1 (as expf splits them, so that
+// n = −126 or 128 stays finite), with X{bias} holding 127 in each lane.
+// AVX without AVX2 has no 256-bit integer ops, so the exponent bits are
+// made in two 128-bit halves, the upper ones in X{nHi} and X{hHi}.
+func (a *asm) pow2Halves(n, h, nHi, hHi, bias int) {
+	a.add("\tVEXTRACTF128 $1, Y%d, X%d", n, nHi)
+	for _, q := range [][2]int{{n, h}, {nHi, hHi}} {
+		nr, hr := q[0], q[1]
+		a.add("\tVPSRAD $1, X%d, X%d", nr, hr)      // h = n >> 1
+		a.add("\tVPSUBD X%d, X%d, X%d", hr, nr, nr) // n - h
+		a.add("\tVPADDD X%d, X%d, X%d", bias, hr, hr)
+		a.add("\tVPADDD X%d, X%d, X%d", bias, nr, nr)
+		a.add("\tVPSLLD $23, X%d, X%d", hr, hr) // 2^h
+		a.add("\tVPSLLD $23, X%d, X%d", nr, nr) // 2^(n-h)
+	}
+	a.add("\tVINSERTF128 $1, X%d, Y%d, Y%d", nHi, n, n)
+	a.add("\tVINSERTF128 $1, X%d, Y%d, Y%d", hHi, h, h)
 }
 
 // max8 writes max8: the largest of n (a multiple of 8, at least 8) values.
@@ -288,6 +302,101 @@ func (a *asm) zero8() {
 	a.add("\tJNZ zero8_loop")
 	a.add("\tVPTEST Y0, Y0")
 	a.add("\tSETEQ ret+16(FP)")
+	a.add("\tVZEROUPPER")
+	a.add("\tRET")
+	a.add("")
+}
+
+// tanhConsts are tanh8's constants beyond expConsts: those of tanhf in
+// mathf.go, with its branch points.
+var tanhConsts = []struct {
+	name string
+	v    float64
+}{
+	{"small", 0.625}, {"big", 9.01}, {"two", 2},
+	{"t0", -5.70498872745e-3}, {"t1", 2.06390887954e-2}, {"t2", 5.37397155531e-2},
+	{"t3", 1.33314422036e-1}, {"t4", 3.33332819422e-1},
+}
+
+// tanh8 writes tanh8: dst[i] = tanh(src[i]) for n (a positive multiple
+// of 8) values, every lane computed by each of tanhf's branches in its
+// order of operations (no fused multiply-adds) and the branch tanhf takes
+// chosen by masks, so that each value has tanhf's bits: the odd
+// polynomial below 0.625, 1 − 2/(e^{2|x|}+1) with expf's steps up to
+// 9.01, ±1 beyond, and NaN as given. Needs expSub8's constants.
+func (a *asm) tanh8() {
+	for _, k := range tanhConsts {
+		a.add("DATA tanhconst_%s<>+0(SB)/4, %s", k.name, f32(k.v))
+		a.add("GLOBL tanhconst_%s<>(SB), RODATA|NOPTR, $4", k.name)
+	}
+	a.add("DATA tanhconst_abs<>+0(SB)/4, $0x7fffffff")
+	a.add("GLOBL tanhconst_abs<>(SB), RODATA|NOPTR, $4")
+	a.add("")
+	t := func(nm string) string { return "tanhconst_" + nm + "<>(SB)" }
+	a.add("// func tanh8(dst, src *float32, n int)")
+	a.add("TEXT ·tanh8(SB), NOSPLIT, $0-24")
+	a.add("\tMOVQ dst+0(FP), DI")
+	a.add("\tMOVQ src+8(FP), SI")
+	a.add("\tMOVQ n+16(FP), CX")
+	a.add("\tSHRQ $3, CX")
+	a.add("\tVBROADCASTSS %s, Y15", t("abs"))
+	a.add("\tVBROADCASTSS %s, Y14", c("one"))
+	a.add("\tVMOVUPS expconst_bias<>(SB), X13")
+	a.add("tanh8_loop:")
+	a.add("\tVMOVUPS (SI), Y0")     // x
+	a.add("\tVANDPS Y15, Y0, Y1")   // ax = |x|
+	a.add("\tVANDNPS Y0, Y15, Y12") // the sign bit of x
+	// The polynomial: ((((t0·z + t1)·z − t2)·z + t3)·z − t4)·z·x + x.
+	a.add("\tVMULPS Y0, Y0, Y2") // z
+	a.add("\tVBROADCASTSS %s, Y3", t("t0"))
+	for i, op := range []string{"VADDPS", "VSUBPS", "VADDPS", "VSUBPS"} {
+		a.add("\tVMULPS Y2, Y3, Y3")
+		a.add("\tVBROADCASTSS %s, Y4", t(fmt.Sprintf("t%d", i+1)))
+		a.add("\t%s Y4, Y3, Y3", op)
+	}
+	a.add("\tVMULPS Y2, Y3, Y3")
+	a.add("\tVMULPS Y0, Y3, Y3")
+	a.add("\tVADDPS Y0, Y3, Y3") // Y3: the polynomial's result
+	// e = expf(2·ax) by expf's steps (2·ax lies in [1.25, 18.02] where
+	// this result is used, so expf's range checks do not apply).
+	a.add("\tVADDPS Y1, Y1, Y4") // 2·ax
+	a.add("\tVBROADCASTSS %s, Y5", c("log2e"))
+	a.add("\tVMULPS Y5, Y4, Y5")
+	a.add("\tVBROADCASTSS %s, Y6", c("half"))
+	a.add("\tVADDPS Y6, Y5, Y5")
+	a.add("\tVROUNDPS $1, Y5, Y5") // n, floored
+	a.add("\tVBROADCASTSS %s, Y6", c("c1"))
+	a.add("\tVMULPS Y6, Y5, Y6")
+	a.add("\tVSUBPS Y6, Y4, Y4")
+	a.add("\tVBROADCASTSS %s, Y6", c("c2"))
+	a.add("\tVMULPS Y6, Y5, Y6")
+	a.add("\tVSUBPS Y6, Y4, Y4") // r
+	a.expPoly(4, 6, 7)
+	a.add("\tVCVTPS2DQ Y5, Y5")
+	a.pow2Halves(5, 9, 8, 10, 13)
+	a.add("\tVMULPS Y9, Y6, Y6")
+	a.add("\tVMULPS Y5, Y6, Y6") // e
+	// 1 − 2/(e+1), with x's sign.
+	a.add("\tVADDPS Y14, Y6, Y6")
+	a.add("\tVBROADCASTSS %s, Y7", t("two"))
+	a.add("\tVDIVPS Y6, Y7, Y7")
+	a.add("\tVSUBPS Y7, Y14, Y7")
+	a.add("\tVORPS Y12, Y7, Y7")
+	// ±1 beyond 9.01, the polynomial below 0.625, x itself where NaN.
+	a.add("\tVORPS Y12, Y14, Y8")
+	a.add("\tVBROADCASTSS %s, Y9", t("big"))
+	a.add("\tVCMPPS $1, Y1, Y9, Y10") // big < ax
+	a.add("\tVBLENDVPS Y10, Y8, Y7, Y7")
+	a.add("\tVBROADCASTSS %s, Y9", t("small"))
+	a.add("\tVCMPPS $1, Y9, Y1, Y10") // ax < small
+	a.add("\tVBLENDVPS Y10, Y3, Y7, Y7")
+	a.add("\tVCMPPS $3, Y0, Y0, Y10") // unordered: NaN
+	a.add("\tVBLENDVPS Y10, Y0, Y7, Y7")
+	a.add("\tVMOVUPS Y7, (DI)")
+	a.add("\tADDQ $32, SI")
+	a.add("\tADDQ $32, DI")
+	a.add("\tDECQ CX")
+	a.add("\tJNZ tanh8_loop")
 	a.add("\tVZEROUPPER")
 	a.add("\tRET")
 	a.add("")
