@@ -8,6 +8,7 @@ import (
 
 	"tilebench/games"
 	"tilebench/games/internal/gametest"
+	"tilebench/vision/stats"
 )
 
 // BenchmarkDriveStep measures one step plus one render at 112×80 with the
@@ -93,7 +94,7 @@ func TestDriveSpeed(t *testing.T) {
 		g.Render(img)
 		start = append(start, float64(time.Since(s)))
 	}
-	mr := gametest.Median(start)
+	mr := stats.Median(start)
 	ms := gametest.StepTimes(g, 20001, nil)
 	t.Logf("speed: step+render %.2f µs (%.0f steps/s), reset+first frame %.0f µs", ms/1e3, 1e9/ms, mr/1e3)
 	if ms > 20000 {

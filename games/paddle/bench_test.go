@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"tilebench/games/internal/gametest"
+	"tilebench/vision/stats"
 )
 
 // BenchmarkPaddleStep measures one step plus one render of the 120×80
@@ -43,7 +44,7 @@ func TestPaddleSpeed(t *testing.T) {
 		copy(cp, img.Pix)
 		copies = append(copies, float64(time.Since(s)))
 	})
-	mc := gametest.Median(copies)
+	mc := stats.Median(copies)
 	t.Logf("speed: step+render %.2f µs (%.0f steps/s), frame copy %.2f µs, ratio %.1f", ms/1e3, 1e9/ms, mc/1e3, ms/mc)
 	if ms > 5000 {
 		t.Errorf("step+render median %.2f µs: want ≤ 5 µs (200 000 steps/s)", ms/1e3)

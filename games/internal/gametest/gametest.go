@@ -13,7 +13,6 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
-	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -21,6 +20,7 @@ import (
 	"tilebench/games"
 	"tilebench/internal/atomicfile"
 	"tilebench/internal/seeds"
+	"tilebench/vision/stats"
 )
 
 // Update is the -update test flag: rewrite the golden files instead of
@@ -279,12 +279,5 @@ func StepTimes(g games.WithExpert, n int, between func(frame *image.RGBA)) float
 			between(img)
 		}
 	}
-	return Median(times)
-}
-
-// Median returns the median of xs (the upper one of an even count),
-// sorting xs in place.
-func Median(xs []float64) float64 {
-	slices.Sort(xs)
-	return xs[len(xs)/2]
+	return stats.Median(times)
 }
